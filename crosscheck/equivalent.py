@@ -1,0 +1,141 @@
+"""Thevenin and Norton equivalents at a port, from the MNA solver.
+
+V_th is the open-circuit voltage V(a) − V(b). Z_th is found with a 1 A test
+current into a and out of b on the *same* factorization, with independent
+sources zeroed and dependent sources left active (Thévenin 1883, Norton 1926;
+see D. H. Johnson, "Origins of the equivalent circuit concept", Proc. IEEE
+91, 2003). No series/parallel reduction is used, so dependent sources and
+coupled inductors need no special case.
+
+Degenerate ports are explicit: Z_th = 0 (an ideal voltage source at the port)
+has no Norton form; Y_N = 0 (an ideal current source at the port, e.g. at DC
+behind a capacitor) has no Thevenin form and is found with the port shorted.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+
+from .errors import SingularNetworkError
+from .network import Network, Port, check_port, floating_reference
+from .solver import MnaSystem
+
+#: |Z_th| below this multiple of eps times the test solution's largest voltage is an exact zero.
+_ZERO_ROUNDOFF = 1e3 * np.finfo(float).eps
+
+
+@dataclass(frozen=True)
+class ElementForm:
+    """An impedance (or admittance) drawn as a resistance (conductance) with one reactive element."""
+
+    resistance: float  # Ω for the series form, S (conductance) for the parallel form
+    reactive_kind: str | None  # "L", "C" or None (purely resistive, or DC)
+    reactive_value: float | None  # H or F
+
+
+@dataclass(frozen=True)
+class Equivalent:
+    """The equivalent at one frequency. None marks a form that does not exist at this port."""
+
+    freq_hz: float
+    vth: complex | None
+    zth: complex | None
+    in_: complex | None
+    yn: complex | None
+    condition: float
+    note: str = ""
+
+    @property
+    def omega(self) -> float:
+        return 2.0 * math.pi * self.freq_hz
+
+    def series_form(self) -> ElementForm | None:
+        """Z_th as R in series with L (X > 0) or C (X < 0)."""
+        if self.zth is None:
+            return None
+        r, x = self.zth.real, self.zth.imag
+        if self.freq_hz == 0 or x == 0:
+            return ElementForm(r, None, None)
+        if x > 0:
+            return ElementForm(r, "L", x / self.omega)
+        return ElementForm(r, "C", -1.0 / (self.omega * x))
+
+    def parallel_form(self) -> ElementForm | None:
+        """Y_N as G in parallel with C (B > 0) or L (B < 0)."""
+        if self.yn is None:
+            return None
+        g, b = self.yn.real, self.yn.imag
+        if self.freq_hz == 0 or b == 0:
+            return ElementForm(g, None, None)
+        if b > 0:
+            return ElementForm(g, "C", b / self.omega)
+        return ElementForm(g, "L", -1.0 / (self.omega * b))
+
+
+def thevenin(network: Network, port: Port, freqs_hz: Sequence[float] | float) -> list[Equivalent]:
+    """Equivalents at ``port`` for each frequency (Hz; 0 is DC), one factorization per frequency."""
+    freqs = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
+    check_port(network, port)
+    bad = freqs[~np.isfinite(freqs) | (freqs < 0)]
+    if bad.size:
+        raise ValueError(f"frequency {bad[0]!r} Hz is not allowed; give finite frequencies >= 0")
+    ties = [r] if (r := floating_reference(network, port)) is not None else []
+    system = MnaSystem(network, ties)
+    rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
+    try:
+        xs, conds = system.solve_many(freqs, rhs)
+    except SingularNetworkError:
+        return [_one_frequency(system, network, port, float(f), ties) for f in freqs]
+    return [_from_open_port(system, port, float(f), xs[i], float(conds[i])) for i, f in enumerate(freqs)]
+
+
+def _one_frequency(system: MnaSystem, network: Network, port: Port, f: float, ties: list[str]) -> Equivalent:
+    """Open-port route for one frequency; if that is singular, the shorted-port (Norton) route."""
+    rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
+    try:
+        fac = system.factorize(f)
+    except SingularNetworkError as open_error:
+        return _from_shorted_port(network, port, f, ties, open_error)
+    return _from_open_port(system, port, f, fac.solve(rhs), fac.condition)
+
+
+def _port_voltage(system: MnaSystem, x: np.ndarray, port: Port) -> np.ndarray:
+    return np.asarray(system.voltage(x, port.a)) - np.asarray(system.voltage(x, port.b))
+
+
+def _from_open_port(system: MnaSystem, port: Port, f: float, x: np.ndarray, condition: float) -> Equivalent:
+    vth, zth = (complex(v) for v in _port_voltage(system, x, port))
+    scale = float(np.max(np.abs(x[: len(system.node_index), 1]), initial=0.0))
+    if abs(zth) <= _ZERO_ROUNDOFF * max(scale, abs(zth)) or zth == 0:
+        return Equivalent(f, vth, 0j, None, None, condition,
+                          "Z_th = 0: an ideal voltage source sits at the port, so there is no Norton form")
+    return Equivalent(f, vth, zth, vth / zth, 1.0 / zth, condition)
+
+
+def _from_shorted_port(network: Network, port: Port, f: float, ties: list[str],
+                       open_error: SingularNetworkError) -> Equivalent:
+    """Short the port with a 0 V branch: its current is I_N; a 1 V test on it gives Y_N."""
+    from .network import make_element
+
+    short = make_element("vport:short", "V", port)
+    shorted = network.with_elements(network.elements + (short,))
+    system = MnaSystem(shorted, ties)
+    k = system.branch_index[short.name]
+    test = np.zeros(system.size, dtype=complex)
+    test[k] = 1.0
+    try:
+        fac = system.factorize(f)
+    except SingularNetworkError:
+        raise open_error from None
+    x = fac.solve(np.stack([system.source_vector(), test], axis=1))
+    in_ = complex(x[k, 0])
+    yn = complex(-x[k, 1])
+    scale = float(np.max(np.abs(x[:, 1]), initial=0.0))
+    if abs(yn) <= _ZERO_ROUNDOFF * max(scale, abs(yn)) or yn == 0:
+        return Equivalent(f, None, None, in_, 0j, fac.condition,
+                          "Y_N = 0: the port sees an ideal current source, so there is no Thevenin form")
+    return Equivalent(f, in_ / yn, 1.0 / yn, in_, yn, fac.condition)

@@ -1,0 +1,337 @@
+"""The immutable network model that every engine and report works from.
+
+Nothing downstream of the reader sees user text: only ``Network`` and
+``Element``. Node names are lower-case strings; ground is ``"0"`` (``gnd`` is
+an alias). Validation refuses what would make either engine silently wrong:
+ngspice quietly accepts R = 0 as 1 mΩ, L or C <= 0, k > 1, and ties a node
+reached only by current sources to ground, so we refuse those before it can.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import defaultdict
+from dataclasses import dataclass, field, replace
+from typing import Iterable, Iterator
+
+from .errors import Location, NetworkError, PortError
+
+GROUND = "0"
+GROUND_ALIASES = frozenset({"0", "gnd"})
+
+#: Element kinds by their SPICE letter.
+PASSIVE_KINDS = frozenset("RLC")
+SOURCE_KINDS = frozenset("VI")
+VOLTAGE_CONTROLLED = frozenset("EG")  # control: a node pair
+CURRENT_CONTROLLED = frozenset("FH")  # control: the current through a named V element
+ALL_KINDS = PASSIVE_KINDS | SOURCE_KINDS | VOLTAGE_CONTROLLED | CURRENT_CONTROLLED | {"K"}
+
+#: Branches whose output is a current: nodes reached only through these have no defined voltage.
+CURRENT_OUTPUT_KINDS = frozenset("IGF")
+
+
+def canonical_node(name: str) -> str:
+    """Node names compare case-insensitively; ``gnd`` is ground."""
+    n = str(name).strip().lower()
+    return GROUND if n in GROUND_ALIASES else n
+
+
+@dataclass(frozen=True)
+class Element:
+    """One element as SPICE defines it.
+
+    ``nodes`` is ``(n+, n-)`` for every kind but K, plus ``(nc+, nc-)`` for E and G.
+    ``value`` is ohms (R), henries (L), farads (C), gain (E, F), siemens (G),
+    ohms (H) or the coupling coefficient (K); unused (0.0) for V and I, whose
+    phasor is ``ac_mag`` at ``ac_phase_deg`` degrees.
+    ``control`` names the V element whose current controls F and H.
+    ``coupled`` names the two inductors of a K element; the dot of each
+    inductor is on its first node, as in SPICE.
+    """
+
+    name: str
+    kind: str
+    nodes: tuple[str, ...]
+    value: float = 0.0
+    ac_mag: float = 0.0
+    ac_phase_deg: float = 0.0
+    control: str | None = None
+    coupled: tuple[str, str] | None = None
+    where: Location | None = field(default=None, compare=False, repr=False)
+
+    @property
+    def terminals(self) -> tuple[str, str]:
+        """The two nodes the element's own branch connects (its output for controlled sources)."""
+        return (self.nodes[0], self.nodes[1])
+
+    @property
+    def phasor(self) -> complex:
+        """The AC phasor of an independent source, as written (peak or RMS is the case's convention)."""
+        return self.ac_mag * complex(math.cos(math.radians(self.ac_phase_deg)),
+                                     math.sin(math.radians(self.ac_phase_deg)))
+
+    @property
+    def is_short(self) -> bool:
+        """R = 0 is an ideal short: a zero-volt branch, never a tiny resistor."""
+        return self.kind == "R" and self.value == 0.0
+
+
+@dataclass(frozen=True)
+class Port:
+    """The two terminals at which the equivalent is taken: V_th = V(a) - V(b)."""
+
+    a: str
+    b: str
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "a", canonical_node(self.a))
+        object.__setattr__(self, "b", canonical_node(self.b))
+
+    def __iter__(self) -> Iterator[str]:
+        return iter((self.a, self.b))
+
+
+@dataclass(frozen=True)
+class Network:
+    """An immutable linear AC network: a title and its elements in netlist order."""
+
+    title: str
+    elements: tuple[Element, ...]
+    allow_negative: bool = field(default=False, compare=False)
+
+    @property
+    def nodes(self) -> tuple[str, ...]:
+        """Every non-ground node, in order of first appearance."""
+        seen: dict[str, None] = {}
+        for e in self.elements:
+            for n in e.nodes:
+                if n != GROUND:
+                    seen.setdefault(n, None)
+        return tuple(seen)
+
+    def element(self, name: str) -> Element:
+        """The element called ``name`` (case-insensitive)."""
+        key = name.lower()
+        for e in self.elements:
+            if e.name == key:
+                return e
+        raise KeyError(name)
+
+    def by_kind(self, kinds: str | Iterable[str]) -> tuple[Element, ...]:
+        kinds = set(kinds)
+        return tuple(e for e in self.elements if e.kind in kinds)
+
+    def has_node(self, name: str) -> bool:
+        n = canonical_node(name)
+        return n == GROUND or n in self.nodes
+
+    def with_elements(self, elements: Iterable[Element]) -> "Network":
+        return replace(self, elements=tuple(elements))
+
+    def zero_sources(self) -> "Network":
+        """The same network with every independent source set to zero (dependent ones stay)."""
+        return self.with_elements(
+            replace(e, ac_mag=0.0) if e.kind in SOURCE_KINDS else e for e in self.elements
+        )
+
+
+def make_element(name: str, kind: str | None = None, nodes: Iterable[str] = (), value: float = 0.0,
+                 *, ac_mag: float = 0.0, ac_phase_deg: float = 0.0, control: str | None = None,
+                 coupled: tuple[str, str] | None = None, where: Location | None = None) -> Element:
+    """Build an element with names canonicalised (lower case, ``gnd`` -> ``0``)."""
+    name = name.strip().lower()
+    kind = (kind or name[:1]).upper()
+    return Element(
+        name=name,
+        kind=kind,
+        nodes=tuple(canonical_node(n) for n in nodes),
+        value=float(value),
+        ac_mag=float(ac_mag),
+        ac_phase_deg=float(ac_phase_deg),
+        control=control.lower() if control else None,
+        coupled=(coupled[0].lower(), coupled[1].lower()) if coupled else None,
+        where=where,
+    )
+
+
+# --------------------------------------------------------------------------- validation
+
+
+class _UnionFind:
+    def __init__(self) -> None:
+        self.parent: dict[str, str] = {}
+
+    def find(self, x: str) -> str:
+        self.parent.setdefault(x, x)
+        while self.parent[x] != x:
+            self.parent[x] = self.parent[self.parent[x]]
+            x = self.parent[x]
+        return x
+
+    def union(self, a: str, b: str) -> bool:
+        """Join two sets; False when they were already one (the new edge closes a loop)."""
+        ra, rb = self.find(a), self.find(b)
+        if ra == rb:
+            return False
+        self.parent[ra] = rb
+        return True
+
+    def groups(self, items: Iterable[str]) -> dict[str, list[str]]:
+        out: dict[str, list[str]] = defaultdict(list)
+        for x in items:
+            out[self.find(x)].append(x)
+        return out
+
+
+_EXPECTED_NODES = {"R": 2, "L": 2, "C": 2, "V": 2, "I": 2, "E": 4, "G": 4, "F": 2, "H": 2, "K": 0}
+
+
+def validate(network: Network, port: Port | None = None) -> Network:
+    """Refuse an ill-posed network with a message that names the element, its line and the fix.
+
+    Returns the network unchanged so calls can be chained.
+    """
+    _check_elements(network)
+    _check_references(network)
+    _check_voltage_loops(network)
+    _check_connectivity(network, port)
+    if port is not None:
+        check_port(network, port)
+    return network
+
+
+def _fail(e: Element, message: str) -> NetworkError:
+    return NetworkError(f"{e.name}: {message}", e.where)
+
+
+def _check_elements(network: Network) -> None:
+    if not network.elements:
+        raise NetworkError("the network has no elements; a netlist needs at least one element line")
+    seen: dict[str, Element] = {}
+    for e in network.elements:
+        if e.kind not in ALL_KINDS:
+            raise _fail(e, f"unknown element kind {e.kind!r}; supported: R L C V I E F G H K")
+        if e.name in seen:
+            first = seen[e.name].where
+            raise _fail(e, f"duplicate element name (first defined at {first}); give each element its own name")
+        seen[e.name] = e
+        if len(e.nodes) != _EXPECTED_NODES[e.kind]:
+            raise _fail(e, f"expected {_EXPECTED_NODES[e.kind]} nodes, got {len(e.nodes)}")
+        for label, number in (("value", e.value), ("AC magnitude", e.ac_mag), ("AC phase", e.ac_phase_deg)):
+            if not math.isfinite(number):
+                raise _fail(e, f"{label} is {number}; give a finite number")
+        if e.kind in "LC" and e.value <= 0:
+            unit = "H" if e.kind == "L" else "F"
+            raise _fail(e, f"{'inductance' if e.kind == 'L' else 'capacitance'} must be positive (got {e.value} {unit}); "
+                           "remove the element or give it a positive value")
+        if e.kind == "R" and e.value < 0 and not network.allow_negative:
+            raise _fail(e, f"negative resistance ({e.value} Ω) is refused; allow active models explicitly "
+                           "(--allow-negative) if it is intended")
+        if e.kind == "K" and not (0 < e.value <= 1):
+            raise _fail(e, f"coupling coefficient must be in (0, 1] (got {e.value}); k > 1 is not physical")
+        if e.kind in "VEH" and e.nodes[0] == e.nodes[1]:
+            raise _fail(e, f"both terminals are on node {e.nodes[0]!r}: a voltage source shorted on itself; "
+                           "connect it between two different nodes")
+        if e.kind in "VI" and e.ac_mag < 0:
+            raise _fail(e, f"AC magnitude must not be negative (got {e.ac_mag}); add 180° to the phase instead")
+
+
+def _check_references(network: Network) -> None:
+    by_name = {e.name: e for e in network.elements}
+    coupled_pairs: set[frozenset[str]] = set()
+    for e in network.elements:
+        if e.kind in CURRENT_CONTROLLED:
+            ctl = by_name.get(e.control or "")
+            if ctl is None or ctl.kind != "V":
+                found = f" ({ctl.name} is a {ctl.kind} element)" if ctl is not None else ""
+                raise _fail(e, f"controlling source {e.control!r} is not a voltage source in this network{found}; "
+                               "name an independent V element (add a 0 V source in series to sense a current)")
+        if e.kind == "K":
+            assert e.coupled is not None
+            for lname in e.coupled:
+                target = by_name.get(lname)
+                if target is None or target.kind != "L":
+                    raise _fail(e, f"couples {lname!r}, which is not an inductor in this network")
+            if e.coupled[0] == e.coupled[1]:
+                raise _fail(e, f"couples {e.coupled[0]!r} with itself; name two different inductors")
+            pair = frozenset(e.coupled)
+            if pair in coupled_pairs:
+                raise _fail(e, f"a second coupling between {e.coupled[0]} and {e.coupled[1]}; keep one K per pair")
+            coupled_pairs.add(pair)
+
+
+def _check_voltage_loops(network: Network) -> None:
+    """Voltage sources (and ideal shorts) closing a loop make the MNA matrix singular at every frequency."""
+    uf = _UnionFind()
+    for e in network.elements:
+        if e.kind in "VEH" or e.is_short:
+            a, b = e.terminals
+            if not uf.union(a, b):
+                raise _fail(e, "closes a loop of voltage sources and ideal shorts (R = 0); "
+                               "the loop's voltages over-determine the network: remove one or add series resistance")
+
+
+def _check_connectivity(network: Network, port: Port | None) -> None:
+    """Every node needs a voltage: a conducting path (not only current sources) to ground, or to the port.
+
+    A part of the network joined to the rest only through current sources, or not at all, has no
+    defined voltage. A part with no ground may stand on its own only if it holds the whole port
+    (a floating port, such as a transformer secondary): it is then referred to the port's b node.
+    """
+    conducting = _UnionFind()
+    every = _UnionFind()
+    nodes = set(network.nodes) | {GROUND}
+    for n in nodes:
+        conducting.find(n)
+        every.find(n)
+    for e in network.elements:
+        if e.kind == "K":
+            continue
+        a, b = e.terminals
+        every.union(a, b)
+        if e.kind not in CURRENT_OUTPUT_KINDS:
+            conducting.union(a, b)
+    ground_root = conducting.find(GROUND)
+    for root, members in conducting.groups(sorted(nodes)).items():
+        if root == ground_root:
+            continue
+        names = ", ".join(members[:8]) + (" …" if len(members) > 8 else "")
+        holds_port = port is not None and port.a in members and port.b in members
+        touches_current_source = every.find(members[0]) == every.find(GROUND) or any(
+            e.kind in CURRENT_OUTPUT_KINDS and (e.nodes[0] in members) != (e.nodes[1] in members)
+            for e in network.elements
+        )
+        if touches_current_source:
+            raise NetworkError(
+                f"node(s) {names} are reached only through current sources: their voltage is undefined "
+                "(a cut set of current sources); add a resistive path to ground or to the rest of the network"
+            )
+        if holds_port:
+            continue
+        where = "neither to ground nor to the port" if port is not None else "not to ground"
+        raise NetworkError(
+            f"node(s) {names} are connected {where}: a floating part of the network; "
+            "connect it, remove it, or choose a port inside it"
+        )
+
+
+def check_port(network: Network, port: Port) -> None:
+    """The port's nodes must exist and be distinct."""
+    for n in port:
+        if not network.has_node(n):
+            known = ", ".join(sorted(network.nodes)[:12])
+            raise PortError(f"port node {n!r} is not in the network (nodes: 0, {known}); check the spelling")
+    if port.a == port.b:
+        raise PortError(f"the port's two nodes are both {port.a!r}; name two different nodes")
+
+
+def floating_reference(network: Network, port: Port) -> str | None:
+    """The node that stands in for ground when the port sits in a part with no ground (else None)."""
+    conducting = _UnionFind()
+    for e in network.elements:
+        if e.kind != "K":
+            conducting.union(*e.terminals)
+    conducting.find(GROUND)
+    if conducting.find(port.b) != conducting.find(GROUND):
+        return port.b
+    return None
