@@ -304,15 +304,23 @@ def _check_connectivity(network: Network, port: Port | None) -> None:
         if touches_current_source:
             raise NetworkError(
                 f"node(s) {names} are reached only through current sources: their voltage is undefined "
-                "(a cut set of current sources); add a resistive path to ground or to the rest of the network"
+                "(a cut set of current sources); add a resistive path to ground or to the rest of the network",
+                _first_where(network, members),
             )
         if holds_port:
             continue
         where = "neither to ground nor to the port" if port is not None else "not to ground"
         raise NetworkError(
             f"node(s) {names} are connected {where}: a floating part of the network; "
-            "connect it, remove it, or choose a port inside it"
+            "connect it, remove it, or choose a port inside it",
+            _first_where(network, members),
         )
+
+
+def _first_where(network: Network, nodes: Iterable[str]) -> Location | None:
+    """Where the first element touching any of ``nodes`` was defined, so the message can name a line."""
+    wanted = set(nodes)
+    return next((e.where for e in network.elements if wanted.intersection(e.nodes)), None)
 
 
 def check_port(network: Network, port: Port) -> None:

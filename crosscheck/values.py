@@ -1,8 +1,9 @@
 """Engineering numbers as SPICE reads them, and phasors as engineers write them.
 
-SPICE scale suffixes (case-insensitive): ``t g meg k mil m u n p f a``. Letters
+SPICE scale suffixes (case-insensitive): ``t g meg k mil m u n p f``. Letters
 after the number that do not start with a scale factor are units and are
-ignored, exactly as SPICE does (so ``1F`` is one *femto*, and ``10V`` is 10).
+ignored, exactly as SPICE does (so ``1F`` is one *femto*, and ``10V`` and ``1A`` are
+10 and 1: ngspice has no atto suffix).
 Digits after a suffix (``4k7``) are refused: SPICE would silently read 4k.
 
 Phasors: rectangular ``3+4j``, ``3-j4``, ``1.5k - j120``; polar ``5∠53.13°``
@@ -31,7 +32,6 @@ _SCALES: tuple[tuple[str, int], ...] = (
     ("n", -9),
     ("p", -12),
     ("f", -15),
-    ("a", -18),
 )
 
 _NUMBER = re.compile(
@@ -144,12 +144,20 @@ def _part(piece: str, whole: str) -> float:
         raise ValueSyntaxError(f"cannot read {whole!r}; write {_PHASOR_FORMS}") from None
 
 
-_PREFIXES = ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"),
+# Mega is "Meg", as SPICE writes it: a plain "M" reads back as milli, 1e9 too small.
+_PREFIXES = ((1e12, "T"), (1e9, "G"), (1e6, "Meg"), (1e3, "k"), (1.0, ""), (1e-3, "m"),
              (1e-6, "u"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"))
 
 
 def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
-    """Format with an SI prefix and ``sig`` significant figures: 4700 -> '4.7k'."""
+    """Format with an SI prefix and ``sig`` significant figures: 4700 -> '4.7k'.
+
+    A ``unit`` given with a leading space is set apart the engineering way: (1000, unit=" Hz") -> '1 kHz'.
+    """
+    if unit.startswith(" ") and x is not None and math.isfinite(x) and x != 0:
+        bare = format_eng(x, sig)
+        head = bare.rstrip("TGMegkmunpf")
+        return f"{head} {bare[len(head):]}{unit.strip()}" if "e" not in head[-4:] else f"{bare} {unit.strip()}"
     if x is None or not math.isfinite(x):
         return f"{x}{unit}"
     if x == 0:
@@ -160,7 +168,7 @@ def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
             break
     else:
         return f"{x:.{sig - 1}e}{unit}"
-    if ax >= 1e15:
+    if ax >= 1e15 * (1 - 0.5 * 10 ** (-sig)):  # would round up to "1000T"
         return f"{x:.{sig - 1}e}{unit}"
     text = f"{x / scale:.{sig}g}"
     return f"{text}{prefix}{unit}"
@@ -168,7 +176,7 @@ def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
 
 def format_rect(z: complex, sig: int = 4, unit: str = "") -> str:
     """'1.5k - j120' style, with SI prefixes on each part."""
-    sign = "-" if z.imag < 0 or (z.imag == 0 and math.copysign(1, z.imag) < 0 and False) else "+"
+    sign = "-" if z.imag < 0 else "+"
     return f"{format_eng(z.real, sig)} {sign} j{format_eng(abs(z.imag), sig)}{(' ' + unit) if unit else ''}"
 
 
@@ -178,5 +186,5 @@ def format_polar(z: complex, sig: int = 4, unit: str = "", ascii_only: bool = Fa
     ang = math.degrees(cmath.phase(z)) if mag else 0.0
     if ang == -180.0:
         ang = 180.0
-    body = f"{format_eng(mag, sig)}{unit}"
+    body = format_eng(mag, sig, unit)
     return f"{body}@{ang:.2f}" if ascii_only else f"{body}∠{ang:.2f}°"
