@@ -1,0 +1,1 @@
+"""Report writers: each turns computed results into one output format and nothing else."""

@@ -1,0 +1,76 @@
+"""A readable table of equivalents for the terminal, ready to paste into a design review."""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+from rich.console import Console
+from rich.table import Table
+
+from ..caution import CAUTION
+from ..equivalent import ElementForm, Equivalent
+from ..values import format_eng, format_polar, format_rect
+
+
+def _form(form: ElementForm | None, series: bool) -> str:
+    if form is None:
+        return "—"
+    first = format_eng(form.resistance, 4, " Ω" if series else " S")
+    if form.reactive_kind is None:
+        return first
+    unit = " H" if form.reactive_kind == "L" else " F"
+    joiner = " + " if series else " ‖ "
+    return f"{first}{joiner}{form.reactive_kind} {format_eng(form.reactive_value, 4, unit)}"
+
+
+def _cell(z: complex | None, unit: str, polar: bool) -> str:
+    if z is None:
+        return "— (none)"
+    return format_polar(z, 4, unit) if polar else format_rect(z, 4, unit.strip())
+
+
+def equivalents_table(title: str, port: tuple[str, str], points: Sequence[Equivalent], wide: bool = False) -> Table:
+    """One row per frequency; the parallel (Norton admittance) form only on wide terminals."""
+    table = Table(title=f"{title}\nport {port[0]} → {port[1]}", title_justify="left", show_lines=False)
+    headers = ["f", "V_th", "Z_th", "Z_th as R + L or C", "I_N"] + (["Y_N as G ‖ C or L"] if wide else []) + ["cond"]
+    for header in headers:
+        table.add_column(header, justify="right" if header in ("f", "cond") else "left", no_wrap=True)
+    for eq in points:
+        row = [
+            format_eng(eq.freq_hz, 4, " Hz"),
+            _cell(eq.vth, " V", polar=True),
+            _cell(eq.zth, " Ω", polar=False),
+            _form(eq.series_form(), series=True),
+            _cell(eq.in_, " A", polar=True),
+        ]
+        if wide:
+            row.append(_form(eq.parallel_form(), series=False))
+        table.add_row(*row, f"{eq.condition:.1g}")
+    return table
+
+
+def equivalents_blocks(console: Console, title: str, port: tuple[str, str], points: Sequence[Equivalent]) -> None:
+    """The same numbers as the table, one block per frequency, for narrow terminals and pipes."""
+    console.print(f"[bold]{title}[/]\nport {port[0]} → {port[1]}")
+    for eq in points:
+        console.print(f"\n[bold]f = {format_eng(eq.freq_hz, 6, ' Hz')}[/]   [dim](matrix condition {eq.condition:.1g})[/]")
+        series = eq.series_form()
+        parallel = eq.parallel_form()
+        console.print(f"  V_th  {_cell(eq.vth, ' V', polar=True)}")
+        console.print(f"  Z_th  {_cell(eq.zth, ' Ω', polar=False)}" + (f"  =  {_form(series, True)}" if series else ""))
+        console.print(f"  I_N   {_cell(eq.in_, ' A', polar=True)}")
+        console.print(f"  Y_N   {_cell(eq.yn, ' S', polar=False)}" + (f"  =  {_form(parallel, False)}" if parallel else ""))
+
+
+def print_equivalents(console: Console, title: str, port: tuple[str, str], points: Sequence[Equivalent],
+                      source_note: str, caution: bool = True) -> None:
+    if console.width >= 110:
+        console.print(equivalents_table(title, port, points, wide=console.width >= 140))
+    else:
+        equivalents_blocks(console, title, port, points)
+    for eq in points:
+        if eq.note:
+            console.print(f"[yellow]{format_eng(eq.freq_hz, 4, ' Hz')}: {eq.note}[/]")
+    console.print(f"[dim]{source_note}[/]")
+    if caution:
+        console.print(f"[dim]Caution: {CAUTION}[/]")

@@ -1,0 +1,87 @@
+"""JSON documents of checked cases: every engine's numbers, the errors and the verdicts."""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+from typing import Any, Sequence
+
+from ..caution import CAUTION
+from ..check import CaseResult
+from ..compare import VERDICTS
+from .equivalents_json import own_point
+from .phasor_json import phasor
+
+
+def _num(x: float) -> Any:
+    return None if x is None or (isinstance(x, float) and math.isnan(x)) else (x if math.isfinite(x) else repr(x))
+
+
+def _spice_point(point: Any) -> dict[str, Any]:
+    return {"vth": phasor(point.vth), "zth": phasor(point.zth), "in": phasor(point.isc),
+            "yn": phasor(None if point.zth in (None, 0) else 1 / point.zth),
+            "freq_hz_reported": point.freq_hz, "route_mismatch": _num(point.route_mismatch),
+            "notes": list(point.notes) or None}
+
+
+def points_document(result: CaseResult) -> list[dict[str, Any]]:
+    out = []
+    spice_points = list(result.spice.points) if result.spice is not None else []
+    for i, eq in enumerate(result.own or []):
+        doc: dict[str, Any] = {"freq_hz": eq.freq_hz, "own": own_point(eq)}
+        if result.points or result.spice is not None or result.spice_note:
+            doc["spice"] = _spice_point(spice_points[i]) if i < len(spice_points) else None
+            if doc["spice"] is None:
+                doc["spice_note"] = result.spice_note or "ngspice was not run"
+        if result.points:
+            check = result.points[i]
+            doc["errors"] = {q.quantity: {"err": _num(q.err), "rel_err": _num(q.rel_err),
+                                          "mag_err_pct": _num(q.mag_err_pct), "phase_err_deg": _num(q.phase_err_deg),
+                                          "verdict": q.verdict, "explanation": q.explanation or None}
+                             for q in check.quantities}
+            doc["verdict"] = check.verdict
+            doc["explanation"] = check.explanation or None
+        out.append(doc)
+    return out
+
+
+def case_document(result: CaseResult) -> dict[str, Any]:
+    doc: dict[str, Any] = {
+        "case": result.name,
+        "title": result.title,
+        "port": list(result.port),
+        "sources": result.sources,
+        "tolerance": {"rel": result.tolerance.rel, "abs": result.tolerance.abs,
+                      "phase_deg": result.tolerance.phase_deg},
+        "verdict": result.verdict,
+        "error": result.error,
+        "points": points_document(result),
+        "elapsed_s": {"own": result.elapsed_own_s, "spice": result.elapsed_spice_s},
+    }
+    if result.spice is not None:
+        doc["spice_strategy"] = result.spice.strategy
+    for key, value in result.extra.items():
+        if key != "rows":
+            doc[key] = value
+    return doc
+
+
+def ngspice_version(results: Sequence[CaseResult]) -> str | None:
+    return next((r.spice.ngspice_version for r in results if r.spice is not None), None)
+
+
+def summary(results: Sequence[CaseResult]) -> dict[str, int]:
+    counts = Counter(r.verdict for r in results)
+    return {"cases": len(results), **{v: counts.get(v, 0) for v in VERDICTS}}
+
+
+def results_document(results: Sequence[CaseResult]) -> dict[str, Any]:
+    from .. import __version__
+
+    return {
+        "crosscheck_version": __version__,
+        "ngspice_version": ngspice_version(results),
+        "summary": summary(results),
+        "cases": [case_document(r) for r in results],
+        "caution": CAUTION,
+    }
