@@ -18,6 +18,7 @@ from .equivalent import Equivalent, thevenin
 from .errors import CrosscheckError, EngineUnavailableError
 from .netlist import read_netlist
 from .network import Network, Port, validate
+from .judgements import DriftCheck, ExpectationCheck, LimitCheck
 from .tolerance import SOLVER_VS_SPICE, Tolerance
 
 ENGINES = ("own", "spice", "both")
@@ -42,7 +43,10 @@ class CaseResult:
     elapsed_own_s: float = 0.0
     elapsed_spice_s: float = 0.0
     case: Case | None = None
-    extra: dict = field(default_factory=dict)  # later stages (expectations, limits, baselines) add here
+    expectations: list[ExpectationCheck] = field(default_factory=list)
+    limits: list[LimitCheck] = field(default_factory=list)
+    drift: list[DriftCheck] = field(default_factory=list)
+    extra: dict = field(default_factory=dict)
 
     @property
     def explanation(self) -> str:

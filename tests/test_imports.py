@@ -1,0 +1,60 @@
+"""Import hygiene: the solver stays light, PySpice stays behind one module, the public API is checked."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import crosscheck
+
+
+def _modules_after(statement: str) -> set[str]:
+    code = f"import sys; {statement}; print('\\n'.join(sys.modules))"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    return set(out.split())
+
+
+def test_solver_imports_neither_pyspice_nor_pandas():
+    """Importing the solver and equivalents must not pull in PySpice or pandas (STYLE.md rule 1)."""
+    loaded = _modules_after("import crosscheck.equivalent, crosscheck.solver")
+    assert not any(m == "PySpice" or m.startswith("PySpice.") for m in loaded)
+    assert "pandas" not in loaded
+
+
+def test_import_crosscheck_does_not_load_pyspice():
+    """`import crosscheck` works without ngspice: PySpice is imported only inside reference's functions."""
+    loaded = _modules_after("import crosscheck, crosscheck.netlist, crosscheck.cases, crosscheck.check")
+    assert not any(m == "PySpice" or m.startswith("PySpice.") for m in loaded)
+
+
+def test_only_reference_imports_pyspice():
+    """No module but reference (and the worker it runs in) names PySpice."""
+    from pathlib import Path
+
+    root = Path(crosscheck.__file__).parent
+    offenders = [p.relative_to(root).as_posix() for p in root.rglob("*.py")
+                 if "import PySpice" in p.read_text() or "from PySpice" in p.read_text()]
+    assert offenders == ["reference.py"]
+
+
+def test_public_api_matches_all():
+    """Every name in __all__ exists, and every public re-export is listed (Hypothesis-style checked __all__)."""
+    for name in crosscheck.__all__:
+        assert hasattr(crosscheck, name), name
+    exported = {n for n, v in vars(crosscheck).items()
+                if not n.startswith("_") and not isinstance(v, type(crosscheck)) and n != "annotations"}
+    assert exported == set(crosscheck.__all__)
+    assert sorted(crosscheck.__all__) == list(crosscheck.__all__)
+
+
+def test_errors_derive_from_builtins():
+    """Every crosscheck error also derives from the built-in it resembles (STYLE.md rule 2)."""
+    assert issubclass(crosscheck.NetlistError, ValueError)
+    assert issubclass(crosscheck.SingularNetworkError, ArithmeticError)
+    assert issubclass(crosscheck.ReferenceEngineError, RuntimeError)
+    assert issubclass(crosscheck.CaseFileError, ValueError)
+    for name in crosscheck.__all__:
+        obj = getattr(crosscheck, name)
+        if isinstance(obj, type) and issubclass(obj, Exception) and obj is not crosscheck.CrosscheckError:
+            assert issubclass(obj, crosscheck.CrosscheckError), name
+            assert obj.__doc__, f"{name} needs a docstring saying cause and fix"
