@@ -1,0 +1,289 @@
+"""The bundled corpus: every hand calculation agrees with crosscheck's solver, and the corpus covers what it claims.
+
+Each case file under ``corpus/`` records hand-calculated values (``[[expect]]``, with
+how each was obtained) and design limits. The hand values were worked in closed form
+(dividers, series/parallel combinations, source transformations, transformer
+reflection) to 4 significant figures; they are held to each expectation's own
+tolerance, by default 1 % in magnitude and 0.5 degrees (common practice: what three
+significant figures allow). The limits are evaluated here with a small evaluator of
+our own, so a corpus edit that breaks a design requirement fails, and the on-purpose
+failing case in ``tests/data/failing_limit/`` must keep failing its limit.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import tomllib
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from crosscheck.cases import Case, load_case
+from crosscheck.equivalent import Equivalent, thevenin
+from crosscheck.netlist import read_netlist
+from crosscheck.network import GROUND, Network, Port, floating_reference
+
+ROOT = Path(__file__).resolve().parent.parent
+CORPUS = ROOT / "corpus"
+FAILING = Path(__file__).resolve().parent / "data" / "failing_limit" / "workshop_subboard.toml"
+FIELDS = ("audio", "instrumentation", "rf", "power_distribution", "power_electronics", "control")
+CASE_FILES = sorted(CORPUS.rglob("*.toml"))
+
+
+def _case_id(path: Path) -> str:
+    return path.relative_to(CORPUS).with_suffix("").as_posix()
+
+
+def _network(case: Case) -> tuple[Network, Port]:
+    port = Port(*case.port)
+    return read_netlist(case.netlist_text, file=case.netlist_file, port=port,
+                        allow_negative=case.allow_negative), port
+
+
+def _phase_diff_deg(a: complex, b: complex) -> float:
+    """Wrapped difference of the two angles, in (-180, 180]."""
+    d = math.degrees(np.angle(a) - np.angle(b))
+    return (d + 180.0) % 360.0 - 180.0
+
+
+def _obtained(eq: Equivalent, key: str) -> complex | float | None:
+    if key in ("vth", "zth", "yn"):
+        return getattr(eq, key)
+    if key == "in":
+        return eq.in_
+    form = eq.series_form()
+    if form is None:
+        return None
+    if key == "series_r":
+        return form.resistance
+    kind = {"series_l": "L", "series_c": "C"}[key]
+    return form.reactive_value if form.reactive_kind == kind else None
+
+
+def _mismatch(key: str, expected: complex, obtained: complex | float | None, rel: float, abs_: float,
+              phase_deg: float | None) -> str | None:
+    """Why ``obtained`` is not ``expected`` within the tolerance, or None when it is."""
+    if obtained is None:
+        return f"{key}: the solver gives no such form here (expected {expected:.4g})"
+    if key.startswith("series_"):
+        err = abs(obtained - expected.real)
+        if err > max(rel * abs(obtained), abs_):
+            return (f"{key}: expected {expected.real:.6g}, solver {obtained:.6g}, relative error "
+                    f"{err / abs(obtained):.2e} > rel {rel:g}")
+        return None
+    obtained = complex(obtained)
+    mag_err = abs(abs(obtained) - abs(expected))
+    if mag_err > max(rel * abs(obtained), abs_):
+        return (f"{key}: expected |{key}| = {abs(expected):.6g}, solver {abs(obtained):.6g}, magnitude error "
+                f"{mag_err / max(abs(obtained), 1e-300):.2e} > rel {rel:g}")
+    if phase_deg is not None and abs(expected) > abs_ and abs(obtained) > abs_:
+        dph = _phase_diff_deg(expected, obtained)
+        if abs(dph) > phase_deg:
+            return (f"{key}: expected angle {math.degrees(np.angle(expected)):.3f} deg, solver "
+                    f"{math.degrees(np.angle(obtained)):.3f} deg, off by {dph:+.3f} > {phase_deg:g} deg")
+    return None
+
+
+@pytest.mark.parametrize("path", CASE_FILES, ids=_case_id)
+def test_hand_calculations_agree_with_the_solver(path: Path) -> None:
+    """Every [[expect]] value of the case agrees with crosscheck's own solver to the tolerance the case states."""
+    case = load_case(path)
+    assert case.expectations, f"{path}: no [[expect]]"
+    network, port = _network(case)
+    freqs = sorted({e.at_hz for e in case.expectations})
+    equivalents = dict(zip(freqs, thevenin(network, port, freqs)))
+    problems = []
+    for e in case.expectations:
+        tol = e.tolerance
+        for key, expected in e.values.items():
+            why = _mismatch(key, expected, _obtained(equivalents[e.at_hz], key), tol.rel, tol.abs, tol.phase_deg)
+            if why:
+                problems.append(f"expect[{e.index}] at {e.at_hz:g} Hz: {why}")
+    assert not problems, f"{path}:\n  " + "\n  ".join(problems)
+
+
+# ---------------------------------------------------------------- design limits, evaluated independently
+
+
+def _limit_value(function: str, q: complex) -> float:
+    return {"abs": abs(q), "phase": math.degrees(np.angle(q)), "re": q.real, "im": q.imag,
+            "db": 20.0 * math.log10(abs(q)) if q != 0 else -math.inf}[function]
+
+
+def _limit_violations(case: Case) -> list[str]:
+    """Each (limit, frequency) at which a limit of the case is not met, by our own reading of the limit."""
+    network, port = _network(case)
+    eqs = thevenin(network, port, list(case.freqs_hz))
+    out = []
+    for lim in case.limits:
+        lo, hi = lim.band if lim.band is not None else (-math.inf, math.inf)
+        in_band = [eq for eq in eqs if lo * (1 - 1e-12) <= eq.freq_hz <= hi * (1 + 1e-12)]
+        assert in_band, f"{case.path}: limit[{lim.index}] {lim.text} has no computed frequency in its band"
+        for eq in in_band:
+            q = _obtained(eq, lim.quantity)
+            assert q is not None, f"{case.path}: limit[{lim.index}] {lim.text}: no {lim.quantity} at {eq.freq_hz:g} Hz"
+            v = _limit_value(lim.function, complex(q))
+            if (lim.minimum is not None and v < lim.minimum) or (lim.maximum is not None and v > lim.maximum):
+                out.append(f"limit[{lim.index}] {lim.text} = {v:.6g} at {eq.freq_hz:g} Hz, "
+                           f"outside [{lim.minimum}, {lim.maximum}]")
+    return out
+
+
+@pytest.mark.parametrize("path", CASE_FILES, ids=_case_id)
+def test_design_limits_are_met(path: Path) -> None:
+    """Every [[limit]] of a corpus case holds at every computed frequency in its band (exact bounds, no tolerance)."""
+    violations = _limit_violations(load_case(path))
+    assert not violations, f"{path}:\n  " + "\n  ".join(violations)
+
+
+def test_failing_case_still_violates_its_limit_and_only_its_limit() -> None:
+    """The on-purpose failing case keeps a correct hand calculation and a source impedance above its allowed maximum."""
+    case = load_case(FAILING)
+    network, port = _network(case)
+    (eq,) = thevenin(network, port, [50.0])
+    for e in case.expectations:
+        for key, expected in e.values.items():
+            tol = e.tolerance
+            assert _mismatch(key, expected, _obtained(eq, key), tol.rel, tol.abs, tol.phase_deg) is None
+    violations = _limit_violations(case)
+    assert len(violations) == 1 and "abs(zth)" in violations[0], violations
+    # It fails by a clear margin (40 %), not by roundoff: |Z_th| = 0.1401 ohm against 0.1 ohm.
+    assert abs(eq.zth) > 1.3 * case.limits[0].maximum
+
+
+# ---------------------------------------------------------------- what the corpus must contain
+
+
+def _cards(text: str) -> list[str]:
+    """The netlist's cards, lower-cased, comments removed, title line dropped (continuations are not needed here)."""
+    out = []
+    for line in text.splitlines()[1:]:
+        line = re.split(r"[;$]", line, maxsplit=1)[0].strip().lower()
+        if line and not line.startswith(("*", "+")):
+            out.append(line)
+    return out
+
+
+def _has_nested_instance(cards: list[str]) -> bool:
+    inside = False
+    for card in cards:
+        if card.startswith(".subckt"):
+            inside = True
+        elif card.startswith(".ends"):
+            inside = False
+        elif inside and card.startswith("x"):
+            return True
+    return False
+
+
+@pytest.fixture(scope="module")
+def corpus() -> list[tuple[Path, Case, dict, Network, Port]]:
+    rows = []
+    for path in CASE_FILES:
+        case = load_case(path)
+        network, port = _network(case)
+        rows.append((path, case, tomllib.loads(path.read_text(encoding="utf-8")), network, port))
+    return rows
+
+
+def test_corpus_size_and_fields(corpus) -> None:
+    """At least 20 cases, grouped by field, at least 3 in each field folder and nothing outside them."""
+    assert len(corpus) >= 20, f"only {len(corpus)} case files under {CORPUS}"
+    counts = {field: 0 for field in FIELDS}
+    for path, *_ in corpus:
+        field = path.relative_to(CORPUS).parts[0]
+        assert field in counts, f"{path}: not in one of the field folders {FIELDS}"
+        counts[field] += 1
+    thin = {f: n for f, n in counts.items() if n < 3}
+    assert not thin, f"field folders with fewer than 3 cases: {thin}"
+
+
+def test_every_case_has_a_documented_expectation_and_a_limit(corpus) -> None:
+    """Each case has a title, a leading comment block, >= 1 [[expect]] with a non-empty how, >= 1 [[limit]] with a why."""
+    for path, case, raw, _, _ in corpus:
+        assert case.title and case.title != path.stem, f"{path}: no title"
+        assert path.read_text(encoding="utf-8").startswith("#"), f"{path}: should open with a comment block"
+        assert case.expectations, f"{path}: no [[expect]]"
+        assert all(e.how.strip() for e in case.expectations), f"{path}: an [[expect]] without how"
+        assert case.limits, f"{path}: no [[limit]]"
+        assert all(str(item.get("why", "")).strip() for item in raw["limit"]), f"{path}: a [[limit]] without why"
+
+
+def test_corpus_covers_the_features_it_claims(corpus) -> None:
+    """Dependent sources, coupled inductors, (nested) subcircuits, .param, floating ports, sweeps, DC and RMS all occur."""
+    kinds: dict[str, list[str]] = {}
+    found: dict[str, list[str]] = {k: [] for k in (
+        "subckt", "nested subckt", "param", "inline netlist", "floating port", "floating transformer secondary",
+        "sweep", "sweep with a limit over a band", "DC point", "rms sources", "Norton expectation", "series form")}
+    for path, case, raw, network, port in corpus:
+        name = _case_id(path)
+        for e in network.elements:
+            kinds.setdefault(e.kind, []).append(name)
+        cards = _cards(case.netlist_text)
+        if any(c.startswith(".subckt") for c in cards):
+            found["subckt"].append(name)
+        if _has_nested_instance(cards):
+            found["nested subckt"].append(name)
+        if any(c.startswith(".param") for c in cards):
+            found["param"].append(name)
+        if "\n" in raw["netlist"]:
+            found["inline netlist"].append(name)
+        if port.a != GROUND and port.b != GROUND:
+            found["floating port"].append(name)
+            if floating_reference(network, port) is not None and any(e.kind == "K" for e in network.elements):
+                found["floating transformer secondary"].append(name)
+        if "sweep" in raw:
+            found["sweep"].append(name)
+            if any(lim.band is not None for lim in case.limits):
+                found["sweep with a limit over a band"].append(name)
+        if 0.0 in case.freqs_hz:
+            found["DC point"].append(name)
+        if case.sources == "rms":
+            found["rms sources"].append(name)
+        if any(k in e.values for e in case.expectations for k in ("in", "yn")):
+            found["Norton expectation"].append(name)
+        if any(k.startswith("series_") for e in case.expectations for k in e.values):
+            found["series form"].append(name)
+    for kind in ("E", "G", "F", "H", "K"):
+        assert kinds.get(kind), f"no case uses a {kind} element"
+    assert len(set(kinds["K"])) >= 2, "coupled inductors should appear in a transformer and in a coupled-inductor filter"
+    missing = [feature for feature, names in found.items() if not names]
+    assert not missing, f"features no case exercises: {missing}"
+
+
+def test_fault_level_case_follows_the_stated_method(corpus) -> None:
+    """The power-distribution fault-level case states I''k as I_N, uses RMS sources and marks its formulas and cautions."""
+    hits = []
+    for path, case, raw, _, _ in corpus:
+        if path.relative_to(CORPUS).parts[0] != "power_distribution":
+            continue
+        text = path.read_text(encoding="utf-8")
+        if "I''k" in text and any("in" in e.values for e in case.expectations):
+            hits.append(path)
+            assert case.sources == "rms", f"{path}: fault levels are stated as RMS"
+            for phrase in ("IEC 60909-0", "from memory", "licensed engineer", "not a protection study"):
+                assert phrase in text, f"{path}: the comment block should say {phrase!r}"
+            # The source is the phase voltage c*Un/sqrt(3): V_th (open circuit) equals it exactly.
+            network, port = _network(case)
+            (eq,) = thevenin(network, port, [50.0])
+            printed = re.search(r"c\*Un/sqrt\(3\) = [^=]+= ([\d.]+) V rms", text)
+            assert printed, f"{path}: the comment block should print c*Un/sqrt(3) = ... = <value> V rms"
+            # The comment prints 4 figures, so 0.05 % covers its rounding.
+            assert abs(eq.vth) == pytest.approx(float(printed.group(1)), rel=5e-4)
+    assert hits, "no fault-level case (I''k as an [[expect]] of in) under corpus/power_distribution"
+
+
+@pytest.mark.spice
+def test_corpus_passes_solver_against_spice() -> None:
+    """`crosscheck verify corpus`: every case's equivalents agree with ngspice within the case's own tolerance."""
+    from crosscheck.check import run_cases
+    from crosscheck.workers import SpicePool
+
+    with SpicePool(workers=2) as pool:
+        results = run_cases([load_case(p) for p in CASE_FILES], engine="both", pool=pool)
+    bad = [(r.name, r.verdict, r.error or r.explanation) for r in results
+           if r.error or not r.points or any(p.verdict != "pass" for p in r.points)]
+    assert not bad, bad
+    assert [r.verdict for r in results] == ["pass"] * len(results), [(r.name, r.verdict) for r in results]
