@@ -50,6 +50,7 @@ class Limit:
     band: tuple[float, float] | None
     text: str
     index: int = 0
+    why: str = ""
 
 
 @dataclass(frozen=True)
@@ -247,7 +248,7 @@ def _limits(path: Path, data: dict[str, Any]) -> list[Limit]:
         unknown = set(item) - {"quantity", "min", "max", "band", "why"}
         if unknown:
             raise _err(path, key, f"unknown key(s) {sorted(unknown)}")
-        out.append(Limit(fn, q, lo, hi, band, str(item["quantity"]), i))
+        out.append(Limit(fn, q, lo, hi, band, str(item["quantity"]), i, str(item.get("why", ""))))
     return out
 
 
