@@ -45,6 +45,36 @@ def points_document(result: CaseResult) -> list[dict[str, Any]]:
     return out
 
 
+def expectation_document(e: Any) -> dict[str, Any]:
+    return {"index": e.index, "at_hz": e.at_hz, "quantity": e.quantity, "expected": phasor(e.expected),
+            "obtained": phasor(e.obtained), "rel_err": _num(e.rel_err), "mag_err_pct": _num(e.mag_err_pct),
+            "mag_err_db": _num(e.mag_err_db), "phase_err_deg": _num(e.phase_err_deg), "verdict": e.verdict,
+            "slip": e.slip, "explanation": e.explanation or None, "how": e.how or None}
+
+
+def limit_document(lim: Any) -> dict[str, Any]:
+    return {"index": lim.index, "text": lim.text, "function": lim.function, "quantity": lim.quantity,
+            "min": _num(lim.minimum), "max": _num(lim.maximum),
+            "band_hz": list(lim.band) if lim.band is not None else None,
+            "worst_freq_hz": _num(lim.worst_freq_hz), "worst_value": _num(lim.worst_value),
+            "margin": _num(lim.margin), "verdict": lim.verdict, "explanation": lim.explanation or None,
+            "values": [[f, _num(v)] for f, v in lim.values]}
+
+
+def drift_document(d: Any) -> dict[str, Any]:
+    return {"freq_hz": d.freq_hz, "quantity": d.quantity, "baseline": phasor(d.baseline),
+            "obtained": phasor(d.obtained), "rel_err": _num(d.rel_err), "verdict": d.verdict,
+            "explanation": d.explanation or None}
+
+
+def checks_document(result: CaseResult) -> dict[str, Any]:
+    """Hand-calculated expectations, design limits and baseline drift of one case."""
+    return {"expectations": [expectation_document(e) for e in result.expectations],
+            "limits": [limit_document(lim) for lim in result.limits],
+            "drift": [drift_document(d) for d in result.drift],
+            "baseline_note": getattr(result, "baseline_note", "") or None}
+
+
 def case_document(result: CaseResult) -> dict[str, Any]:
     doc: dict[str, Any] = {
         "case": result.name,
@@ -57,6 +87,7 @@ def case_document(result: CaseResult) -> dict[str, Any]:
         "error": result.error,
         "points": points_document(result),
         "elapsed_s": {"own": result.elapsed_own_s, "spice": result.elapsed_spice_s},
+        **checks_document(result),
     }
     if result.spice is not None:
         doc["spice_strategy"] = result.spice.strategy

@@ -6,6 +6,7 @@ import math
 from typing import Sequence
 
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from ..caution import CAUTION
@@ -13,7 +14,7 @@ from ..check import CaseResult
 from ..values import format_eng, format_polar
 from .results_json import ngspice_version, summary
 
-STYLE = {"pass": "green", "fail": "bold red", "error": "bold magenta", "unavailable": "yellow"}
+STYLE = {"pass": "green", "fail": "bold red", "error": "bold magenta", "unavailable": "yellow", "drift": "bold yellow"}
 
 
 def _v(verdict: str) -> str:
@@ -54,9 +55,84 @@ def summary_table(results: Sequence[CaseResult]) -> Table:
     return table
 
 
+def expectation_table(result: CaseResult, detail: bool, wide: bool = True) -> Table | None:
+    """Hand-calculated values against crosscheck's solver; without ``detail`` only the ones not passing.
+    A narrow table leaves the slip out: the explanation printed under the table names it."""
+    from ..expectations import format_value
+
+    rows = [e for e in result.expectations if detail or e.verdict != "pass"]
+    if not rows:
+        return None
+    table = Table(title=f"hand calculations  [dim]({escape(result.name)})[/]", title_justify="left")
+    headers = ("at", "stated", "crosscheck", "Δ mag", "Δ phase", "verdict") + (("slip",) if wide else ())
+    for h in headers:
+        table.add_column(h, justify="right" if h in ("Δ mag", "Δ phase") else "left",
+                         no_wrap=h in ("Δ mag", "Δ phase", "verdict") or (wide and h != "slip"))
+    for e in rows:
+        mag = "—" if math.isnan(e.mag_err_pct) else f"{e.mag_err_pct:+.3g} %"
+        phase = "—" if math.isnan(e.phase_err_deg) else f"{e.phase_err_deg:+.3g}°"
+        cells = [f"{format_eng(e.at_hz, 4, ' Hz')} {e.quantity}", format_value(e.quantity, e.expected),
+                 format_value(e.quantity, e.obtained), mag, phase, _v(e.verdict)]
+        table.add_row(*cells, *((escape(e.slip or ""),) if wide else ()))
+    return table
+
+
+def limit_table(result: CaseResult, detail: bool) -> Table | None:
+    """Design limits: worst point and margin; without ``detail`` only the ones not passing."""
+    from ..limits import unit
+
+    rows = [lim for lim in result.limits if detail or lim.verdict != "pass"]
+    if not rows:
+        return None
+    table = Table(title=f"design limits  [dim]({escape(result.name)})[/]", title_justify="left")
+    for h in ("#", "limit", "band", "worst at", "worst value", "margin", "verdict"):
+        table.add_column(h, justify="right" if h in ("#", "worst at", "worst value", "margin") else "left")
+    for lim in rows:
+        u = " " + unit(lim.function, lim.quantity)
+        bounds = " ≤ ".join(x for x in (None if lim.minimum is None else format_eng(lim.minimum, 4, u), lim.text,
+                                        None if lim.maximum is None else format_eng(lim.maximum, 4, u)) if x)
+        band = ("all" if lim.band is None else
+                f"{format_eng(lim.band[0], 4, ' Hz')} – {format_eng(lim.band[1], 4, ' Hz')}")
+        table.add_row(str(lim.index), escape(bounds), band,
+                      "—" if lim.worst_freq_hz is None else format_eng(lim.worst_freq_hz, 4, " Hz"),
+                      "—" if lim.worst_value is None else format_eng(lim.worst_value, 5, u),
+                      "—" if lim.margin is None else format_eng(lim.margin, 4, u), _v(lim.verdict))
+    return table
+
+
+def drift_table(result: CaseResult, detail: bool) -> Table | None:
+    """Quantities against the stored baseline; without ``detail`` only the ones that moved."""
+    rows = [d for d in result.drift if detail or d.verdict != "pass"]
+    if not rows:
+        return None
+    table = Table(title=f"baseline drift  [dim]({escape(result.name)})[/]", title_justify="left")
+    for h in ("f", "qty", "baseline", "now", "rel change", "verdict"):
+        table.add_column(h, justify="right" if h in ("f", "rel change") else "left")
+    for d in rows:
+        table.add_row(format_eng(d.freq_hz, 6, " Hz"), d.quantity, _z(d.baseline, UNITS[d.quantity]),
+                      _z(d.obtained, UNITS[d.quantity]), _err(d.rel_err), _v(d.verdict))
+    return table
+
+
+def print_checks(console: Console, result: CaseResult, detail: bool) -> None:
+    """Expectation, limit and drift tables of one case, each failing row's explanation under its table."""
+    for table, records in ((expectation_table(result, detail, wide=console.width >= 110), result.expectations),
+                           (limit_table(result, detail), result.limits),
+                           (drift_table(result, detail), result.drift)):
+        if table is None:
+            continue
+        console.print(table)
+        for r in records:
+            if r.verdict != "pass" and r.explanation:
+                console.print(f"[{STYLE[r.verdict]}]{escape(r.explanation)}[/]")
+    note = getattr(result, "baseline_note", "")
+    if note:
+        console.print(f"[dim]baseline: {escape(note)}[/]")
+
+
 def summary_line(results: Sequence[CaseResult]) -> str:
     s = summary(results)
-    parts = ", ".join(f"{s[v]} {v}" for v in ("pass", "fail", "error", "unavailable"))
+    parts = ", ".join(f"{s[v]} {v}" for v in ("pass", "fail", "error", "unavailable", "drift") if v != "drift" or s[v])
     version = ngspice_version(results)
     return f"{s['cases']} case(s): {parts}" + (f"  ({version})" if version else "")
 
@@ -71,7 +147,10 @@ def print_results(console: Console, results: Sequence[CaseResult], detail: bool)
                     console.print(f"[{STYLE[p.verdict]}]{format_eng(p.freq_hz, 4, ' Hz')}: {p.explanation}[/]")
             if r.error:
                 console.print(f"[bold magenta]error: {r.error}[/]")
+            print_checks(console, r, detail=True)
     else:
         console.print(summary_table(results))
+        for r in results:
+            print_checks(console, r, detail=False)
     console.print(summary_line(results))
     console.print(f"[dim]Caution: {CAUTION}[/]")

@@ -1,0 +1,79 @@
+#!/usr/bin/env bash
+# crosscheck CI gate: check case files, write JUnit XML, a Markdown summary and an HTML report
+# into one folder, and exit with crosscheck's own exit code (see ci/README.md).
+set -u
+
+usage() {
+  cat <<'TEXT'
+Usage: crosscheck-gate.sh [--out DIR] PATH... [-- VERIFY_OPTION...]
+
+Runs `crosscheck verify` on the case files (*.toml) in each PATH (files or folders) and
+writes, into DIR (default: crosscheck-reports):
+  crosscheck.xml   JUnit XML, for the CI server's test view
+  crosscheck.md    Markdown summary, for a pull-request comment or a job summary
+  crosscheck.html  one self-contained HTML report with plots, to keep as an artifact
+Options after `--` go to every `crosscheck verify` run unchanged (e.g. -- --timeout 120
+--baseline equivalents.json).
+
+Exit code: crosscheck's own: 0 pass, 1 fail, 2 usage, 3 error (invalid input or engine
+crash), 4 unavailable (an engine could not produce a quantity), 5 drift from the baseline.
+
+Environment: CROSSCHECK  the command to run (default: `crosscheck` on PATH, else
+                         `python3 -m crosscheck.cli`).
+TEXT
+}
+
+out="crosscheck-reports"
+paths=()
+extra=()
+while [ $# -gt 0 ]; do
+  case "$1" in
+    -h|--help) usage; exit 0 ;;
+    -o|--out)
+      if [ $# -lt 2 ] || [ -z "$2" ]; then echo "crosscheck-gate: $1 needs a folder name" >&2; usage >&2; exit 2; fi
+      out="$2"; shift 2 ;;
+    --out=*) out="${1#--out=}"; shift ;;
+    --) shift; extra=("$@"); break ;;
+    -*) echo "crosscheck-gate: unknown option $1 (verify options go after --)" >&2; usage >&2; exit 2 ;;
+    *) paths+=("$1"); shift ;;
+  esac
+done
+if [ ${#paths[@]} -eq 0 ]; then
+  echo "crosscheck-gate: name at least one case file or folder" >&2
+  usage >&2
+  exit 2
+fi
+
+if [ -n "${CROSSCHECK:-}" ]; then
+  read -r -a cmd <<< "$CROSSCHECK"
+elif command -v crosscheck >/dev/null 2>&1; then
+  cmd=(crosscheck)
+else
+  cmd=(python3 -m crosscheck.cli)
+fi
+
+mkdir -p "$out" || { echo "crosscheck-gate: cannot create $out" >&2; exit 2; }
+
+# verify writes one report per run, so the gate runs it once per format. The first run's exit
+# code is the gate's; both engines are deterministic, so the later runs only add formats.
+code=0
+first=1
+for fmt in junit markdown html; do
+  case "$fmt" in junit) file="$out/crosscheck.xml" ;; markdown) file="$out/crosscheck.md" ;; html) file="$out/crosscheck.html" ;; esac
+  "${cmd[@]}" verify "${paths[@]}" --format "$fmt" --output "$file" ${extra[@]+"${extra[@]}"}
+  rc=$?
+  if [ $first -eq 1 ]; then
+    code=$rc
+    first=0
+    if [ $rc -eq 2 ] || [ ! -s "$file" ]; then
+      echo "crosscheck-gate: crosscheck verify exited $rc without a report; see its message above" >&2
+      exit $rc
+    fi
+  elif [ $rc -ne $code ]; then
+    echo "crosscheck-gate: warning: the $fmt run exited $rc, the first run $code; the gate keeps $code" >&2
+  fi
+done
+
+head -n 1 "$out/crosscheck.md" | sed 's/^#* *//'
+echo "reports: $out/crosscheck.xml $out/crosscheck.md $out/crosscheck.html"
+exit $code

@@ -1,0 +1,75 @@
+"""A drawing of the equivalent circuit at one frequency, as SVG text, for the HTML report.
+
+Drawn with schemdraw (a dependency of crosscheck; its SVG canvas needs no matplotlib):
+the Thevenin source with its V_th in series with Z_th as R + L or C, to the port
+terminals a and b. Where the port has no Thevenin form (Y_N = 0, an ideal current
+source at the port) the Norton current source is drawn instead.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+from ..check import CaseResult
+from ..equivalent import Equivalent
+from ..values import format_eng, format_polar
+
+
+def representative(result: CaseResult) -> Equivalent | None:
+    """The frequency to draw: the first hand-checked one if any, else the middle of the sweep (log scale)."""
+    points = [eq for eq in (result.own or []) if eq.vth is not None or eq.in_ is not None]
+    if not points:
+        return None
+    for e in result.expectations:
+        match = [eq for eq in points if math.isclose(eq.freq_hz, e.at_hz, rel_tol=1e-9)]
+        if match:
+            return match[0]
+    positive = [eq for eq in points if eq.freq_hz > 0]
+    if len(positive) < 2:
+        return points[0]
+    middle = math.exp(sum(math.log(eq.freq_hz) for eq in positive) / len(positive))
+    return min(positive, key=lambda eq: abs(math.log(eq.freq_hz / middle)))
+
+
+def _series_elements(eq: Equivalent) -> Sequence[tuple[str, str]]:
+    """(kind, label) of the series elements of Z_th: R, then L or C; nothing for Z_th = 0."""
+    form = eq.series_form()
+    if form is None or eq.zth == 0:
+        return ()
+    parts = []
+    if form.resistance != 0 or form.reactive_kind is None:
+        parts.append(("R", f"R = {format_eng(form.resistance, 4, ' Ω')}"))
+    if form.reactive_kind == "L":
+        parts.append(("L", f"L = {format_eng(form.reactive_value, 4, ' H')}"))
+    elif form.reactive_kind == "C":
+        parts.append(("C", f"C = {format_eng(form.reactive_value, 4, ' F')}"))
+    return parts
+
+
+def equivalent_svg(eq: Equivalent, port: tuple[str, str], sources: str = "peak") -> str:
+    """SVG text of the equivalent at ``eq.freq_hz``; terminals named after the port's nodes."""
+    import schemdraw
+    import schemdraw.elements as elm
+
+    drawing = schemdraw.Drawing(canvas="svg", show=False)
+    drawing.config(unit=2.6, fontsize=12, margin=0.6)
+    at = "at DC" if eq.freq_hz == 0 else f"at {format_eng(eq.freq_hz, 4, ' Hz')}"
+    if eq.vth is not None:
+        source = drawing.add(elm.SourceV().up().label(
+            f"V_th = {format_polar(eq.vth, 4, ' V')}\n{sources} {at}", loc="top"))
+        parts = _series_elements(eq)
+        for kind, label in parts:
+            element = {"R": elm.Resistor, "L": elm.Inductor2, "C": elm.Capacitor}[kind]()
+            drawing.add(element.right().label(label))
+        if not parts:
+            drawing.add(elm.Line().right().label("Z_th = 0"))
+    else:
+        source = drawing.add(elm.SourceI().up().label(
+            f"I_N = {format_polar(eq.in_, 4, ' A')}\n{sources} {at}", loc="top"))
+        drawing.add(elm.Line().right().label("Y_N = 0: no Thevenin form"))
+    drawing.add(elm.Dot(open=True).label(f"a ({port[0]})", loc="right"))
+    drawing.add(elm.Gap().down().toy(source.start).label(["+", "port", "−"]))
+    drawing.add(elm.Dot(open=True).label(f"b ({port[1]})", loc="right"))
+    drawing.add(elm.Line().left().tox(source.start))
+    return drawing.get_imagedata("svg").decode("utf-8")

@@ -1,0 +1,27 @@
+"""CSV of checked cases: the verdict frame written by pandas, for spreadsheets and ``pandas.read_csv``.
+
+One row per case, check, frequency and quantity (columns in ``frame.COLUMNS``; the
+``check`` column says which comparison a row is: see ``frame.CHECKS``). Complex values
+are split into ``*_re`` and ``*_im`` columns, written as the shortest text that reads back
+to the same double, so a round trip through ``read_csv`` loses nothing. Empty cells mean "not applicable to this row".
+The last row (``check`` = ``caution``) carries the caution every report ends with, in a
+row rather than a trailing comment, so the file stays one valid table.
+"""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+import pandas as pd
+
+from ..caution import CAUTION
+from ..check import CaseResult
+from .frame import COLUMNS, verdict_frame
+
+
+def csv_report(results: Sequence[CaseResult]) -> str:
+    """The CSV text (header line first, ``\\n`` line ends)."""
+    frame = verdict_frame(results)
+    caution = pd.DataFrame([{"check": "caution", "explanation": CAUTION}], columns=COLUMNS)
+    frame = pd.concat([frame, caution], ignore_index=True) if len(frame) else caution
+    return frame.to_csv(index=False, lineterminator="\n")

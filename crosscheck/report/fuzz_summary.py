@@ -1,0 +1,144 @@
+"""The fuzz run's summary, for the terminal and as JSON, and its progress bar (on stderr)."""
+
+from __future__ import annotations
+
+from contextlib import contextmanager
+from typing import Iterator
+
+from rich.console import Console
+from rich.markup import escape
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, ProgressColumn, TextColumn, TimeRemainingColumn
+from rich.table import Table
+from rich.text import Text
+
+from ..compare import COMPARED
+from ..faults import FAULTS
+from ..fuzz import CaseOutcome, FuzzSummary, regenerate_command
+
+#: How many explained cases the terminal lists (the JSON lists all).
+_SHOWN = 10
+
+
+def _outcome_document(o: CaseOutcome, knobs) -> dict:
+    c = o.case
+    return {"index": o.index, "seed": c.seed, "family": c.family, "traits": list(c.traits),
+            "elements": c.size[0], "nodes": c.size[1], "port": [c.port.a, c.port.b], "freqs_hz": list(c.freqs_hz),
+            "status": o.status, "explained": o.explained, "reason": o.reason,
+            "regenerate": regenerate_command(c.seed, knobs)}
+
+
+def summary_document(s: FuzzSummary) -> dict:
+    """Everything the terminal summary says, as plain data."""
+    k = s.options.knobs
+    return {
+        "cases": s.cases_run,
+        "requested": len(s.options.case_seeds) or s.options.count,
+        "seed": s.options.seed,
+        "case_seeds": list(s.options.case_seeds),
+        "knobs": {"family": k.family, "nodes": [k.min_nodes, k.max_nodes], "kinds": k.kinds, "decades": k.decades,
+                  "freq_hz": [k.min_hz, k.max_hz], "max_freqs": k.max_freqs, "dc": k.dc},
+        "tolerance": {"rel": s.options.tolerance.rel, "abs": s.options.tolerance.abs},
+        "faults_injected": [{"name": f, "bug": FAULTS[f]} for f in s.faults],
+        "verdicts": dict(s.counts),
+        "explained": dict(s.explained),
+        "problems": len(s.problems),
+        "first_problem_at": s.first_problem_at,
+        "stopped_early": s.stopped_early,
+        "worst": {q: {"err": e, "seed": seed, "freq_hz": f} for q, (e, seed, f) in s.worst.items()},
+        "error_percentiles": {q: s.percentiles(q) for q in COMPARED},
+        "rel_error_percentiles": {q: s.percentiles(q, relative=True) for q in COMPARED},
+        "compared": {q: len(s.errors[q]) for q in COMPARED},
+        "failures": [_outcome_document(o, k) for o in s.problems],
+        "explained_cases": [_outcome_document(o, k) for o in s.explained_cases],
+        "reproducers": [{"seed": r.seed, "size": {"original": list(r.shrunk.original_size),
+                                                  "shrunk": list(r.shrunk.size)},
+                         "checks": r.shrunk.checks, "still": r.outcome.status, "files": list(r.files)}
+                        for r in s.reproducers],
+        "elapsed_s": s.elapsed_s,
+        "cases_per_s": s.rate,
+        "own_solver_s": s.own_s,
+        "shrink_s": s.shrink_s,
+        "workers": s.workers,
+        "ngspice": s.ngspice_version,
+    }
+
+
+def _e(x: float | None) -> str:
+    return "—" if x is None else f"{x:.1e}"
+
+
+def print_summary(console: Console, s: FuzzSummary) -> None:
+    k = s.options.knobs
+    what = (f"{len(s.options.case_seeds)} chosen case seed(s)" if s.options.case_seeds
+            else f"{s.cases_run} case(s), seed {s.options.seed}")
+    console.print(f"[bold]crosscheck fuzz[/]: {what}; family {k.family}, nodes {k.min_nodes}..{k.max_nodes}, "
+                  f"kinds {k.kinds}; tolerance rel {s.options.tolerance.rel:g}")
+    for f in s.faults:
+        console.print(f"[bold red]FAULT INJECTED[/]: {f}: {escape(FAULTS[f])}. The own solver was broken on purpose.")
+    if s.stopped_early:
+        console.print(f"Stopped after {s.cases_run} case(s): the failure limit was reached.")
+    c, x = s.counts, s.explained
+    line = Text.assemble(
+        ("pass ", ""), (str(c["pass"]), "green"), ("  ·  fail ", ""), (str(c["fail"]), "bold red" if c["fail"] else ""),
+        (f" ({x['fail']} explained: roundoff or an ngspice limitation)", "dim"),
+        ("  ·  unavailable ", ""), (str(c["unavailable"]), "yellow" if c["unavailable"] else ""),
+        (f" ({x['unavailable']} expected by the case's caveat)", "dim"),
+        ("  ·  error ", ""), (str(c["error"]), "bold magenta" if c["error"] else ""))
+    console.print(line)
+    shrinking = f"; shrinking {s.shrink_s:.1f} s" if s.shrink_s else ""
+    console.print(f"{s.rate:.1f} cases/s through both engines ({s.workers} ngspice worker(s); "
+                  f"{s.elapsed_s:.1f} s, own solver {s.own_s:.1f} s of it){shrinking}"
+                  f"{'; ' + s.ngspice_version if s.ngspice_version else ''}")
+    table = Table(title="judged error |Δ| / max(|ref|, roundoff floor) per compared value", title_justify="left")
+    for h in ("quantity", "compared", "p50", "p90", "p99", "p99.9", "max", "worst at (case seed, f)"):
+        table.add_column(h, justify="left" if h in ("quantity", "worst at (case seed, f)") else "right")
+    for q in COMPARED:
+        p = s.percentiles(q)
+        worst = s.worst.get(q)
+        table.add_row(q, str(len(s.errors[q])), *(_e(p.get(n)) for n in ("p50", "p90", "p99", "p99.9", "max")),
+                      f"{worst[1]}, {worst[2]:g} Hz" if worst else "—")
+    console.print(table)
+    if s.problems:
+        t = Table(title=f"unexplained: {len(s.problems)} case(s)", title_justify="left")
+        for h in ("case seed", "family", "status", "why"):
+            t.add_column(h, overflow="fold")
+        for o in s.problems:
+            t.add_row(str(o.case.seed), o.case.family, o.status, escape(o.reason[:400]))
+        console.print(t)
+        console.print("Seeds of the failures: " + " ".join(str(o.case.seed) for o in s.problems))
+        console.print(f"Rerun one alone: {regenerate_command(s.problems[0].case.seed, k)}")
+    for r in s.reproducers:
+        files = f" → {r.files[1]}" if r.files else ""
+        console.print(f"shrunk {r.seed}: {r.shrunk.original_size[0]} elements, {r.shrunk.original_size[1]} nodes, "
+                      f"{r.shrunk.original_size[2]} freq → {r.shrunk.size[0]}, {r.shrunk.size[1]}, {r.shrunk.size[2]} "
+                      f"(still {r.outcome.status}){files}")
+    if s.explained_cases:
+        console.print(f"[dim]Explained ({len(s.explained_cases)}; first {min(_SHOWN, len(s.explained_cases))}):[/]")
+        for o in s.explained_cases[:_SHOWN]:
+            console.print(f"[dim]  {o.case.seed} {o.status}: {escape(o.reason[:240])}[/]")
+    verdict = "no unexplained disagreement" if not s.problems else f"{len(s.problems)} unexplained"
+    console.print(f"[bold]{verdict}[/]" + (" (with a fault injected)" if s.faults else ""))
+
+
+class _Rate(ProgressColumn):
+    def render(self, task) -> Text:
+        return Text(f"{task.speed:.1f} cases/s" if task.speed else "", style="cyan")
+
+
+@contextmanager
+def fuzz_progress(total: int, console: Console | None = None) -> Iterator:
+    """A progress bar with rate and time left on stderr; yields the ``on_progress`` callback for ``run_fuzz``."""
+    console = console or Console(stderr=True)
+    progress = Progress(TextColumn("fuzz"), BarColumn(), MofNCompleteColumn(), _Rate(), TimeRemainingColumn(),
+                        TextColumn("{task.fields[problems]}"), console=console, transient=True,
+                        disable=not console.is_terminal)
+    with progress:
+        task = progress.add_task("cases", total=total, problems="")
+        seen = [0]
+
+        def advance(done: int, _total: int, outcome) -> None:
+            seen[0] += outcome.problem
+            progress.update(task, completed=done,
+                            problems=f"[bold red]{seen[0]} unexplained[/]" if seen[0] else "")
+
+        yield advance

@@ -1,0 +1,180 @@
+"""One self-contained HTML file of a run: summary, each case's numbers, plots and equivalent circuit.
+
+Self-contained means a reviewer can mail it or attach it to a CI run: no external links,
+no scripts, no fonts or styles fetched from anywhere; plots are PNG and drawings SVG,
+both embedded as base64 data URIs. Collapsed parts use ``<details>``, which needs no script.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import math
+from collections import Counter
+from typing import Sequence
+
+from ..caution import CAUTION
+from ..check import CaseResult
+from ..compare import UNITS
+from ..values import format_eng, format_polar
+from .circuit_drawing import equivalent_svg, representative
+from .frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
+from .plots import case_figure_png, is_swept
+from .results_json import ngspice_version
+
+_STYLE = """
+body { font-family: system-ui, sans-serif; margin: 1.5em auto; max-width: 72em; color: #222; padding: 0 1em; }
+h1 { margin-bottom: 0.2em; } h3 { margin-bottom: 0.3em; }
+table { border-collapse: collapse; margin: 0.5em 0 1em; font-size: 0.9em; }
+th, td { border: 1px solid #ccc; padding: 0.25em 0.5em; text-align: left; vertical-align: top; }
+th { background: #f2f2f2; } td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+.verdict { font-weight: bold; padding: 0.05em 0.4em; border-radius: 0.3em; color: white; }
+.v-pass { background: #2e7d32; } .v-fail { background: #c62828; } .v-error { background: #8e24aa; }
+.v-unavailable { background: #8d6e00; } .v-drift { background: #6a1b9a; } .v-other { background: #555; }
+.status { font-size: 1.25em; } .meta { color: #555; font-size: 0.9em; }
+.why { background: #fff4e5; border-left: 4px solid #d9822b; padding: 0.4em 0.7em; }
+.error { background: #fdecea; border-left: 4px solid #c62828; padding: 0.4em 0.7em; white-space: pre-wrap; }
+section.case { border-top: 2px solid #ddd; margin-top: 2em; }
+.figures { display: flex; flex-wrap: wrap; gap: 1em; align-items: flex-start; }
+figure { margin: 0; } figcaption { color: #555; font-size: 0.85em; max-width: 40em; }
+img.plot { max-width: 100%; height: auto; border: 1px solid #eee; }
+footer { border-top: 2px solid #ddd; margin-top: 2em; padding-top: 0.5em; color: #333; }
+"""
+
+_KNOWN = ("pass", "fail", "error", "unavailable", "drift")
+
+
+def _e(text: object) -> str:
+    """Text content escaped (quotes may stay: they are harmless outside attribute values)."""
+    return html.escape(str(text), quote=False)
+
+
+def _attr(text: object) -> str:
+    return html.escape(str(text), quote=True)
+
+
+def _badge(verdict: str) -> str:
+    cls = verdict if verdict in _KNOWN else "other"
+    return f'<span class="verdict v-{cls}">{_e(verdict)}</span>'
+
+
+def _data_uri(mime: str, data: bytes) -> str:
+    return f"data:{mime};base64,{base64.b64encode(data).decode('ascii')}"
+
+
+def _z(z: complex | None, unit: str) -> str:
+    return "—" if z is None else _e(format_polar(z, 6, " " + unit))
+
+
+def _num(x: float | None) -> str:
+    return "—" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.2e}"
+
+
+def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: Sequence[int] = ()) -> str:
+    """Cells are given already escaped (they may hold markup such as a verdict badge)."""
+    head = "".join(f"<th>{_e(h)}</th>" for h in headers)
+    body = "".join(
+        "<tr>" + "".join(f'<td class="num">{c}</td>' if i in numeric else f"<td>{c}</td>"
+                         for i, c in enumerate(row)) + "</tr>"
+        for row in rows)
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _summary(results: Sequence[CaseResult]) -> str:
+    rows = []
+    for i, r in enumerate(results, start=1):
+        worst = worst_spice_error(r)
+        why = case_reason(r) if r.verdict != "pass" else ""
+        rows.append([f'<a href="#case-{i}">{_e(r.name)}</a>', _e(r.title), _e(f"{r.port[0]} → {r.port[1]}"),
+                     str(len(r.freqs_hz)), _num(worst), _badge(r.verdict), _e(why[:400])])
+    return _table(("case", "title", "port", "points", "worst err", "verdict", "why"), rows, numeric=(3, 4))
+
+
+def _points_table(r: CaseResult) -> str:
+    if r.points:
+        rows = []
+        for p in r.points:
+            for j, q in enumerate(p.quantities):
+                rows.append([_e(format_eng(p.freq_hz, 6, " Hz")) if j == 0 else "", _e(q.quantity),
+                             _z(q.own, UNITS[q.quantity]), _z(q.ref, UNITS[q.quantity]), _num(q.err),
+                             _badge(q.verdict), _e(q.explanation)])
+        return _table(("f", "qty", "crosscheck", "ngspice", "err", "verdict", "explanation"), rows,
+                      numeric=(0, 4))
+    rows = [[_e(format_eng(eq.freq_hz, 6, " Hz")), _z(eq.vth, "V"), _z(eq.zth, "Ω"), _z(eq.in_, "A"),
+             f"{eq.condition:.1g}", _e(eq.note)] for eq in (r.own or [])]
+    return _table(("f", "V_th", "Z_th", "I_N", "cond", "note"), rows, numeric=(0, 4))
+
+
+def _judgements_table(r: CaseResult) -> str:
+    found = [f for f in findings(r, include_pass=True) if f.check in ("expect", "limit", "drift")]
+    if not found:
+        return ""
+    rows = [[_e(f.label), "—" if f.freq_hz is None else _e(format_eng(f.freq_hz, 4, " Hz")), _e(f.obtained),
+             _e(f.expected), _e(f.error), _badge(f.verdict), _e(f.why)] for f in found]
+    return ("<h4>Hand calculations, design limits and baseline</h4>"
+            + _table(("check", "at", "obtained (crosscheck)", "expected", "off by", "verdict", "why"), rows,
+                     numeric=(1,)))
+
+
+def _figures(r: CaseResult) -> str:
+    parts = []
+    eq = representative(r)
+    if eq is not None:
+        svg = equivalent_svg(eq, r.port, r.sources)
+        at = "DC" if eq.freq_hz == 0 else format_eng(eq.freq_hz, 4, " Hz")
+        parts.append(f'<figure class="circuit"><img src="{_data_uri("image/svg+xml", svg.encode("utf-8"))}" '
+                     f'alt="equivalent circuit at {_attr(at)}"><figcaption>Equivalent at {_e(at)} (crosscheck\'s '
+                     "solver): the source in series with Z_th drawn as R with L or C. Valid at this frequency "
+                     "only.</figcaption></figure>")
+    if is_swept(r):
+        png = case_figure_png(r)
+        parts.append(f'<figure class="sweep"><img class="plot" src="{_data_uri("image/png", png)}" '
+                     f'alt="Z_th and V_th against frequency from both engines, and the error"><figcaption>'
+                     "crosscheck as lines, ngspice as circles; hand values as stars; design limits shade the "
+                     "forbidden side of each bound over its band; the error panel shows the judged relative "
+                     "error against the tolerance (dashed). DC points, if any, are in the table only."
+                     "</figcaption></figure>")
+    return f'<div class="figures">{"".join(parts)}</div>' if parts else ""
+
+
+def _case_section(i: int, r: CaseResult) -> str:
+    tol = r.tolerance
+    meta = [f"file {_e(r.name)}", f"port {_e(r.port[0])} → {_e(r.port[1])}", f"sources {_e(r.sources)}",
+            f"tolerance rel {tol.rel:.3g}" + (f", abs {tol.abs:.3g}" if tol.abs else "")
+            + (f", phase {tol.phase_deg:g}°" if tol.phase_deg is not None else "")]
+    if r.spice is not None:
+        meta.append(f"ngspice run: {_e(r.spice.strategy)}")
+    elif r.spice_note:
+        meta.append(f"ngspice: {_e(r.spice_note)}")
+    out = [f'<section class="case" id="case-{i}"><h3>{_e(r.title)} {_badge(r.verdict)}</h3>',
+           f'<p class="meta">{" · ".join(meta)}</p>']
+    if r.error:
+        out.append(f'<p class="error">{_e(r.error)}</p>')
+    elif r.verdict != "pass":
+        out.append(f'<p class="why">{_e(case_reason(r))}</p>')
+    out.append(_figures(r))
+    out.append(_judgements_table(r))
+    if r.points or r.own:
+        state = " open" if r.verdict != "pass" else ""
+        out.append(f"<details{state}><summary>Points ({len(r.freqs_hz)} frequencies)</summary>"
+                   f"{_points_table(r)}</details>")
+    out.append("</section>")
+    return "".join(out)
+
+
+def html_report(results: Sequence[CaseResult], title: str = "crosscheck report") -> str:
+    """The whole report as one HTML document (UTF-8 text)."""
+    from .. import __version__
+
+    counts = Counter(r.verdict for r in results)
+    overall = overall_verdict([r.verdict for r in results])
+    version = ngspice_version(results)
+    head = (f'<p class="status">{_badge(overall)} {len(results)} case(s): {_e(count_words(counts))}</p>'
+            + f'<p class="meta">{_e(version or "ngspice not run")} · crosscheck {_e(__version__)}</p>')
+    body = "".join(_case_section(i, r) for i, r in enumerate(results, start=1))
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>"
+            f"<header><h1>{_e(title)}</h1>{head}</header>"
+            f"<h2>Summary</h2>{_summary(results)}<h2>Cases</h2>{body}"
+            f"<footer><h2>Caution</h2><p class=\"caution\">{_e(CAUTION)}</p></footer>"
+            "</body></html>\n")

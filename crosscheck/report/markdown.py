@@ -1,0 +1,86 @@
+"""A Markdown summary of a run, sized for a pull-request comment.
+
+A header line with the overall status word and the counts; a table of the cases that
+did not pass, with the reason; the rest (and the numbers behind each problem) folded
+into ``<details>`` blocks; the ngspice version; the caution. Code hosts cap a comment
+at about 65,000 characters, so long lists are cut with a note of how many were left out.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from typing import Sequence
+
+from ..caution import CAUTION
+from ..check import CaseResult
+from .frame import case_reason, count_words, findings, finding_table, overall_verdict, worst_spice_error
+from .results_json import ngspice_version
+
+#: Status words for the header, by the run's overall verdict.
+STATUS = {"pass": "PASS", "fail": "FAIL", "error": "ERROR", "unavailable": "UNAVAILABLE", "drift": "DRIFT"}
+MAX_ROWS = 200
+MAX_REASON = 300
+
+
+def _cell(text: str, limit: int = MAX_REASON) -> str:
+    """Text safe inside a table cell: one line, pipes escaped, cut to ``limit`` characters."""
+    flat = " ".join(str(text).split()).replace("|", "\\|")
+    return flat if len(flat) <= limit else flat[: limit - 1] + "…"
+
+
+def _code(text: str) -> str:
+    return f"`{text.replace('`', '')}`"
+
+
+def _problems_table(problems: Sequence[CaseResult]) -> list[str]:
+    lines = ["| case | title | verdict | reason |", "|---|---|---|---|"]
+    for r in problems[:MAX_ROWS]:
+        lines.append(f"| {_code(r.name)} | {_cell(r.title, 80)} | **{r.verdict}** | {_cell(case_reason(r))} |")
+    if len(problems) > MAX_ROWS:
+        lines.append(f"\n… and {len(problems) - MAX_ROWS} more not passing; see the full report.")
+    return lines
+
+
+def _problem_details(problems: Sequence[CaseResult]) -> list[str]:
+    lines = ["<details><summary>Numbers behind each problem</summary>", ""]
+    for r in problems[:MAX_ROWS]:
+        table = finding_table(findings(r), limit=12)
+        lines += [f"**{_cell(r.title, 120)}** ({_code(r.name)}, port {r.port[0]} → {r.port[1]}): {r.verdict}", ""]
+        lines += (["```text", *table, "```", ""] if table else [f"> {_cell(case_reason(r), 1000)}", ""])
+    lines += ["</details>", ""]
+    return lines
+
+
+def _passing_details(passing: Sequence[CaseResult]) -> list[str]:
+    lines = [f"<details><summary>{len(passing)} passing case(s)</summary>", "",
+             "| case | title | port | points | worst solver-vs-SPICE error |", "|---|---|---|---|---|"]
+    for r in passing[:MAX_ROWS]:
+        worst = worst_spice_error(r)
+        lines.append(f"| {_code(r.name)} | {_cell(r.title, 80)} | {r.port[0]} → {r.port[1]} | {len(r.freqs_hz)} "
+                     f"| {'not compared' if worst is None else f'{worst:.1e}'} |")
+    if len(passing) > MAX_ROWS:
+        lines.append(f"\n… and {len(passing) - MAX_ROWS} more passing.")
+    lines += ["", "</details>", ""]
+    return lines
+
+
+def markdown_report(results: Sequence[CaseResult]) -> str:
+    """The comment text (GitHub-flavoured Markdown; also renders on other code hosts)."""
+    from .. import __version__
+
+    overall = overall_verdict([r.verdict for r in results])
+    word = STATUS.get(overall, overall.upper())
+    counts = Counter(r.verdict for r in results)
+    lines = [f"### crosscheck: {word} — {len(results)} case(s): {count_words(counts)}", ""]
+    problems = [r for r in results if r.verdict != "pass"]
+    passing = [r for r in results if r.verdict == "pass"]
+    if problems:
+        lines += _problems_table(problems) + [""] + _problem_details(problems)
+    else:
+        lines += ["Every case passed: both engines agree within tolerance, and every hand value and design "
+                  "limit checked holds.", ""]
+    if passing:
+        lines += _passing_details(passing)
+    lines += [f"ngspice: {ngspice_version(results) or 'not run'} · crosscheck {__version__}", "",
+              f"> **Caution.** {CAUTION}", ""]
+    return "\n".join(lines)

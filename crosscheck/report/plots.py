@@ -1,0 +1,197 @@
+"""Plots of a swept case for the HTML report: both engines against frequency, the error, limits and hand values.
+
+One figure per case (magnitude and phase of Z_th and V_th, and the solver-vs-SPICE error
+against its tolerance), rendered with matplotlib's Agg canvas straight to PNG bytes. The
+figure is a plain ``Figure``, never registered with pyplot, so nothing global changes and
+nothing stays open after the call.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from typing import Sequence
+
+import numpy as np
+
+from ..check import CaseResult
+from ..judgements import LimitCheck
+
+#: A case needs at least this many frequencies to be drawn as a sweep.
+MIN_SWEEP_POINTS = 3
+#: Errors of exactly zero cannot sit on a log axis; they are drawn here and the axis says so.
+ERROR_FLOOR = 1e-18
+
+_OWN = dict(color="#1f5fa8", lw=1.6, label="crosscheck")
+_SPICE = dict(color="#d9822b", marker="o", ms=4.5, ls="none", mfc="none", mew=1.2, label="ngspice")
+_VERDICT_COLOUR = {"pass": "#2e7d32", "fail": "#c62828", "unavailable": "#9e9e9e", "drift": "#6a1b9a"}
+_ERR_COLOURS = {"vth": "#1f5fa8", "zth": "#d9822b", "in": "#2e7d32"}
+_PANELS = {("abs", "zth"): "zmag", ("abs", "vth"): "vmag", ("phase", "zth"): "zph", ("phase", "vth"): "vph",
+           ("db", "zth"): "zmag", ("db", "vth"): "vmag"}
+
+
+def is_swept(result: CaseResult) -> bool:
+    return result.own is not None and sum(1 for eq in result.own if eq.freq_hz > 0) >= MIN_SWEEP_POINTS
+
+
+def _series(values: Sequence[complex | None]) -> np.ndarray:
+    return np.array([complex("nan+nanj") if v is None else v for v in values], dtype=np.complex128)
+
+
+def _spice_values(result: CaseResult, quantity: str) -> np.ndarray | None:
+    if not result.points:
+        return None
+    return _series([next((q.ref for q in p.quantities if q.quantity == quantity), None) for p in result.points])
+
+
+def _magnitude_axis(ax, *arrays: np.ndarray) -> None:
+    values = np.concatenate([np.abs(a[np.isfinite(a)]) for a in arrays if a is not None])
+    values = values[values > 0]
+    if values.size and values.max() / values.min() > 20:
+        ax.set_yscale("log")
+
+
+def _limit_bounds(check: LimitCheck) -> tuple[float | None, float | None]:
+    """Bounds in the panel's unit: a dB limit is drawn on the magnitude axis."""
+    if check.function == "db":
+        return tuple(None if b is None else 10 ** (b / 20) for b in (check.minimum, check.maximum))
+    return check.minimum, check.maximum
+
+
+def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float | None,
+                 upper: float | None) -> None:
+    """The forbidden side of each bound, shaded over the limit's band; the bound itself as a dashed line."""
+    colour = _VERDICT_COLOUR.get(check.verdict, "#c62828")
+    log = ax.get_yscale() == "log"
+    if log:  # a bound at or below zero has no place on a log axis
+        lower = lower if lower is not None and lower > 0 else None
+        upper = upper if upper is not None and upper > 0 else None
+    bottom, top = ax.get_ylim()
+    span = top - bottom
+    # Widen the axis so the bound shows with some forbidden region beyond it.
+    if upper is not None:
+        top = max(top, upper * 1.5 if log else upper + 0.1 * span)
+    if lower is not None:
+        bottom = min(bottom, lower / 1.5 if log else lower - 0.1 * span)
+    label = f"limit[{check.index}] {check.text} ({check.verdict})"
+    for bound, edge in ((upper, top), (lower, bottom)):
+        if bound is None:
+            continue
+        ax.fill_between([lo_hz, hi_hz], [bound, bound], [edge, edge], color=colour, alpha=0.15, lw=0,
+                        label=label)
+        ax.hlines(bound, lo_hz, hi_hz, colors=colour, linestyles="--", lw=1.2)
+        label = None
+    ax.set_ylim(bottom, top)
+
+
+def _expectation_points(axes: dict, result: CaseResult) -> None:
+    for e in result.expectations:
+        if e.quantity not in ("vth", "zth") or e.at_hz <= 0:
+            continue
+        prefix = "z" if e.quantity == "zth" else "v"
+        colour = _VERDICT_COLOUR.get(e.verdict, "#c62828")
+        style = dict(marker="*", ms=12, ls="none", color=colour, mec="black", mew=0.6, zorder=5,
+                     label=f"expect[{e.index}] by hand ({e.verdict})")
+        axes[prefix + "mag"].plot([e.at_hz], [abs(e.expected)], **style)
+        axes[prefix + "ph"].plot([e.at_hz], [math.degrees(np.angle(e.expected))], **style)
+
+
+def _error_panel(ax, result: CaseResult, freqs: np.ndarray, keep: np.ndarray) -> None:
+    ax.set_title("solver vs SPICE: judged relative error")
+    ax.set_xscale("log")
+    ax.set_xlabel("frequency (Hz)")
+    if not result.points:
+        ax.text(0.5, 0.5, "not compared with ngspice", ha="center", va="center", transform=ax.transAxes)
+        return
+    ax.set_yscale("log")
+    drew_floor = False
+    for quantity, colour in _ERR_COLOURS.items():
+        errs = np.array([next((q.err for q in p.quantities if q.quantity == quantity), math.nan)
+                         for p in result.points])[keep]
+        if np.all(np.isnan(errs)):
+            continue
+        drew_floor |= bool(np.any(errs == 0))
+        ax.plot(freqs, np.where(errs == 0, ERROR_FLOOR, errs), marker=".", color=colour, lw=1, label=quantity)
+    ax.axhline(result.tolerance.rel, color="#c62828", ls="--", lw=1.2,
+               label=f"tolerance {result.tolerance.rel:.3g}")
+    if drew_floor:
+        ax.text(0.01, 0.02, f"exact agreement drawn at {ERROR_FLOOR:g}", transform=ax.transAxes, fontsize=8,
+                color="#555555")
+    ax.legend(fontsize=8, loc="best", ncol=4)
+
+
+def _other_limits_panel(ax, result: CaseResult, checks: list[LimitCheck]) -> None:
+    ax.set_title("other limited quantities")
+    ax.set_xscale("log")
+    ax.set_xlabel("frequency (Hz)")
+    for c in checks:
+        if c.values:
+            f, v = zip(*c.values)
+            ax.plot(f, v, color=_VERDICT_COLOUR.get(c.verdict, "#c62828"), marker=".", lw=1, label=c.text)
+    ax.autoscale_view()
+    for c in checks:
+        band = c.band or (min(result.freqs_hz), max(result.freqs_hz))
+        _shade_limit(ax, c, band[0], band[1], c.minimum, c.maximum)
+    ax.legend(fontsize=8, loc="best")
+
+
+def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
+    """The case's figure as PNG bytes, or None when the case is not a sweep (fewer than 3 frequencies > 0)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import LogLocator, NullFormatter
+
+    if not is_swept(result):
+        return None
+    freqs_all = np.array([eq.freq_hz for eq in result.own])
+    keep = freqs_all > 0  # DC cannot sit on a log axis; it stays in the points table
+    freqs = freqs_all[keep]
+    own = {"vth": _series([eq.vth for eq in result.own])[keep], "zth": _series([eq.zth for eq in result.own])[keep]}
+    ref = {q: (None if (s := _spice_values(result, q)) is None else s[keep]) for q in ("vth", "zth")}
+
+    fig = Figure(figsize=(10, 9.5))
+    FigureCanvasAgg(fig)
+    grid = fig.add_gridspec(3, 2)
+    axes = {"zmag": fig.add_subplot(grid[0, 0]), "vmag": fig.add_subplot(grid[0, 1]),
+            "zph": fig.add_subplot(grid[1, 0]), "vph": fig.add_subplot(grid[1, 1])}
+    other = [c for c in result.limits if (c.function, c.quantity) not in _PANELS]
+    error_ax = fig.add_subplot(grid[2, 0] if other else grid[2, :])
+    titles = {"zmag": ("|Z_th|", "Ω"), "vmag": ("|V_th|", f"V {result.sources}"), "zph": ("phase of Z_th", "°"),
+              "vph": ("phase of V_th", "°")}
+    for key, ax in axes.items():
+        quantity = "zth" if key.startswith("z") else "vth"
+        transform = np.abs if key.endswith("mag") else (lambda z: np.angle(z, deg=True))
+        ax.plot(freqs, transform(own[quantity]), **_OWN)
+        if ref[quantity] is not None:
+            ax.plot(freqs, transform(ref[quantity]), **_SPICE)
+        ax.set_xscale("log")
+        if key.endswith("mag"):
+            _magnitude_axis(ax, own[quantity], ref[quantity])
+        ax.set_title(titles[key][0])
+        ax.set_ylabel(titles[key][1])
+        ax.set_xlabel("frequency (Hz)")
+        ax.grid(True, which="both", alpha=0.25)
+    _expectation_points(axes, result)
+    for c in result.limits:
+        panel = _PANELS.get((c.function, c.quantity))
+        if panel is not None:
+            band = c.band or (float(freqs.min()), float(freqs.max()))
+            _shade_limit(axes[panel], c, band[0], band[1], *_limit_bounds(c))
+    for ax in axes.values():
+        ax.legend(fontsize=8, loc="best")
+    _error_panel(error_ax, result, freqs, keep)
+    error_ax.grid(True, which="both", alpha=0.25)
+    if other:
+        _other_limits_panel(fig.add_subplot(grid[2, 1]), result, other)
+    fig.suptitle(f"{result.title}  (port {result.port[0]} → {result.port[1]})", fontsize=11)
+    # Fixed margins: a layout engine measures every tick label and costs seconds per figure.
+    fig.subplots_adjust(left=0.08, right=0.98, bottom=0.06, top=0.93, hspace=0.45, wspace=0.22)
+    for ax in fig.axes:  # one frequency range everywhere; few minor ticks, unlabelled (each is laid out)
+        ax.set_xlim(float(freqs.min()), float(freqs.max()))
+        for axis in (ax.xaxis, ax.yaxis):
+            if axis.get_scale() == "log":
+                axis.set_minor_locator(LogLocator(subs=(2.0, 5.0)))
+            axis.set_minor_formatter(NullFormatter())
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
+    return buffer.getvalue()
