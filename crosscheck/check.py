@@ -18,7 +18,9 @@ from .equivalent import Equivalent, thevenin
 from .errors import CrosscheckError, EngineUnavailableError
 from .netlist import read_netlist
 from .network import Network, Port, validate
+from .expectations import check_expectations
 from .judgements import DriftCheck, ExpectationCheck, LimitCheck
+from .limits import check_limits
 from .tolerance import SOLVER_VS_SPICE, Tolerance
 
 ENGINES = ("own", "spice", "both")
@@ -46,13 +48,15 @@ class CaseResult:
     expectations: list[ExpectationCheck] = field(default_factory=list)
     limits: list[LimitCheck] = field(default_factory=list)
     drift: list[DriftCheck] = field(default_factory=list)
+    baseline_note: str = ""  # e.g. the case is not in the baseline: a note, never a verdict
     extra: dict = field(default_factory=dict)
 
     @property
     def explanation(self) -> str:
         if self.error:
             return self.error
-        notes = [p.explanation for p in self.points if p.verdict == self.verdict and p.explanation]
+        parts = [*self.points, *self.expectations, *self.limits, *self.drift]
+        notes = [p.explanation for p in parts if p.verdict == self.verdict and p.explanation]
         return notes[0] if notes else ""
 
 
@@ -76,11 +80,12 @@ def _error_result(case: Case, message: str) -> CaseResult:
 
 
 def run_cases(cases: Sequence[Case | tuple[str, CrosscheckError]], engine: str = "both", pool=None,
-              on_done: Callable[[CaseResult], None] | None = None) -> list[CaseResult]:
+              on_done: Callable[[CaseResult], None] | None = None, baseline=None) -> list[CaseResult]:
     """Own solver now, ngspice in the pool in parallel; results in the order given.
 
     An item may be ``(name, error)`` for a case file that could not be read: it becomes an
-    ``error`` result and the rest go on.
+    ``error`` result and the rest go on. With a ``baseline`` (``baseline.Baseline``) each case's own
+    equivalents are also held against the stored ones, and moving beyond tolerance is ``drift``.
     """
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {ENGINES} (got {engine!r})")
@@ -108,14 +113,15 @@ def run_cases(cases: Sequence[Case | tuple[str, CrosscheckError]], engine: str =
     out: list[CaseResult] = []
     for result, network, port, future in staged:
         if network is not None:
-            _finish(result, network, port, future, engine)
+            _finish(result, network, port, future, engine, baseline)
         if on_done is not None:
             on_done(result)
         out.append(result)
     return out
 
 
-def _finish(result: CaseResult, network: Network, port: Port, future: Future | None, engine: str) -> None:
+def _finish(result: CaseResult, network: Network, port: Port, future: Future | None, engine: str,
+            baseline=None) -> None:
     started = time.perf_counter()
     try:
         result.own = thevenin(network, port, result.freqs_hz)
@@ -139,12 +145,26 @@ def _finish(result: CaseResult, network: Network, port: Port, future: Future | N
     if result.own is None:
         result.verdict = "error"
         return
-    if engine == "own":
-        result.verdict = "pass"
-        return
-    refs = answers if answers is not None else [None] * len(result.own)
-    result.points = [compare_point(o, r, result.tolerance, result.spice_note) for o, r in zip(result.own, refs)]
-    result.verdict = "error" if result.error else worst(p.verdict for p in result.points)
+    if result.case is not None:
+        result.expectations = check_expectations(result.case, result.own, network)
+        result.limits = check_limits(result.case, result.own)
+    if baseline is not None:
+        from .baseline import compare_with_baseline
+
+        result.drift, result.baseline_note = compare_with_baseline(result, baseline)
+    if engine != "own":
+        refs = answers if answers is not None else [None] * len(result.own)
+        result.points = [compare_point(o, r, result.tolerance, result.spice_note) for o, r in zip(result.own, refs)]
+    result.verdict = case_verdict(result)
+
+
+def case_verdict(result: CaseResult) -> str:
+    """The worst of solver-vs-SPICE, hand-calculated expectations, design limits and baseline drift;
+    ``error`` whenever an engine crashed on the case."""
+    if result.error:
+        return "error"
+    return worst([*(p.verdict for p in result.points), *(e.verdict for e in result.expectations),
+                  *(lim.verdict for lim in result.limits), *(d.verdict for d in result.drift)])
 
 
 def case_from_netlist(path: str, text: str, port: tuple[str, str], freqs: Iterable[float],

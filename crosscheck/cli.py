@@ -16,6 +16,12 @@ EXIT_FAIL = 1         # some quantity outside tolerance, or a design limit or ex
 EXIT_USAGE = 2        # the command line itself is wrong (argparse's own code)
 EXIT_ERROR = 3        # invalid input (netlist, case file) or an engine crashed on a case
 EXIT_UNAVAILABLE = 4  # nothing failed, but an engine could not produce some quantity
+EXIT_DRIFT = 5        # nothing failed, but a result moved from the stored baseline (verify --baseline)
+
+# Report formats of `verify`, and the one an --output file's extension picks when --format is not given.
+VERIFY_FORMATS = ("text", "json", "junit", "csv", "html", "markdown")
+_FORMAT_BY_EXTENSION = {".json": "json", ".xml": "junit", ".csv": "csv", ".html": "html", ".htm": "html",
+                        ".md": "markdown", ".markdown": "markdown", ".txt": "text"}
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -25,7 +31,8 @@ def _parser() -> argparse.ArgumentParser:
         prog="crosscheck",
         description="Thevenin and Norton equivalents of linear AC networks, from crosscheck's own "
                     "solver and checked against ngspice.",
-        epilog="Exit codes: 0 pass, 1 fail, 2 usage, 3 error (invalid input), 4 unavailable.",
+        epilog="Exit codes: 0 pass, 1 fail, 2 usage, 3 error (invalid input), 4 unavailable, "
+               "5 drift from the baseline.",
     )
     top.add_argument("--version", action="version", version=f"crosscheck {__version__}")
     sub = top.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -39,6 +46,15 @@ def _parser() -> argparse.ArgumentParser:
     reduce.add_argument("--format", choices=("text", "json"), default="text")
     reduce.add_argument("--engine", choices=("own", "spice", "both"), default="both",
                         help="own: crosscheck's solver only; spice: compare with ngspice too (same as both)")
+    reduce.add_argument("--expect", action="append", default=[], metavar="QTY[@F]=VALUE",
+                        help="a hand-calculated value to check, e.g. vth=57.34∠-55° or \"zth=4.7 - j6.7\" "
+                             "(vth zth in yn series_r series_l series_c); @F names the frequency when several "
+                             "--freq are given; repeat for more values")
+    reduce.add_argument("--expect-rel", type=float, default=None, metavar="REL",
+                        help="magnitude tolerance of --expect values (default 0.01: three significant figures)")
+    reduce.add_argument("--expect-phase", type=_phase_option, default=None, metavar="DEG",
+                        help="phase tolerance of --expect values in degrees (default 0.5); 'none' judges the "
+                             "complex relative error against --expect-rel instead")
     _common_options(reduce)
 
     verify = sub.add_parser("verify", help="check case files (and netlists) with both engines")
@@ -46,15 +62,44 @@ def _parser() -> argparse.ArgumentParser:
                         help="case files (*.toml), folders searched for them, or netlists (with --port and --freq)")
     verify.add_argument("--port", nargs=2, metavar=("A", "B"), help="port for netlists named directly")
     verify.add_argument("--freq", nargs="+", metavar="F", help="frequencies for netlists named directly")
-    verify.add_argument("--format", choices=("text", "json"), default="text")
+    verify.add_argument("--format", choices=VERIFY_FORMATS, default=None,
+                        help="report format (default: from the --output file's extension — .json, .xml (junit), "
+                             ".csv, .html, .md — else text)")
     verify.add_argument("--output", type=Path, help="write the report to this file instead of standard output")
     verify.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
     verify.add_argument("--timeout", type=float, default=60.0, help="seconds ngspice may take per case (default 60)")
     verify.add_argument("--allow-outside-paths", action="store_true",
                         help="let case files name netlists outside their own folder")
     verify.add_argument("--detail", action="store_true", help="show every point of every case")
+    verify.add_argument("--baseline", type=Path, metavar="FILE",
+                        help="compare the own solver's equivalents with this stored baseline; a change beyond "
+                             "numerical noise is 'drift' (exit code 5)")
+    verify.add_argument("--update-baseline", action="store_true",
+                        help="write this run's equivalents to --baseline FILE and list what changed")
     _common_options(verify)
+    _fuzz_parser(sub)
     return top
+
+
+def _fuzz_parser(sub) -> None:
+    from .generate import ALL_KINDS, FAMILIES, MIXED
+
+    fuzz = sub.add_parser("fuzz", help="random networks through both engines; shrinks what disagrees")
+    fuzz.add_argument("--count", type=int, default=100, metavar="N", help="how many networks (default 100)")
+    fuzz.add_argument("--seed", type=int, default=0, metavar="S", help="run seed; case i gets seed S*1000003+i")
+    fuzz.add_argument("--case-seed", type=int, nargs="+", metavar="SEED",
+                      help="run only these case seeds (printed with every failure) instead of --count/--seed")
+    fuzz.add_argument("--nodes", type=int, nargs=2, default=(2, 8), metavar=("MIN", "MAX"),
+                      help="non-ground nodes per network (default 2 8)")
+    fuzz.add_argument("--family", choices=(MIXED, *FAMILIES), default=MIXED,
+                      help="topology family; mixed (default) draws one per case")
+    fuzz.add_argument("--kinds", default=ALL_KINDS, metavar="LETTERS",
+                      help=f"element kinds to draw from (default {ALL_KINDS}; F and H bring 0 V sensing sources)")
+    fuzz.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
+    fuzz.add_argument("--out", type=Path, metavar="DIR",
+                      help="write summary.json and, per failure, the shrunk netlist, case file and numbers here")
+    fuzz.add_argument("--format", choices=("text", "json"), default="text", help="summary on standard output")
+    fuzz.add_argument("--no-shrink", action="store_true", help="report failures without shrinking them")
 
 
 def _common_options(p: argparse.ArgumentParser) -> None:
@@ -73,6 +118,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             return _reduce(args)
         if args.command == "verify":
             return _verify(args)
+        if args.command == "fuzz":
+            return _fuzz(args)
     except (CrosscheckError, _AlreadyReported) as exc:
         print(f"crosscheck: error: {exc}", file=sys.stderr)
         return EXIT_ERROR
@@ -102,12 +149,43 @@ def _tolerance(args: argparse.Namespace):
     return Tolerance(rel=args.rel, abs=SOLVER_VS_SPICE.abs)
 
 
+def _phase_option(text: str) -> float | str:
+    """--expect-phase: degrees in [0, 180], or 'none' to judge by the complex relative error."""
+    if text.strip().lower() == "none":
+        return "none"
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number of degrees; write e.g. 0.5, or none") from None
+    if not 0 <= value <= 180:
+        raise argparse.ArgumentTypeError(f"{text!r} must be between 0 and 180 degrees")
+    return value
+
+
+def _expect_tolerance(args: argparse.Namespace):
+    from .tolerance import HAND_CALCULATION, Tolerance
+
+    rel = HAND_CALCULATION.rel if args.expect_rel is None else args.expect_rel
+    phase = {None: HAND_CALCULATION.phase_deg, "none": None}.get(args.expect_phase, args.expect_phase)
+    try:
+        return Tolerance(rel=rel, abs=HAND_CALCULATION.abs, phase_deg=phase)
+    except ValueError as exc:
+        raise _UsageError(f"--expect-rel: {exc}") from None
+
+
+class _UsageError(Exception):
+    pass
+
+
 def exit_code(verdicts: Sequence[str]) -> int:
-    """0 all pass; 1 any fail; 3 any error; 4 only unavailable beside passes."""
+    """0 all pass; 1 any fail; 3 any error; 5 drift from the baseline (no fail or error); 4 only
+    unavailable beside passes."""
     if "error" in verdicts:
         return EXIT_ERROR
     if "fail" in verdicts:
         return EXIT_FAIL
+    if "drift" in verdicts:
+        return EXIT_DRIFT
     if "unavailable" in verdicts:
         return EXIT_UNAVAILABLE
     return EXIT_OK
@@ -123,10 +201,20 @@ def _reduce(args: argparse.Namespace) -> int:
     from .report.results_text import print_results
 
     freqs = _frequencies(args.freq)
+    try:
+        expectations = _expectations(args, freqs)
+    except _UsageError as exc:
+        print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
     text = _read_text(args.netlist)
     case = case_from_netlist(str(args.netlist), text, tuple(args.port), freqs, _tolerance(args),
                              args.allow_negative, args.sources)
-    case = _keep_order(case, freqs)
+    case = _keep_order(case, freqs + [e.at_hz for e in expectations
+                                      if not any(abs(e.at_hz - f) <= 1e-9 * abs(f) for f in freqs)])
+    if expectations:
+        from dataclasses import replace
+
+        case = replace(case, expectations=expectations)
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
@@ -147,15 +235,37 @@ def _reduce(args: argparse.Namespace) -> int:
             doc = results_document([result])
             doc.update({"port": list(result.port), "points": case_document(result)["points"],
                         "verdict": result.verdict})
+        if expectations:
+            from .report.results_json import checks_document
+
+            doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
         json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
         print()
     else:
         console = Console()
         print_equivalents(console, result.title, result.port, result.own, source_note,
-                          caution=args.engine == "own")
+                          caution=args.engine == "own" and not expectations)
         if args.engine != "own":
             print_results(console, [result], detail=True)
+        elif expectations:
+            from .caution import CAUTION
+            from .report.results_text import print_checks
+
+            print_checks(console, result, detail=True)
+            console.print(f"[dim]Caution: {CAUTION}[/]")
     return exit_code([result.verdict])
+
+
+def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
+    """--expect options as expectations; a malformed one is a usage error."""
+    from .expectations import ExpectOptionError, expectations_from_options
+
+    if not args.expect:
+        return ()
+    try:
+        return expectations_from_options(args.expect, freqs, _expect_tolerance(args))
+    except ExpectOptionError as exc:
+        raise _UsageError(str(exc)) from None
 
 
 def _network_title(result):
@@ -190,6 +300,11 @@ def _verify(args: argparse.Namespace) -> int:
     from .report.results_text import print_results
     from .workers import SpicePool
 
+    if args.update_baseline and args.baseline is None:
+        print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)",
+              file=sys.stderr)
+        return EXIT_USAGE
+    baseline = _baseline(args)
     items: list = []
     for path in find_case_files(list(args.paths)):
         try:
@@ -212,15 +327,70 @@ def _verify(args: argparse.Namespace) -> int:
     with progress, SpicePool(workers=args.workers, timeout_s=args.timeout) as pool:
         task = progress.add_task("cases", total=len(items), rate="")
         results = run_cases(items, engine="both", pool=pool,
-                            on_done=lambda r: progress.advance(task))
-    if args.format == "json":
-        text = json.dumps(results_document(results), indent=2, ensure_ascii=False) + "\n"
-        _emit(text, args.output)
+                            on_done=lambda r: progress.advance(task), baseline=baseline)
+    args.format = verify_format(args.format, args.output)
+    if args.format != "text":
+        _emit(render_report(args.format, results), args.output)
     else:
         console = Console(file=open(args.output, "w", encoding="utf-8") if args.output else None,
                           width=160 if args.output else None)
         print_results(console, results, detail=args.detail)
+    if args.update_baseline:
+        _update_baseline(args, results)
     return exit_code([r.verdict for r in results])
+
+
+def _baseline(args: argparse.Namespace):
+    """The stored baseline to compare with, or None (none asked for, or it is about to be rewritten)."""
+    if args.baseline is None or args.update_baseline:
+        return None
+    from .baseline import load_baseline
+
+    return load_baseline(args.baseline)
+
+
+def _update_baseline(args: argparse.Namespace, results) -> None:
+    """Write the baseline explicitly and say what changed (to stderr when stdout carries a report file format)."""
+    from .baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
+
+    old = load_baseline(args.baseline) if args.baseline.exists() else None
+    new, kept = updated_baseline(results, args.baseline, old)
+    lines = format_changes(diff_baselines(old, new, kept), args.baseline)
+    write_baseline(new, args.baseline)
+    out = sys.stderr if args.format != "text" and args.output is None else sys.stdout
+    print("\n".join(lines), file=out)
+
+
+def verify_format(given: str | None, output: Path | None) -> str:
+    """The --format asked for, else the one the --output file's extension names, else text."""
+    if given is not None:
+        return given
+    return _FORMAT_BY_EXTENSION.get(output.suffix.lower(), "text") if output is not None else "text"
+
+
+def render_report(fmt: str, results) -> str:
+    """The report text in one of the file formats (everything but the terminal's text)."""
+    if fmt == "json":
+        from .report.results_json import results_document
+
+        return json.dumps(results_document(results), indent=2, ensure_ascii=False) + "\n"
+    if fmt == "junit":
+        from .report.junit import junit_xml
+
+        return junit_xml(results)
+    if fmt == "csv":
+        from .report.csv_out import csv_report
+
+        return csv_report(results)
+    if fmt == "html":
+        from .report.html import html_report
+
+        return html_report(results)
+    if fmt == "markdown":
+        from .report.markdown import markdown_report
+
+        return markdown_report(results)
+    raise ValueError(f"format must be one of {VERIFY_FORMATS} (got {fmt!r})")
 
 
 def _emit(text: str, output: Path | None) -> None:
@@ -229,6 +399,31 @@ def _emit(text: str, output: Path | None) -> None:
     else:
         output.parent.mkdir(parents=True, exist_ok=True)
         output.write_text(text, encoding="utf-8")
+
+
+def _fuzz(args: argparse.Namespace) -> int:
+    """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
+    from rich.console import Console
+
+    from .fuzz import FuzzOptions, run_fuzz
+    from .generate import Knobs
+    from .report.fuzz_summary import fuzz_progress, print_summary, summary_document
+
+    try:
+        knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)
+        options = FuzzOptions(count=args.count, seed=args.seed, knobs=knobs, workers=args.workers, out=args.out,
+                              shrink=not args.no_shrink, case_seeds=tuple(args.case_seed or ()))
+    except ValueError as exc:
+        print(f"crosscheck fuzz: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    with fuzz_progress(len(options.seeds())) as advance:
+        summary = run_fuzz(options, on_progress=advance)
+    if args.format == "json":
+        json.dump(summary_document(summary), sys.stdout, indent=2, ensure_ascii=False)
+        print()
+    else:
+        print_summary(Console(), summary)
+    return exit_code(summary.verdicts())
 
 
 if __name__ == "__main__":  # pragma: no cover

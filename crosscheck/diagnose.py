@@ -7,7 +7,15 @@ capacitor is open, and at a lossless resonance a tank's admittance is zero.
 
 from __future__ import annotations
 
+from typing import Sequence
+
+import numpy as np
+import scipy.sparse as sp
+
 from .network import CURRENT_OUTPUT_KINDS, GROUND, Network, _UnionFind
+
+#: Above this many unknowns the null space is not computed (a dense SVD), and no nodes are named.
+_NULL_SPACE_LIMIT = 2000
 
 
 def likely_singularity(network: Network, freq_hz: float) -> tuple[str, tuple[str, ...]]:
@@ -48,3 +56,17 @@ def _nodes_without_path(network: Network, at_dc: bool) -> list[str]:
         uf.union(*e.terminals)
     root = uf.find(GROUND)
     return [n for n in network.nodes if uf.find(n) != root]
+
+
+def nodes_in_null_space(matrix: sp.spmatrix | np.ndarray, node_names: Sequence[str]) -> tuple[str, ...]:
+    """Nodes whose voltages move in the matrix's null space: where a resonance or cancelling gains leave
+    the solution undetermined. Empty when the null vector lives in branch currents only."""
+    n = matrix.shape[0]
+    if n == 0 or n > _NULL_SPACE_LIMIT or not node_names:
+        return ()
+    dense = matrix.toarray() if sp.issparse(matrix) else np.asarray(matrix)
+    null = np.abs(np.linalg.svd(dense)[2][-1])
+    at_nodes = null[: len(node_names)]
+    if at_nodes.max(initial=0.0) <= 1e-6 * null.max():
+        return ()
+    return tuple(name for name, x in zip(node_names, at_nodes) if x >= 0.1 * at_nodes.max())

@@ -24,7 +24,9 @@ from .errors import SingularNetworkError
 from .network import Network, Port, check_port, floating_reference
 from .solver import MnaSystem
 
-#: |Z_th| below this multiple of eps times the test solution's largest voltage is an exact zero.
+#: |Z_th| below this multiple of eps times the test solution's largest entry is an exact zero. It is
+#: not scaled by the condition number: an ill-conditioned network's small Z_th is still a value (the
+#: comparison judges its accuracy), while an ideal source at the port gives zero to within a few ulps.
 _ZERO_ROUNDOFF = 1e3 * np.finfo(float).eps
 
 
@@ -48,6 +50,10 @@ class Equivalent:
     yn: complex | None
     condition: float
     note: str = ""
+    #: Largest node voltage of the open-circuit and of the test solution: the scale against which a
+    #: backward-stable solve is accurate (normwise), used to judge tiny components fairly.
+    vth_scale: float = 0.0
+    zth_scale: float = 0.0
 
     @property
     def omega(self) -> float:
@@ -109,11 +115,15 @@ def _port_voltage(system: MnaSystem, x: np.ndarray, port: Port) -> np.ndarray:
 
 def _from_open_port(system: MnaSystem, port: Port, f: float, x: np.ndarray, condition: float) -> Equivalent:
     vth, zth = (complex(v) for v in _port_voltage(system, x, port))
-    scale = float(np.max(np.abs(x[: len(system.node_index), 1]), initial=0.0))
-    if abs(zth) <= _ZERO_ROUNDOFF * max(scale, abs(zth)) or zth == 0:
+    # Scales over the whole solution, branch currents included: when a voltage source pins the port,
+    # every node voltage of the test solution is 0 while the 1 A test current flows in branches.
+    v_scale = float(np.max(np.abs(x[:, 0]), initial=0.0))
+    z_scale = float(np.max(np.abs(x[:, 1]), initial=0.0))
+    if abs(zth) <= _ZERO_ROUNDOFF * max(z_scale, abs(zth)) or zth == 0:
         return Equivalent(f, vth, 0j, None, None, condition,
-                          "Z_th = 0: an ideal voltage source sits at the port, so there is no Norton form")
-    return Equivalent(f, vth, zth, vth / zth, 1.0 / zth, condition)
+                          "Z_th = 0: an ideal voltage source sits at the port, so there is no Norton form",
+                          v_scale, z_scale)
+    return Equivalent(f, vth, zth, vth / zth, 1.0 / zth, condition, "", v_scale, z_scale)
 
 
 def _from_shorted_port(network: Network, port: Port, f: float, ties: list[str],
@@ -135,7 +145,9 @@ def _from_shorted_port(network: Network, port: Port, f: float, ties: list[str],
     in_ = complex(x[k, 0])
     yn = complex(-x[k, 1])
     scale = float(np.max(np.abs(x[:, 1]), initial=0.0))
+    v_scale = float(np.max(np.abs(x[:, 0]), initial=0.0))
     if abs(yn) <= _ZERO_ROUNDOFF * max(scale, abs(yn)) or yn == 0:
         return Equivalent(f, None, None, in_, 0j, fac.condition,
-                          "Y_N = 0: the port sees an ideal current source, so there is no Thevenin form")
-    return Equivalent(f, in_ / yn, 1.0 / yn, in_, yn, fac.condition)
+                          "Y_N = 0: the port sees an ideal current source, so there is no Thevenin form",
+                          v_scale, math.inf)
+    return Equivalent(f, in_ / yn, 1.0 / yn, in_, yn, fac.condition, "", v_scale, 1.0 / abs(yn))

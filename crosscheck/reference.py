@@ -315,8 +315,9 @@ def solve(engine: Engine, network: Network, port: Port, freqs: Iterable[float],
     degenerate = port_is_voltage_defined(network, port)
     runs = tuple(r for r in RUNS if not (r == "short" and degenerate))
     if degenerate:
-        notes.append("I_N unavailable: voltage sources or ideal shorts join the port's nodes, so Z_th = 0 at "
-                     "every frequency and there is no Norton form (shorting the port would loop voltage sources)")
+        notes.append("I_N unavailable from ngspice: voltage-defined branches (V, E, H or ideal shorts) join the "
+                     "port's nodes, so shorting the port would close a loop of them and that run cannot be made "
+                     "(with V sources and shorts alone Z_th = 0 and there is no Norton form at all)")
     # 0 Hz runs on its own: a node reached only through capacitors has no DC path, which makes the
     # 0 Hz matrix singular and would otherwise stop the whole sweep.
     groups = [g for g in (sorted({f for f in requested if f > 0}), [0.0] if 0.0 in requested else []) if g]
@@ -332,8 +333,14 @@ def solve(engine: Engine, network: Network, port: Port, freqs: Iterable[float],
             point_notes.append(notes[0])
         freq_hz = next((v[0] for v in got.values() if v is not None and v[0] is not None), f)
         vth, isc, zth = (None if got[r] is None else got[r][1] for r in ("open", "short", "test"))
+        derived = degenerate and isc is None and vth is not None and bool(zth)
+        if derived:
+            # No shorted run is possible; ngspice's own two other runs still give I_N = V_th / Z_th.
+            isc = vth / zth
+            point_notes.append("I_N here is V_th / Z_th from ngspice's open-circuit and test runs")
         points.append(SpicePoint(freq_hz=freq_hz, requested_hz=f, vth=vth, zth=zth, isc=isc,
-                                 route_mismatch=route_mismatch(vth, zth, isc), notes=tuple(point_notes)))
+                                 route_mismatch=None if derived else route_mismatch(vth, zth, isc),
+                                 notes=tuple(point_notes)))
     notes += case.notes
     return SpiceResult(points=tuple(points), ngspice_version=engine.version,
                        strategy="combined" if used == {"combined"} else "separate",

@@ -68,6 +68,9 @@ class MnaSystem:
         per_omega: list[float] = []  # A1 entries (multiplied by jω)
         node = self.node_index.get
         by_name = {e.name: e for e in self.network.elements}
+        from . import faults  # deliberate bugs for measuring the fuzzer; empty unless faults.injected(...)
+
+        broken = faults.active
 
         def put(r: int | None, c: int | None, a0: float = 0.0, a1: float = 0.0) -> None:
             if r is None or c is None:
@@ -96,15 +99,20 @@ class MnaSystem:
             kind = e.kind
             if kind == "R" and not e.is_short:
                 admittance(*e.terminals, 1.0 / e.value, 0.0)
+            elif kind == "C" and "capacitor-inverted" in broken:  # fault: 1/(jωC), an inductor of C henries
+                self.size += 1
+                branch_incidence(self.size - 1, *e.terminals)
+                put(self.size - 1, self.size - 1, 0.0, -e.value)
             elif kind == "C":
                 admittance(*e.terminals, 0.0, e.value)
             elif kind == "G":
                 # Current gm·(V(nc+) - V(nc-)) flows from n+ through the source to n-.
                 p, m, cp, cm = (node(n) for n in e.nodes)
-                put(p, cp, e.value)
-                put(p, cm, -e.value)
-                put(m, cp, -e.value)
-                put(m, cm, e.value)
+                gm = -e.value if "vccs-sign" in broken else e.value
+                put(p, cp, gm)
+                put(p, cm, -gm)
+                put(m, cp, -gm)
+                put(m, cm, gm)
             elif kind == "F":
                 k_ctl = self.branch_index[e.control]  # type: ignore[index]
                 put(node(e.nodes[0]), k_ctl, e.value)
@@ -122,11 +130,15 @@ class MnaSystem:
             elif kind == "K":
                 l1, l2 = (by_name[n] for n in e.coupled)  # type: ignore[union-attr]
                 mutual = e.value * math.sqrt(l1.value * l2.value)
+                if "mutual-sign" in broken:
+                    mutual = -mutual
                 k1, k2 = self.branch_index[l1.name], self.branch_index[l2.name]
                 put(k1, k2, 0.0, -mutual)
                 put(k2, k1, 0.0, -mutual)
         for n in self._ties:
             branch_incidence(self.branch_index[f"tie:{n}"], n, GROUND)
+        if "f-for-omega" in broken:  # fault: j·f·A1 instead of j·ω·A1
+            per_omega = [x / (2.0 * math.pi) for x in per_omega]
 
         # Sum duplicates once, keeping A0 and A1 on one shared pattern.
         combined = sp.coo_matrix(
@@ -176,6 +188,13 @@ class MnaSystem:
         """A test current driven into node a and out of node b (sources left out)."""
         z = np.zeros(self.size, dtype=complex)
         ia, ib = self.node_index.get(a), self.node_index.get(b)
+        from . import faults  # deliberate bugs for measuring the fuzzer; empty unless faults.injected(...)
+
+        if "injection-node" in faults.active:  # fault: an off-by-one node index on one terminal
+            if ia is not None:
+                ia = (ia + 1) % len(self.node_index)
+            elif ib is not None:
+                ib = (ib + 1) % len(self.node_index)
         if ia is not None:
             z[ia] += amps
         if ib is not None:
@@ -197,10 +216,10 @@ class MnaSystem:
                 warnings.simplefilter("error", sp.SparseEfficiencyWarning)
                 lu = spla.splu(a, permc_spec="COLAMD")
         except RuntimeError as exc:  # SuperLU: "Factor is exactly singular"
-            raise singular_error(self.network, freq_hz, str(exc)) from None
+            raise singular_error(self.network, freq_hz, str(exc), a, tuple(self.node_index)) from None
         condition = one_norm_condition(a, lu) if estimate_condition else math.nan
         if not math.isfinite(condition) or condition > 1e17:
-            raise singular_error(self.network, freq_hz, f"condition number {condition:.3g}")
+            raise singular_error(self.network, freq_hz, f"condition number {condition:.3g}", a, tuple(self.node_index))
         return Factorization(freq_hz, lu.solve, condition)
 
     def solve_many(self, freqs_hz: Sequence[float], rhs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -246,11 +265,19 @@ def one_norm_condition(a: sp.spmatrix, lu: spla.SuperLU) -> float:
     return float(norm_a * inv_norm)
 
 
-def singular_error(network: Network, freq_hz: float, detail: str) -> SingularNetworkError:
-    """Name the likely cause of a singular matrix from the structure at this frequency."""
-    from .diagnose import likely_singularity  # late import keeps the hot path lean
+def singular_error(network: Network, freq_hz: float, detail: str, matrix: sp.spmatrix | None = None,
+                   node_names: tuple[str, ...] = ()) -> SingularNetworkError:
+    """Name the likely cause of a singular matrix from the structure at this frequency.
+
+    With no structural cause, the nodes are read from the matrix's null space when it is given.
+    """
+    from .diagnose import likely_singularity, nodes_in_null_space  # late import keeps the hot path lean
 
     cause, nodes = likely_singularity(network, freq_hz)
+    if not nodes and matrix is not None:
+        nodes = nodes_in_null_space(matrix, node_names)
+        if nodes:
+            cause += f"; the undetermined voltages are at node(s) {', '.join(nodes[:8])}"
     where = f" at {freq_hz:g} Hz" if freq_hz else " at DC (0 Hz)"
     return SingularNetworkError(f"the network's equations are singular{where}: {cause} ({detail})",
                                 nodes=nodes, freq_hz=freq_hz)

@@ -45,7 +45,7 @@ def test_ill_conditioned_disagreement_is_explained_by_the_condition():
     """When κ·ε exceeds the tolerance, the failure text says the tolerance is tighter than the arithmetic allows."""
     own = _eq(cond=1e12)
     ref = EngineAnswer(1e3, own.vth * (1 + 1e-2), own.zth, own.in_)
-    check = compare_quantity("vth", own.vth, ref.vth, SOLVER_VS_SPICE, 1e12, 1.0)
+    check = compare_quantity("vth", own.vth, ref.vth, SOLVER_VS_SPICE, 1e12, 1e-3)
     assert check.verdict == "fail"
     assert "ill-conditioned" in check.explanation
 
