@@ -12,6 +12,7 @@ APT_PACKAGES := libngspice0 libngspice0-dev
 .PHONY: demo test test-full test-spice bench fuzz-full ngspice venv clean
 
 demo: $(STAMP) ngspice
+	$(BIN)/crosscheck reduce corpus/audio/mixer_line_out.cir --port far_end 0 --freq 20 1k 20k
 	$(BIN)/crosscheck verify corpus --output out/corpus-report.html
 
 test: $(STAMP) ngspice

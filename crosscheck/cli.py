@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+from contextlib import nullcontext
 import json
 import sys
 from pathlib import Path
@@ -332,9 +333,12 @@ def _verify(args: argparse.Namespace) -> int:
     if args.format != "text":
         _emit(render_report(args.format, results), args.output)
     else:
-        console = Console(file=open(args.output, "w", encoding="utf-8") if args.output else None,
-                          width=160 if args.output else None)
-        print_results(console, results, detail=args.detail)
+        with (open(args.output, "w", encoding="utf-8") if args.output else nullcontext(None)) as handle:
+            print_results(Console(file=handle, width=160 if handle else None), results, detail=args.detail)
+    if args.output is not None:
+        # The report went to a file: the terminal still gets the summary and where to look.
+        print_results(Console(), results, detail=False)
+        print(f"report written to {args.output}")
     if args.update_baseline:
         _update_baseline(args, results)
     return exit_code([r.verdict for r in results])

@@ -51,7 +51,7 @@ def summary_table(results: Sequence[CaseResult]) -> Table:
     for r in results:
         errs = [q.err for p in r.points for q in p.quantities if not math.isnan(q.err)]
         table.add_row(r.name, f"{r.port[0]} → {r.port[1]}", str(len(r.freqs_hz)),
-                      f"{max(errs):.1e}" if errs else "—", _v(r.verdict), r.explanation[:300])
+                      f"{max(errs):.1e}" if errs else "—", _v(r.verdict), "" if r.verdict == "pass" else r.explanation[:300])
     return table
 
 
