@@ -19,6 +19,9 @@ EXIT_ERROR = 3        # invalid input (netlist, case file) or an engine crashed 
 EXIT_UNAVAILABLE = 4  # nothing failed, but an engine could not produce some quantity
 EXIT_DRIFT = 5        # nothing failed, but a result moved from the stored baseline (verify --baseline)
 
+CLUSTER_HELP = ("run every case as a task on the Dask cluster whose scheduler is at ADDRESS (tcp://host:port); "
+                "its workers need crosscheck and ngspice installed (pip install 'crosscheck[cluster]')")
+
 # Report formats of `verify`, and the one an --output file's extension picks when --format is not given.
 VERIFY_FORMATS = ("text", "json", "junit", "csv", "html", "markdown")
 _FORMAT_BY_EXTENSION = {".json": "json", ".xml": "junit", ".csv": "csv", ".html": "html", ".htm": "html",
@@ -68,6 +71,7 @@ def _parser() -> argparse.ArgumentParser:
                              ".csv, .html, .md — else text)")
     verify.add_argument("--output", type=Path, help="write the report to this file instead of standard output")
     verify.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
+    verify.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
     verify.add_argument("--timeout", type=float, default=60.0, help="seconds ngspice may take per case (default 60)")
     verify.add_argument("--allow-outside-paths", action="store_true",
                         help="let case files name netlists outside their own folder")
@@ -97,6 +101,7 @@ def _fuzz_parser(sub) -> None:
     fuzz.add_argument("--kinds", default=ALL_KINDS, metavar="LETTERS",
                       help=f"element kinds to draw from (default {ALL_KINDS}; F and H bring 0 V sensing sources)")
     fuzz.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
+    fuzz.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
     fuzz.add_argument("--out", type=Path, metavar="DIR",
                       help="write summary.json and, per failure, the shrunk netlist, case file and numbers here")
     fuzz.add_argument("--format", choices=("text", "json"), default="text", help="summary on standard output")
@@ -295,11 +300,11 @@ def _verify(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
+    from .batch import run_batch
     from .cases import find_case_files, load_case
-    from .check import case_from_netlist, run_cases
+    from .check import case_from_netlist
     from .report.results_json import results_document
     from .report.results_text import print_results
-    from .workers import SpicePool
 
     if args.update_baseline and args.baseline is None:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)",
@@ -325,9 +330,9 @@ def _verify(args: argparse.Namespace) -> int:
     progress = Progress(TextColumn("checking"), BarColumn(), MofNCompleteColumn(), TextColumn("{task.fields[rate]}"),
                         TimeRemainingColumn(), console=err_console, transient=True,
                         disable=not err_console.is_terminal)
-    with progress, SpicePool(workers=args.workers, timeout_s=args.timeout) as pool:
+    with progress, _executor(args.cluster) as executor:
         task = progress.add_task("cases", total=len(items), rate="")
-        results = run_cases(items, engine="both", pool=pool,
+        results = run_batch(items, executor, workers=args.workers, timeout_s=args.timeout,
                             on_done=lambda r: progress.advance(task), baseline=baseline)
     args.format = verify_format(args.format, args.output)
     if args.format != "text":
@@ -420,14 +425,30 @@ def _fuzz(args: argparse.Namespace) -> int:
     except ValueError as exc:
         print(f"crosscheck fuzz: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
-    with fuzz_progress(len(options.seeds())) as advance:
-        summary = run_fuzz(options, on_progress=advance)
+    with fuzz_progress(len(options.seeds())) as advance, _executor(args.cluster) as executor:
+        if executor is None:
+            summary = run_fuzz(options, on_progress=advance)
+        else:
+            from .batch import run_fuzz_batch
+
+            summary = run_fuzz_batch(options, executor, on_progress=advance)
     if args.format == "json":
         json.dump(summary_document(summary), sys.stdout, indent=2, ensure_ascii=False)
         print()
     else:
         print_summary(Console(), summary)
     return exit_code(summary.verdicts())
+
+
+def _executor(address: str | None):
+    """The Dask cluster's executor for --cluster ADDRESS, else None (this machine's worker pool)."""
+    from contextlib import nullcontext
+
+    if address is None:
+        return nullcontext(None)
+    from .batch import cluster_executor
+
+    return cluster_executor(address)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -1,0 +1,69 @@
+"""The benchmark's smoke test: `python -m crosscheck.bench --quick` runs and prints every figure.
+
+No timing is asserted here (timing goals live in the benchmark itself); only that each figure's label
+and a value under it are printed, so the full run (`make bench`) cannot rot unnoticed.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from crosscheck.bench import FAMILIES, build, fitted_exponent
+from crosscheck.network import validate
+
+LABELS = (
+    "own solver vs SPICE route",
+    "SPICE/own",
+    "own peak",
+    "SPICE peak",
+    "agree",
+    "growth with node count (fitted exponent, log-log least squares)",
+    "condition estimate cost",
+    "sparse LU back ends and orderings",
+    "COLAMD", "MMD_AT_PLUS_A", "MMD_ATA", "NATURAL", "KLU",
+    "batch throughput",
+    "verify, local default",
+    "verify, process pool of 2 whole-case tasks",
+    "fuzz, local",
+    "Dask local cluster",
+    "same verdicts: yes",
+    "overhead per case",
+    "total benchmark time",
+)
+
+
+@pytest.mark.spice
+def test_quick_benchmark_prints_every_figure():
+    """Every section and column label appears, with a number on each family's rows."""
+    done = subprocess.run([sys.executable, "-m", "crosscheck.bench", "--quick", "--cases", "40"],
+                          capture_output=True, text=True, timeout=900)
+    assert done.returncode == 0, done.stderr[-3000:]
+    out = done.stdout
+    missing = [label for label in LABELS if label not in out]
+    assert not missing, f"labels not printed: {missing}\n{out}"
+    for family in FAMILIES:
+        rows = re.findall(rf"^{family}\s+(100|1000)\s+\d+\s+30\s+\S+ m?s\s+\S+ m?s\s+\S+x", out, re.MULTILINE)
+        assert len(rows) == 2, f"{family}: expected rows at 100 and 1000 nodes with both routes timed\n{out}"
+        assert re.search(rf"^{family}\s+own k = -?\d+\.\d\d", out, re.MULTILINE), f"{family}: no fitted exponent"
+    assert re.search(r"overhead per case: [+-]\d+\.\d\d ms", out)
+    assert re.search(r"\d+ cases/s", out)
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+def test_benchmark_networks_are_valid_and_sized(family):
+    """Each family builds a valid network with the asked number of nodes (a grid rounds to a square)."""
+    network, port = build(family, 400)
+    validate(network, port)
+    assert len(network.nodes) == 400
+
+
+def test_fitted_exponent_recovers_a_power_law():
+    """The log-log least-squares slope of t = c·n^1.5 is 1.5 (to rounding: 1e-9, common practice)."""
+    nodes = np.array([100, 1_000, 10_000, 100_000], dtype=float)
+    assert abs(fitted_exponent(nodes, 3e-6 * nodes ** 1.5) - 1.5) <= 1e-9
+    assert np.isnan(fitted_exponent([100.0], [1.0]))

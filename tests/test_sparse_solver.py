@@ -1,0 +1,174 @@
+"""The sparse path of the MNA solver: back ends, symbolic reuse, condition estimate, singular points, assembly.
+
+Networks come from the benchmark's four topology families (``crosscheck.bench.build``), at sizes just
+above ``DENSE_LIMIT`` so that the sparse path runs while numpy's dense LU stays a cheap reference.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from crosscheck import sparse_backends
+from crosscheck.bench import FAMILIES, build
+from crosscheck.errors import SingularNetworkError
+from crosscheck.faults import injected
+from crosscheck.generate import Knobs, generate_case
+from crosscheck.network import Element, floating_reference
+from crosscheck.solver import DENSE_LIMIT, REFINE_ABOVE, MnaSystem
+
+EPS = float(np.finfo(float).eps)
+SWEEP = tuple(100.0 * 10 ** (i / 3) for i in range(13))  # 100 Hz to 1 MHz, 3 per decade
+BACKENDS = sparse_backends.available()
+
+
+def _system(family: str, nodes: int, backend: str | None) -> tuple[MnaSystem, np.ndarray]:
+    network, port = build(family, nodes)
+    system = MnaSystem(network)
+    system.sparse_backend = backend
+    rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
+    return system, rhs
+
+
+def _exact_condition(system: MnaSystem, freq_hz: float) -> float:
+    dense = system.matrix(freq_hz).toarray()
+    return float(np.linalg.norm(dense, 1) * np.linalg.norm(np.linalg.inv(dense), 1))
+
+
+def test_klu_is_available_where_the_test_extra_installs_it():
+    """`make test` installs kvxopt (the test extra), so CI exercises both back ends, not only the fallback."""
+    assert BACKENDS == ("klu", "superlu"), f"available sparse back ends: {BACKENDS}; install crosscheck[test]"
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+@pytest.mark.parametrize("family", FAMILIES)
+def test_sparse_sweep_matches_dense_lu(family, backend):
+    """Every back end's sweep agrees with numpy's dense LU within what the condition number allows."""
+    system, rhs = _system(family, 120, backend)
+    assert system.size > DENSE_LIMIT, "the sparse path must run"
+    xs, conds = system.solve_many(SWEEP, rhs)
+    for x, f, cond in zip(xs, SWEEP, conds):
+        dense = np.linalg.solve(system.matrix(f).toarray(), rhs)
+        err = np.abs(x - dense).max(axis=0) / np.abs(dense).max(axis=0)
+        # Both solves are backward stable, so each is within ~κ·ε of the truth; 100·κ·ε covers both
+        # (common practice: forward error <= condition x backward error).
+        assert np.all(err <= 100 * cond * EPS), (family, f, err, cond)
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+def test_back_ends_agree_with_each_other(family):
+    """KLU and SuperLU give the same solutions and the same condition estimates along a sweep."""
+    if len(BACKENDS) < 2:
+        pytest.fail(f"only {BACKENDS} installed; install crosscheck[test] to compare KLU with SuperLU")
+    (klu, rhs), (superlu, _) = _system(family, 120, "klu"), _system(family, 120, "superlu")
+    x_klu, c_klu = klu.solve_many(SWEEP, rhs)
+    x_slu, c_slu = superlu.solve_many(SWEEP, rhs)
+    scale = np.abs(x_slu).max(axis=1, keepdims=True)
+    assert np.all(np.abs(x_klu - x_slu) <= 100 * c_slu[:, None, None] * EPS * scale)  # as above: 100·κ·ε
+    # The estimator's iterates depend only on solves that agree to ~κ·ε; allow 1 % (common practice).
+    np.testing.assert_allclose(c_klu, c_slu, rtol=1e-2)
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_condition_estimate_is_a_close_lower_bound(backend):
+    """Higham's estimate never exceeds κ₁ and is close to it on circuit matrices, along whole sweeps."""
+    ratios = []
+    for family in FAMILIES:
+        system, rhs = _system(family, 100, backend)
+        _, conds = system.solve_many(SWEEP, rhs)
+        ratios += [c / _exact_condition(system, f) for f, c in zip(SWEEP, conds)]
+    ratios = np.array(ratios)
+    # published: N. J. Higham, ACM TOMS 14(4), 1988: the estimate is a lower bound (each iterate is
+    # ‖A⁻¹x‖₁ with ‖x‖₁ = 1), "usually" exact. The exact κ₁ here comes from a dense inverse with a relative
+    # error up to κ·ε (κ reaches ~1e10 on the random family), hence the 1e-5 margin.
+    assert ratios.max() <= 1 + 1e-5, ratios.max()
+    # Measured worst 0.90 on these networks; factor 2 leaves room (from the measurement, not a theorem).
+    assert ratios.min() >= 0.5, ratios.min()
+    assert np.mean(ratios >= 1 - 1e-5) >= 0.5, "the estimate should be exact at most frequencies"
+
+
+def test_a_sweep_analyses_the_pattern_once(monkeypatch):
+    """The fill-reducing ordering is computed once per network, not once per frequency."""
+    calls = []
+    real = sparse_backends.analyse
+    monkeypatch.setattr(sparse_backends, "analyse", lambda *a, **k: calls.append(a) or real(*a, **k))
+    system, rhs = _system("grid", 150, None)
+    system.solve_many(SWEEP, rhs)
+    system.solve_many(SWEEP[:2], rhs)
+    system.factorize(1e3)
+    assert len(calls) == 1, f"{len(calls)} symbolic analyses for three calls on one network"
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_skipping_the_estimate_changes_no_solution(backend):
+    """estimate_condition=False reports NaN conditions and the same solutions (the estimate only reads)."""
+    system, rhs = _system("ladder", 120, backend)
+    with_estimate, conds = system.solve_many(SWEEP, rhs)
+    without, none = system.solve_many(SWEEP, rhs, estimate_condition=False)
+    assert np.all(np.isfinite(conds)) and np.all(np.isnan(none))
+    # Same factorization, same right-hand sides; only the batching of solve columns differs: ~ε (common practice).
+    np.testing.assert_allclose(without, with_estimate, rtol=1e-12, atol=0)
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_solves_are_backward_stable(backend):
+    """After refinement every column's normwise backward error is below REFINE_ABOVE (~32ε)."""
+    system, rhs = _system("random", 300, backend)
+    for f in SWEEP:
+        a = system.matrix(f)
+        x = system.factorize(f).solve(rhs)
+        residual = np.abs(rhs - a @ x).max(axis=0)
+        norm_a = abs(a).sum(axis=1).max()
+        error = residual / (norm_a * np.abs(x).max(axis=0) + np.abs(rhs).max(axis=0))
+        assert np.all(error <= REFINE_ABOVE), (f, error)
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_singular_point_of_a_sparse_sweep_names_the_node(backend):
+    """At DC a node reached only through capacitors makes the matrix singular; the error names that node."""
+    network, port = build("ladder", 100)
+    island = (Element("cx", "C", ("n50", "island"), 1e-9), Element("cy", "C", ("island", "0"), 1e-9))
+    system = MnaSystem(network.with_elements(network.elements + island))
+    system.sparse_backend = backend
+    rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
+    with pytest.raises(SingularNetworkError, match="island"):
+        system.solve_many([1e3, 0.0], rhs)
+    xs, _ = system.solve_many([1e3], rhs)  # the same network away from DC is fine
+    assert np.all(np.isfinite(xs))
+
+
+def test_bulk_assembly_equals_element_by_element():
+    """With no fault on, R, C, L and V are stamped by numpy in bulk; the matrix is the per-element one."""
+    compared = 0
+    for seed in range(150):
+        case = generate_case(seed, Knobs(max_nodes=10))
+        ties = [r] if (r := floating_reference(case.network, case.port)) is not None else []
+        bulk = MnaSystem(case.network, ties)
+        with injected("injection-node"):  # a fault outside the matrix: every element takes the loop
+            one_by_one = MnaSystem(case.network, ties)
+        assert bulk.size == one_by_one.size
+        for f in (0.0, 1e3):
+            a, b = bulk.matrix(f), one_by_one.matrix(f)
+            # The same few terms summed in another order: a few ulps (common practice).
+            assert abs(a - b).max() <= 4 * EPS * abs(b).max(), (case.seed, f)
+            compared += 1
+    assert compared == 300
+
+
+def test_unknown_back_end_is_refused_with_the_choices(monkeypatch):
+    """A misspelt CROSSCHECK_SPARSE names the choices instead of silently falling back."""
+    monkeypatch.setenv(sparse_backends.ENV_VAR, "mumps")
+    with pytest.raises(ValueError, match="klu, superlu"):
+        sparse_backends.default_backend()
+    monkeypatch.setenv(sparse_backends.ENV_VAR, "superlu")
+    assert sparse_backends.default_backend() == "superlu"
+
+
+def test_twenty_thousand_node_ladder_solves_on_the_sparse_path():
+    """A 30,000-unknown ladder solves (a dense step anywhere would need 14 GB for the matrix alone)."""
+    system, rhs = _system("ladder", 20_000, None)
+    xs, conds = system.solve_many([1e3], rhs)
+    assert xs.shape == (1, system.size, 2) and math.isfinite(conds[0])
+    assert np.all(np.isfinite(xs))
