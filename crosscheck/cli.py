@@ -303,7 +303,6 @@ def _verify(args: argparse.Namespace) -> int:
     from .batch import run_batch
     from .cases import find_case_files, load_case
     from .check import case_from_netlist
-    from .report.results_json import results_document
     from .report.results_text import print_results
 
     if args.update_baseline and args.baseline is None:
