@@ -17,7 +17,7 @@ from .compare import EngineAnswer, PointCheck, compare_point, worst
 from .equivalent import Equivalent, thevenin
 from .errors import CrosscheckError, EngineUnavailableError
 from .netlist import read_netlist
-from .network import Network, Port, validate
+from .network import Network, Port
 from .expectations import check_expectations
 from .judgements import DriftCheck, ExpectationCheck, LimitCheck
 from .limits import check_limits
@@ -66,11 +66,14 @@ def spice_answers(result: object) -> list[EngineAnswer]:
 
 
 def load_network(case: Case) -> tuple[Network, Port]:
-    """Parse and validate the case's netlist; errors carry file and line."""
+    """Parse and validate the case's netlist; errors carry file and line.
+
+    ``read_netlist`` validates the network with the port (elements, loops, connectivity, the port's
+    nodes), so nothing is checked twice here.
+    """
     port = Port(*case.port)
     network = read_netlist(case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative,
                            port=port)
-    validate(network, port)
     return network, port
 
 
