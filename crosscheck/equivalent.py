@@ -96,7 +96,11 @@ def thevenin(network: Network, port: Port, freqs_hz: Sequence[float] | float) ->
         xs, conds = system.solve_many(freqs, rhs)
     except SingularNetworkError:
         return [_one_frequency(system, network, port, float(f), ties) for f in freqs]
-    return [_from_open_port(system, port, float(f), xs[i], float(conds[i])) for i, f in enumerate(freqs)]
+    # The port voltages and scales of the whole sweep at once, then one Equivalent per frequency.
+    volts = _port_voltage(system, np.moveaxis(xs, 1, 0), port)  # (F, 2): open circuit, test injection
+    scales = np.abs(xs).max(axis=1, initial=0.0)  # (F, 2)
+    return [_equivalent(float(f), complex(volts[i, 0]), complex(volts[i, 1]), float(conds[i]),
+                        float(scales[i, 0]), float(scales[i, 1])) for i, f in enumerate(freqs)]
 
 
 def _one_frequency(system: MnaSystem, network: Network, port: Port, f: float, ties: list[str]) -> Equivalent:
@@ -119,6 +123,11 @@ def _from_open_port(system: MnaSystem, port: Port, f: float, x: np.ndarray, cond
     # every node voltage of the test solution is 0 while the 1 A test current flows in branches.
     v_scale = float(np.max(np.abs(x[:, 0]), initial=0.0))
     z_scale = float(np.max(np.abs(x[:, 1]), initial=0.0))
+    return _equivalent(f, vth, zth, condition, v_scale, z_scale)
+
+
+def _equivalent(f: float, vth: complex, zth: complex, condition: float, v_scale: float, z_scale: float) -> Equivalent:
+    """The equivalent from the open-circuit voltage and the test injection's port voltage (Z_th)."""
     if abs(zth) <= _ZERO_ROUNDOFF * max(z_scale, abs(zth)) or zth == 0:
         return Equivalent(f, vth, 0j, None, None, condition,
                           "Z_th = 0: an ideal voltage source sits at the port, so there is no Norton form",

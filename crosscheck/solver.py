@@ -17,6 +17,8 @@ per network, with Higham's 1-norm condition estimate riding on the same solves.
 from __future__ import annotations
 
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Callable, Sequence
 
@@ -31,6 +33,12 @@ from .network import GROUND, SOURCE_KINDS, Network
 DENSE_LIMIT = 80
 #: A 1-norm condition number above this is a singular matrix in double precision (1/ε ≈ 4.5e15, with room).
 SINGULAR_CONDITION = 1e17
+#: A sparse sweep is cut into runs of this many consecutive frequencies, each one chain of refactorizations,
+#: solved in parallel threads (ctypes and numpy release the GIL). Fixed, not per core, so that the numbers
+#: do not depend on the machine: every run of a sweep is the same computation.
+SWEEP_CHUNK = 16
+#: Below this many unknowns a sweep stays in one thread (the threads' start-up would cost more than it saves).
+THREADS_FROM = 400
 #: Normwise backward error above which a sparse solve is refined (~32ε; LU with partial pivoting gives ~ε).
 REFINE_ABOVE = 2.0 ** -47
 
@@ -56,18 +64,25 @@ class MnaSystem:
     such a tie, so it changes no voltage difference inside that part.
     """
 
-    #: The sparse LU back end (``sparse_backends``); None takes the default (KLU when kvxopt is installed).
+    #: The sparse LU back end (``sparse_backends``); None takes the default (KLU when a KLU library loads).
     sparse_backend: str | None = None
+    #: Threads for a sparse sweep's runs of SWEEP_CHUNK frequencies; None: one per core (1: no threads).
+    sweep_threads: int | None = None
     _analysis: sparse_backends.Analysis | None = None  # the symbolic analysis, made on the first factorization
     _entry_columns: np.ndarray | None = None  # the column of each stored entry, for ‖A‖₁ per frequency
 
     def __init__(self, network: Network, ties: Sequence[str] = ()):
         self.network = network
-        self.node_index: dict[str, int] = {n: i for i, n in enumerate(network.nodes)}
-        branches = [e.name for e in network.elements if e.kind in _BRANCH_KINDS or e.is_short]
+        #: Shared with the network, which builds it once: read it, never change it.
+        self.node_index: dict[str, int] = network.node_index
+        arrays = network.element_arrays
+        # V, E, H, L and ideal shorts (R = 0) carry a branch current, in element order.
+        self._branch_elements = arrays.of_kind(_BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))
+        elements = network.elements
+        branches = [elements[i].name for i in np.flatnonzero(self._branch_elements).tolist()]
         branches += [f"tie:{n}" for n in ties]
         offset = len(self.node_index)
-        self.branch_index: dict[str, int] = {name: offset + i for i, name in enumerate(branches)}
+        self.branch_index: dict[str, int] = dict(zip(branches, range(offset, offset + len(branches))))
         self.size = offset + len(branches)
         self._ties = tuple(ties)
         self._assemble()
@@ -80,7 +95,6 @@ class MnaSystem:
         constant: list[float] = []  # A0 entries
         per_omega: list[float] = []  # A1 entries (multiplied by jω)
         node = self.node_index.get
-        by_name = {e.name: e for e in self.network.elements if e.kind == "L"}  # K elements look up inductors
         from . import faults  # deliberate bugs for measuring the fuzzer; empty unless faults.injected(...)
 
         broken = faults.active
@@ -107,9 +121,12 @@ class MnaSystem:
 
         # With no fault on, R, C, L and V elements (the bulk of a large network) are stamped by numpy in one
         # pass (_bulk_entries) and the loop takes the rest; with a fault on, the loop takes every element.
-        bulk, rest = _no_entries(), self.network.elements
+        bulk, rest = [], self.network.elements
         if not broken:
             bulk, rest = self._bulk_entries()
+        by_name = {}  # K elements look up their inductors by name
+        if any(e.kind == "K" for e in rest):
+            by_name = {e.name: e for e in self.network.elements if e.kind == "L"}
         for e in rest:
             kind = e.kind
             if kind == "R" and not e.is_short:
@@ -152,8 +169,10 @@ class MnaSystem:
                 put(k2, k1, 0.0, -mutual)
         for n in self._ties:
             branch_incidence(self.branch_index[f"tie:{n}"], n, GROUND)
-        rows, cols, constant, per_omega = _joined(
-            [(rows, cols, constant, per_omega), bulk, _noted_entries(two_terminal, incidence)])
+        blocks = [(rows, cols, constant, per_omega), *bulk]
+        if two_terminal or incidence:
+            blocks.append(_noted_entries(two_terminal, incidence))
+        rows, cols, constant, per_omega = _joined(blocks)
         if "f-for-omega" in broken:  # fault: j·f·A1 instead of j·ω·A1
             per_omega = [x / (2.0 * math.pi) for x in per_omega]
 
@@ -168,34 +187,31 @@ class MnaSystem:
         self._a0 = combined.data.real.copy()
         self._a1 = combined.data.imag.copy()
 
-    def _bulk_entries(self) -> tuple[_Entries, list]:
-        """The entries of every R, C, L and V element (ideal shorts included), and the other elements.
+    def _bulk_entries(self) -> tuple[list[_Entries], list]:
+        """Blocks of entries for every R, C, L and V element (ideal shorts included), and the other elements.
 
-        A few passes over the elements that only read attributes, then numpy: a 100,000-node ladder
-        (300,000 elements) is assembled in ~0.3 s instead of ~3 s with four Python calls per entry.
+        Read from the network's element columns (``Network.element_arrays``, built once per network), so
+        numpy does the work and Python touches only the elements of other kinds.
         """
+        arrays = self.network.element_arrays
+        kind, value, a, b = arrays.kind, arrays.value, arrays.a, arrays.b
+        chosen = arrays.of_kind(_BULK_KINDS)
         elements = self.network.elements
-        chosen = [e for e in elements if e.kind in _BULK_KINDS]
-        rest = [e for e in elements if e.kind not in _BULK_KINDS]
-        node = self.node_index.get
-        count = len(chosen)
-        a = np.fromiter((node(e.nodes[0], -1) for e in chosen), np.intp, count)
-        b = np.fromiter((node(e.nodes[1], -1) for e in chosen), np.intp, count)
-        value = np.fromiter((e.value for e in chosen), float, count)
-        kind = np.array([e.kind for e in chosen], dtype="U1")
-        resistor = (kind == "R") & (value != 0.0)
-        capacitor = kind == "C"
-        branch = ~(resistor | capacitor)  # L, V and ideal shorts carry a branch current
-        k = np.array([self.branch_index[chosen[i].name] for i in np.flatnonzero(branch)], dtype=np.intp)
-        conductance = np.divide(1.0, value, out=np.zeros(count), where=resistor)
-        inductor = kind[branch] == "L"
+        rest = [elements[i] for i in np.flatnonzero(~chosen).tolist()]
+        resistor = (kind == ord("R")) & (value != 0.0)
+        capacitor = kind == ord("C")
+        branch = chosen & self._branch_elements  # L, V and ideal shorts carry a branch current
+        # Branch rows follow the nodes in element order (see __init__): each one's row is its rank among them.
+        k = len(self.node_index) + (np.cumsum(self._branch_elements) - 1)[branch]
+        conductance = 1.0 / value[resistor]
+        inductor = kind[branch] == ord("L")
         k_l = k[inductor]
-        return _joined([
-            _admittance_entries(a[resistor], b[resistor], conductance[resistor], np.zeros(int(resistor.sum()))),
+        return [
+            _admittance_entries(a[resistor], b[resistor], conductance, np.zeros(len(conductance))),
             _admittance_entries(a[capacitor], b[capacitor], np.zeros(int(capacitor.sum())), value[capacitor]),
             _incidence_entries(k, a[branch], b[branch]),
             (k_l, k_l, np.zeros(len(k_l)), -value[branch][inductor]),  # a branch row: V(a) - V(b) - jωL·I = 0
-        ]), rest
+        ], rest
 
     def matrix(self, freq_hz: float) -> sp.csc_matrix:
         """A(ω) = A0 + jω·A1 on the shared pattern (its index arrays are shared, not copied)."""
@@ -215,8 +231,9 @@ class MnaSystem:
     def source_vector(self) -> np.ndarray:
         """The independent sources' phasors, placed in their KCL or branch rows."""
         z = np.zeros(self.size, dtype=complex)
-        for e in self.network.elements:
-            if e.kind not in SOURCE_KINDS or e.ac_mag == 0:
+        elements = self.network.elements
+        for e in (elements[i] for i in np.flatnonzero(self.network.element_arrays.of_kind(SOURCE_KINDS)).tolist()):
+            if e.ac_mag == 0:
                 continue
             if e.kind == "V":
                 z[self.branch_index[e.name]] += e.phasor
@@ -258,7 +275,9 @@ class MnaSystem:
 
         ``solve`` refines its answer when the backward error shows that pivoting lost accuracy.
         """
-        lu, a, norm_1, norm_inf = self._factor(float(freq_hz), self.matrix(freq_hz))
+        a = self.matrix(freq_hz)
+        self._ensure_analysis()
+        lu, norm_1, norm_inf = self._factor(float(freq_hz), a)
         if estimate_condition:
             condition = condition_estimate(a, lu, norm_1=norm_1)
             self._check_condition(freq_hz, condition, a)
@@ -273,29 +292,72 @@ class MnaSystem:
 
         Small systems go through one batched dense solve. Large ones through sparse LU: the ordering
         once for the sweep, then per frequency one numeric factorization and one solve of every column
-        together with the condition estimate's two opening probes (``condition_estimate``).
+        together with the condition estimate's two opening probes (``condition_estimate``). With KLU a
+        frequency refactors on the pivot order of the one before (no pivot search, ~2x faster), kept
+        only while the right-hand sides' backward error stays below REFINE_ABOVE; else it pivots afresh.
         """
         freqs = np.asarray(freqs_hz, dtype=float)
         rhs = np.asarray(rhs, dtype=complex).reshape(self.size, -1)
         if self.size <= DENSE_LIMIT and len(freqs) > 0:
             return self._solve_dense(freqs, rhs, estimate_condition)
+        self._ensure_analysis()
+        chunks = [freqs[i:i + SWEEP_CHUNK] for i in range(0, len(freqs), SWEEP_CHUNK)]
+        threads = min(len(chunks), self.sweep_threads or _CORES)
+        if threads > 1 and self.size >= THREADS_FROM:
+            parts = list(_thread_pool(threads).map(lambda chunk: self._sweep(chunk, rhs, estimate_condition), chunks))
+        else:
+            parts = [self._sweep(chunk, rhs, estimate_condition) for chunk in chunks]
+        if not parts:
+            return np.empty((0, self.size, rhs.shape[1]), dtype=complex), np.empty(0)
+        return np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
+
+    def _sweep(self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool) -> tuple[np.ndarray, np.ndarray]:
+        """``solve_many``'s sparse path for consecutive frequencies: one chain of refactorizations.
+
+        Lean on purpose (a 1,000-node network spends as long in numpy's per-call overhead as in KLU):
+        buffers are made once per chain, and each frequency costs one factorization, one solve of every
+        column, one sparse product for the backward error and, with the estimate, typically one adjoint solve.
+        """
         k = rhs.shape[1]
-        columns = np.hstack([rhs, _condition_probes(self.size)]) if estimate_condition else rhs
-        xs = np.empty((len(freqs), self.size, k), dtype=complex)
+        n = self.size
+        # Solved with the right-hand sides in one call: LAPACK's ramp (the estimator's last safeguard) and the
+        # estimator's start vector, which is e/n at the first frequency and then e_j for the column j where
+        # the last frequency's estimate peaked (it rarely moves between neighbouring frequencies).
+        columns = np.empty((n, k + 2), dtype=complex, order="F") if estimate_condition else rhs
+        if estimate_condition:
+            columns[:, :k] = rhs
+            columns[:, k] = _ramp(n)
+            columns[:, k + 1] = 1.0 / n
+        xs = np.empty((len(freqs), n, k), dtype=complex)
         conds = np.full(len(freqs), math.nan)
-        a = self._pattern.copy()  # refilled in place at each frequency: it serves that frequency only
-        peak = None  # the column where the last frequency's estimate peaked: the next one starts there
+        # A(ω) on the shared pattern, its values refilled in place at each frequency (the factorization
+        # copies them): it serves one frequency at a time.
+        a = sp.csc_matrix((np.empty(len(self._a0), dtype=complex), self._pattern.indices, self._pattern.indptr),
+                          shape=self._pattern.shape)
+        a1j = 1j * self._a1
+        lu = None  # the last frequency's factor: the next refactors on its pivot order when that stays accurate
+        peak = None
+        rhs_sizes = _column_sizes(rhs)
         for i, f in enumerate(freqs):
-            a.data = self._a0 + 1j * (2.0 * math.pi * float(f)) * self._a1
-            lu, a, norm_1, norm_inf = self._factor(float(f), a)
+            np.multiply(a1j, 2.0 * math.pi * float(f), out=a.data)
+            a.data += self._a0
+            lu, norm_1, norm_inf = self._factor(float(f), a, reuse=lu)
+            y = lu.solve(columns)
+            checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
+            if getattr(lu, "reused", False) and not checked[1] <= REFINE_ABOVE:
+                # The kept pivot order lost accuracy at this frequency: pivot afresh (and keep the new order).
+                lu, norm_1, norm_inf = self._factor(float(f), a)
+                y = lu.solve(columns)
+                checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
             if estimate_condition:
-                y = lu.solve(columns if peak is None else np.hstack([columns, _unit(self.size, peak)[:, None]]))
-                inverse_norm, peak = _inverse_norm(lu, y[:, k], y[:, k + 1], None if peak is None else (peak, y[:, -1]))
+                inverse_norm, j = _inverse_norm(lu, y[:, k + 1], y[:, k], peak)
+                if j != peak:  # the next frequency starts from column j
+                    columns[:, k + 1] = 0.0
+                    columns[j, k + 1] = 1.0
+                    peak = j
                 conds[i] = norm_1 * inverse_norm
                 self._check_condition(float(f), conds[i], a)
-            else:
-                y = lu.solve(columns)
-            xs[i] = _refined(a, lu, rhs, y[:, :k], norm_inf=norm_inf)
+            xs[i] = _refined(a, lu, rhs, y[:, :k], norm_inf=norm_inf, checked=checked)
             if not estimate_condition and not np.isfinite(xs[i]).all():
                 raise singular_error(self.network, float(f), "the solution is not finite", a, tuple(self.node_index))
         return xs, conds
@@ -316,18 +378,33 @@ class MnaSystem:
             raise singular_error(self.network, float(freqs[0]), str(exc)) from None
         return xs, conds
 
-    def _factor(self, freq_hz: float, a: sp.csc_matrix) -> tuple[sparse_backends.Factor, sp.csc_matrix, float, float]:
-        """The numeric LU of ``a`` = A(ω) on the symbolic analysis made once for this network; a; ‖a‖₁; ‖a‖∞."""
+    def _ensure_analysis(self) -> bool:
+        """Make the symbolic analysis for the chosen back end if there is none yet; True if it was made."""
         wanted = self.sparse_backend or sparse_backends.default_backend()
-        if self._analysis is None or self._analysis.name != wanted:
-            self._analysis = sparse_backends.analyse(self._pattern, wanted)
-            self._entry_columns = np.repeat(np.arange(self.size), np.diff(self._pattern.indptr))
+        if self._analysis is not None and self._analysis.name == wanted:
+            return False
+        self._analysis = sparse_backends.analyse(self._pattern, wanted)
+        self._entry_columns = np.repeat(np.arange(self.size), np.diff(self._pattern.indptr))
+        return True
+
+    def _factor(self, freq_hz: float, a: sp.csc_matrix, reuse: sparse_backends.Factor | None = None
+                ) -> tuple[sparse_backends.Factor, float, float]:
+        """The numeric LU of ``a`` = A(ω) on the symbolic analysis made once for this network; ‖a‖₁; ‖a‖∞.
+
+        ``reuse``: an earlier frequency's factor whose pivot order may be kept (the result says so in its
+        ``reused`` attribute); the caller checks the backward error and factors afresh if it grew.
+        """
+        if self._analysis is None:  # callers make it first (``_ensure_analysis``); this is a safety net
+            self._ensure_analysis()
+            reuse = None
         size = np.abs(a.data)
         norm_1 = float(np.bincount(self._entry_columns, size, minlength=self.size).max(initial=0.0))
         norm_inf = float(np.bincount(a.indices, size, minlength=self.size).max(initial=0.0))
         try:
-            return self._analysis.factor(a.data), a, norm_1, norm_inf
+            return self._analysis.factor(a.data, reuse=reuse), norm_1, norm_inf
         except sparse_backends.SingularFactorError as exc:
+            if reuse is not None:  # a zero pivot on the kept order says nothing about A(ω): pivot afresh
+                return self._factor(freq_hz, a)
             raise singular_error(self.network, freq_hz, str(exc), a, tuple(self.node_index)) from None
 
     def _check_condition(self, freq_hz: float, condition: float, a: sp.spmatrix) -> None:
@@ -336,12 +413,20 @@ class MnaSystem:
             raise singular_error(self.network, freq_hz, f"condition number {condition:.3g}", a, tuple(self.node_index))
 
 
+_CORES = os.cpu_count() or 1
+_pools: dict[tuple[int, int], ThreadPoolExecutor] = {}
+
+
+def _thread_pool(threads: int) -> ThreadPoolExecutor:
+    """A pool of ``threads`` threads kept for the life of this process (a forked child makes its own)."""
+    key = (os.getpid(), threads)
+    if key not in _pools:
+        _pools[key] = ThreadPoolExecutor(threads, thread_name_prefix="crosscheck-sweep")
+    return _pools[key]
+
+
 #: Matrix entries as (rows, columns, A0 values, A1 values); index -1 is ground.
 _Entries = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
-
-
-def _no_entries() -> _Entries:
-    return (np.empty(0, np.intp), np.empty(0, np.intp), np.empty(0), np.empty(0))
 
 
 def _admittance_entries(a: np.ndarray, b: np.ndarray, y0: np.ndarray, y1: np.ndarray) -> _Entries:
@@ -373,23 +458,20 @@ def _joined(parts: Sequence[tuple]) -> _Entries:
     return r[keep], c[keep], v0[keep], v1[keep]
 
 
-def _condition_probes(n: int) -> np.ndarray:
-    """The two fixed vectors the estimator starts from: e/n and LAPACK's alternating ramp (−1)^i·(1 + i/(n−1))."""
+def _ramp(n: int) -> np.ndarray:
+    """LAPACK's alternating ramp (−1)^i·(1 + i/(n−1)): the estimator's safeguard against a misleading start."""
     i = np.arange(n)
-    ramp = (-1.0) ** i * (1.0 + i / max(n - 1, 1))
-    return np.stack([np.full(n, 1.0 / max(n, 1)), ramp], axis=1).astype(complex)
+    return ((-1.0) ** i * (1.0 + i / max(n - 1, 1))).astype(complex)
 
 
-def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, first: np.ndarray | None = None,
-                       ramp: np.ndarray | None = None, norm_1: float | None = None) -> float:
+def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, norm_1: float | None = None) -> float:
     """κ₁(A) = ‖A‖₁·‖A⁻¹‖₁, with ‖A⁻¹‖₁ from Higham's estimator.
 
     N. J. Higham, "FORTRAN codes for estimating the one-norm of a real or complex matrix, with
     applications to condition estimation", ACM TOMS 14(4), 1988, Algorithm 4.1 (LAPACK's ZLACN2). It
     gives a lower bound that is usually exact and rarely off by more than a factor 3, from A⁻¹ applied
-    to e/n and to a ramp (``first``, ``ramp``: pass them when they were solved together with the
-    right-hand sides, as ``solve_many`` does) and then typically two or three more single solves.
-    Deterministic, unlike scipy's randomised block ``onenormest``, which took ~10 solves.
+    to e/n and to a ramp, then typically one or two more solves. Deterministic, unlike scipy's
+    randomised block ``onenormest``, which took ~10 solves.
     """
     n = a.shape[0]
     if n == 0:
@@ -397,43 +479,38 @@ def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, first: np.nda
     norm_a = _largest_sum(a, axis=0) if norm_1 is None else norm_1
     if n <= 4:
         return norm_a * float(np.abs(lu.solve(np.eye(n, dtype=complex))).sum(axis=0).max())
-    if first is None or ramp is None:
-        y = lu.solve(_condition_probes(n))
-        first, ramp = y[:, 0], y[:, 1]
-    return norm_a * _inverse_norm(lu, first, ramp)[0]
+    y = lu.solve(np.stack([np.full(n, 1.0 / n, dtype=complex), _ramp(n)], axis=1))
+    return norm_a * _inverse_norm(lu, y[:, 0], y[:, 1])[0]
 
 
 def _inverse_norm(lu: sparse_backends.Factor, y: np.ndarray, ramp: np.ndarray,
-                  known: tuple[int, np.ndarray] | None = None) -> tuple[float, int]:
+                  start: int | None = None) -> tuple[float, int]:
     """Higham's iteration on ‖A⁻¹‖₁, and the column j where it ended; NaN for a solve that is not finite.
 
-    ``y`` = A⁻¹·e/n and ``ramp`` = A⁻¹·(LAPACK's ramp). ``known`` = (j, A⁻¹·e_j), solved beforehand: when
-    the iteration reaches column j it takes that instead of solving again, and ‖A⁻¹·e_j‖₁ counts as one
-    more lower bound. A sweep passes the column where the frequency before ended; it rarely moves
-    between neighbouring frequencies, so a typical frequency costs two adjoint solves beyond its
-    right-hand sides. The iterates are exactly those of the algorithm started afresh.
+    ``y`` = A⁻¹·x for the start vector x: e/n (``start`` None, as in ZLACN2) or the unit vector e_start
+    (a sweep passes the column where the frequency before ended). Every iterate is ‖A⁻¹·x‖₁ for some
+    ‖x‖₁ = 1, so any start gives a lower bound; from the last frequency's column a typical frequency
+    stops after one adjoint solve. ``ramp`` = A⁻¹·(LAPACK's ramp) is the final safeguard.
     """
     n = y.shape[0]
     estimate = float(np.abs(y).sum())
     if not math.isfinite(estimate):
         return math.nan, 0
-    z = lu.solve(_unit_phases(y), adjoint=True)
-    j = int(np.argmax(np.abs(z)))
-    for _ in range(4):  # at most five iterations in all, as in ZLACN2
-        y = known[1] if known is not None and known[0] == j else lu.solve(_unit(n, j))
+    j = start if start is not None else -1
+    for _ in range(5):  # at most five iterations, as in ZLACN2
+        z = lu.solve(_unit_phases(y), adjoint=True)
+        j_last, j = j, int(np.argmax(np.abs(z)))
+        if j_last >= 0 and abs(z[j_last]) >= abs(z[j]):
+            j = j_last  # no column promises more than the one just taken: converged
+            break
+        y = lu.solve(_unit(n, j))
         latest = float(np.abs(y).sum())
         if not math.isfinite(latest):
             return math.nan, j
         if latest <= estimate:
             break
         estimate = latest
-        z = lu.solve(_unit_phases(y), adjoint=True)
-        j_last, j = j, int(np.argmax(np.abs(z)))
-        if abs(z[j_last]) == abs(z[j]):
-            j = j_last
-            break
-    extra = float(np.abs(known[1]).sum()) if known is not None else 0.0
-    return max(estimate, extra, 2.0 * float(np.abs(ramp).sum()) / (3.0 * n)), j
+    return max(estimate, 2.0 * float(np.abs(ramp).sum()) / (3.0 * n)), j
 
 
 def _unit(n: int, j: int) -> np.ndarray:
@@ -446,18 +523,22 @@ def _unit(n: int, j: int) -> np.ndarray:
 def _unit_phases(y: np.ndarray) -> np.ndarray:
     """y/|y| elementwise (1 where y is 0): the complex 'sign' vector of Higham's iteration."""
     size = np.abs(y)
+    tiny = np.finfo(float).tiny
+    if size.min(initial=math.inf) >= tiny:  # the usual case, without the masked division's cost
+        return y / size
     # Divide only by normal sizes: |Re y|, |Im y| <= |y| then keeps every phase finite.
-    return np.divide(y, size, out=np.ones_like(y), where=size >= np.finfo(float).tiny)
+    return np.divide(y, size, out=np.ones_like(y), where=size >= tiny)
 
 
 def _refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, x: np.ndarray | None = None,
-             norm_inf: float | None = None) -> np.ndarray:
+             norm_inf: float | None = None, checked: tuple[np.ndarray, float] | None = None) -> np.ndarray:
     """A⁻¹·b, improved by up to two steps of iterative refinement while the backward error exceeds REFINE_ABOVE.
 
     The normwise backward error ‖r‖∞/(‖A‖∞·‖x‖∞ + ‖b‖∞) of each column (Rigal and Gaches 1967) is ~ε
     after LU with partial pivoting; KLU's threshold pivoting (relative threshold 1e-3) can leave it
     larger. A refinement step in working precision brings it back (Skeel 1980; Higham, "Accuracy and
     Stability of Numerical Algorithms", 2nd ed., chapter 12) for one sparse product and one more solve.
+    ``checked``: the residual and backward error of ``x``, when the caller has them already.
     Normwise rather than componentwise: along a long ladder the far nodes' voltages shrink by many
     decades and carry no digits of their own, so their componentwise error stays ~1 whatever is done.
     """
@@ -465,7 +546,7 @@ def _refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, x: np.nd
     if not np.isfinite(x).all():
         return x
     norm_a = _largest_sum(a, axis=1) if norm_inf is None else norm_inf
-    residual, error = _backward_error(a, norm_a, b, x)
+    residual, error = _backward_error(a, norm_a, b, x) if checked is None else checked
     for _ in range(2):
         if not error > REFINE_ABOVE:
             break
@@ -482,18 +563,21 @@ def _largest_sum(a: sp.spmatrix, axis: int) -> float:
     return float(np.max(np.asarray(abs(a).sum(axis=axis)).ravel(), initial=0.0))
 
 
-def _backward_error(a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, float]:
+def _backward_error(a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray,
+                    b_sizes: np.ndarray | None = None) -> tuple[np.ndarray, float]:
     """The residual b − A·x and the largest normwise backward error of its columns (0/0 counts as 0)."""
-    residual = b - a @ x
+    residual = b - a @ np.ascontiguousarray(x)  # scipy would copy a column-major block itself, more slowly
     size = _column_sizes(residual)
-    scale = norm_a * _column_sizes(x) + _column_sizes(b)
+    scale = norm_a * _column_sizes(x) + (_column_sizes(b) if b_sizes is None else b_sizes)
     return residual, float(np.max(size / np.where(scale > 0, scale, 1.0), initial=0.0))
 
 
 def _column_sizes(m: np.ndarray) -> np.ndarray:
     """max |m| of each column (of a vector: one value). In column-major order, where numpy reduces a
-    tall two-column array ~5x faster than in row-major."""
-    m = np.asfortranarray(m.reshape(m.shape[0], -1))
+    tall two-column array ~5x faster than in row-major (a copy to that order is cheaper than the difference)."""
+    m = m.reshape(m.shape[0], -1)
+    if not m.flags.f_contiguous:
+        m = np.asfortranarray(m)
     return np.abs(m).max(axis=0, initial=0.0)
 
 

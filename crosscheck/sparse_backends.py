@@ -7,8 +7,10 @@ for the numeric factorization. Two back ends:
 * ``klu``: KLU (Davis and Palamadai Natarajan, "Algorithm 907: KLU, a direct
   sparse solver for circuit simulation problems", ACM TOMS 37(3), 2010):
   block triangular form, then AMD on each block, then left-looking LU with
-  threshold partial pivoting. Its symbolic object is reused across frequencies.
-  Needs kvxopt (``pip install 'crosscheck[fast]'``).
+  threshold partial pivoting. Its symbolic object is reused across frequencies,
+  and a frequency may refactor on the last one's pivot order (``reuse``).
+  Called through ``klu_library`` (Debian's libklu1, or the copy in kvxopt's
+  wheel: ``pip install 'crosscheck[fast]'``).
 * ``superlu``: scipy's SuperLU with the MMD ordering of Aᵀ+A and partial
   pivoting. Always there; it recomputes its ordering at each factorization
   (scipy exposes no symbolic reuse, and reusing a column permutation by hand
@@ -19,7 +21,7 @@ solve at 10,000 nodes take 4.4 ms (KLU) against 19.6 ms (SuperLU, its best order
 4.7 against 30 ms on a tree, 12 against 48 ms on a random graph and 53 against 69 ms on a grid; at
 100,000 nodes 52 against 196 ms (ladder) and 0.19 against 10.5 s (random graph), but 2.3 against 1.3 s
 on the grid, where fill reaches ~11x and SuperLU's supernodal kernels win. So ``klu`` is the default
-when kvxopt imports, else ``superlu``; for very large meshes ``superlu`` is worth choosing. UMFPACK
+when a KLU library loads, else ``superlu``; for very large meshes ``superlu`` is worth choosing. UMFPACK
 (also in kvxopt) matched KLU on grids but was 3-4x slower on ladders and trees; pypardiso (~600 MB of
 MKL) refuses complex matrices, and python-mumps has no wheel here (its build needs MUMPS itself). Of
 SuperLU's orderings, MMD on Aᵀ+A was the best or within 10 % of it on ladders, trees and grids, where
@@ -32,7 +34,6 @@ comparisons and for tests of the fallback.
 
 from __future__ import annotations
 
-import importlib.util
 import os
 import warnings
 from typing import Protocol
@@ -64,14 +65,20 @@ class Analysis(Protocol):
 
     name: str
 
-    def factor(self, values: np.ndarray) -> Factor:
-        """LU of the matrix with this pattern and ``values`` (in the pattern's CSC order)."""
+    def factor(self, values: np.ndarray, reuse: Factor | None = None) -> Factor:
+        """LU of the matrix with this pattern and ``values`` (in the pattern's CSC order).
+
+        ``reuse``: a factor of this analysis whose pivot order may be kept (no pivot search; the
+        back end overwrites it in place). A back end that cannot reuse pivots factors afresh.
+        """
         ...
 
 
 def available() -> tuple[str, ...]:
     """The back ends that can run here, preferred first."""
-    return ("klu", "superlu") if importlib.util.find_spec("kvxopt") is not None else ("superlu",)
+    from . import klu_library
+
+    return ("klu", "superlu") if klu_library.load() is not None else ("superlu",)
 
 
 def default_backend() -> str:
@@ -88,8 +95,8 @@ def _check_name(name: str) -> None:
         raise ValueError(f"sparse back end {name!r} is unknown; choose one of {', '.join(BACKENDS)} "
                          f"(or unset {ENV_VAR})")
     if name not in available():
-        raise ValueError(f"sparse back end {name!r} needs kvxopt, which is not installed; "
-                         "install it with: pip install 'crosscheck[fast]', or choose superlu")
+        raise ValueError(f"sparse back end {name!r} needs a KLU library, and none loads here; install Debian's "
+                         "libklu1 (apt-get install libklu1) or pip install 'crosscheck[fast]', or choose superlu")
 
 
 def analyse(pattern: sp.csc_matrix, backend: str | None = None) -> Analysis:
@@ -118,7 +125,7 @@ class _SuperLuAnalysis:
         self._indptr = pattern.indptr
         self._shape = pattern.shape
 
-    def factor(self, values: np.ndarray) -> Factor:
+    def factor(self, values: np.ndarray, reuse: Factor | None = None) -> Factor:
         import scipy.sparse.linalg as spla
 
         a = sp.csc_matrix((np.asarray(values, dtype=complex), self._indices, self._indptr), shape=self._shape)
@@ -131,45 +138,38 @@ class _SuperLuAnalysis:
         return _SuperLuFactor(lu)
 
 
-# --------------------------------------------------------------------------- KLU (kvxopt)
+# --------------------------------------------------------------------------- KLU (klu_library)
 
 
 class _KluFactor:
-    def __init__(self, analysis: "_KluAnalysis", numeric) -> None:
-        self._analysis = analysis
-        self._numeric = numeric
+    def __init__(self, numeric) -> None:
+        self.numeric = numeric
+        self.reused = False  # True once refactored on an earlier matrix's pivot order
 
     def solve(self, b: np.ndarray, adjoint: bool = False) -> np.ndarray:
-        from kvxopt import klu, matrix
-
-        b = np.asarray(b, dtype=complex)
-        columns = matrix(np.asfortranarray(b.reshape(b.shape[0], -1)))  # a copy; KLU overwrites it
-        klu.solve(self._analysis.matrix, self._analysis.symbolic, self._numeric, columns, trans="C" if adjoint else "N")
-        return np.array(columns).reshape(b.shape)
+        return self.numeric.solve(b, adjoint=adjoint)
 
 
 class _KluAnalysis:
     name = "klu"
 
     def __init__(self, pattern: sp.csc_matrix) -> None:
-        from kvxopt import klu, matrix, spmatrix
+        from . import klu_library
 
-        n = pattern.shape[0]
-        columns = np.repeat(np.arange(n), np.diff(pattern.indptr))
-        # kvxopt keeps explicit zeros, so entries that vanish at some frequency (ω = 0) stay in the pattern,
-        # and its CCS order is scipy's (sorted, no duplicates): values are assigned to it in that order.
-        self.matrix = spmatrix(matrix(np.ones(pattern.nnz, dtype=complex)), matrix(pattern.indices.astype(int)),
-                               matrix(columns.astype(int)), (n, n))
-        if self.matrix.V.size != (pattern.nnz, 1):
-            raise RuntimeError(f"kvxopt stored {self.matrix.V.size[0]} of the pattern's {pattern.nnz} entries")
-        self.symbolic = klu.symbolic(self.matrix)
+        library = klu_library.load()
+        if library is None:
+            raise ValueError("sparse back end 'klu' needs a KLU library; install Debian's libklu1 "
+                             "or pip install 'crosscheck[fast]', or choose superlu")
+        self._symbolic = klu_library.Symbolic(library, pattern.indptr, pattern.indices)
 
-    def factor(self, values: np.ndarray) -> Factor:
-        from kvxopt import klu, matrix
+    def factor(self, values: np.ndarray, reuse: Factor | None = None) -> Factor:
+        from .klu_library import KluError
 
-        self.matrix.V = matrix(np.asarray(values, dtype=complex))
         try:
-            numeric = klu.numeric(self.matrix, self.symbolic)
-        except ArithmeticError as exc:  # "singular matrix"
-            raise SingularFactorError(f"KLU: {exc}") from None
-        return _KluFactor(self, numeric)
+            if isinstance(reuse, _KluFactor):
+                reuse.numeric.refactor(values)
+                reuse.reused = True
+                return reuse
+            return _KluFactor(self._symbolic.factor(values))
+        except KluError as exc:
+            raise SingularFactorError(str(exc)) from None

@@ -38,7 +38,8 @@ def _exact_condition(system: MnaSystem, freq_hz: float) -> float:
 
 
 def test_klu_is_available_where_the_test_extra_installs_it():
-    """`make test` installs kvxopt (the test extra), so CI exercises both back ends, not only the fallback."""
+    """`make test` installs a KLU library (Debian's libklu1, and kvxopt's copy through the test extra), so
+    CI exercises both back ends, not only the fallback."""
     assert BACKENDS == ("klu", "superlu"), f"available sparse back ends: {BACKENDS}; install crosscheck[test]"
 
 
@@ -172,3 +173,122 @@ def test_twenty_thousand_node_ladder_solves_on_the_sparse_path():
     xs, conds = system.solve_many([1e3], rhs)
     assert xs.shape == (1, system.size, 2) and math.isfinite(conds[0])
     assert np.all(np.isfinite(xs))
+
+
+def _tank_system(backend: str) -> tuple[MnaSystem, np.ndarray]:
+    """A source behind 1 GΩ feeding a parallel 1 µF ‖ 1 mH tank, padded onto the sparse path by a ladder."""
+    network, _ = build("ladder", 100)
+    tank = (Element("vt", "V", ("t1", "0"), 0.0, ac_mag=1.0), Element("rt", "R", ("t1", "t2"), 1e9),
+            Element("ct", "C", ("t2", "0"), 1e-6), Element("lt", "L", ("t2", "0"), 1e-3))
+    system = MnaSystem(network.with_elements(network.elements + tank))
+    system.sparse_backend = backend
+    return system, np.stack([system.source_vector(), system.injection_vector("t2", "0")], axis=1)
+
+
+def test_a_sweep_keeps_the_pivot_order_while_it_stays_accurate(monkeypatch):
+    """With KLU, frequencies after the first refactor on the pivot order before (no pivot search)."""
+    if "klu" not in BACKENDS:
+        pytest.fail("KLU is not available; install Debian's libklu1 or crosscheck[test]")
+    fresh = _spy_on_klu_factor(monkeypatch)
+    system, rhs = _system("ladder", 120, "klu")
+    system.solve_many(SWEEP, rhs)
+    assert fresh[0] and fresh.count(True) < len(SWEEP) / 2, f"{fresh.count(True)} full factorizations of {len(SWEEP)}"
+
+
+def _spy_on_klu_factor(monkeypatch) -> list[bool]:
+    """Record, for each KLU factorization, whether it searched pivots afresh (True) or reused an order."""
+    fresh: list[bool] = []
+    analysis_type = type(sparse_backends.analyse(MnaSystem(build("ladder", 60)[0])._pattern, "klu"))
+    real = analysis_type.factor
+    monkeypatch.setattr(analysis_type, "factor",
+                        lambda self, v, reuse=None: fresh.append(reuse is None) or real(self, v, reuse))
+    return fresh
+
+
+def test_a_pivot_order_that_goes_bad_is_replaced(monkeypatch):
+    """At 1 MHz the tank node's diagonal (jωC = 6.3 S) is a fine pivot; at 1 mHz it is 6.3e-9 S against an
+    inductor branch entry of 1, and reusing that pivot grows the factors by ~1e8 (backward error 2e-9 was
+    measured). The backward-error check must notice and pivot afresh; the answer keeps full accuracy."""
+    if "klu" not in BACKENDS:
+        pytest.fail("KLU is not available; install Debian's libklu1 or crosscheck[test]")
+    # rt = 1 GΩ keeps the tank node's row dominated by the capacitor at 1 MHz, so that pivot is chosen there.
+    system, rhs = _tank_system("klu")
+    fresh = _spy_on_klu_factor(monkeypatch)
+    sweep = [1e6, 1e-3]
+    xs, conds = system.solve_many(sweep, rhs)
+    assert fresh == [True, False, True], f"factorizations (True: pivots searched afresh): {fresh}"
+    for x, f, cond in zip(xs, sweep, conds):
+        dense = np.linalg.solve(system.matrix(f).toarray(), rhs)
+        err = np.abs(x - dense).max(axis=0) / np.abs(dense).max(axis=0)
+        assert np.all(err <= 100 * cond * EPS), (f, err, cond)  # as above: 100·κ·ε (common practice)
+
+
+def test_klu_binding_solves_factors_and_estimates_like_dense_lapack():
+    """The ctypes binding (crosscheck.klu_library) against numpy on one matrix: solve, adjoint solve,
+    refactorization on new values, and a singular matrix refused."""
+    from crosscheck import klu_library
+
+    library = klu_library.load()
+    if library is None:
+        pytest.fail("no KLU library loads; install Debian's libklu1 or crosscheck[test]")
+    system, rhs = _system("random", 120, "klu")
+    a = system.matrix(1e4)
+    symbolic = klu_library.Symbolic(library, a.indptr, a.indices)
+    numeric = symbolic.factor(a.data)
+    dense = a.toarray()
+    cond = float(np.linalg.cond(dense, 1))
+    for adjoint, m in ((False, dense), (True, dense.conj().T)):
+        x = numeric.solve(rhs, adjoint=adjoint)
+        exact = np.linalg.solve(m, rhs)
+        assert np.abs(x - exact).max() <= 100 * cond * EPS * np.abs(exact).max()  # 100·κ·ε (common practice)
+    b = system.matrix(1e2)
+    numeric.refactor(b.data)
+    exact = np.linalg.solve(b.toarray(), rhs)
+    cond_b = float(np.linalg.cond(b.toarray(), 1))
+    assert np.abs(numeric.solve(rhs) - exact).max() <= 1e4 * cond_b * EPS * np.abs(exact).max()  # no pivot search: looser
+    singular = sp_csc([[1.0, 1.0], [1.0, 1.0]])
+    with pytest.raises(klu_library.KluError, match="singular") as caught:
+        klu_library.Symbolic(library, singular.indptr, singular.indices).factor(singular.data)
+    assert caught.value.singular
+
+
+def sp_csc(rows):
+    import scipy.sparse as sp
+
+    m = sp.csc_matrix(np.array(rows, dtype=complex))
+    m.sort_indices()
+    return m
+
+
+def test_every_klu_library_found_is_usable_or_skipped_by_name():
+    """Debian's libklu1 and kvxopt's copy differ in release; each that loads must read KLU's defaults back
+    (its struct layout recognised), and a library whose layout is not recognised is not used."""
+    from crosscheck import klu_library
+
+    loaded = []
+    for path in klu_library.library_paths():
+        try:
+            loaded.append(klu_library.KluLibrary(path))
+        except OSError as exc:
+            assert "cannot open" in str(exc) or "No such file" in str(exc), exc  # absent, not misread
+    assert loaded, "no KLU library loads; install Debian's libklu1 or crosscheck[test]"
+    for library in loaded:
+        common = library.new_common()
+        # KLU's defaults read back, except the row scaling crosscheck turns off (see KluLibrary.new_common).
+        assert (common.tol, common.btf, common.scale, common.halt_if_singular) == (0.001, 1, 0, 1), library.path
+
+
+def test_a_klu_library_of_unknown_layout_is_not_used(monkeypatch):
+    """When no layout reads the defaults back, the library is refused and SuperLU is the only back end."""
+    from crosscheck import klu_library
+
+    monkeypatch.setattr(klu_library, "_reads_defaults", lambda common: False)
+    klu_library.load.cache_clear()
+    try:
+        assert klu_library.load() is None
+        assert sparse_backends.available() == ("superlu",)
+        with pytest.raises(ValueError, match="libklu1"):
+            sparse_backends.analyse(MnaSystem(build("ladder", 60)[0])._pattern, "klu")
+    finally:
+        monkeypatch.undo()
+        klu_library.load.cache_clear()
