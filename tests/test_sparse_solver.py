@@ -17,7 +17,8 @@ from crosscheck.errors import SingularNetworkError
 from crosscheck.faults import injected
 from crosscheck.generate import Knobs, generate_case
 from crosscheck.network import Element, floating_reference
-from crosscheck.solver import DENSE_LIMIT, REFINE_ABOVE, MnaSystem
+from crosscheck.solver import (DENSE_LIMIT, REFINE_ABOVE, SWEEP_CHUNK, THREADS_FROM, THREADS_VAR, MnaSystem,
+                              default_threads)
 
 EPS = float(np.finfo(float).eps)
 SWEEP = tuple(100.0 * 10 ** (i / 3) for i in range(13))  # 100 Hz to 1 MHz, 3 per decade
@@ -292,3 +293,21 @@ def test_a_klu_library_of_unknown_layout_is_not_used(monkeypatch):
     finally:
         monkeypatch.undo()
         klu_library.load.cache_clear()
+
+
+def test_a_threaded_sweep_gives_the_same_numbers_as_one_thread(monkeypatch):
+    """Runs of SWEEP_CHUNK frequencies are fixed, not per core: threads change the speed, not one bit."""
+    system, rhs = _system("ladder", 3000, None)
+    assert system.size >= THREADS_FROM
+    sweep = tuple(100.0 * 10 ** (i / 6) for i in range(2 * SWEEP_CHUNK + 3))  # three runs
+    system.sweep_threads = 1
+    one, one_conds = system.solve_many(sweep, rhs)
+    system.sweep_threads = 3
+    three, three_conds = system.solve_many(sweep, rhs)
+    assert np.array_equal(one, three) and np.array_equal(one_conds, three_conds)
+    monkeypatch.setenv(THREADS_VAR, "two")
+    system.sweep_threads = None
+    with pytest.raises(ValueError, match="whole number"):
+        system.solve_many(sweep, rhs)
+    monkeypatch.setenv(THREADS_VAR, "1")
+    assert default_threads() == 1
