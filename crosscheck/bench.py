@@ -16,7 +16,9 @@ Each measurement runs in a fresh child process so that its peak resident memory 
 SPICE child is sandboxed as the ngspice workers are (empty working directory, private HOME, no SPICE_* or
 NGSPICE_* variables). The own route is ``equivalent.thevenin`` (V_th and Z_th, condition estimate
 included); the SPICE route is ``reference.solve``, the call an ngspice pool worker makes (deck written,
-loaded and run, vectors read), on an engine started beforehand as a pool keeps it.
+loaded and run, vectors read), on an engine started beforehand as a pool keeps it. Each timed call gets a
+fresh copy of the network (nothing cached), and quick measurements run several rounds of both routes,
+alternating, keeping the best of each: the machine's speed drifts, and the best runs are comparable.
 """
 
 from __future__ import annotations
