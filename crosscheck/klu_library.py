@@ -29,6 +29,8 @@ import os
 
 import numpy as np
 
+from .errors import CrosscheckError
+
 _I = ctypes.c_int
 _D = ctypes.c_double
 _P = ctypes.c_void_p
@@ -124,7 +126,7 @@ def load() -> KluLibrary | None:
     return None
 
 
-class KluError(ArithmeticError):
+class KluError(CrosscheckError, ArithmeticError):
     """KLU refused: ``singular`` when it met a zero pivot, else an out-of-memory or invalid-input status."""
 
     def __init__(self, message: str, singular: bool) -> None:
@@ -132,10 +134,16 @@ class KluError(ArithmeticError):
         self.singular = singular
 
 
+_STATUS = {-2: "out of memory: the factors do not fit; try a smaller network or CROSSCHECK_SPARSE=superlu",
+           -3: "invalid input: a bug in crosscheck's matrix assembly; please report it with the netlist",
+           -4: "integer overflow: the network is too large for KLU's 32-bit indices; try CROSSCHECK_SPARSE=superlu"}
+
+
 def _error(call: str, common: ctypes.Structure) -> KluError:
     if common.status == _KLU_SINGULAR:
         return KluError(f"KLU: singular matrix (zero pivot in column {common.singular_col})", singular=True)
-    return KluError(f"{call} failed (KLU status {common.status})", singular=False)
+    meaning = _STATUS.get(common.status, "an unknown failure")
+    return KluError(f"{call} failed (KLU status {common.status}: {meaning})", singular=False)
 
 
 class Symbolic:

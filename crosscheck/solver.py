@@ -379,14 +379,12 @@ class MnaSystem:
             raise singular_error(self.network, float(freqs[0]), str(exc)) from None
         return xs, conds
 
-    def _ensure_analysis(self) -> bool:
-        """Make the symbolic analysis for the chosen back end if there is none yet; True if it was made."""
+    def _ensure_analysis(self) -> None:
+        """Make the symbolic analysis for the chosen back end if there is none yet (once per network)."""
         wanted = self.sparse_backend or sparse_backends.default_backend()
-        if self._analysis is not None and self._analysis.name == wanted:
-            return False
-        self._analysis = sparse_backends.analyse(self._pattern, wanted)
-        self._entry_columns = np.repeat(np.arange(self.size), np.diff(self._pattern.indptr))
-        return True
+        if self._analysis is None or self._analysis.name != wanted:
+            self._analysis = sparse_backends.analyse(self._pattern, wanted)
+            self._entry_columns = np.repeat(np.arange(self.size), np.diff(self._pattern.indptr))
 
     def _factor(self, freq_hz: float, a: sp.csc_matrix, reuse: sparse_backends.Factor | None = None
                 ) -> tuple[sparse_backends.Factor, float, float]:

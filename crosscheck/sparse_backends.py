@@ -172,4 +172,6 @@ class _KluAnalysis:
                 return reuse
             return _KluFactor(self._symbolic.factor(values))
         except KluError as exc:
+            if not exc.singular:
+                raise  # out of memory or too large: says so, and is not reported as a singular network
             raise SingularFactorError(str(exc)) from None

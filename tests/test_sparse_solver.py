@@ -311,3 +311,19 @@ def test_a_threaded_sweep_gives_the_same_numbers_as_one_thread(monkeypatch):
         system.solve_many(sweep, rhs)
     monkeypatch.setenv(THREADS_VAR, "1")
     assert default_threads() == 1
+
+
+def test_a_klu_failure_that_is_not_a_zero_pivot_says_what_it_is():
+    """KLU's statuses other than 'singular' (out of memory, too large) are not reported as a singular network."""
+    from crosscheck import klu_library
+
+    library = klu_library.load()
+    if library is None:
+        pytest.fail("no KLU library loads; install Debian's libklu1 or crosscheck[test]")
+    common = library.new_common()
+    for status, words in ((-2, "out of memory"), (-4, "too large")):
+        common.status = status
+        error = klu_library._error("klu_z_factor", common)
+        assert not error.singular and words in str(error) and "CROSSCHECK_SPARSE=superlu" in str(error)
+    common.status = 1
+    assert klu_library._error("klu_z_factor", common).singular
