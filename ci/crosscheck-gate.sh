@@ -12,7 +12,7 @@ writes, into DIR (default: crosscheck-reports):
   crosscheck.xml   JUnit XML, for the CI server's test view
   crosscheck.md    Markdown summary, for a pull-request comment or a job summary
   crosscheck.html  one self-contained HTML report with plots, to keep as an artifact
-Options after `--` go to every `crosscheck verify` run unchanged (e.g. -- --timeout 120
+Options after `--` go to the `crosscheck verify` run unchanged (e.g. -- --timeout 120
 --baseline equivalents.json).
 
 Exit code: crosscheck's own: 0 pass, 1 fail, 2 usage, 3 error (invalid input or engine
@@ -54,25 +54,14 @@ fi
 
 mkdir -p "$out" || { echo "crosscheck-gate: cannot create $out" >&2; exit 2; }
 
-# verify writes one report per run, so the gate runs it once per format. The first run's exit
-# code is the gate's; both engines are deterministic, so the later runs only add formats.
-code=0
-first=1
-for fmt in junit markdown html; do
-  case "$fmt" in junit) file="$out/crosscheck.xml" ;; markdown) file="$out/crosscheck.md" ;; html) file="$out/crosscheck.html" ;; esac
-  "${cmd[@]}" verify "${paths[@]}" --format "$fmt" --output "$file" ${extra[@]+"${extra[@]}"}
-  rc=$?
-  if [ $first -eq 1 ]; then
-    code=$rc
-    first=0
-    if [ $rc -eq 2 ] || [ ! -s "$file" ]; then
-      echo "crosscheck-gate: crosscheck verify exited $rc without a report; see its message above" >&2
-      exit $rc
-    fi
-  elif [ $rc -ne $code ]; then
-    echo "crosscheck-gate: warning: the $fmt run exited $rc, the first run $code; the gate keeps $code" >&2
-  fi
-done
+# One verify run writes all three reports (each --output file's extension names its format).
+"${cmd[@]}" verify "${paths[@]}" --output "$out/crosscheck.xml" --output "$out/crosscheck.md" \
+  --output "$out/crosscheck.html" ${extra[@]+"${extra[@]}"}
+code=$?
+if [ $code -eq 2 ] || [ ! -s "$out/crosscheck.md" ]; then
+  echo "crosscheck-gate: crosscheck verify exited $code without a report; see its message above" >&2
+  exit $code
+fi
 
 head -n 1 "$out/crosscheck.md" | sed 's/^#* *//'
 echo "reports: $out/crosscheck.xml $out/crosscheck.md $out/crosscheck.html"

@@ -69,7 +69,9 @@ def _parser() -> argparse.ArgumentParser:
     verify.add_argument("--format", choices=VERIFY_FORMATS, default=None,
                         help="report format (default: from the --output file's extension — .json, .xml (junit), "
                              ".csv, .html, .md — else text)")
-    verify.add_argument("--output", type=Path, help="write the report to this file instead of standard output")
+    verify.add_argument("--output", type=Path, action="append",
+                        help="write the report to this file instead of standard output; repeat it for several "
+                             "formats from one run (each file's extension names its format)")
     verify.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
     verify.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
     verify.add_argument("--timeout", type=float, default=60.0, help="seconds ngspice may take per case (default 60)")
@@ -309,6 +311,10 @@ def _verify(args: argparse.Namespace) -> int:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)",
               file=sys.stderr)
         return EXIT_USAGE
+    if args.output and len(args.output) > 1 and args.format is not None:
+        print("crosscheck verify: error: --format with several --output files is ambiguous; leave it out and "
+              "let each file's extension (.xml, .md, .html, .json, .csv) name its format", file=sys.stderr)
+        return EXIT_USAGE
     baseline = _baseline(args)
     items: list = []
     for path in find_case_files(list(args.paths)):
@@ -333,16 +339,19 @@ def _verify(args: argparse.Namespace) -> int:
         task = progress.add_task("cases", total=len(items), rate="")
         results = run_batch(items, executor, workers=args.workers, timeout_s=args.timeout,
                             on_done=lambda r: progress.advance(task), baseline=baseline)
-    args.format = verify_format(args.format, args.output)
-    if args.format != "text":
-        _emit(render_report(args.format, results), args.output)
-    else:
-        with (open(args.output, "w", encoding="utf-8") if args.output else nullcontext(None)) as handle:
-            print_results(Console(file=handle, width=160 if handle else None), results, detail=args.detail)
-    if args.output is not None:
-        # The report went to a file: the terminal still gets the summary and where to look.
+    outputs = args.output or [None]
+    for output in outputs:
+        fmt = verify_format(args.format, output)
+        if fmt != "text":
+            _emit(render_report(fmt, results), output)
+        else:
+            with (open(output, "w", encoding="utf-8") if output else nullcontext(None)) as handle:
+                print_results(Console(file=handle, width=160 if handle else None), results, detail=args.detail)
+    args.format = verify_format(args.format, outputs[0])
+    if args.output:
+        # The reports went to files: the terminal still gets the summary and where to look.
         print_results(Console(), results, detail=False)
-        print(f"report written to {args.output}")
+        print(f"report{'s' if len(outputs) > 1 else ''} written to {', '.join(map(str, outputs))}")
     if args.update_baseline:
         _update_baseline(args, results)
     return exit_code([r.verdict for r in results])
@@ -365,7 +374,7 @@ def _update_baseline(args: argparse.Namespace, results) -> None:
     new, kept = updated_baseline(results, args.baseline, old)
     lines = format_changes(diff_baselines(old, new, kept), args.baseline)
     write_baseline(new, args.baseline)
-    out = sys.stderr if args.format != "text" and args.output is None else sys.stdout
+    out = sys.stderr if args.format != "text" and not args.output else sys.stdout
     print("\n".join(lines), file=out)
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from pathlib import Path
 
 import pytest
 
@@ -105,3 +106,29 @@ def test_usage_error_exits_2(capsys):
     with pytest.raises(SystemExit) as info:
         main(["reduce"])
     assert info.value.code == 2
+
+
+@pytest.mark.spice
+def test_verify_writes_several_formats_from_one_run(tmp_path, capsys):
+    """Repeated --output: each file's extension names its format; the engines run once for all of them."""
+    from crosscheck.cli import main
+
+    xml, md, js = tmp_path / "r.xml", tmp_path / "r.md", tmp_path / "r.json"
+    audio = str(Path(__file__).resolve().parent.parent / "corpus" / "audio")
+    code = main(["verify", audio, "--output", str(xml), "--output", str(md), "--output", str(js)])
+    assert code == 0
+    assert xml.read_text().lstrip().startswith("<?xml") and "<testsuite" in xml.read_text()
+    assert md.read_text().startswith("#")
+    assert json.loads(js.read_text())["cases"], "the JSON report lists the cases"
+    assert "reports written to" in capsys.readouterr().out
+
+
+def test_verify_refuses_one_format_for_several_outputs(tmp_path, capsys):
+    from crosscheck.cli import EXIT_USAGE, main
+
+    audio = str(Path(__file__).resolve().parent.parent / "corpus" / "audio")
+    code = main(["verify", audio, "--format", "json", "--output", str(tmp_path / "a.json"),
+                 "--output", str(tmp_path / "b.md")])
+    assert code == EXIT_USAGE
+    assert "ambiguous" in capsys.readouterr().err
+    assert not (tmp_path / "a.json").exists(), "refused before any case ran"
