@@ -2,9 +2,9 @@
 
 Written by hand (about 150 lines) because no maintained Python package exposes what a
 frequency sweep needs at a cost that fits a 1,000-node network: kvxopt's ``klu`` module
-(the other route, kept as a fallback in ``sparse_backends``) copies every right-hand side
-into its own matrix type, has no refactorization and no condition estimate, and its call
-overhead (~25 µs a call) was a third of a 1,000-node ladder's time per frequency. Here a
+(used here before this binding) copies every right-hand side into its own matrix type, has no
+refactorization, and its call overhead (~25 µs a call) was a third of a 1,000-node ladder's
+time per frequency. Here a
 right-hand side goes to KLU as numpy's own memory (complex128 is KLU's interleaved
 real/imaginary layout) and ``klu_z_refactor`` reuses the pivot order of the last full
 factorization. ctypes releases the GIL during each call, so threads factor in parallel.

@@ -16,11 +16,12 @@ for the numeric factorization. Two back ends:
   (scipy exposes no symbolic reuse, and reusing a column permutation by hand
   with NATURAL was measured far slower on grids).
 
-Measured with ``python -m crosscheck.bench`` (2 cores): one numeric factorization and a two-column
-solve at 10,000 nodes take 4.4 ms (KLU) against 19.6 ms (SuperLU, its best ordering) on a ladder,
-4.7 against 30 ms on a tree, 12 against 48 ms on a random graph and 53 against 69 ms on a grid; at
-100,000 nodes 52 against 196 ms (ladder) and 0.19 against 10.5 s (random graph), but 2.3 against 1.3 s
-on the grid, where fill reaches ~11x and SuperLU's supernodal kernels win. So ``klu`` is the default
+Measured with ``python -m crosscheck.bench`` (2 cores; KLU without row scaling, see ``klu_library``):
+one numeric factorization and a two-column solve at 10,000 nodes take 2.7 ms (KLU) against 16 ms
+(SuperLU, its best ordering) on a ladder, 2.0 against 17 ms on a tree and 5.5 against 30 ms on a
+random graph; at 100,000 nodes 20 against 116 ms (ladder) and 0.17 against 9.5 s (random graph). On
+the grid SuperLU wins (35 against 51 ms at 10,000 nodes, 0.70 against 1.34 s at 100,000): fill
+reaches ~11x there and its supernodal kernels pay off. So ``klu`` is the default
 when a KLU library loads, else ``superlu``; for very large meshes ``superlu`` is worth choosing. UMFPACK
 (also in kvxopt) matched KLU on grids but was 3-4x slower on ladders and trees; pypardiso (~600 MB of
 MKL) refuses complex matrices, and python-mumps has no wheel here (its build needs MUMPS itself). Of
