@@ -198,8 +198,7 @@ def run_fuzz_batch(options, executor: Executor, on_progress=None, window: int = 
     import time
 
     from . import faults
-    from .fuzz import FuzzSummary, _record, _shrink_one, write_outputs
-    from .workers import SpicePool
+    from .fuzz import FuzzSummary, finish, note_outcome
 
     summary = FuzzSummary(options, tuple(sorted(faults.active)))
     if summary.faults:
@@ -212,25 +211,12 @@ def run_fuzz_batch(options, executor: Executor, on_progress=None, window: int = 
     for (index, seed), future in tasks:
         outcome, own_s = future.result()
         summary.own_s += own_s
-        _record(summary, outcome)
-        if on_progress is not None:
-            on_progress(summary.cases_run, len(seeds), outcome)
-        limit = options.stop_after_failures
-        if limit is not None and len(summary.problems) >= limit:
-            summary.stopped_early = summary.cases_run < len(seeds)
+        if note_outcome(summary, outcome, len(seeds), options, on_progress):
             tasks.close()
             break
     summary.elapsed_s = time.perf_counter() - started
     summary.workers = _worker_count(executor)
-    if options.shrink and summary.problems:
-        t0 = time.perf_counter()
-        with SpicePool(workers=options.workers, timeout_s=options.timeout_s) as pool:
-            for outcome in summary.problems:
-                summary.reproducers.append(_shrink_one(outcome, options, pool))
-        summary.shrink_s = time.perf_counter() - t0
-    if options.out is not None:
-        write_outputs(summary, options.out)
-    return summary
+    return finish(summary, options)  # shrinking runs here, on a local ngspice pool
 
 
 def _fuzz_task(numbered: tuple[int, int], knobs, tolerance, timeout_s: float):

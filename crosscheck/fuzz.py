@@ -318,22 +318,39 @@ def _run(options: FuzzOptions, summary: FuzzSummary, pool, on_progress) -> FuzzS
         outcome = judge(index, case, own, own_error, spice, spice_error, options.tolerance)
         if outcome.status == "fail" and not outcome.explained and len(case.freqs_hz) > 1:
             outcome = isolate(outcome, pool, options.tolerance)
-        _record(summary, outcome)
-        if on_progress is not None:
-            on_progress(summary.cases_run, len(seeds), outcome)
-        limit = options.stop_after_failures
-        if limit is not None and len(summary.problems) >= limit:
-            summary.stopped_early = summary.cases_run < len(seeds)
+        if note_outcome(summary, outcome, len(seeds), options, on_progress):
             for _, _, f in pending:
                 f.cancel()
             pending.clear()
             break
         submit_more()
     summary.elapsed_s = time.perf_counter() - started
+    return finish(summary, options, pool)
+
+
+def note_outcome(summary: FuzzSummary, outcome, total: int, options: FuzzOptions, on_progress) -> bool:
+    """Record one case's outcome and report progress; True once ``stop_after_failures`` problems are in."""
+    _record(summary, outcome)
+    if on_progress is not None:
+        on_progress(summary.cases_run, total, outcome)
+    limit = options.stop_after_failures
+    if limit is not None and len(summary.problems) >= limit:
+        summary.stopped_early = summary.cases_run < total
+        return True
+    return False
+
+
+def finish(summary: FuzzSummary, options: FuzzOptions, pool=None) -> FuzzSummary:
+    """Shrink what failed (on ``pool``, or on a local SpicePool started for it) and write the outputs."""
+    from .workers import SpicePool
+
     if options.shrink and summary.problems:
         t0 = time.perf_counter()
-        for outcome in summary.problems:
-            summary.reproducers.append(_shrink_one(outcome, options, pool))
+        if pool is None:
+            with SpicePool(workers=options.workers, timeout_s=options.timeout_s) as local_pool:
+                summary.reproducers.extend(_shrink_one(o, options, local_pool) for o in summary.problems)
+        else:
+            summary.reproducers.extend(_shrink_one(o, options, pool) for o in summary.problems)
         summary.shrink_s = time.perf_counter() - t0
     if options.out is not None:
         write_outputs(summary, options.out)
