@@ -96,11 +96,7 @@ def thevenin(network: Network, port: Port, freqs_hz: Sequence[float] | float) ->
         xs, conds = system.solve_many(freqs, rhs)
     except SingularNetworkError:
         return [_one_frequency(system, network, port, float(f), ties) for f in freqs]
-    # The port voltages and scales of the whole sweep at once, then one Equivalent per frequency.
-    volts = _port_voltage(system, np.moveaxis(xs, 1, 0), port)  # (F, 2): open circuit, test injection
-    scales = np.abs(xs).max(axis=1, initial=0.0)  # (F, 2)
-    return [_equivalent(float(f), complex(volts[i, 0]), complex(volts[i, 1]), float(conds[i]),
-                        float(scales[i, 0]), float(scales[i, 1])) for i, f in enumerate(freqs)]
+    return _from_open_port(system, port, freqs, xs, conds)
 
 
 def _one_frequency(system: MnaSystem, network: Network, port: Port, f: float, ties: list[str]) -> Equivalent:
@@ -110,20 +106,22 @@ def _one_frequency(system: MnaSystem, network: Network, port: Port, f: float, ti
         fac = system.factorize(f)
     except SingularNetworkError as open_error:
         return _from_shorted_port(network, port, f, ties, open_error)
-    return _from_open_port(system, port, f, fac.solve(rhs), fac.condition)
+    return _from_open_port(system, port, [f], fac.solve(rhs)[None], [fac.condition])[0]
 
 
 def _port_voltage(system: MnaSystem, x: np.ndarray, port: Port) -> np.ndarray:
     return np.asarray(system.voltage(x, port.a)) - np.asarray(system.voltage(x, port.b))
 
 
-def _from_open_port(system: MnaSystem, port: Port, f: float, x: np.ndarray, condition: float) -> Equivalent:
-    vth, zth = (complex(v) for v in _port_voltage(system, x, port))
+def _from_open_port(system: MnaSystem, port: Port, freqs: Sequence[float], xs: np.ndarray,
+                    conds: Sequence[float]) -> list[Equivalent]:
+    """One equivalent per frequency from the (F, n, 2) solutions: open circuit, then the 1 A test injection."""
+    volts = _port_voltage(system, np.moveaxis(xs, 1, 0), port)  # (F, 2), for the whole sweep at once
     # Scales over the whole solution, branch currents included: when a voltage source pins the port,
     # every node voltage of the test solution is 0 while the 1 A test current flows in branches.
-    v_scale = float(np.max(np.abs(x[:, 0]), initial=0.0))
-    z_scale = float(np.max(np.abs(x[:, 1]), initial=0.0))
-    return _equivalent(f, vth, zth, condition, v_scale, z_scale)
+    scales = np.abs(xs).max(axis=1, initial=0.0)  # (F, 2)
+    return [_equivalent(float(f), complex(volts[i, 0]), complex(volts[i, 1]), float(conds[i]),
+                        float(scales[i, 0]), float(scales[i, 1])) for i, f in enumerate(freqs)]
 
 
 def _equivalent(f: float, vth: complex, zth: complex, condition: float, v_scale: float, z_scale: float) -> Equivalent:

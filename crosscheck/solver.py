@@ -216,9 +216,14 @@ class MnaSystem:
 
     def matrix(self, freq_hz: float) -> sp.csc_matrix:
         """A(ω) = A0 + jω·A1 on the shared pattern (its index arrays are shared, not copied)."""
-        omega = 2.0 * math.pi * freq_hz
-        return sp.csc_matrix((self._a0 + 1j * omega * self._a1, self._pattern.indices, self._pattern.indptr),
+        return sp.csc_matrix((self._values(freq_hz), self._pattern.indices, self._pattern.indptr),
                              shape=self._pattern.shape)
+
+    def _values(self, freq_hz: float, out: np.ndarray | None = None) -> np.ndarray:
+        """The stored entries of A(ω) = A0 + jω·A1, into ``out`` when given (a sweep refills one buffer)."""
+        out = np.multiply(self._a1, 2j * math.pi * float(freq_hz), out=out)
+        out += self._a0
+        return out
 
     def dense_matrices(self, freqs_hz: np.ndarray) -> np.ndarray:
         """A(ω) for every frequency as one (F, n, n) array, for batched dense solves."""
@@ -278,13 +283,14 @@ class MnaSystem:
         """
         a = self.matrix(freq_hz)
         self._ensure_analysis()
-        lu, norm_1, norm_inf = self._factor(float(freq_hz), a)
+        lu = self._factor(float(freq_hz), a)
+        norm_1, norm_inf = self._norms(a)
         if estimate_condition:
             condition = condition_estimate(a, lu, norm_1=norm_1)
             self._check_condition(freq_hz, condition, a)
         else:
             condition = math.nan
-        return Factorization(freq_hz, lambda b: _refined(a, lu, np.asarray(b, dtype=complex), norm_inf=norm_inf),
+        return Factorization(freq_hz, lambda b: _refined(a, lu, np.asarray(b, dtype=complex), norm_inf),
                              condition)
 
     def solve_many(self, freqs_hz: Sequence[float], rhs: np.ndarray,
@@ -303,8 +309,10 @@ class MnaSystem:
             return self._solve_dense(freqs, rhs, estimate_condition)
         self._ensure_analysis()
         chunks = [freqs[i:i + SWEEP_CHUNK] for i in range(0, len(freqs), SWEEP_CHUNK)]
-        threads = min(len(chunks), self.sweep_threads or default_threads())
-        if threads > 1 and self.size >= THREADS_FROM:
+        threads = 1
+        if len(chunks) > 1 and self.size >= THREADS_FROM:
+            threads = min(len(chunks), self.sweep_threads or default_threads())
+        if threads > 1:
             parts = list(_thread_pool(threads).map(lambda chunk: self._sweep(chunk, rhs, estimate_condition), chunks))
         else:
             parts = [self._sweep(chunk, rhs, estimate_condition) for chunk in chunks]
@@ -335,19 +343,18 @@ class MnaSystem:
         # copies them): it serves one frequency at a time.
         a = sp.csc_matrix((np.empty(len(self._a0), dtype=complex), self._pattern.indices, self._pattern.indptr),
                           shape=self._pattern.shape)
-        a1j = 1j * self._a1
         lu = None  # the last frequency's factor: the next refactors on its pivot order when that stays accurate
         peak = None
         rhs_sizes = _column_sizes(rhs)
         for i, f in enumerate(freqs):
-            np.multiply(a1j, 2.0 * math.pi * float(f), out=a.data)
-            a.data += self._a0
-            lu, norm_1, norm_inf = self._factor(float(f), a, reuse=lu)
+            self._values(f, out=a.data)
+            norm_1, norm_inf = self._norms(a)
+            lu = self._factor(float(f), a, reuse=lu)
             y = lu.solve(columns)
             checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
-            if getattr(lu, "reused", False) and not checked[1] <= REFINE_ABOVE:
+            if lu.reused and not checked[1] <= REFINE_ABOVE:
                 # The kept pivot order lost accuracy at this frequency: pivot afresh (and keep the new order).
-                lu, norm_1, norm_inf = self._factor(float(f), a)
+                lu = self._factor(float(f), a)
                 y = lu.solve(columns)
                 checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
             if estimate_condition:
@@ -358,7 +365,7 @@ class MnaSystem:
                     peak = j
                 conds[i] = norm_1 * inverse_norm
                 self._check_condition(float(f), conds[i], a)
-            xs[i] = _refined(a, lu, rhs, y[:, :k], norm_inf=norm_inf, checked=checked)
+            xs[i] = _refined(a, lu, rhs, norm_inf, y[:, :k], checked=checked)
             if not estimate_condition and not np.isfinite(xs[i]).all():
                 raise singular_error(self.network, float(f), "the solution is not finite", a, tuple(self.node_index))
         return xs, conds
@@ -386,21 +393,23 @@ class MnaSystem:
             self._analysis = sparse_backends.analyse(self._pattern, wanted)
             self._entry_columns = np.repeat(np.arange(self.size), np.diff(self._pattern.indptr))
 
+    def _norms(self, a: sp.csc_matrix) -> tuple[float, float]:
+        """‖a‖₁ and ‖a‖∞ (largest column and row sums of |a|), from the stored entries in two bincounts."""
+        size = np.abs(a.data)
+        norm_1 = float(np.bincount(self._entry_columns, size, minlength=self.size).max(initial=0.0))
+        norm_inf = float(np.bincount(a.indices, size, minlength=self.size).max(initial=0.0))
+        return norm_1, norm_inf
+
     def _factor(self, freq_hz: float, a: sp.csc_matrix, reuse: sparse_backends.Factor | None = None
-                ) -> tuple[sparse_backends.Factor, float, float]:
-        """The numeric LU of ``a`` = A(ω) on the symbolic analysis made once for this network; ‖a‖₁; ‖a‖∞.
+                ) -> sparse_backends.Factor:
+        """The numeric LU of ``a`` = A(ω) on the symbolic analysis made once for this network.
 
         ``reuse``: an earlier frequency's factor whose pivot order may be kept (the result says so in its
         ``reused`` attribute); the caller checks the backward error and factors afresh if it grew.
         """
-        if self._analysis is None:  # callers make it first (``_ensure_analysis``); this is a safety net
-            self._ensure_analysis()
-            reuse = None
-        size = np.abs(a.data)
-        norm_1 = float(np.bincount(self._entry_columns, size, minlength=self.size).max(initial=0.0))
-        norm_inf = float(np.bincount(a.indices, size, minlength=self.size).max(initial=0.0))
+        assert self._analysis is not None, "callers make the analysis first (_ensure_analysis)"
         try:
-            return self._analysis.factor(a.data, reuse=reuse), norm_1, norm_inf
+            return self._analysis.factor(a.data, reuse=reuse)
         except sparse_backends.SingularFactorError as exc:
             if reuse is not None:  # a zero pivot on the kept order says nothing about A(ω): pivot afresh
                 return self._factor(freq_hz, a)
@@ -475,7 +484,7 @@ def _ramp(n: int) -> np.ndarray:
     return ((-1.0) ** i * (1.0 + i / max(n - 1, 1))).astype(complex)
 
 
-def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, norm_1: float | None = None) -> float:
+def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, norm_1: float) -> float:
     """κ₁(A) = ‖A‖₁·‖A⁻¹‖₁, with ‖A⁻¹‖₁ from Higham's estimator.
 
     N. J. Higham, "FORTRAN codes for estimating the one-norm of a real or complex matrix, with
@@ -487,11 +496,10 @@ def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, norm_1: float
     n = a.shape[0]
     if n == 0:
         return 1.0
-    norm_a = _largest_sum(a, axis=0) if norm_1 is None else norm_1
     if n <= 4:
-        return norm_a * float(np.abs(lu.solve(np.eye(n, dtype=complex))).sum(axis=0).max())
+        return norm_1 * float(np.abs(lu.solve(np.eye(n, dtype=complex))).sum(axis=0).max())
     y = lu.solve(np.stack([np.full(n, 1.0 / n, dtype=complex), _ramp(n)], axis=1))
-    return norm_a * _inverse_norm(lu, y[:, 0], y[:, 1])[0]
+    return norm_1 * _inverse_norm(lu, y[:, 0], y[:, 1])[0]
 
 
 def _inverse_norm(lu: sparse_backends.Factor, y: np.ndarray, ramp: np.ndarray,
@@ -541,8 +549,8 @@ def _unit_phases(y: np.ndarray) -> np.ndarray:
     return np.divide(y, size, out=np.ones_like(y), where=size >= tiny)
 
 
-def _refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, x: np.ndarray | None = None,
-             norm_inf: float | None = None, checked: tuple[np.ndarray, float] | None = None) -> np.ndarray:
+def _refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, norm_inf: float, x: np.ndarray | None = None,
+             checked: tuple[np.ndarray, float] | None = None) -> np.ndarray:
     """A⁻¹·b, improved by up to two steps of iterative refinement while the backward error exceeds REFINE_ABOVE.
 
     The normwise backward error ‖r‖∞/(‖A‖∞·‖x‖∞ + ‖b‖∞) of each column (Rigal and Gaches 1967) is ~ε
@@ -556,22 +564,16 @@ def _refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, x: np.nd
     x = lu.solve(b) if x is None else x
     if not np.isfinite(x).all():
         return x
-    norm_a = _largest_sum(a, axis=1) if norm_inf is None else norm_inf
-    residual, error = _backward_error(a, norm_a, b, x) if checked is None else checked
+    residual, error = _backward_error(a, norm_inf, b, x) if checked is None else checked
     for _ in range(2):
         if not error > REFINE_ABOVE:
             break
         better = x + lu.solve(residual)
-        residual_better, error_better = _backward_error(a, norm_a, b, better)
+        residual_better, error_better = _backward_error(a, norm_inf, b, better)
         if not error_better < error:
             break
         x, residual, error = better, residual_better, error_better
     return x
-
-
-def _largest_sum(a: sp.spmatrix, axis: int) -> float:
-    """‖A‖₁ (axis 0: the largest column sum of |A|) or ‖A‖∞ (axis 1: the largest row sum)."""
-    return float(np.max(np.asarray(abs(a).sum(axis=axis)).ravel(), initial=0.0))
 
 
 def _backward_error(a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray,

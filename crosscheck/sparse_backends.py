@@ -42,6 +42,9 @@ from typing import Protocol
 import numpy as np
 import scipy.sparse as sp
 
+from . import klu_library  # ctypes and numpy only: the library itself is loaded on first use
+from .klu_library import KluError
+
 BACKENDS = ("klu", "superlu")
 ENV_VAR = "CROSSCHECK_SPARSE"
 #: The ordering SuperLU uses: the best or near-best of scipy's four on ladders, trees, grids and random
@@ -55,6 +58,9 @@ class SingularFactorError(ArithmeticError):
 
 class Factor(Protocol):
     """A numeric LU factorization of one A(ω)."""
+
+    #: True when the factors were computed on an earlier matrix's pivot order (``Analysis.factor``'s reuse).
+    reused: bool
 
     def solve(self, b: np.ndarray, adjoint: bool = False) -> np.ndarray:
         """A⁻¹·b, or A⁻ᴴ·b when ``adjoint``; ``b`` is one vector or columns (complex)."""
@@ -77,8 +83,6 @@ class Analysis(Protocol):
 
 def available() -> tuple[str, ...]:
     """The back ends that can run here, preferred first."""
-    from . import klu_library
-
     return ("klu", "superlu") if klu_library.load() is not None else ("superlu",)
 
 
@@ -111,6 +115,8 @@ def analyse(pattern: sp.csc_matrix, backend: str | None = None) -> Analysis:
 
 
 class _SuperLuFactor:
+    reused = False  # SuperLU always searches pivots afresh
+
     def __init__(self, lu) -> None:
         self._lu = lu
 
@@ -155,8 +161,6 @@ class _KluAnalysis:
     name = "klu"
 
     def __init__(self, pattern: sp.csc_matrix) -> None:
-        from . import klu_library
-
         library = klu_library.load()
         if library is None:
             raise ValueError("sparse back end 'klu' needs a KLU library; install Debian's libklu1 "
@@ -164,8 +168,6 @@ class _KluAnalysis:
         self._symbolic = klu_library.Symbolic(library, pattern.indptr, pattern.indices)
 
     def factor(self, values: np.ndarray, reuse: Factor | None = None) -> Factor:
-        from .klu_library import KluError
-
         try:
             if isinstance(reuse, _KluFactor):
                 reuse.numeric.refactor(values)
