@@ -308,7 +308,10 @@ class MnaSystem:
         if self.size <= DENSE_LIMIT and len(freqs) > 0:
             return self._solve_dense(freqs, rhs, estimate_condition)
         self._ensure_analysis()
-        chunks = [freqs[i:i + SWEEP_CHUNK] for i in range(0, len(freqs), SWEEP_CHUNK)]
+        if self.size < THREADS_FROM:  # never threaded: one chain, no fresh pivot search at each run's start
+            chunks = [freqs] if len(freqs) else []
+        else:
+            chunks = [freqs[i:i + SWEEP_CHUNK] for i in range(0, len(freqs), SWEEP_CHUNK)]
         threads = 1
         if len(chunks) > 1 and self.size >= THREADS_FROM:
             threads = min(len(chunks), self.sweep_threads or default_threads())
@@ -346,15 +349,16 @@ class MnaSystem:
         lu = None  # the last frequency's factor: the next refactors on its pivot order when that stays accurate
         peak = None
         rhs_sizes = _column_sizes(rhs)
-        for i, f in enumerate(freqs):
+        sizes = np.empty(len(self._a0))
+        for i, f in enumerate(freqs.tolist()):
             self._values(f, out=a.data)
-            norm_1, norm_inf = self._norms(a)
-            lu = self._factor(float(f), a, reuse=lu)
+            norm_1, norm_inf = self._norms(a, out=sizes)
+            lu = self._factor(f, a, reuse=lu)
             y = lu.solve(columns)
             checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
             if lu.reused and not checked[1] <= REFINE_ABOVE:
                 # The kept pivot order lost accuracy at this frequency: pivot afresh (and keep the new order).
-                lu = self._factor(float(f), a)
+                lu = self._factor(f, a)
                 y = lu.solve(columns)
                 checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
             if estimate_condition:
@@ -364,10 +368,11 @@ class MnaSystem:
                     columns[j, k + 1] = 1.0
                     peak = j
                 conds[i] = norm_1 * inverse_norm
-                self._check_condition(float(f), conds[i], a)
-            xs[i] = _refined(a, lu, rhs, norm_inf, y[:, :k], checked=checked)
+                self._check_condition(f, conds[i], a)
+            # Refined only when the backward error asks for it (_refined would return y unchanged otherwise).
+            xs[i] = y[:, :k] if checked[1] <= REFINE_ABOVE else _refined(a, lu, rhs, norm_inf, y[:, :k], checked)
             if not estimate_condition and not np.isfinite(xs[i]).all():
-                raise singular_error(self.network, float(f), "the solution is not finite", a, tuple(self.node_index))
+                raise singular_error(self.network, f, "the solution is not finite", a, tuple(self.node_index))
         return xs, conds
 
     def _solve_dense(self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool) -> tuple[np.ndarray, np.ndarray]:
@@ -393,9 +398,10 @@ class MnaSystem:
             self._analysis = sparse_backends.analyse(self._pattern, wanted)
             self._entry_columns = np.repeat(np.arange(self.size), np.diff(self._pattern.indptr))
 
-    def _norms(self, a: sp.csc_matrix) -> tuple[float, float]:
-        """‖a‖₁ and ‖a‖∞ (largest column and row sums of |a|), from the stored entries in two bincounts."""
-        size = np.abs(a.data)
+    def _norms(self, a: sp.csc_matrix, out: np.ndarray | None = None) -> tuple[float, float]:
+        """‖a‖₁ and ‖a‖∞ (largest column and row sums of |a|), from the stored entries in two bincounts;
+        ``out``: a buffer for the entries' sizes (a sweep reuses one)."""
+        size = np.abs(a.data, out=out)
         norm_1 = float(np.bincount(self._entry_columns, size, minlength=self.size).max(initial=0.0))
         norm_inf = float(np.bincount(a.indices, size, minlength=self.size).max(initial=0.0))
         return norm_1, norm_inf
@@ -517,9 +523,9 @@ def _inverse_norm(lu: sparse_backends.Factor, y: np.ndarray, ramp: np.ndarray,
         return math.nan, 0
     j = start if start is not None else -1
     for _ in range(5):  # at most five iterations, as in ZLACN2
-        z = lu.solve(_unit_phases(y), adjoint=True)
-        j_last, j = j, int(np.argmax(np.abs(z)))
-        if j_last >= 0 and abs(z[j_last]) >= abs(z[j]):
+        z_size = np.abs(lu.solve(_unit_phases(y), adjoint=True))
+        j_last, j = j, int(z_size.argmax())
+        if j_last >= 0 and z_size[j_last] >= z_size[j]:
             j = j_last  # no column promises more than the one just taken: converged
             break
         y = lu.solve(_unit(n, j))
@@ -539,14 +545,16 @@ def _unit(n: int, j: int) -> np.ndarray:
     return e
 
 
+_TINY = float(np.finfo(float).tiny)  # the smallest normal double
+
+
 def _unit_phases(y: np.ndarray) -> np.ndarray:
     """y/|y| elementwise (1 where y is 0): the complex 'sign' vector of Higham's iteration."""
     size = np.abs(y)
-    tiny = np.finfo(float).tiny
-    if size.min(initial=math.inf) >= tiny:  # the usual case, without the masked division's cost
+    if size.min(initial=math.inf) >= _TINY:  # the usual case, without the masked division's cost
         return y / size
     # Divide only by normal sizes: |Re y|, |Im y| <= |y| then keeps every phase finite.
-    return np.divide(y, size, out=np.ones_like(y), where=size >= tiny)
+    return np.divide(y, size, out=np.ones_like(y), where=size >= _TINY)
 
 
 def _refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, norm_inf: float, x: np.ndarray | None = None,
@@ -580,9 +588,12 @@ def _backward_error(a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray,
                     b_sizes: np.ndarray | None = None) -> tuple[np.ndarray, float]:
     """The residual b − A·x and the largest normwise backward error of its columns (0/0 counts as 0)."""
     residual = b - a @ np.ascontiguousarray(x)  # scipy would copy a column-major block itself, more slowly
-    size = _column_sizes(residual)
     scale = norm_a * _column_sizes(x) + (_column_sizes(b) if b_sizes is None else b_sizes)
-    return residual, float(np.max(size / np.where(scale > 0, scale, 1.0), initial=0.0))
+    # max over columns of max|r_j|/scale_j is the largest |r_ij|/scale_j over every entry: one pass over the
+    # row-major residual instead of a reduction per column (numpy's slow case for a tall, narrow array).
+    ratio = np.abs(residual)
+    ratio *= 1.0 / np.where(scale > 0, scale, 1.0)  # scale 0 means x = b = 0, so r = 0 there too
+    return residual, float(ratio.max(initial=0.0))
 
 
 def _column_sizes(m: np.ndarray) -> np.ndarray:
