@@ -542,11 +542,13 @@ def _header() -> None:
 
     import scipy
 
-    from . import sparse_backends
+    from . import sparse_backends, sweep_kernel
 
+    backend = sparse_backends.default_backend()
+    loop = "compiled" if backend == "klu" and sweep_kernel.load() is not None else "Python"
     print("crosscheck benchmark")
     print(f"machine: {os.cpu_count()} cores, Python {platform.python_version()}, numpy {np.__version__}, "
-          f"scipy {scipy.__version__}, sparse LU: {sparse_backends.default_backend()}; "
+          f"scipy {scipy.__version__}, sparse LU: {backend}, sweep loop: {loop}; "
           f"load average at start: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
     print(f"sweep: {len(SWEEP_HZ)} frequencies, {SWEEP_HZ[0]:g} Hz to {SWEEP_HZ[-1]:.4g} Hz; from "
           f"{ONE_FREQUENCY_FROM:,} nodes one frequency ({SWEEP_HZ[0]:g} Hz)")

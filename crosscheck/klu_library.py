@@ -162,6 +162,15 @@ class Symbolic:
         if not self._handle:
             raise KluError(f"klu_analyze failed (status {self.common.status})", singular=False)
 
+    @property
+    def library(self) -> KluLibrary:
+        return self._library
+
+    @property
+    def handle(self) -> int:
+        """The address of KLU's symbolic object (for the compiled sweep loop, ``sweep_kernel``)."""
+        return self._handle
+
     def factor(self, values: np.ndarray) -> "Numeric":
         """A full factorization with threshold partial pivoting (pivot order chosen afresh).
 
@@ -193,6 +202,16 @@ class Numeric:
         self._common_ref = ctypes.byref(common)
         lib = symbolic._library.lib
         self._refactor, self._solve, self._tsolve = lib.klu_z_refactor, lib.klu_z_solve, lib.klu_z_tsolve
+
+    @property
+    def handle(self) -> int:
+        """The address of KLU's numeric object (for the compiled sweep loop, ``sweep_kernel``)."""
+        return self._handle
+
+    @property
+    def common_address(self) -> int:
+        """The address of this factorization's ``klu_common``."""
+        return ctypes.addressof(self._common)
 
     def refactor(self, values: np.ndarray) -> None:
         """New values, the pivot order of the last full ``factor`` (no pivot search: faster, and unchecked)."""

@@ -25,7 +25,7 @@ from typing import Callable, Sequence
 import numpy as np
 import scipy.sparse as sp
 
-from . import sparse_backends
+from . import klu_library, sparse_backends, sweep_kernel
 from .errors import SingularNetworkError
 from .network import GROUND, SOURCE_KINDS, Network
 
@@ -69,6 +69,8 @@ class MnaSystem:
     sparse_backend: str | None = None
     #: Threads for a sparse sweep's runs of SWEEP_CHUNK frequencies; None: one per core (1: no threads).
     sweep_threads: int | None = None
+    #: Whether KLU sweeps use the compiled loop (``sweep_kernel``) when it was built; False: Python only.
+    compiled_sweep: bool = True
     _analysis: sparse_backends.Analysis | None = None  # the symbolic analysis, made on the first factorization
     _entry_columns: np.ndarray | None = None  # the column of each stored entry, for ‖A‖₁ per frequency
 
@@ -335,7 +337,7 @@ class MnaSystem:
         # Solved with the right-hand sides in one call: LAPACK's ramp (the estimator's last safeguard) and the
         # estimator's start vector, which is e/n at the first frequency and then e_j for the column j where
         # the last frequency's estimate peaked (it rarely moves between neighbouring frequencies).
-        columns = np.empty((n, k + 2), dtype=complex, order="F") if estimate_condition else rhs
+        columns = np.empty((n, k + 2), dtype=complex, order="F") if estimate_condition else np.asfortranarray(rhs)
         if estimate_condition:
             columns[:, :k] = rhs
             columns[:, k] = _ramp(n)
@@ -350,7 +352,18 @@ class MnaSystem:
         peak = None
         rhs_sizes = _column_sizes(rhs)
         sizes = np.empty(len(self._a0))
-        for i, f in enumerate(freqs.tolist()):
+        compiled = self._compiled_run(k)
+        freq_list = freqs.tolist()
+        i = 0
+        while i < len(freq_list):
+            if compiled is not None and isinstance(getattr(lu, "numeric", None), klu_library.Numeric):
+                # The compiled loop takes the frequencies that follow a KLU factorization for as long as they
+                # are usual; the first unusual one (if any) comes back to the loop below, which redoes it.
+                done, peak = compiled.advance(lu.numeric, freqs[i:], rhs, rhs_sizes, columns, peak, xs[i:], conds[i:])
+                i += done
+                if i == len(freq_list):
+                    break
+            f = freq_list[i]
             self._values(f, out=a.data)
             norm_1, norm_inf = self._norms(a, out=sizes)
             lu = self._factor(f, a, reuse=lu)
@@ -373,7 +386,15 @@ class MnaSystem:
             xs[i] = y[:, :k] if checked[1] <= REFINE_ABOVE else _refined(a, lu, rhs, norm_inf, y[:, :k], checked)
             if not estimate_condition and not np.isfinite(xs[i]).all():
                 raise singular_error(self.network, f, "the solution is not finite", a, tuple(self.node_index))
+            i += 1
         return xs, conds
+
+    def _compiled_run(self, k: int) -> sweep_kernel.Run | None:
+        """The compiled loop for this chain when it is built and the back end is KLU (else None)."""
+        symbolic = getattr(self._analysis, "symbolic", None)
+        if not self.compiled_sweep or not isinstance(symbolic, klu_library.Symbolic) or sweep_kernel.load() is None:
+            return None
+        return sweep_kernel.Run(symbolic, self._a0, self._a1, self._entry_columns, k, REFINE_ABOVE, SINGULAR_CONDITION)
 
     def _solve_dense(self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool) -> tuple[np.ndarray, np.ndarray]:
         """The whole sweep as one batched dense solve, with the exact 1-norm condition of each matrix."""

@@ -163,7 +163,7 @@ class _KluAnalysis:
         if library is None:
             raise ValueError("sparse back end 'klu' needs a KLU library; install Debian's libklu1 "
                              "or pip install 'crosscheck[fast]', or choose superlu")
-        self._symbolic = klu_library.Symbolic(library, pattern.indptr, pattern.indices)
+        self.symbolic = klu_library.Symbolic(library, pattern.indptr, pattern.indices)
 
     def factor(self, values: np.ndarray, reuse: Factor | None = None) -> Factor:
         try:
@@ -171,7 +171,7 @@ class _KluAnalysis:
                 reuse.numeric.refactor(values)
                 reuse.reused = True
                 return reuse
-            return _KluFactor(self._symbolic.factor(values))
+            return _KluFactor(self.symbolic.factor(values))
         except KluError as exc:
             if not exc.singular:
                 raise  # out of memory or too large: says so, and is not reported as a singular network

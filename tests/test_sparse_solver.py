@@ -187,12 +187,16 @@ def _tank_system(backend: str) -> tuple[MnaSystem, np.ndarray]:
 
 
 def test_a_sweep_keeps_the_pivot_order_while_it_stays_accurate(monkeypatch):
-    """With KLU, frequencies after the first refactor on the pivot order before (no pivot search)."""
+    """With KLU, frequencies after the first refactor on the pivot order before (no pivot search).
+    Checked on the Python loop, where each factorization can be watched; the compiled loop is checked
+    against it in test_sweep_kernel.py."""
     if "klu" not in BACKENDS:
         pytest.fail("KLU is not available; install Debian's libklu1 or crosscheck[test]")
     fresh = _spy_on_klu_factor(monkeypatch)
     system, rhs = _system("ladder", 120, "klu")
+    system.compiled_sweep = False
     system.solve_many(SWEEP, rhs)
+    assert len(fresh) == len(SWEEP)
     assert fresh[0] and fresh.count(True) < len(SWEEP) / 2, f"{fresh.count(True)} full factorizations of {len(SWEEP)}"
 
 
@@ -206,7 +210,8 @@ def _spy_on_klu_factor(monkeypatch) -> list[bool]:
     return fresh
 
 
-def test_a_pivot_order_that_goes_bad_is_replaced(monkeypatch):
+@pytest.mark.parametrize("compiled", [True, False], ids=["compiled-loop", "python-loop"])
+def test_a_pivot_order_that_goes_bad_is_replaced(monkeypatch, compiled):
     """At 1 MHz the tank node's diagonal (jωC = 6.3 S) is a fine pivot; at 1 mHz it is 6.3e-9 S against an
     inductor branch entry of 1, and reusing that pivot grows the factors by ~1e8 (backward error 2e-9 was
     measured). The backward-error check must notice and pivot afresh; the answer keeps full accuracy."""
@@ -214,6 +219,7 @@ def test_a_pivot_order_that_goes_bad_is_replaced(monkeypatch):
         pytest.fail("KLU is not available; install Debian's libklu1 or crosscheck[test]")
     # rt = 1 GΩ keeps the tank node's row dominated by the capacitor at 1 MHz, so that pivot is chosen there.
     system, rhs = _tank_system("klu")
+    system.compiled_sweep = compiled  # compiled: the kernel refactors 1 mHz, sees the error and hands it back
     fresh = _spy_on_klu_factor(monkeypatch)
     sweep = [1e6, 1e-3]
     xs, conds = system.solve_many(sweep, rhs)
