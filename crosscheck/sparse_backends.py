@@ -17,11 +17,11 @@ for the numeric factorization. Two back ends:
   with NATURAL was measured far slower on grids).
 
 Measured with ``python -m crosscheck.bench`` (2 cores; KLU without row scaling, see ``klu_library``):
-one numeric factorization and a two-column solve at 10,000 nodes take 2.7 ms (KLU) against 16 ms
-(SuperLU, its best ordering) on a ladder, 2.0 against 17 ms on a tree and 5.5 against 30 ms on a
-random graph; at 100,000 nodes 20 against 116 ms (ladder) and 0.17 against 9.5 s (random graph). On
-the grid SuperLU wins (35 against 51 ms at 10,000 nodes, 0.70 against 1.34 s at 100,000): fill
-reaches ~11x there and its supernodal kernels pay off. So ``klu`` is the default
+one numeric factorization and a two-column solve at 10,000 nodes take 1.5 ms (KLU) against 9.2 ms
+(SuperLU, its best ordering) on a ladder, 1.9 against 15 ms on a tree and 5.3 against 23 ms on a
+random graph; at 100,000 nodes 17 against 96 ms (ladder) and 0.11 against 7.0 s (random graph). On
+the grid the two meet at 10,000 nodes (28 against 31 ms) and SuperLU wins at 100,000 (0.60 against
+1.13 s): fill reaches ~11x there and its supernodal kernels pay off. So ``klu`` is the default
 when a KLU library loads, else ``superlu``; for very large meshes ``superlu`` is worth choosing. UMFPACK
 (also in kvxopt) matched KLU on grids but was 3-4x slower on ladders and trees; pypardiso (~600 MB of
 MKL) refuses complex matrices, and python-mumps has no wheel here (its build needs MUMPS itself). Of
