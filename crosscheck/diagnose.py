@@ -18,15 +18,19 @@ from .network import CURRENT_OUTPUT_KINDS, GROUND, Network, _UnionFind
 _NULL_SPACE_LIMIT = 2000
 
 
-def likely_singularity(network: Network, freq_hz: float) -> tuple[str, tuple[str, ...]]:
-    """A sentence naming the likely cause, and the nodes or elements involved."""
+def likely_singularity(network: Network, freq_hz: float, ties: Sequence[str] = ()) -> tuple[str, tuple[str, ...]]:
+    """A sentence naming the likely cause, and the nodes or elements involved.
+
+    ``ties``: nodes the solver holds at 0 V (the reference of a part with no ground, see ``MnaSystem``);
+    a part tied that way reaches ground through its tie, and is not itself the cause.
+    """
     at_dc = freq_hz == 0
     loop = _voltage_loop(network, at_dc)
     if loop:
         kinds = "voltage sources and inductors (short at DC)" if at_dc else "voltage sources"
         return (f"{', '.join(loop)} close a loop of {kinds}; add series resistance "
                 "or leave out DC", tuple(loop))
-    floating = _nodes_without_path(network, at_dc)
+    floating = _nodes_without_path(network, at_dc, ties)
     if floating:
         via = "only capacitors (open at DC) or current sources" if at_dc else "only current sources"
         return (f"node(s) {', '.join(floating[:8])} reach ground through {via}; add a resistive path "
@@ -47,9 +51,11 @@ def _voltage_loop(network: Network, at_dc: bool) -> list[str]:
     return []
 
 
-def _nodes_without_path(network: Network, at_dc: bool) -> list[str]:
+def _nodes_without_path(network: Network, at_dc: bool, ties: Sequence[str] = ()) -> list[str]:
     uf = _UnionFind()
     uf.find(GROUND)
+    for node in ties:
+        uf.union(node, GROUND)
     for e in network.elements:
         if e.kind == "K" or e.kind in CURRENT_OUTPUT_KINDS or (at_dc and e.kind == "C"):
             continue

@@ -390,7 +390,7 @@ class MnaSystem:
             # Refined only when the backward error asks for it (_refined would return y unchanged otherwise).
             xs[i] = y[:, :k] if checked[1] <= REFINE_ABOVE else _refined(a, lu, rhs, norm_inf, y[:, :k], checked)
             if not estimate_condition and not np.isfinite(xs[i]).all():
-                raise singular_error(self.network, f, "the solution is not finite", a, tuple(self.node_index))
+                raise self._singular(f, "the solution is not finite", a)
             i += 1
         return xs, conds
 
@@ -410,11 +410,11 @@ class MnaSystem:
             conds = np.linalg.cond(mats, p=1) if self.size else np.ones(len(freqs))
             bad = ~np.isfinite(conds) | (conds > SINGULAR_CONDITION)
             if bad.any():
-                raise singular_error(self.network, float(freqs[np.argmax(bad)]), f"condition number {conds[bad][0]:.3g}")
+                raise self._singular(float(freqs[np.argmax(bad)]), f"condition number {conds[bad][0]:.3g}")
         try:
             xs = np.linalg.solve(mats, np.broadcast_to(rhs, (len(freqs),) + rhs.shape))
         except np.linalg.LinAlgError as exc:  # only reached without the condition check
-            raise singular_error(self.network, float(freqs[0]), str(exc)) from None
+            raise self._singular(float(freqs[0]), str(exc)) from None
         return xs, conds
 
     def _ensure_analysis(self) -> None:
@@ -445,12 +445,17 @@ class MnaSystem:
         except sparse_backends.SingularFactorError as exc:
             if reuse is not None:  # a zero pivot on the kept order says nothing about A(ω): pivot afresh
                 return self._factor(freq_hz, a)
-            raise singular_error(self.network, freq_hz, str(exc), a, tuple(self.node_index)) from None
+            raise self._singular(freq_hz, str(exc), a) from None
+
+    def _singular(self, freq_hz: float, detail: str, matrix: sp.spmatrix | None = None) -> SingularNetworkError:
+        """The error for a singular A(ω), its cause read from this network (its ties to ground included)."""
+        names = tuple(self.node_index) if matrix is not None else ()
+        return singular_error(self.network, freq_hz, detail, matrix, names, ties=self._ties)
 
     def _check_condition(self, freq_hz: float, condition: float, a: sp.spmatrix) -> None:
         """A condition past SINGULAR_CONDITION (or not finite) is a singular matrix in double precision."""
         if not math.isfinite(condition) or condition > SINGULAR_CONDITION:
-            raise singular_error(self.network, freq_hz, f"condition number {condition:.3g}", a, tuple(self.node_index))
+            raise self._singular(freq_hz, f"condition number {condition:.3g}", a)
 
 
 THREADS_VAR = "CROSSCHECK_SWEEP_THREADS"
@@ -632,14 +637,14 @@ def _column_sizes(m: np.ndarray) -> np.ndarray:
 
 
 def singular_error(network: Network, freq_hz: float, detail: str, matrix: sp.spmatrix | None = None,
-                   node_names: tuple[str, ...] = ()) -> SingularNetworkError:
+                   node_names: tuple[str, ...] = (), ties: Sequence[str] = ()) -> SingularNetworkError:
     """Name the likely cause of a singular matrix from the structure at this frequency.
 
     With no structural cause, the nodes are read from the matrix's null space when it is given.
     """
     from .diagnose import likely_singularity, nodes_in_null_space  # late import keeps the hot path lean
 
-    cause, nodes = likely_singularity(network, freq_hz)
+    cause, nodes = likely_singularity(network, freq_hz, ties)
     if not nodes and matrix is not None:
         nodes = nodes_in_null_space(matrix, node_names)
         if nodes:

@@ -219,6 +219,21 @@ def test_floating_transformer_secondary(f: float) -> None:
     assert _close(reversed_dot.vth, -vth) and _close(reversed_dot.zth, zth)
 
 
+def test_singular_point_inside_a_floating_part_blames_only_the_node_at_fault() -> None:
+    """The solver holds a floating part's reference at 0 V, so that part reaches "ground" through it. At DC
+    a node of the secondary reached only through capacitors is singular: the error names that node alone,
+    not the secondary's other nodes (which the tie grounds)."""
+    net = Network("transformer", _transformer().elements + (
+        _el("c1", ("s2", "x"), 1e-9), _el("c2", ("x", "s1"), 1e-9)))
+    port = Port("s1", "s2")
+    validate(net, port)
+    with pytest.raises(SingularNetworkError) as info:
+        thevenin(net, port, 0.0)
+    assert info.value.nodes == ("x",), info.value.nodes
+    assert "node(s) x reach" in str(info.value)
+    assert thevenin(net, port, 1e3)[0].zth is not None  # fine away from DC
+
+
 # --------------------------------------------------------------------------- singular networks and bad input
 
 
