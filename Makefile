@@ -65,4 +65,4 @@ $(STAMP): $(BIN)/python pyproject.toml crosscheck/_sweep_kernel.c | system-libs
 venv: $(STAMP)
 
 clean:
-	rm -rf $(VENV) out .pytest_cache .hypothesis build *.egg-info
+	rm -rf $(VENV) out .pytest_cache .hypothesis build *.egg-info crosscheck/*.so

@@ -34,8 +34,9 @@ def _kernel_or_fail():
         if not _compiler():
             pytest.skip("no C compiler: the compiled sweep loop is not built and the Python loop runs alone "
                         "(apt-get install gcc libc6-dev, then pip install -e . again, to test it)")
-        pytest.fail("the compiled sweep loop is not built although a C compiler is installed; "
-                    "run `pip install -e .` again (it builds crosscheck/_sweep_kernel.c)")
+        pytest.fail("the compiled sweep loop is not built although a C compiler is installed; run "
+                    "`pip install -v -e .` again (it builds crosscheck/_sweep_kernel.c; the log says what failed, "
+                    "often missing C headers: apt-get install libc6-dev)")
 
 
 def _both_loops(system: MnaSystem, rhs: np.ndarray, sweep) -> tuple[tuple, tuple]:
