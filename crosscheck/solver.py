@@ -45,6 +45,8 @@ SWEEP_CHUNK = 16
 THREADS_FROM = 4000
 #: Normwise backward error above which a sparse solve is refined (~32ε; LU with partial pivoting gives ~ε).
 REFINE_ABOVE = 2.0 ** -47
+#: A right-hand side whose largest entry is below this (and not 0) keeps its sweep off the compiled loop.
+TINY_RHS = 1e-250
 
 _BRANCH_KINDS = frozenset("VEHL")
 #: Kinds whose entries are stamped in bulk by numpy when no fault is on.
@@ -357,7 +359,7 @@ class MnaSystem:
         peak = None
         rhs_sizes = _column_sizes(rhs)
         sizes = np.empty(len(self._a0))
-        compiled = self._compiled_run(k)
+        compiled = self._compiled_run(k, rhs_sizes)
         freq_list = freqs.tolist()
         i = 0
         while i < len(freq_list):
@@ -394,10 +396,17 @@ class MnaSystem:
             i += 1
         return xs, conds
 
-    def _compiled_run(self, k: int) -> sweep_kernel.Run | None:
-        """The compiled loop for this chain when it is built and the back end is KLU (else None)."""
+    def _compiled_run(self, k: int, rhs_sizes: np.ndarray) -> sweep_kernel.Run | None:
+        """The compiled loop for this chain when it is built and the back end is KLU (else None).
+
+        Right-hand sides smaller than TINY_RHS stay on this loop: the compiled one flushes subnormal numbers
+        to zero in its own arithmetic, which is harmless against a normal-sized right-hand side but could
+        change a refinement decision against one of ~1e-300 (this loop handles those exactly).
+        """
         symbolic = getattr(self._analysis, "symbolic", None)
         if not self.compiled_sweep or not isinstance(symbolic, klu_library.Symbolic) or sweep_kernel.load() is None:
+            return None
+        if np.any((rhs_sizes > 0) & (rhs_sizes < TINY_RHS)):
             return None
         return sweep_kernel.Run(symbolic, self._a0, self._a1, self._entry_columns, k, REFINE_ABOVE, SINGULAR_CONDITION)
 
@@ -623,7 +632,9 @@ def _backward_error(a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray,
     # max over columns of max|r_j|/scale_j is the largest |r_ij|/scale_j over every entry: one pass over the
     # row-major residual instead of a reduction per column (numpy's slow case for a tall, narrow array).
     ratio = np.abs(residual)
-    ratio *= 1.0 / np.where(scale > 0, scale, 1.0)  # scale 0 means x = b = 0, so r = 0 there too
+    # Divided, not multiplied by 1/scale: a subnormal scale (right-hand sides of ~1e-310) has no finite
+    # reciprocal. Scale 0 means x = b = 0, so r = 0 there too.
+    ratio /= np.where(scale > 0, scale, 1.0)
     return residual, float(ratio.max(initial=0.0))
 
 

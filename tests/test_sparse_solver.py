@@ -333,3 +333,19 @@ def test_a_klu_failure_that_is_not_a_zero_pivot_says_what_it_is():
         assert not error.singular and words in str(error) and "CROSSCHECK_SPARSE=superlu" in str(error)
     common.status = 1
     assert klu_library._error("klu_z_factor", common).singular
+
+
+def test_backward_error_with_a_subnormal_scale_is_finite_and_silent():
+    """Found by the full Hypothesis profile: a current source's phase of 1e-308 degrees gives a right-hand side
+    of ~1e-313 j. Its scale is subnormal, whose reciprocal overflows; the backward error must divide by it (no
+    warning, which the tests raise as errors) and come out finite."""
+    import scipy.sparse as sp
+
+    from crosscheck.solver import _backward_error
+
+    a = sp.csc_matrix(np.diag([0.005, 0.005]).astype(complex))
+    b = np.array([[0.0, -1.0], [1.94174325e-313j, 0.0]])
+    x = np.array([[0.0, -200.0], [1.94174325e-310j, 0.0]])
+    residual, error = _backward_error(a, 0.005, b, x)
+    scale = 0.005 * np.abs(x).max(axis=0) + np.abs(b).max(axis=0)
+    assert np.isfinite(error) and error == max(np.abs(residual[:, c]).max() / scale[c] for c in range(2)), error

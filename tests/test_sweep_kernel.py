@@ -131,6 +131,21 @@ def test_the_kernel_leaves_the_floating_point_mode_as_it_found_it():
     assert np.all(smallest * 1.0 == smallest) and np.all(smallest + smallest > 0)
 
 
+def test_right_hand_sides_near_underflow_stay_on_the_python_loop(monkeypatch):
+    """The kernel flushes subnormal numbers in its own arithmetic; a right-hand side of ~1e-300 (below
+    solver.TINY_RHS) keeps the sweep on the Python loop, which handles it exactly."""
+    _kernel_or_fail()
+    system, rhs = _ported(*build("ladder", 300))
+    called = []
+    real = sweep_kernel.Run.advance
+    monkeypatch.setattr(sweep_kernel.Run, "advance", lambda *a: called.append(1) or real(*a))
+    system.solve_many(SWEEP, rhs)
+    assert called, "a normal right-hand side uses the kernel"
+    called.clear()
+    xs, conds = system.solve_many(SWEEP, rhs * 1e-300)
+    assert not called and np.all(np.isfinite(xs)) and np.all(np.isfinite(conds))
+
+
 def test_without_the_kernel_the_python_loop_does_everything(monkeypatch):
     """No compiler at install time means no kernel: sweeps still run, on the Python loop alone."""
     system, rhs = _ported(*build("tree", 300))
