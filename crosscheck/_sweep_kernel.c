@@ -153,16 +153,25 @@ static int accurate(const chain *c, const double complex *x, const double comple
     }
     if (nan) return 0;
     double x_size = sqrt(x_square), r_size = sqrt(r_square);
-    if (!(x_size > 1e-150 && x_size < 1e150) || !(r_size > 1e-150 && r_size < 1e150)) {
-        x_size = r_size = 0.0; /* squares out of range: the careful sizes */
+    if (!(x_size > 1e-150 && x_size < 1e150)) { /* squares out of range: the careful size */
+        x_size = 0.0;
         for (int i = 0; i < n; i++) {
-            double s = size_of(x[i]), t = size_of(b[i] - c->r[i]);
+            double s = size_of(x[i]);
             if (s > x_size) x_size = s;
+        }
+    }
+    /* Right-hand sides below solver.TINY_RHS never reach here, so the scale is 0 (x = b = 0) or normal. */
+    double scale = norm_inf * x_size + b_size;
+    if (r_square == 0.0 && scale >= 1e-130) return 1; /* every |r_i| < 1.5e-154: far below refine_above*scale */
+    if (!(r_size > 1e-150 && r_size < 1e150)) {
+        r_size = 0.0;
+        for (int i = 0; i < n; i++) {
+            double t = size_of(b[i] - c->r[i]);
             if (t > r_size) r_size = t;
         }
     }
-    double scale = norm_inf * x_size + b_size;
-    return r_size * (1.0 / (scale > 0 ? scale : 1.0)) <= c->refine_above;
+    /* Divided, as the Python loop divides (a reciprocal would round once more). */
+    return r_size / (scale > 0 ? scale : 1.0) <= c->refine_above;
 }
 
 /* ||inv(A)||_1 by Higham's iteration from y = inv(A)*x (x: e_start, or e/n when *start < 0), as
