@@ -36,9 +36,9 @@ from .network import GROUND, SOURCE_KINDS, Network
 DENSE_LIMIT = 80
 #: A 1-norm condition number above this is a singular matrix in double precision (1/ε ≈ 4.5e15, with room).
 SINGULAR_CONDITION = 1e17
-#: A sparse sweep is cut into runs of this many consecutive frequencies, each one chain of refactorizations,
-#: solved in parallel threads (ctypes and numpy release the GIL). Fixed, not per core, so that the numbers
-#: do not depend on the machine: every run of a sweep is the same computation.
+#: From THREADS_FROM unknowns a sparse sweep is cut into runs of this many consecutive frequencies, each one
+#: chain of refactorizations, solved in parallel threads (ctypes and numpy release the GIL). Fixed, not per
+#: core, so that the numbers do not depend on the machine: every run of a sweep is the same computation.
 SWEEP_CHUNK = 16
 #: Below this many unknowns a sweep stays in one thread: at 1,500 unknowns (a 1,000-node ladder) two threads
 #: were measured no faster than one (Python holds the GIL for half the time), at 15,000 1.3-1.5x faster.
