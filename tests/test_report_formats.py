@@ -320,3 +320,20 @@ def test_verify_writes_html_chosen_by_extension(tmp_path):
     assert main(["verify", str(path), "--output", str(out), "--workers", "1"]) == 0
     text = out.read_text(encoding="utf-8")
     assert text.startswith("<!DOCTYPE html>") and "data:image/png;base64," in text and CAUTION in text
+
+
+def test_comparison_table_keeps_its_frequencies_on_an_80_column_terminal(results):
+    """A CI log is often 80 columns wide: the long phasors fold, while every frequency still shows whole
+    (rich used to squeeze the frequency column to nothing there)."""
+    from rich.console import Console
+
+    from crosscheck.report.results_text import comparison_table
+    from crosscheck.values import format_eng
+
+    result = results[0]
+    console = Console(width=80, record=True, file=io.StringIO())
+    console.print(comparison_table(result))
+    text = console.export_text()
+    assert max(len(line) for line in text.splitlines()) <= 80
+    for p in result.points:
+        assert format_eng(p.freq_hz, 4, " Hz") in text, (p.freq_hz, text)

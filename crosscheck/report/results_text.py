@@ -36,7 +36,11 @@ def comparison_table(result: CaseResult) -> Table:
     table = Table(title=f"{result.title}  [dim]({result.name}, port {result.port[0]} → {result.port[1]})[/]",
                   title_justify="left")
     for h in ("f", "qty", "crosscheck", "ngspice", "err", "verdict"):
-        table.add_column(h, justify="right" if h in ("f", "err") else "left", no_wrap=h != "f")
+        # On a narrow terminal (80 columns, a CI log) the long phasors fold; the frequency, quantity, error
+        # and verdict always show whole (rich otherwise squeezed the frequency column to nothing).
+        folds = h in ("crosscheck", "ngspice")
+        table.add_column(h, justify="right" if h in ("f", "err") else "left", no_wrap=not folds,
+                         overflow="fold" if folds else "ellipsis")
     for p in result.points:
         for i, q in enumerate(p.quantities):
             table.add_row(format_eng(p.freq_hz, 4, " Hz") if i == 0 else "", q.quantity, _z(q.own, UNITS[q.quantity]),
