@@ -222,24 +222,16 @@ class Numeric:
 
     def solve(self, b: np.ndarray, adjoint: bool = False) -> np.ndarray:
         """A⁻¹·b (or A⁻ᴴ·b) for one vector or a block of columns; ``b`` is not changed."""
+        s = self._symbolic
         b = np.asarray(b, dtype=complex)
         x = np.array(b.reshape(b.shape[0], -1), dtype=complex, order="F")  # a copy: KLU overwrites it
-        self.solve_in_place(x, adjoint)
-        return x.reshape(b.shape)
-
-    def solve_in_place(self, x: np.ndarray, adjoint: bool = False) -> None:
-        """Overwrite ``x`` (complex, one vector or column-major columns) with A⁻¹·x, or A⁻ᴴ·x: no copy, for
-        a sweep that reuses its buffers."""
-        if x.dtype != np.complex128 or not x.flags.f_contiguous or x.shape[0] != self._symbolic.n:
-            raise ValueError("solve_in_place needs a column-major complex128 array with one row per unknown")
-        s = self._symbolic
-        columns = x.size // s.n if s.n else 0
         if adjoint:
-            ok = self._tsolve(s._handle, self._handle, s.n, columns, x.ctypes.data, 1, self._common_ref)
+            ok = self._tsolve(s._handle, self._handle, s.n, x.shape[1], x.ctypes.data, 1, self._common_ref)
         else:
-            ok = self._solve(s._handle, self._handle, s.n, columns, x.ctypes.data, self._common_ref)
+            ok = self._solve(s._handle, self._handle, s.n, x.shape[1], x.ctypes.data, self._common_ref)
         if not ok:
             raise _error("klu_z_solve", self._common)
+        return x.reshape(b.shape)
 
     def __del__(self) -> None:
         if getattr(self, "_handle", None):

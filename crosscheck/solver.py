@@ -320,7 +320,7 @@ class MnaSystem:
         else:
             chunks = [freqs[i:i + SWEEP_CHUNK] for i in range(0, len(freqs), SWEEP_CHUNK)]
         threads = 1
-        if len(chunks) > 1 and self.size >= THREADS_FROM:
+        if len(chunks) > 1:  # only from THREADS_FROM unknowns
             threads = min(len(chunks), self.sweep_threads or default_threads())
         if threads > 1:
             parts = list(_thread_pool(threads).map(lambda chunk: self._sweep(chunk, rhs, estimate_condition), chunks))
@@ -431,7 +431,8 @@ class MnaSystem:
         wanted = self.sparse_backend or sparse_backends.default_backend()
         if self._analysis is None or self._analysis.name != wanted:
             self._analysis = sparse_backends.analyse(self._pattern, wanted)
-            self._entry_columns = np.repeat(np.arange(self.size), np.diff(self._pattern.indptr))
+            # C ints, as the compiled loop reads them (so no chain copies them); bincount takes them too.
+            self._entry_columns = np.repeat(np.arange(self.size, dtype=np.intc), np.diff(self._pattern.indptr))
 
     def _norms(self, a: sp.csc_matrix, out: np.ndarray | None = None) -> tuple[float, float]:
         """‖a‖₁ and ‖a‖∞ (largest column and row sums of |a|), from the stored entries in two bincounts;
