@@ -26,7 +26,7 @@ test-full: $(STAMP) system-libs
 	$(BIN)/python -m pytest -p no:cacheprovider --hypothesis-profile=full
 
 bench: $(STAMP) system-libs
-	$(BIN)/python -m crosscheck.bench
+	$(BIN)/python benchmarks/bench.py
 
 fuzz-full: $(STAMP) system-libs
 	$(BIN)/crosscheck fuzz --count 10000 --seed 1 --out out/fuzz
@@ -57,7 +57,7 @@ $(BIN)/python:
 	    echo "Python's venv module is missing. Run: sudo apt-get install -y python3-venv"; exit 1; \
 	  fi; }
 
-$(STAMP): $(BIN)/python pyproject.toml crosscheck/_sweep_kernel.c | system-libs
+$(STAMP): $(BIN)/python pyproject.toml crosscheck/own/_sweep_kernel.c | system-libs
 	$(BIN)/python -m pip install -q --upgrade pip
 	$(BIN)/python -m pip install -q -e '.[test]'
 	@touch $(STAMP)
@@ -65,4 +65,4 @@ $(STAMP): $(BIN)/python pyproject.toml crosscheck/_sweep_kernel.c | system-libs
 venv: $(STAMP)
 
 clean:
-	rm -rf $(VENV) out .pytest_cache .hypothesis build *.egg-info crosscheck/*.so
+	rm -rf $(VENV) out .pytest_cache .hypothesis build *.egg-info crosscheck/*.so crosscheck/*/*.so

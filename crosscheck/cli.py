@@ -9,7 +9,7 @@ import sys
 from pathlib import Path
 from typing import Sequence
 
-from .errors import CrosscheckError
+from crosscheck.errors import CrosscheckError
 
 # Exit codes (documented in the README).
 EXIT_OK = 0           # every compared quantity within tolerance (or nothing to compare)
@@ -29,7 +29,7 @@ _FORMAT_BY_EXTENSION = {".json": "json", ".xml": "junit", ".csv": "csv", ".html"
 
 
 def _parser() -> argparse.ArgumentParser:
-    from . import __version__
+    from crosscheck.version import __version__
 
     top = argparse.ArgumentParser(
         prog="crosscheck",
@@ -89,7 +89,7 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _fuzz_parser(sub) -> None:
-    from .generate import ALL_KINDS, FAMILIES, MIXED
+    from crosscheck.fuzz.generate import ALL_KINDS, FAMILIES, MIXED
 
     fuzz = sub.add_parser("fuzz", help="random networks through both engines; shrinks what disagrees")
     fuzz.add_argument("--count", type=int, default=100, metavar="N", help="how many networks (default 100)")
@@ -138,7 +138,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _frequencies(texts: Sequence[str]) -> list[float]:
-    from .values import parse_number
+    from crosscheck.model.values import parse_number
 
     freqs = []
     for text in texts:
@@ -150,7 +150,7 @@ def _frequencies(texts: Sequence[str]) -> list[float]:
 
 
 def _tolerance(args: argparse.Namespace):
-    from .tolerance import SOLVER_VS_SPICE, Tolerance
+    from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 
     if args.rel is None:
         return SOLVER_VS_SPICE
@@ -171,7 +171,7 @@ def _phase_option(text: str) -> float | str:
 
 
 def _expect_tolerance(args: argparse.Namespace):
-    from .tolerance import HAND_CALCULATION, Tolerance
+    from crosscheck.model.tolerance import HAND_CALCULATION, Tolerance
 
     rel = HAND_CALCULATION.rel if args.expect_rel is None else args.expect_rel
     phase = {None: HAND_CALCULATION.phase_deg, "none": None}.get(args.expect_phase, args.expect_phase)
@@ -202,11 +202,11 @@ def exit_code(verdicts: Sequence[str]) -> int:
 def _reduce(args: argparse.Namespace) -> int:
     from rich.console import Console
 
-    from .check import case_from_netlist, run_cases
-    from .report.equivalents_json import equivalents_document
-    from .report.equivalents_text import print_equivalents
-    from .report.results_json import case_document, results_document
-    from .report.results_text import print_results
+    from crosscheck.run.check import case_from_netlist, run_cases
+    from crosscheck.report.equivalents_json import equivalents_document
+    from crosscheck.report.equivalents_text import print_equivalents
+    from crosscheck.report.results_json import case_document, results_document
+    from crosscheck.report.results_text import print_results
 
     freqs = _frequencies(args.freq)
     try:
@@ -226,7 +226,7 @@ def _reduce(args: argparse.Namespace) -> int:
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
-        from .workers import SpicePool
+        from crosscheck.spice.workers import SpicePool
 
         with SpicePool(workers=1) as pool:
             [result] = run_cases([case], engine="both", pool=pool)
@@ -235,7 +235,7 @@ def _reduce(args: argparse.Namespace) -> int:
     source_note = f"Sources as written in the netlist, taken as {args.sources.upper()} phasors."
     if args.format == "json":
         if args.engine == "own":
-            from .network import Port
+            from crosscheck.model.network import Port
 
             doc = equivalents_document(_network_title(result), Port(*result.port), result.own, args.sources,
                                        source_file=str(args.netlist))
@@ -244,7 +244,7 @@ def _reduce(args: argparse.Namespace) -> int:
             doc.update({"port": list(result.port), "points": case_document(result)["points"],
                         "verdict": result.verdict})
         if expectations:
-            from .report.results_json import checks_document
+            from crosscheck.report.results_json import checks_document
 
             doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
         json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
@@ -256,8 +256,8 @@ def _reduce(args: argparse.Namespace) -> int:
         if args.engine != "own":
             print_results(console, [result], detail=True)
         elif expectations:
-            from .caution import CAUTION
-            from .report.results_text import print_checks
+            from crosscheck.report.caution import CAUTION
+            from crosscheck.report.results_text import print_checks
 
             print_checks(console, result, detail=True)
             console.print(f"[dim]Caution: {CAUTION}[/]")
@@ -266,7 +266,7 @@ def _reduce(args: argparse.Namespace) -> int:
 
 def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
     """--expect options as expectations; a malformed one is a usage error."""
-    from .expectations import ExpectOptionError, expectations_from_options
+    from crosscheck.judge.expectations import ExpectOptionError, expectations_from_options
 
     if not args.expect:
         return ()
@@ -277,7 +277,7 @@ def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
 
 
 def _network_title(result):
-    from .network import Network
+    from crosscheck.model.network import Network
 
     return Network(result.title, ())
 
@@ -293,7 +293,7 @@ class _AlreadyReported(Exception):
 
 
 def _read_text(path: Path) -> str:
-    from .netlist import read_netlist_text
+    from crosscheck.model.netlist import read_netlist_text
 
     return read_netlist_text(path)
 
@@ -302,10 +302,10 @@ def _verify(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
-    from .batch import run_batch
-    from .cases import find_case_files, load_case
-    from .check import case_from_netlist
-    from .report.results_text import print_results
+    from crosscheck.run.batch import run_batch
+    from crosscheck.model.cases import find_case_files, load_case
+    from crosscheck.run.check import case_from_netlist
+    from crosscheck.report.results_text import print_results
 
     if args.update_baseline and args.baseline is None:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)",
@@ -361,14 +361,14 @@ def _baseline(args: argparse.Namespace):
     """The stored baseline to compare with, or None (none asked for, or it is about to be rewritten)."""
     if args.baseline is None or args.update_baseline:
         return None
-    from .baseline import load_baseline
+    from crosscheck.judge.baseline import load_baseline
 
     return load_baseline(args.baseline)
 
 
 def _update_baseline(args: argparse.Namespace, results) -> None:
     """Write the baseline explicitly and say what changed (to stderr when stdout carries a report file format)."""
-    from .baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
+    from crosscheck.judge.baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
 
     old = load_baseline(args.baseline) if args.baseline.exists() else None
     new, kept = updated_baseline(results, args.baseline, old)
@@ -388,23 +388,23 @@ def verify_format(given: str | None, output: Path | None) -> str:
 def render_report(fmt: str, results) -> str:
     """The report text in one of the file formats (everything but the terminal's text)."""
     if fmt == "json":
-        from .report.results_json import results_document
+        from crosscheck.report.results_json import results_document
 
         return json.dumps(results_document(results), indent=2, ensure_ascii=False) + "\n"
     if fmt == "junit":
-        from .report.junit import junit_xml
+        from crosscheck.report.junit import junit_xml
 
         return junit_xml(results)
     if fmt == "csv":
-        from .report.csv_out import csv_report
+        from crosscheck.report.csv_out import csv_report
 
         return csv_report(results)
     if fmt == "html":
-        from .report.html import html_report
+        from crosscheck.report.html import html_report
 
         return html_report(results)
     if fmt == "markdown":
-        from .report.markdown import markdown_report
+        from crosscheck.report.markdown import markdown_report
 
         return markdown_report(results)
     raise ValueError(f"format must be one of {VERIFY_FORMATS} (got {fmt!r})")
@@ -422,9 +422,9 @@ def _fuzz(args: argparse.Namespace) -> int:
     """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
     from rich.console import Console
 
-    from .fuzz import FuzzOptions, run_fuzz
-    from .generate import Knobs
-    from .report.fuzz_summary import fuzz_progress, print_summary, summary_document
+    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
+    from crosscheck.fuzz.generate import Knobs
+    from crosscheck.report.fuzz_summary import fuzz_progress, print_summary, summary_document
 
     try:
         knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)
@@ -437,7 +437,7 @@ def _fuzz(args: argparse.Namespace) -> int:
         if executor is None:
             summary = run_fuzz(options, on_progress=advance)
         else:
-            from .batch import run_fuzz_batch
+            from crosscheck.run.batch import run_fuzz_batch
 
             summary = run_fuzz_batch(options, executor, on_progress=advance)
     if args.format == "json":
@@ -454,7 +454,7 @@ def _executor(address: str | None):
 
     if address is None:
         return nullcontext(None)
-    from .batch import cluster_executor
+    from crosscheck.run.batch import cluster_executor
 
     return cluster_executor(address)
 

@@ -19,9 +19,9 @@ settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))
 def _ngspice_problem() -> str | None:
     """None when ngspice's shared library loads; otherwise why not."""
     try:
-        from crosscheck.reference import ngspice_available
+        from crosscheck.spice.engine import ngspice_available
     except ImportError as exc:  # the reference module is missing or broken: a real failure
-        return f"crosscheck.reference cannot be imported: {exc}"
+        return f"crosscheck.spice.engine cannot be imported: {exc}"
     return ngspice_available()
 
 

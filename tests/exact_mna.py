@@ -29,7 +29,7 @@ from sympy.polys.domains import QQ, QQ_I
 from sympy.polys.matrices import DomainMatrix
 from sympy.polys.matrices.exceptions import DMNonInvertibleMatrixError
 
-from crosscheck.network import GROUND, Element, Network, Port
+from crosscheck.model.network import GROUND, Element, Network, Port
 
 _ZERO = QQ_I(0, 0)
 _ONE = QQ_I(1, 0)

@@ -7,20 +7,12 @@ from pathlib import Path
 
 import pytest
 
-from crosscheck.baseline import (
-    BaselineError,
-    case_key,
-    diff_baselines,
-    format_changes,
-    load_baseline,
-    updated_baseline,
-    write_baseline,
-)
-from crosscheck.cases import load_case
-from crosscheck.check import run_cases
+from crosscheck.judge.baseline import BaselineError, case_key, diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
+from crosscheck.model.cases import load_case
+from crosscheck.run.check import run_cases
 from crosscheck.cli import EXIT_DRIFT, EXIT_ERROR, EXIT_FAIL, EXIT_OK, EXIT_UNAVAILABLE, EXIT_USAGE, exit_code, main
-from crosscheck.compare import worst
-from crosscheck.tolerance import BASELINE
+from crosscheck.judge.compare import worst
+from crosscheck.model.tolerance import BASELINE
 
 RC = "rc\nV1 in 0 AC 1 30\nR1 in out 1k\nC1 out 0 1u\n.end\n"
 RL = "rl\nV1 in 0 AC 2\nR1 in out 50\nL1 out 0 1m\n.end\n"

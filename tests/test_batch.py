@@ -14,14 +14,14 @@ from pathlib import Path
 
 import pytest
 
-from crosscheck.batch import cluster_executor, run_batch, run_fuzz_batch, windowed
-from crosscheck.cases import find_case_files, load_case
-from crosscheck.check import case_from_netlist
+from crosscheck.run.batch import cluster_executor, run_batch, run_fuzz_batch, windowed
+from crosscheck.model.cases import find_case_files, load_case
+from crosscheck.run.check import case_from_netlist
 from crosscheck.errors import CrosscheckError
-from crosscheck.fuzz import FuzzOptions, run_fuzz
-from crosscheck.generate import case_seed, generate_case
-from crosscheck.netlist import write_netlist
-from crosscheck.workers import FAULT_ENV
+from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
+from crosscheck.fuzz.generate import case_seed, generate_case
+from crosscheck.model.netlist import write_netlist
+from crosscheck.spice.workers import FAULT_ENV
 
 CORPUS = Path(__file__).resolve().parent.parent / "corpus"
 DIVIDER = "{title}\nV1 s 0 AC 10\nR1 s a 1k\nR2 a 0 {r2}\n.end\n"
@@ -178,8 +178,8 @@ def test_fuzz_batch_stops_after_failures_and_shrinks_like_a_local_run(monkeypatc
     same case as the local loop under the same fault, and shrink that case to a smaller one that still fails."""
     from concurrent.futures import ThreadPoolExecutor
 
-    from crosscheck import batch, fuzz
-    from crosscheck.faults import injected
+    from crosscheck.run import batch; from crosscheck.fuzz import loop as fuzz
+    from crosscheck.fuzz.faults import injected
 
     fault = "capacitor-inverted"
     real_task, real_finish = batch._fuzz_task, fuzz.finish

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from crosscheck.cases import MAX_POINTS, find_case_files, load_case
+from crosscheck.model.cases import MAX_POINTS, find_case_files, load_case
 from crosscheck.errors import CaseFileError
 
 NETLIST = "divider\nV1 in 0 DC 0 AC 1\nR1 in out 1k\nC1 out 0 1u\n.end\n"

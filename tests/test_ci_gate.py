@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 
 from crosscheck import cli
-from crosscheck.caution import CAUTION
+from crosscheck.report.caution import CAUTION
 
 ROOT = Path(__file__).resolve().parents[1]
 GATE = ROOT / "ci" / "crosscheck-gate.sh"

@@ -6,16 +6,9 @@ import math
 
 import pytest
 
-from crosscheck.compare import (
-    EngineAnswer,
-    compare_point,
-    compare_quantity,
-    magnitude_error_pct,
-    phase_difference_deg,
-    worst,
-)
-from crosscheck.equivalent import Equivalent
-from crosscheck.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
+from crosscheck.judge.compare import EngineAnswer, compare_point, compare_quantity, magnitude_error_pct, phase_difference_deg, worst
+from crosscheck.own.equivalent import Equivalent
+from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 
 
 def _eq(vth=1 + 1j, zth=50 + 5j, cond=10.0, v_scale=1.0, z_scale=50.0) -> Equivalent:

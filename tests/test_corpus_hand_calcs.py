@@ -20,10 +20,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from crosscheck.cases import Case, load_case
-from crosscheck.equivalent import Equivalent, thevenin
-from crosscheck.netlist import read_netlist
-from crosscheck.network import GROUND, Network, Port, floating_reference
+from crosscheck.model.cases import Case, load_case
+from crosscheck.own.equivalent import Equivalent, thevenin
+from crosscheck.model.netlist import read_netlist
+from crosscheck.model.network import GROUND, Network, Port, floating_reference
 
 ROOT = Path(__file__).resolve().parent.parent
 CORPUS = ROOT / "corpus"
@@ -278,8 +278,8 @@ def test_fault_level_case_follows_the_stated_method(corpus) -> None:
 @pytest.mark.spice
 def test_corpus_passes_solver_against_spice() -> None:
     """`crosscheck verify corpus`: every case's equivalents agree with ngspice within the case's own tolerance."""
-    from crosscheck.check import run_cases
-    from crosscheck.workers import SpicePool
+    from crosscheck.run.check import run_cases
+    from crosscheck.spice.workers import SpicePool
 
     with SpicePool(workers=2) as pool:
         results = run_cases([load_case(p) for p in CASE_FILES], engine="both", pool=pool)

@@ -13,9 +13,9 @@ import math
 
 import pytest
 
-from crosscheck.equivalent import ElementForm, thevenin
+from crosscheck.own.equivalent import ElementForm, thevenin
 from crosscheck.errors import NetworkError, PortError, SingularNetworkError
-from crosscheck.network import Element, Network, Port, make_element, validate
+from crosscheck.model.network import Element, Network, Port, make_element, validate
 
 REL = 1e-12
 

@@ -20,11 +20,11 @@ import numpy as np
 from exact_mna import ExactEquivalent, exact_thevenin
 from hypothesis import example, given
 
-from crosscheck.equivalent import Equivalent, thevenin
+from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.errors import SingularNetworkError
-from crosscheck.network import Network, Port, floating_reference, make_element
-from crosscheck.solver import MnaSystem
-from crosscheck.strategies import frequencies, network_and_port
+from crosscheck.model.network import Network, Port, floating_reference, make_element
+from crosscheck.own.solver import MnaSystem
+from crosscheck.fuzz.strategies import frequencies, network_and_port
 
 #: Points with a reported 1-norm condition at or above this are not compared.
 COND_LIMIT = 1e8

@@ -9,20 +9,14 @@ from dataclasses import replace
 
 import pytest
 
-from crosscheck.cases import Expectation, load_case
-from crosscheck.check import case_from_netlist, run_cases
+from crosscheck.model.cases import Expectation, load_case
+from crosscheck.run.check import case_from_netlist, run_cases
 from crosscheck.cli import EXIT_FAIL, EXIT_OK, EXIT_USAGE, main
-from crosscheck.equivalent import thevenin
-from crosscheck.expectations import (
-    ExpectOptionError,
-    check_expectations,
-    deviation,
-    expectations_from_options,
-    quantity_value,
-)
-from crosscheck.netlist import read_netlist
-from crosscheck.network import Port
-from crosscheck.tolerance import HAND_CALCULATION, Tolerance
+from crosscheck.own.equivalent import thevenin
+from crosscheck.judge.expectations import ExpectOptionError, check_expectations, deviation, expectations_from_options, quantity_value
+from crosscheck.model.netlist import read_netlist
+from crosscheck.model.network import Port
+from crosscheck.model.tolerance import HAND_CALCULATION, Tolerance
 
 #: ω = 1 rad/s, so that impedances in ohms are element values (L = X, C = 1/|X|).
 F_UNIT = 1.0 / (2.0 * math.pi)

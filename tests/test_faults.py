@@ -6,12 +6,12 @@ from __future__ import annotations
 import pytest
 from rich.console import Console
 
-from crosscheck import faults
-from crosscheck.equivalent import thevenin
-from crosscheck.faults import FAULTS, injected
-from crosscheck.fuzz import FuzzOptions, run_fuzz
-from crosscheck.netlist import read_netlist
-from crosscheck.network import Port
+from crosscheck.fuzz import faults
+from crosscheck.own.equivalent import thevenin
+from crosscheck.fuzz.faults import FAULTS, injected
+from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
+from crosscheck.model.netlist import read_netlist
+from crosscheck.model.network import Port
 from crosscheck.report.fuzz_summary import print_summary, summary_document
 
 #: A small network per fault on which it must show (each needs its element: G, K, L or C, two nodes).

@@ -7,15 +7,15 @@ import json
 
 import pytest
 
-from crosscheck.cases import load_case
-from crosscheck.check import load_network
+from crosscheck.model.cases import load_case
+from crosscheck.run.check import load_network
 from crosscheck.cli import main
-from crosscheck.compare import compare_quantity
-from crosscheck.faults import injected
-from crosscheck.fuzz import EXPLAINED_PHRASES, FuzzOptions, recheck, run_fuzz
-from crosscheck.generate import Knobs
-from crosscheck.tolerance import SOLVER_VS_SPICE
-from crosscheck.workers import SpicePool
+from crosscheck.judge.compare import compare_quantity
+from crosscheck.fuzz.faults import injected
+from crosscheck.fuzz.loop import EXPLAINED_PHRASES, FuzzOptions, recheck, run_fuzz
+from crosscheck.fuzz.generate import Knobs
+from crosscheck.model.tolerance import SOLVER_VS_SPICE
+from crosscheck.spice.workers import SpicePool
 
 #: The CI run: at least 300 networks, seeded.
 CI_COUNT = 300

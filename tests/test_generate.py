@@ -11,21 +11,11 @@ from collections import Counter
 import pytest
 from hypothesis import given
 
-from crosscheck.equivalent import thevenin
-from crosscheck.generate import (
-    FAMILIES,
-    SEED_STRIDE,
-    TRAITS,
-    GeneratedCase,
-    Knobs,
-    case_seed,
-    generate_case,
-    generate_cases,
-    well_posed,
-)
-from crosscheck.netlist import read_netlist, write_netlist
-from crosscheck.network import GROUND, validate
-from crosscheck.strategies import family_network_and_port, frequencies, generated_cases, ports
+from crosscheck.own.equivalent import thevenin
+from crosscheck.fuzz.generate import FAMILIES, SEED_STRIDE, TRAITS, GeneratedCase, Knobs, case_seed, generate_case, generate_cases, well_posed
+from crosscheck.model.netlist import read_netlist, write_netlist
+from crosscheck.model.network import GROUND, validate
+from crosscheck.fuzz.strategies import family_network_and_port, frequencies, generated_cases, ports
 
 PER_FAMILY = 80
 

@@ -16,14 +16,14 @@ def _modules_after(statement: str) -> set[str]:
 
 def test_solver_imports_neither_pyspice_nor_pandas():
     """Importing the solver and equivalents must not pull in PySpice or pandas (STYLE.md rule 1)."""
-    loaded = _modules_after("import crosscheck.equivalent, crosscheck.solver")
+    loaded = _modules_after("import crosscheck.own.equivalent, crosscheck.own.solver")
     assert not any(m == "PySpice" or m.startswith("PySpice.") for m in loaded)
     assert "pandas" not in loaded
 
 
 def test_import_crosscheck_does_not_load_pyspice():
     """`import crosscheck` works without ngspice: PySpice is imported only inside reference's functions."""
-    loaded = _modules_after("import crosscheck, crosscheck.netlist, crosscheck.cases, crosscheck.check")
+    loaded = _modules_after("import crosscheck, crosscheck.model.netlist, crosscheck.model.cases, crosscheck.run.check")
     assert not any(m == "PySpice" or m.startswith("PySpice.") for m in loaded)
 
 
@@ -34,7 +34,7 @@ def test_only_reference_imports_pyspice():
     root = Path(crosscheck.__file__).parent
     offenders = [p.relative_to(root).as_posix() for p in root.rglob("*.py")
                  if "import PySpice" in p.read_text() or "from PySpice" in p.read_text()]
-    assert offenders == ["reference.py"]
+    assert offenders == ["spice/engine.py"]
 
 
 def test_public_api_matches_all():

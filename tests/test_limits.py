@@ -8,12 +8,12 @@ from dataclasses import replace
 
 import pytest
 
-from crosscheck.cases import Limit, load_case
-from crosscheck.check import case_from_netlist, run_cases
-from crosscheck.equivalent import thevenin
-from crosscheck.limits import check_limit, evaluate
-from crosscheck.netlist import read_netlist
-from crosscheck.network import Port
+from crosscheck.model.cases import Limit, load_case
+from crosscheck.run.check import case_from_netlist, run_cases
+from crosscheck.own.equivalent import thevenin
+from crosscheck.judge.limits import check_limit, evaluate
+from crosscheck.model.netlist import read_netlist
+from crosscheck.model.network import Port
 
 # RC low-pass: V_th = 1/(1 + jωRC), Z_th = R/(1 + jωRC), R = 1 kΩ, C = 1 µF
 # (published: D. H. Johnson, OpenStax CNX m0030, exact at every frequency).

@@ -11,10 +11,9 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from crosscheck.errors import Location, NetlistError, NetworkError, ValueSyntaxError
-from crosscheck.netlist import (MAX_SUBCKT_DEPTH, format_element, read_netlist, read_netlist_file,
-                                read_netlist_file_with_notes, read_netlist_with_notes, write_netlist)
-from crosscheck.network import Element, Network, Port, make_element, validate
-from crosscheck.params import evaluate
+from crosscheck.model.netlist import MAX_SUBCKT_DEPTH, format_element, read_netlist, read_netlist_file, read_netlist_file_with_notes, read_netlist_with_notes, write_netlist
+from crosscheck.model.network import Element, Network, Port, make_element, validate
+from crosscheck.model.params import evaluate
 
 DATA = Path(__file__).parent / "data" / "netlists"
 
@@ -98,8 +97,8 @@ def test_realistic_netlist_round_trips(bridge_text: str, tmp_path: Path) -> None
 def test_ngspice_reads_the_original_as_we_do(bridge_text: str) -> None:
     """ngspice reading the original file (its own .param, units and subcircuit flattening) and ngspice reading
     our written netlist give the same vectors, under the same flattened names: the reader means what SPICE means."""
-    from crosscheck.reference import Engine
-    from crosscheck.spice_deck import Deck
+    from crosscheck.spice.engine import Engine
+    from crosscheck.spice.deck import Deck
 
     sweep = ".ac lin 3 10 100k"
     original = bridge_text.replace(".ac dec 20 10 100k", sweep).replace(".print ac v(adc)\n", "")

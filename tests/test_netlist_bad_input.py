@@ -13,10 +13,9 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-import crosscheck.netlist as netlist_module
+import crosscheck.model.netlist as netlist_module
 from crosscheck.errors import CrosscheckError, NetlistError, NetworkError
-from crosscheck.netlist import (MAX_ELEMENTS, MAX_LINE_CHARS, MAX_SUBCKT_DEPTH, read_netlist, read_netlist_file,
-                                read_netlist_text)
+from crosscheck.model.netlist import MAX_ELEMENTS, MAX_LINE_CHARS, MAX_SUBCKT_DEPTH, read_netlist, read_netlist_file, read_netlist_text
 
 OK = "V1 a 0 AC 1\nR1 a 0 1k\n"  # a valid body that bad cards are added to
 

@@ -13,13 +13,12 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from crosscheck import faults
-from crosscheck.bench import build
+from crosscheck.fuzz import faults
+from crosscheck.fuzz.large import build
 from crosscheck.errors import NetworkError, PortError
-from crosscheck.netlist import read_netlist
-from crosscheck.network import (GROUND, Element, Network, Port, _check_each_element, _elements_look_clean,
-                                check_port, floating_reference, make_element, validate)
-from crosscheck.solver import MnaSystem
+from crosscheck.model.netlist import read_netlist
+from crosscheck.model.network import GROUND, Element, Network, Port, _check_each_element, _elements_look_clean, check_port, floating_reference, make_element, validate
+from crosscheck.own.solver import MnaSystem
 
 #: Every kind, a control-only pair (E, G), a coupled pair (K) and a current-controlled pair (F, H).
 EVERY_KIND = """every kind

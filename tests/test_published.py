@@ -15,9 +15,9 @@ import math
 import numpy as np
 import pytest
 
-from crosscheck.equivalent import Equivalent, thevenin
-from crosscheck.network import Element, Network, Port, make_element, validate
-from crosscheck.solver import MnaSystem
+from crosscheck.own.equivalent import Equivalent, thevenin
+from crosscheck.model.network import Element, Network, Port, make_element, validate
+from crosscheck.own.solver import MnaSystem
 
 #: f for ω = 1 rad/s.
 F_UNIT = 1.0 / (2.0 * math.pi)

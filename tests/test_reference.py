@@ -17,10 +17,10 @@ import numpy as np
 import pytest
 
 from crosscheck.errors import EngineUnavailableError, NetworkError, ReferenceEngineError
-from crosscheck.network import Network, Port, make_element as el
-from crosscheck.reference import SpicePoint, SpiceResult, ngspice_available, route_mismatch, spice_equivalent
-from crosscheck.spice_deck import analysis_cards, build_combined_deck, build_deck, port_is_voltage_defined
-from crosscheck.workers import SpicePool
+from crosscheck.model.network import Network, Port, make_element as el
+from crosscheck.spice.engine import SpicePoint, SpiceResult, ngspice_available, route_mismatch, spice_equivalent
+from crosscheck.spice.deck import analysis_cards, build_combined_deck, build_deck, port_is_voltage_defined
+from crosscheck.spice.workers import SpicePool
 
 #: ngspice against an exact formula: double-precision agreement, with room for conditioning.
 EXACT = 1e-9
@@ -617,9 +617,9 @@ def test_ngspice_errors_carry_ngspice_words(tmp_path):
     """A deck ngspice rejects raises ReferenceEngineError quoting ngspice's own lines (deck corrupted on purpose)."""
     script = textwrap.dedent("""
         import dataclasses
-        from crosscheck import reference
+        from crosscheck.spice import engine as reference
         from crosscheck.errors import ReferenceEngineError
-        from crosscheck.network import Network, Port, make_element as el
+        from crosscheck.model.network import Network, Port, make_element as el
 
         real = reference.build_deck
         def corrupted(*args, **kwargs):
@@ -643,7 +643,7 @@ def test_ngspice_errors_carry_ngspice_words(tmp_path):
 
 def test_importing_the_reference_modules_does_not_import_pyspice():
     """PySpice is imported only inside functions, so crosscheck imports where ngspice is absent."""
-    script = ("import sys, crosscheck, crosscheck.reference, crosscheck.workers, crosscheck.spice_deck; "
+    script = ("import sys, crosscheck, crosscheck.spice.engine, crosscheck.spice.workers, crosscheck.spice.deck; "
               "print(sorted(m for m in sys.modules if m.lower().startswith('pyspice')))")
     out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, timeout=120, check=True)
     assert out.stdout.strip() == "[]", out.stdout + out.stderr

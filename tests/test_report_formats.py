@@ -19,13 +19,13 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from crosscheck.cases import load_case
-from crosscheck.caution import CAUTION
-from crosscheck.check import CaseResult, run_cases
+from crosscheck.model.cases import load_case
+from crosscheck.report.caution import CAUTION
+from crosscheck.run.check import CaseResult, run_cases
 from crosscheck.cli import verify_format
-from crosscheck.compare import EngineAnswer, compare_point, worst
+from crosscheck.judge.compare import EngineAnswer, compare_point, worst
 from crosscheck.errors import CaseFileError
-from crosscheck.judgements import DriftCheck
+from crosscheck.judge.records import DriftCheck
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.csv_out import csv_report
 from crosscheck.report.frame import COLUMNS, findings, verdict_frame
@@ -328,7 +328,7 @@ def test_comparison_table_keeps_its_frequencies_on_an_80_column_terminal(results
     from rich.console import Console
 
     from crosscheck.report.results_text import comparison_table
-    from crosscheck.values import format_eng
+    from crosscheck.model.values import format_eng
 
     result = results[0]
     console = Console(width=80, record=True, file=io.StringIO())

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import pytest
 
-from crosscheck.equivalent import thevenin
-from crosscheck.faults import injected
-from crosscheck.generate import Knobs, generate_cases, well_posed
-from crosscheck.network import Network, Port, make_element, validate
-from crosscheck.shrink import shrink, size_of
+from crosscheck.own.equivalent import thevenin
+from crosscheck.fuzz.faults import injected
+from crosscheck.fuzz.generate import Knobs, generate_cases, well_posed
+from crosscheck.model.network import Network, Port, make_element, validate
+from crosscheck.fuzz.shrink import shrink, size_of
 
 #: Relative difference that counts as "the fault shows": far above roundoff (~1e-12 on these networks).
 SHOWS = 1e-6

@@ -14,14 +14,14 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from crosscheck.cases import Expectation
-from crosscheck.check import case_from_netlist, run_cases
-from crosscheck.equivalent import thevenin
-from crosscheck.expectations import deviation
-from crosscheck.netlist import read_netlist
-from crosscheck.network import Port
-from crosscheck.slips import capacitors_conjugated, dependent_sources_zeroed, diagnose
-from crosscheck.tolerance import HAND_CALCULATION
+from crosscheck.model.cases import Expectation
+from crosscheck.run.check import case_from_netlist, run_cases
+from crosscheck.own.equivalent import thevenin
+from crosscheck.judge.expectations import deviation
+from crosscheck.model.netlist import read_netlist
+from crosscheck.model.network import Port
+from crosscheck.judge.slips import capacitors_conjugated, dependent_sources_zeroed, diagnose
+from crosscheck.model.tolerance import HAND_CALCULATION
 
 F = 1e3
 R1, C1, L1, R2 = 100.0, 1e-6, 10e-3, 150.0

@@ -1,6 +1,6 @@
 """The sparse path of the MNA solver: back ends, symbolic reuse, condition estimate, singular points, assembly.
 
-Networks come from the benchmark's four topology families (``crosscheck.bench.build``), at sizes just
+Networks come from the benchmark's four topology families (``crosscheck.fuzz.large.build``), at sizes just
 above ``DENSE_LIMIT`` so that the sparse path runs while numpy's dense LU stays a cheap reference.
 """
 
@@ -11,14 +11,13 @@ import math
 import numpy as np
 import pytest
 
-from crosscheck import sparse_backends
-from crosscheck.bench import FAMILIES, build
+from crosscheck.own import sparse_backends
+from crosscheck.fuzz.large import FAMILIES, build
 from crosscheck.errors import SingularNetworkError
-from crosscheck.faults import injected
-from crosscheck.generate import Knobs, generate_case
-from crosscheck.network import Element, floating_reference
-from crosscheck.solver import (DENSE_LIMIT, REFINE_ABOVE, SWEEP_CHUNK, THREADS_FROM, THREADS_VAR, MnaSystem,
-                              default_threads)
+from crosscheck.fuzz.faults import injected
+from crosscheck.fuzz.generate import Knobs, generate_case
+from crosscheck.model.network import Element, floating_reference
+from crosscheck.own.solver import DENSE_LIMIT, REFINE_ABOVE, SWEEP_CHUNK, THREADS_FROM, THREADS_VAR, MnaSystem, default_threads
 
 EPS = float(np.finfo(float).eps)
 SWEEP = tuple(100.0 * 10 ** (i / 3) for i in range(13))  # 100 Hz to 1 MHz, 3 per decade
@@ -233,7 +232,7 @@ def test_a_pivot_order_that_goes_bad_is_replaced(monkeypatch, compiled):
 def test_klu_binding_solves_factors_and_estimates_like_dense_lapack():
     """The ctypes binding (crosscheck.klu_library) against numpy on one matrix: solve, adjoint solve,
     refactorization on new values, and a singular matrix refused."""
-    from crosscheck import klu_library
+    from crosscheck.own import klu_library
 
     library = klu_library.load()
     if library is None:
@@ -270,7 +269,7 @@ def sp_csc(rows):
 def test_every_klu_library_found_is_usable_or_skipped_by_name():
     """Debian's libklu1 and kvxopt's copy differ in release; each that loads must read KLU's defaults back
     (its struct layout recognised), and a library whose layout is not recognised is not used."""
-    from crosscheck import klu_library
+    from crosscheck.own import klu_library
 
     loaded = []
     for path in klu_library.library_paths():
@@ -287,7 +286,7 @@ def test_every_klu_library_found_is_usable_or_skipped_by_name():
 
 def test_a_klu_library_of_unknown_layout_is_not_used(monkeypatch):
     """When no layout reads the defaults back, the library is refused and SuperLU is the only back end."""
-    from crosscheck import klu_library
+    from crosscheck.own import klu_library
 
     monkeypatch.setattr(klu_library, "_reads_defaults", lambda common: False)
     klu_library.load.cache_clear()
@@ -321,7 +320,7 @@ def test_a_threaded_sweep_gives_the_same_numbers_as_one_thread(monkeypatch):
 
 def test_a_klu_failure_that_is_not_a_zero_pivot_says_what_it_is():
     """KLU's statuses other than 'singular' (out of memory, too large) are not reported as a singular network."""
-    from crosscheck import klu_library
+    from crosscheck.own import klu_library
 
     library = klu_library.load()
     if library is None:
@@ -341,7 +340,7 @@ def test_backward_error_with_a_subnormal_scale_is_finite_and_silent():
     warning, which the tests raise as errors) and come out finite."""
     import scipy.sparse as sp
 
-    from crosscheck.solver import _backward_error
+    from crosscheck.own.solver import _backward_error
 
     a = sp.csc_matrix(np.diag([0.005, 0.005]).astype(complex))
     b = np.array([[0.0, -1.0], [1.94174325e-313j, 0.0]])

@@ -1,4 +1,4 @@
-"""The compiled sweep loop (crosscheck/_sweep_kernel.c) against the Python loop it stands in for.
+"""The compiled sweep loop (crosscheck/own/_sweep_kernel.c) against the Python loop it stands in for.
 
 The Python loop in ``MnaSystem._sweep`` is the reference: with the same KLU factorizations the compiled
 loop must give the same solutions bit for bit, the same condition estimates to rounding, and hand back
@@ -12,11 +12,11 @@ import shutil
 import numpy as np
 import pytest
 
-from crosscheck import sparse_backends, sweep_kernel
-from crosscheck.bench import FAMILIES, build
+from crosscheck.own import sparse_backends, sweep_kernel
+from crosscheck.fuzz.large import FAMILIES, build
 from crosscheck.errors import SingularNetworkError
-from crosscheck.network import Element
-from crosscheck.solver import MnaSystem
+from crosscheck.model.network import Element
+from crosscheck.own.solver import MnaSystem
 
 SWEEP = tuple(100.0 * 10 ** (i / 4) for i in range(21))  # 100 Hz to 10 MHz, 4 per decade
 
@@ -35,7 +35,7 @@ def _kernel_or_fail():
             pytest.skip("no C compiler: the compiled sweep loop is not built and the Python loop runs alone "
                         "(apt-get install gcc libc6-dev, then pip install -e . again, to test it)")
         pytest.fail("the compiled sweep loop is not built although a C compiler is installed; run "
-                    "`pip install -v -e .` again (it builds crosscheck/_sweep_kernel.c; the log says what failed, "
+                    "`pip install -v -e .` again (it builds crosscheck/own/_sweep_kernel.c; the log says what failed, "
                     "often missing C headers: apt-get install libc6-dev)")
 
 

@@ -20,11 +20,11 @@ import numpy as np
 from hypothesis import assume, given
 from hypothesis import strategies as st
 
-from crosscheck.equivalent import Equivalent, thevenin
+from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.errors import SingularNetworkError
-from crosscheck.network import Element, Network, Port, floating_reference, make_element
-from crosscheck.solver import MnaSystem
-from crosscheck.strategies import CENTRES, frequencies, network_and_port, networks, ports
+from crosscheck.model.network import Element, Network, Port, floating_reference, make_element
+from crosscheck.own.solver import MnaSystem
+from crosscheck.fuzz.strategies import CENTRES, frequencies, network_and_port, networks, ports
 
 COND_LIMIT = 1e8
 REL_TOL = 1e-9

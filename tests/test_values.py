@@ -10,7 +10,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from crosscheck.errors import ValueSyntaxError
-from crosscheck.values import format_eng, format_polar, format_rect, parse_number, parse_phasor
+from crosscheck.model.values import format_eng, format_polar, format_rect, parse_number, parse_phasor
 
 # published: Ngspice User's Manual (H. Vogt et al.), §2.1.1 "Some naming conventions", Table 2.2
 # "Ngspice scale factors" and the paragraph after it (10V, 10Hz, M is milli, meg is mega).

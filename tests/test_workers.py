@@ -1,6 +1,6 @@
 """Isolation of ngspice in worker processes: a crash or a hang costs one case, and nothing leaks in.
 
-Faults are injected on purpose through ``crosscheck.workers.FAULT_TITLES``, which a worker honours
+Faults are injected on purpose through ``crosscheck.spice.workers.FAULT_TITLES``, which a worker honours
 only when ``CROSSCHECK_TEST_FAULTS=1`` is set in the parent at submit time.
 """
 
@@ -15,9 +15,9 @@ import textwrap
 import pytest
 
 from crosscheck.errors import CrosscheckError, NetworkError, ReferenceEngineError
-from crosscheck.network import Network, Port, make_element as el
-from crosscheck.reference import SpiceResult
-from crosscheck.workers import FAULT_ENV, FAULT_TITLES, SpicePool, _worker_environment
+from crosscheck.model.network import Network, Port, make_element as el
+from crosscheck.spice.engine import SpiceResult
+from crosscheck.spice.workers import FAULT_ENV, FAULT_TITLES, SpicePool, _worker_environment
 
 #: ngspice against an exact formula (a resistive divider): double-precision agreement.
 EXACT = 1e-9
@@ -147,7 +147,7 @@ def test_planted_spiceinit_would_run_without_the_sandbox(tmp_path):
     """Control for the test above: ngspice started directly in that directory does execute the .spiceinit."""
     marker = tmp_path / "ran"
     (tmp_path / ".spiceinit").write_text(SPICEINIT.format(marker=marker))
-    script = "from crosscheck.reference import Engine; Engine()"
+    script = "from crosscheck.spice.engine import Engine; Engine()"
     subprocess.run([sys.executable, "-c", script], cwd=tmp_path, check=True, timeout=120,
                    env={**os.environ, "HOME": str(tmp_path)}, capture_output=True)
     assert marker.exists()
@@ -171,7 +171,7 @@ def test_worker_runs_in_its_own_empty_directory(tmp_path):
     """The worker process's cwd is a fresh empty directory, not the caller's (checked from inside the worker)."""
     script = textwrap.dedent(f"""
         import os, sys
-        from crosscheck.workers import _Worker, _Settings
+        from crosscheck.spice.workers import _Worker, _Settings
         w = _Worker(lambda d: _Settings(d, None, 1 << 30, 10.0, 10), 60.0)
         cwd = os.readlink(f"/proc/{{w.process.pid}}/cwd")
         env = open(f"/proc/{{w.process.pid}}/environ", "rb").read().split(b"\\0")

@@ -11,9 +11,9 @@ from __future__ import annotations
 import math
 from typing import Sequence
 
-from ..check import CaseResult
-from ..equivalent import Equivalent
-from ..values import format_eng, format_polar
+from crosscheck.run.check import CaseResult
+from crosscheck.own.equivalent import Equivalent
+from crosscheck.model.values import format_eng, format_polar
 
 
 def representative(result: CaseResult) -> Equivalent | None:

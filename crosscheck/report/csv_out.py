@@ -14,9 +14,9 @@ from typing import Sequence
 
 import pandas as pd
 
-from ..caution import CAUTION
-from ..check import CaseResult
-from .frame import COLUMNS, verdict_frame
+from crosscheck.report.caution import CAUTION
+from crosscheck.run.check import CaseResult
+from crosscheck.report.frame import COLUMNS, verdict_frame
 
 
 def csv_report(results: Sequence[CaseResult]) -> str:

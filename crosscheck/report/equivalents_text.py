@@ -7,9 +7,9 @@ from typing import Sequence
 from rich.console import Console
 from rich.table import Table
 
-from ..caution import CAUTION
-from ..equivalent import ElementForm, Equivalent
-from ..values import format_eng, format_polar, format_rect
+from crosscheck.report.caution import CAUTION
+from crosscheck.own.equivalent import ElementForm, Equivalent
+from crosscheck.model.values import format_eng, format_polar, format_rect
 
 
 def _form(form: ElementForm | None, series: bool) -> str:

@@ -18,10 +18,10 @@ from typing import Mapping, Sequence
 
 import pandas as pd
 
-from ..check import CaseResult
-from ..compare import UNITS, VERDICTS
-from ..judgements import DriftCheck, ExpectationCheck, LimitCheck
-from ..values import format_eng, format_polar
+from crosscheck.run.check import CaseResult
+from crosscheck.judge.compare import UNITS, VERDICTS
+from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck
+from crosscheck.model.values import format_eng, format_polar
 
 COLUMNS = ["case", "title", "port", "check", "freq_hz", "quantity", "own_re", "own_im", "spice_re", "spice_im",
            "expected_re", "expected_im", "limit_min", "limit_max", "band_lo_hz", "band_hi_hz", "margin",

@@ -11,9 +11,9 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, ProgressColum
 from rich.table import Table
 from rich.text import Text
 
-from ..compare import COMPARED
-from ..faults import FAULTS
-from ..fuzz import CaseOutcome, FuzzSummary, regenerate_command
+from crosscheck.judge.compare import COMPARED
+from crosscheck.fuzz.faults import FAULTS
+from crosscheck.fuzz.loop import CaseOutcome, FuzzSummary, regenerate_command
 
 #: How many explained cases the terminal lists (the JSON lists all).
 _SHOWN = 10

@@ -13,14 +13,14 @@ import math
 from collections import Counter
 from typing import Sequence
 
-from ..caution import CAUTION
-from ..check import CaseResult
-from ..compare import UNITS
-from ..values import format_eng, format_polar
-from .circuit_drawing import equivalent_svg, representative
-from .frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
-from .plots import case_figure_png, is_swept
-from .results_json import ngspice_version
+from crosscheck.report.caution import CAUTION
+from crosscheck.run.check import CaseResult
+from crosscheck.judge.compare import UNITS
+from crosscheck.model.values import format_eng, format_polar
+from crosscheck.report.circuit_drawing import equivalent_svg, representative
+from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
+from crosscheck.report.plots import case_figure_png, is_swept
+from crosscheck.report.results_json import ngspice_version
 
 _STYLE = """
 body { font-family: system-ui, sans-serif; margin: 1.5em auto; max-width: 72em; color: #222; padding: 0 1em; }
@@ -164,7 +164,7 @@ def _case_section(i: int, r: CaseResult) -> str:
 
 def html_report(results: Sequence[CaseResult], title: str = "crosscheck report") -> str:
     """The whole report as one HTML document (UTF-8 text)."""
-    from .. import __version__
+    from crosscheck.version import __version__
 
     counts = Counter(r.verdict for r in results)
     overall = overall_verdict([r.verdict for r in results])

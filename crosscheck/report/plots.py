@@ -14,8 +14,8 @@ from typing import Sequence
 
 import numpy as np
 
-from ..check import CaseResult
-from ..judgements import LimitCheck
+from crosscheck.run.check import CaseResult
+from crosscheck.judge.records import LimitCheck
 
 #: A case needs at least this many frequencies to be drawn as a sweep.
 MIN_SWEEP_POINTS = 3

@@ -6,11 +6,11 @@ import math
 from collections import Counter
 from typing import Any, Sequence
 
-from ..caution import CAUTION
-from ..check import CaseResult
-from ..compare import VERDICTS
-from .equivalents_json import own_point
-from .phasor_json import phasor
+from crosscheck.report.caution import CAUTION
+from crosscheck.run.check import CaseResult
+from crosscheck.judge.compare import VERDICTS
+from crosscheck.report.equivalents_json import own_point
+from crosscheck.report.phasor_json import phasor
 
 
 def _num(x: float) -> Any:
@@ -107,7 +107,7 @@ def summary(results: Sequence[CaseResult]) -> dict[str, int]:
 
 
 def results_document(results: Sequence[CaseResult]) -> dict[str, Any]:
-    from .. import __version__
+    from crosscheck.version import __version__
 
     return {
         "crosscheck_version": __version__,

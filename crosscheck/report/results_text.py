@@ -9,10 +9,10 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from ..caution import CAUTION
-from ..check import CaseResult
-from ..values import format_eng, format_polar
-from .results_json import ngspice_version, summary
+from crosscheck.report.caution import CAUTION
+from crosscheck.run.check import CaseResult
+from crosscheck.model.values import format_eng, format_polar
+from crosscheck.report.results_json import ngspice_version, summary
 
 STYLE = {"pass": "green", "fail": "bold red", "error": "bold magenta", "unavailable": "yellow", "drift": "bold yellow"}
 
@@ -62,7 +62,7 @@ def summary_table(results: Sequence[CaseResult]) -> Table:
 def expectation_table(result: CaseResult, detail: bool, wide: bool = True) -> Table | None:
     """Hand-calculated values against crosscheck's solver; without ``detail`` only the ones not passing.
     A narrow table leaves the slip out: the explanation printed under the table names it."""
-    from ..expectations import format_value
+    from crosscheck.judge.expectations import format_value
 
     rows = [e for e in result.expectations if detail or e.verdict != "pass"]
     if not rows:
@@ -83,7 +83,7 @@ def expectation_table(result: CaseResult, detail: bool, wide: bool = True) -> Ta
 
 def limit_table(result: CaseResult, detail: bool) -> Table | None:
     """Design limits: worst point and margin; without ``detail`` only the ones not passing."""
-    from ..limits import unit
+    from crosscheck.judge.limits import unit
 
     rows = [lim for lim in result.limits if detail or lim.verdict != "pass"]
     if not rows:

@@ -1,0 +1,1 @@
+"""Fuzzing: seeded random networks, Hypothesis strategies, the fuzz loop, shrinking, deliberate faults for tests."""

@@ -1,0 +1,101 @@
+"""Large networks of four topology families (ladder, tree, grid, random), for benchmarks and scale tests.
+
+Each family has a known shape of sparsity: a ladder is near-tridiagonal, a tree has no loops, a grid's
+factors fill in, a random geometric graph has irregular fill. Values are drawn from one seeded generator.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Callable
+
+import numpy as np
+
+from crosscheck.model.network import Element, Network, Port, _UnionFind
+
+FAMILIES = ("ladder", "tree", "grid", "random")
+
+
+
+def build(family: str, nodes: int, seed: int = 1) -> tuple[Network, Port]:
+    """A network of ``family`` with ``nodes`` non-ground nodes (a grid rounds to a square), and its port."""
+    rng = np.random.default_rng(seed)
+    builders: dict[str, Callable] = {"ladder": _ladder, "tree": _tree, "grid": _grid, "random": _random}
+    if family not in builders:
+        raise ValueError(f"family {family!r} is unknown; choose from {', '.join(FAMILIES)}")
+    elements, port = builders[family](nodes, rng)
+    return Network(f"bench {family} {nodes}", tuple(elements)), port
+
+
+def _el(name: str, kind: str, a: str, b: str, value: float = 0.0, ac: float = 0.0) -> Element:
+    return Element(name, kind, (a, b), float(value), ac_mag=ac)
+
+
+def _reactive(name: str, kind: str, a: str, b: str, rng) -> Element:
+    value = rng.uniform(1e-9, 1e-7) if kind == "C" else rng.uniform(1e-5, 1e-3)
+    return _el(f"{kind.lower()}{name}", kind, a, b, value)
+
+
+def _ladder(n: int, rng) -> tuple[list[Element], Port]:
+    out = [_el("v1", "V", "n1", "0", ac=1.0)]
+    for i in range(1, n):
+        a, b = f"n{i}", f"n{i + 1}"
+        out.append(_el(f"r{i}", "R", a, b, rng.uniform(1.0, 100.0)))
+        out.append(_reactive(str(i), "C" if i % 2 else "L", b, "0", rng))
+        out.append(_el(f"rs{i}", "R", b, "0", rng.uniform(1e3, 1e5)))
+    return out, Port(f"n{n}", "0")
+
+
+def _tree(n: int, rng) -> tuple[list[Element], Port]:
+    out = [_el("v1", "V", "t1", "0", ac=1.0)]
+    for i in range(2, n + 1):
+        parent = int(rng.integers(max(1, i - 50), i))
+        out.append(_el(f"r{i}", "R", f"t{parent}", f"t{i}", rng.uniform(1.0, 100.0)))
+        out.append(_reactive(str(i), "C" if i % 2 else "L", f"t{i}", "0", rng))
+        if i % 3 == 0:
+            out.append(_el(f"rs{i}", "R", f"t{i}", "0", rng.uniform(1e3, 1e5)))
+    return out, Port(f"t{n}", "0")
+
+
+def _grid(n: int, rng) -> tuple[list[Element], Port]:
+    side = max(2, round(math.sqrt(n)))
+    out = [_el("v1", "V", "g0_0", "0", ac=1.0)]
+    for r in range(side):
+        for c in range(side):
+            here = f"g{r}_{c}"
+            if c + 1 < side:
+                out.append(_el(f"rh{r}_{c}", "R", here, f"g{r}_{c + 1}", rng.uniform(1.0, 100.0)))
+            if r + 1 < side:
+                out.append(_el(f"rv{r}_{c}", "R", here, f"g{r + 1}_{c}", rng.uniform(1.0, 100.0)))
+            if (r + c) % 3 == 1:
+                out.append(_reactive(f"{r}_{c}", "C", here, "0", rng))
+            elif (r + c) % 3 == 2:
+                out.append(_el(f"rs{r}_{c}", "R", here, "0", rng.uniform(1e3, 1e5)))
+    return out, Port(f"g{side - 1}_{side - 1}", "0")
+
+
+def _random(n: int, rng) -> tuple[list[Element], Port]:
+    from scipy.spatial import cKDTree
+
+    points = rng.random((n, 2))
+    _, near = cKDTree(points).query(points, 4)
+    edges = sorted({(min(i, int(j)), max(i, int(j))) for i in range(n) for j in near[i, 1:]})
+    out = [_el("v1", "V", "x0", "0", ac=1.0)]
+    for m, (a, b) in enumerate(edges):
+        kind = "RRLC"[m % 4]
+        if kind == "R":
+            out.append(_el(f"r{m}", "R", f"x{a}", f"x{b}", rng.uniform(1.0, 1e3)))
+        else:
+            out.append(_reactive(str(m), kind, f"x{a}", f"x{b}", rng))
+    for i in range(0, n, 5):
+        out.append(_el(f"rs{i}", "R", f"x{i}", "0", rng.uniform(1e3, 1e5)))
+    joined = _UnionFind()
+    for e in out:
+        joined.union(*e.terminals)
+    for i in range(n):  # a cluster of points far from the rest: tie it to ground
+        if joined.find(f"x{i}") != joined.find("0"):
+            out.append(_el(f"rj{i}", "R", f"x{i}", "0", 1e4))
+            joined.union(f"x{i}", "0")
+    return out, Port(f"x{n - 1}", "0")
+
+

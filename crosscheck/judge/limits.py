@@ -1,0 +1,122 @@
+"""Design limits: ``function(quantity)`` within [min, max] at every computed frequency of a band.
+
+A limit is a requirement, not a measurement: it has no tolerance. It is judged
+only at the frequencies the case computes (its list or sweep), so a band with
+no computed frequency cannot be judged and says so. The worst point is the one
+with the least margin, the distance inside (+) or outside (−) the nearest bound
+in the function's own unit (the quantity's unit, degrees for phase, dB for db).
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+from typing import Sequence
+
+from crosscheck.model.cases import Case, Limit
+from crosscheck.own.equivalent import Equivalent
+from crosscheck.judge.records import LimitCheck
+from crosscheck.model.values import format_eng
+
+UNITS = {"vth": "V", "zth": "Ω", "in": "A", "yn": "S"}
+
+#: A frequency this close (relative) to a band edge counts as inside the band.
+EDGE = 1e-9
+
+
+def evaluate(function: str, value: complex) -> float:
+    """abs and re/im in the quantity's unit, phase in degrees in (−180, 180], db = 20·log10|q|."""
+    if function == "abs":
+        return abs(value)
+    if function == "re":
+        return value.real
+    if function == "im":
+        return value.imag
+    if function == "phase":
+        angle = math.degrees(cmath.phase(value)) if value != 0 else 0.0
+        return 180.0 if angle == -180.0 else angle
+    if function == "db":
+        return 20.0 * math.log10(abs(value)) if value != 0 else -math.inf
+    raise ValueError(f"unknown limit function {function!r}; use abs, phase, re, im or db")
+
+
+def unit(function: str, quantity: str) -> str:
+    return {"phase": "°", "db": "dB"}.get(function, UNITS[quantity])
+
+
+def margin(value: float, minimum: float | None, maximum: float | None) -> float:
+    """Distance to the nearest bound: positive inside, negative outside."""
+    gaps = []
+    if minimum is not None:
+        gaps.append(value - minimum)
+    if maximum is not None:
+        gaps.append(maximum - value)
+    return min(gaps)
+
+
+def _bounds(limit: Limit, u: str) -> str:
+    lo = "" if limit.minimum is None else f"{format_eng(limit.minimum, 4, ' ' + u)} <= "
+    hi = "" if limit.maximum is None else f" <= {format_eng(limit.maximum, 4, ' ' + u)}"
+    return f"{lo}{limit.text}{hi}"
+
+
+def _in_band(f: float, band: tuple[float, float] | None) -> bool:
+    if band is None:
+        return True
+    low, high = band
+    return low * (1 - EDGE) <= f <= high * (1 + EDGE)
+
+
+def _quantity(eq: Equivalent, quantity: str) -> complex | None:
+    return {"vth": eq.vth, "zth": eq.zth, "in": eq.in_, "yn": eq.yn}[quantity]
+
+
+def check_limit(limit: Limit, own_equivalents: Sequence[Equivalent]) -> LimitCheck:
+    """One limit over its band: pass, fail (with the worst point and how far out), or unavailable (why)."""
+    u = unit(limit.function, limit.quantity)
+    band_text = ("every computed frequency" if limit.band is None else
+                 f"{format_eng(limit.band[0], 4, ' Hz')} to {format_eng(limit.band[1], 4, ' Hz')}")
+    head = f"{_bounds(limit, u)} over {band_text}"
+
+    def result(verdict: str, worst_f=None, worst_v=None, m=None, why: str = "", values=()) -> LimitCheck:
+        return LimitCheck(limit.index, limit.text, limit.function, limit.quantity, limit.minimum, limit.maximum,
+                          limit.band, worst_f, worst_v, m, verdict, why, tuple(values))
+
+    if limit.band is not None and limit.band[0] > limit.band[1]:
+        return result("unavailable", why=f"{head}: the band's low edge is above its high edge; write [low, high]")
+    points = [eq for eq in own_equivalents if _in_band(eq.freq_hz, limit.band)]
+    if not points:
+        return result("unavailable", why=f"{head}: no computed frequency lies in the band; add frequencies "
+                                         "(or a sweep) that cover it")
+    values: list[tuple[float, float]] = []
+    missing: list[tuple[float, str]] = []
+    for eq in points:
+        q = _quantity(eq, limit.quantity)
+        if q is None:
+            missing.append((eq.freq_hz, eq.note or f"no {limit.quantity} at this port"))
+        else:
+            values.append((eq.freq_hz, evaluate(limit.function, q)))
+    if not values:
+        f, why = missing[0]
+        return result("unavailable", why=f"{head}: {limit.quantity} does not exist at any frequency of the band "
+                                         f"(at {format_eng(f, 4, ' Hz')}: {why})")
+    worst_f, worst_v = min(values, key=lambda fv: margin(fv[1], limit.minimum, limit.maximum))
+    m = margin(worst_v, limit.minimum, limit.maximum)
+    where = f"worst at {format_eng(worst_f, 4, ' Hz')}: {format_eng(worst_v, 5, ' ' + u)}"
+    if m < 0 or math.isnan(m):
+        outside = sum(1 for _, v in values if not margin(v, limit.minimum, limit.maximum) >= 0)
+        return result("fail", worst_f, worst_v, m,
+                      f"{head}: not met at {outside} of {len(values)} frequencies; {where}, "
+                      f"{format_eng(-m, 4, ' ' + u)} outside the bound", values)
+    if missing:
+        f, why = missing[0]
+        return result("unavailable", worst_f, worst_v, m,
+                      f"{head}: met where it exists ({where}, margin {format_eng(m, 4, ' ' + u)}), but "
+                      f"{limit.quantity} does not exist at {len(missing)} frequency(ies) of the band "
+                      f"(at {format_eng(f, 4, ' Hz')}: {why})", values)
+    return result("pass", worst_f, worst_v, m, f"{head}: met; {where}, margin {format_eng(m, 4, ' ' + u)}", values)
+
+
+def check_limits(case: Case, own_equivalents: Sequence[Equivalent]) -> list[LimitCheck]:
+    """Every [[limit]] of the case, in file order."""
+    return [check_limit(limit, own_equivalents) for limit in case.limits]

@@ -1,0 +1,261 @@
+"""Run a batch of cases on this machine or on any ``concurrent.futures`` executor, a Dask cluster included.
+
+A task is the whole check of one case (own solver, ngspice, comparison) and
+runs inside the executor's worker. Each worker process keeps one ngspice
+engine alive between its tasks: a one-worker ``SpicePool`` created on first use
+(``worker_pool``), so ngspice runs under the same sandbox as on this machine
+(an empty working directory, a private HOME, no SPICE_* or NGSPICE_*
+variables, memory and time limits) and a case that crashes or hangs ngspice
+costs only that case. A task that loses its whole worker process (the
+executor says so through its future) becomes an ``error`` result for that case
+alone.
+
+With no executor the local default runs: the own solver in this process and
+ngspice in a ``SpicePool`` of ``workers`` processes (``check.run_cases``).
+``python -m crosscheck.bench`` measures it against a process pool of whole-case
+tasks; the local default was the faster (see the README's benchmark section).
+
+Results come back in the order given whatever order the workers finish in;
+the own solver and ngspice are deterministic, so a cluster run gives the same
+numbers and verdicts as a local run of the same cases.
+"""
+
+from __future__ import annotations
+
+import atexit
+import threading
+from collections import deque
+from concurrent.futures import Executor, Future
+from contextlib import contextmanager
+from typing import Any, Callable, Iterable, Iterator, Sequence
+
+from crosscheck.model.cases import Case
+from crosscheck.run.check import ENGINES, CaseResult, case_verdict, run_cases
+from crosscheck.errors import CrosscheckError, EngineUnavailableError
+from crosscheck.model.tolerance import SOLVER_VS_SPICE
+
+#: Tasks kept in flight per executor: enough to keep a cluster busy, bounded so that a million cases
+#: never sit in memory (or in the scheduler) at once.
+DEFAULT_WINDOW = 512
+
+_POOL = None
+_POOL_LOCK = threading.Lock()
+
+
+def worker_pool(timeout_s: float = 60.0):
+    """This process's own one-worker ``SpicePool``, kept alive between tasks (started on first use)."""
+    global _POOL
+    from crosscheck.spice.workers import SpicePool
+
+    with _POOL_LOCK:
+        if _POOL is None:
+            _POOL = SpicePool(workers=1, timeout_s=timeout_s)
+            atexit.register(_POOL.close)
+        return _POOL
+
+
+def check_case(item: Case, engine: str = "both", timeout_s: float = 60.0) -> CaseResult:
+    """The whole check of one case in this process: the task that executors run.
+
+    ngspice runs in this process's ``worker_pool``; a baseline, if any, is applied by the caller.
+    """
+    pool = worker_pool(timeout_s) if engine in ("spice", "both") else None
+    result = run_cases([item], engine=engine, pool=pool)[0]
+    return _travel_light(result)
+
+
+def _travel_light(result: CaseResult) -> CaseResult:
+    """Drop what the caller already has or never reads (the decks ngspice ran), so results cross the wire fast."""
+    from dataclasses import replace
+
+    spice = result.spice
+    if spice is not None and getattr(spice, "decks", ()):
+        result.spice = replace(spice, decks=())
+    return result
+
+
+def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Executor | None = None, *,
+              engine: str = "both", workers: int | None = None, timeout_s: float = 60.0, baseline=None,
+              on_done: Callable[[CaseResult], None] | None = None, window: int = DEFAULT_WINDOW) -> list[CaseResult]:
+    """Check every case; results in the order given.
+
+    ``executor``: any ``concurrent.futures.Executor`` whose workers can import crosscheck (a
+    ``ProcessPoolExecutor``, or ``distributed.Client(address).get_executor()``). None runs the local
+    default: the own solver here and ngspice in ``workers`` sandboxed processes (default: all cores).
+    An item may be ``(name, error)`` for a case file that could not be read: it becomes an ``error``
+    result here, without a task. ``baseline`` (``baseline.Baseline``) is held against each result here,
+    after its task, so it is never shipped to the workers.
+    """
+    if engine not in ENGINES:
+        raise ValueError(f"engine must be one of {ENGINES} (got {engine!r})")
+    if executor is None:
+        from crosscheck.spice.workers import SpicePool
+
+        if engine == "own":
+            return run_cases(cases, engine=engine, on_done=on_done, baseline=baseline)
+        with SpicePool(workers=workers, timeout_s=timeout_s) as pool:
+            return run_cases(cases, engine=engine, pool=pool, on_done=on_done, baseline=baseline)
+
+    results: list[CaseResult] = []
+    for item, future in windowed(executor, check_case, cases, (engine, timeout_s), window,
+                                 skip=lambda x: isinstance(x, tuple)):
+        if future is None:  # a case file that could not be read
+            result = run_cases([item], engine="own")[0]
+        else:
+            result = _outcome(item, future)
+            if baseline is not None and result.own is not None and result.error is None:
+                from crosscheck.judge.baseline import compare_with_baseline
+
+                result.drift, result.baseline_note = compare_with_baseline(result, baseline)
+                result.verdict = case_verdict(result)
+        if on_done is not None:
+            on_done(result)
+        results.append(result)
+    return results
+
+
+def _outcome(item: Case, future: Future) -> CaseResult:
+    """The task's result, or an ``error`` result naming what happened to the worker."""
+    try:
+        return future.result()
+    except EngineUnavailableError:
+        raise
+    except CrosscheckError as exc:
+        return _error(item, str(exc))
+    except Exception as exc:  # the executor lost the worker (a crash, a kill, a lost connection)
+        return _error(item, f"the worker running this case was lost ({type(exc).__name__}: {exc}); "
+                            "the other cases went on. Run this case alone to see whether it is the cause")
+
+
+def _error(item: Case, message: str) -> CaseResult:
+    return CaseResult(item.name, item.title, item.port, item.freqs_hz, item.tolerance, item.sources,
+                      error=message, verdict="error", case=item)
+
+
+def windowed(executor: Executor, fn: Callable, items: Iterable, args: tuple, window: int,
+             skip: Callable[[Any], bool] = lambda item: False) -> Iterator[tuple[Any, Future | None]]:
+    """Submit ``fn(item, *args)`` for each item, at most ``window`` ahead of the one yielded; in order.
+
+    Items for which ``skip`` is true get no task (yielded with None).
+    """
+    if window < 1:
+        raise ValueError(f"window must be at least 1 (got {window})")
+    pending: deque = deque()
+    source = iter(items)
+    exhausted = False
+    while True:
+        while not exhausted and len(pending) < window:
+            try:
+                item = next(source)
+            except StopIteration:
+                exhausted = True
+                break
+            pending.append((item, None if skip(item) else executor.submit(fn, item, *args)))
+        if not pending:
+            return
+        try:
+            yield pending.popleft()
+        except GeneratorExit:  # the caller stopped early: do not leave work queued
+            for _, future in pending:
+                if future is not None:
+                    future.cancel()
+            raise
+
+
+# --------------------------------------------------------------------------- fuzzing on an executor
+
+
+def fuzz_case(seed: int, index: int, knobs, tolerance=SOLVER_VS_SPICE, timeout_s: float = 60.0):
+    """Generate, solve with both engines and judge one fuzz case in this process (the fuzz task).
+
+    The same steps, in the same order, as ``fuzz.run_fuzz`` takes for one case. Returns the
+    ``CaseOutcome`` and the seconds the own solver took.
+    """
+    import time
+
+    from crosscheck.fuzz.loop import _result, isolate, judge, solve_own  # fuzz's own steps, so both runs judge alike
+    from crosscheck.fuzz.generate import generate_case
+
+    pool = worker_pool(timeout_s)
+    case = generate_case(seed, knobs)
+    future = pool.submit(case.network, case.port, case.freqs_hz)
+    started = time.perf_counter()
+    own, own_error = solve_own(case.network, case.port, case.freqs_hz)
+    own_s = time.perf_counter() - started
+    spice, spice_error = _result(future)
+    outcome = judge(index, case, own, own_error, spice, spice_error, tolerance)
+    if outcome.status == "fail" and not outcome.explained and len(case.freqs_hz) > 1:
+        outcome = isolate(outcome, pool, tolerance)
+    return outcome, own_s
+
+
+def run_fuzz_batch(options, executor: Executor, on_progress=None, window: int = DEFAULT_WINDOW):
+    """``fuzz.run_fuzz`` with each case's generation, both engines and judgement as one task on ``executor``.
+
+    Outcomes are recorded in seed order, as a local run records them; shrinking what failed runs here
+    afterwards, with a local ngspice pool (failures are few; each shrink step is a small network).
+    """
+    import time
+
+    from crosscheck.fuzz import faults
+    from crosscheck.fuzz.loop import FuzzSummary, finish, note_outcome
+
+    summary = FuzzSummary(options, tuple(sorted(faults.active)))
+    if summary.faults:
+        raise ValueError(f"faults {', '.join(summary.faults)} are on in this process only; the executor's "
+                         "workers would not see them: run fuzz with injected faults locally")
+    seeds = options.seeds()
+    started = time.perf_counter()
+    tasks = windowed(executor, _fuzz_task, enumerate(seeds), (options.knobs, options.tolerance, options.timeout_s),
+                     window)
+    for (index, seed), future in tasks:
+        outcome, own_s = future.result()
+        summary.own_s += own_s
+        if note_outcome(summary, outcome, len(seeds), options, on_progress):
+            tasks.close()
+            break
+    summary.elapsed_s = time.perf_counter() - started
+    summary.workers = _worker_count(executor)
+    return finish(summary, options)  # shrinking runs here, on a local ngspice pool
+
+
+def _fuzz_task(numbered: tuple[int, int], knobs, tolerance, timeout_s: float):
+    index, seed = numbered
+    return fuzz_case(seed, index, knobs, tolerance, timeout_s)
+
+
+def _worker_count(executor: Executor) -> int:
+    """How many workers the executor has, where it says (0 when it does not)."""
+    client = getattr(executor, "_client", None)
+    if client is not None:
+        try:
+            return len(client.scheduler_info().get("workers", {}))
+        except Exception:  # a scheduler that does not answer: the count is only for the summary
+            return 0
+    return int(getattr(executor, "_max_workers", 0) or 0)
+
+
+# --------------------------------------------------------------------------- a Dask cluster
+
+
+@contextmanager
+def cluster_executor(address: str, timeout_s: float = 30.0) -> Iterator[Executor]:
+    """An executor on the running Dask cluster at ``address`` (``tcp://host:port``); closed on leaving.
+
+    Its workers must be able to import crosscheck (the same version) and load ngspice. Tasks are
+    submitted as impure, so two identical cases still run twice and each gets its own result.
+    """
+    try:
+        from distributed import Client
+    except ImportError:
+        raise CrosscheckError("--cluster needs Dask's distributed package, which is not installed; install it "
+                              "with: pip install 'crosscheck[cluster]'") from None
+    try:
+        client = Client(address, timeout=timeout_s, set_as_default=False)
+    except (OSError, TimeoutError) as exc:
+        raise CrosscheckError(f"no Dask scheduler answered at {address!r} within {timeout_s:g} s ({exc}); "
+                              "check the address (tcp://host:port) and that the scheduler is running") from None
+    try:
+        yield client.get_executor(pure=False)
+    finally:
+        client.close()
