@@ -10,6 +10,15 @@ from pathlib import Path
 from typing import Sequence
 
 from crosscheck.errors import CrosscheckError
+from crosscheck.judge.baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
+from crosscheck.model.cases import find_case_files, load_case
+from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
+from crosscheck.model.netlist import read_netlist_text
+from crosscheck.model.network import Network, Port
+from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
+from crosscheck.model.values import parse_number
+from crosscheck.report.outputs import VERIFY_FORMATS, render_report, verify_format
+from crosscheck.version import __version__
 
 # Exit codes (documented in the README).
 EXIT_OK = 0           # every compared quantity within tolerance (or nothing to compare)
@@ -22,14 +31,8 @@ EXIT_DRIFT = 5        # nothing failed, but a result moved from the stored basel
 CLUSTER_HELP = ("run every case as a task on the Dask cluster whose scheduler is at ADDRESS (tcp://host:port); "
                 "its workers need crosscheck and ngspice installed (pip install 'crosscheck[cluster]')")
 
-# Report formats of `verify`, and the one an --output file's extension picks when --format is not given.
-VERIFY_FORMATS = ("text", "json", "junit", "csv", "html", "markdown")
-_FORMAT_BY_EXTENSION = {".json": "json", ".xml": "junit", ".csv": "csv", ".html": "html", ".htm": "html",
-                        ".md": "markdown", ".markdown": "markdown", ".txt": "text"}
-
 
 def _parser() -> argparse.ArgumentParser:
-    from crosscheck.version import __version__
 
     top = argparse.ArgumentParser(
         prog="crosscheck",
@@ -89,7 +92,7 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _fuzz_parser(sub) -> None:
-    from crosscheck.fuzz.generate import ALL_KINDS, FAMILIES, MIXED
+    from crosscheck.fuzz.generate import ALL_KINDS, FAMILIES, MIXED  # start-up time: loaded only by the commands that use it
 
     fuzz = sub.add_parser("fuzz", help="random networks through both engines; shrinks what disagrees")
     fuzz.add_argument("--count", type=int, default=100, metavar="N", help="how many networks (default 100)")
@@ -138,7 +141,6 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _frequencies(texts: Sequence[str]) -> list[float]:
-    from crosscheck.model.values import parse_number
 
     freqs = []
     for text in texts:
@@ -150,7 +152,6 @@ def _frequencies(texts: Sequence[str]) -> list[float]:
 
 
 def _tolerance(args: argparse.Namespace):
-    from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 
     if args.rel is None:
         return SOLVER_VS_SPICE
@@ -171,7 +172,6 @@ def _phase_option(text: str) -> float | str:
 
 
 def _expect_tolerance(args: argparse.Namespace):
-    from crosscheck.model.tolerance import HAND_CALCULATION, Tolerance
 
     rel = HAND_CALCULATION.rel if args.expect_rel is None else args.expect_rel
     phase = {None: HAND_CALCULATION.phase_deg, "none": None}.get(args.expect_phase, args.expect_phase)
@@ -202,11 +202,11 @@ def exit_code(verdicts: Sequence[str]) -> int:
 def _reduce(args: argparse.Namespace) -> int:
     from rich.console import Console
 
-    from crosscheck.run.check import case_from_netlist, run_cases
-    from crosscheck.report.equivalents_json import equivalents_document
-    from crosscheck.report.equivalents_text import print_equivalents
-    from crosscheck.report.results_json import case_document, results_document
-    from crosscheck.report.results_text import print_results
+    from crosscheck.run.check import case_from_netlist, run_cases  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.equivalents_json import equivalents_document  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.equivalents_text import print_equivalents  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.results_json import case_document, results_document  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
 
     freqs = _frequencies(args.freq)
     try:
@@ -226,7 +226,7 @@ def _reduce(args: argparse.Namespace) -> int:
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
-        from crosscheck.spice.workers import SpicePool
+        from crosscheck.spice.workers import SpicePool  # start-up time: loaded only by the commands that use it
 
         with SpicePool(workers=1) as pool:
             [result] = run_cases([case], engine="both", pool=pool)
@@ -235,7 +235,6 @@ def _reduce(args: argparse.Namespace) -> int:
     source_note = f"Sources as written in the netlist, taken as {args.sources.upper()} phasors."
     if args.format == "json":
         if args.engine == "own":
-            from crosscheck.model.network import Port
 
             doc = equivalents_document(_network_title(result), Port(*result.port), result.own, args.sources,
                                        source_file=str(args.netlist))
@@ -244,7 +243,7 @@ def _reduce(args: argparse.Namespace) -> int:
             doc.update({"port": list(result.port), "points": case_document(result)["points"],
                         "verdict": result.verdict})
         if expectations:
-            from crosscheck.report.results_json import checks_document
+            from crosscheck.report.results_json import checks_document  # start-up time: loaded only by the commands that use it
 
             doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
         json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
@@ -256,8 +255,8 @@ def _reduce(args: argparse.Namespace) -> int:
         if args.engine != "own":
             print_results(console, [result], detail=True)
         elif expectations:
-            from crosscheck.report.caution import CAUTION
-            from crosscheck.report.results_text import print_checks
+            from crosscheck.report.caution import CAUTION  # start-up time: loaded only by the commands that use it
+            from crosscheck.report.results_text import print_checks  # start-up time: loaded only by the commands that use it
 
             print_checks(console, result, detail=True)
             console.print(f"[dim]Caution: {CAUTION}[/]")
@@ -266,7 +265,6 @@ def _reduce(args: argparse.Namespace) -> int:
 
 def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
     """--expect options as expectations; a malformed one is a usage error."""
-    from crosscheck.judge.expectations import ExpectOptionError, expectations_from_options
 
     if not args.expect:
         return ()
@@ -277,7 +275,6 @@ def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
 
 
 def _network_title(result):
-    from crosscheck.model.network import Network
 
     return Network(result.title, ())
 
@@ -293,7 +290,6 @@ class _AlreadyReported(Exception):
 
 
 def _read_text(path: Path) -> str:
-    from crosscheck.model.netlist import read_netlist_text
 
     return read_netlist_text(path)
 
@@ -302,10 +298,9 @@ def _verify(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
-    from crosscheck.run.batch import run_batch
-    from crosscheck.model.cases import find_case_files, load_case
-    from crosscheck.run.check import case_from_netlist
-    from crosscheck.report.results_text import print_results
+    from crosscheck.run.batch import run_batch  # start-up time: loaded only by the commands that use it
+    from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
 
     if args.update_baseline and args.baseline is None:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)",
@@ -361,14 +356,12 @@ def _baseline(args: argparse.Namespace):
     """The stored baseline to compare with, or None (none asked for, or it is about to be rewritten)."""
     if args.baseline is None or args.update_baseline:
         return None
-    from crosscheck.judge.baseline import load_baseline
 
     return load_baseline(args.baseline)
 
 
 def _update_baseline(args: argparse.Namespace, results) -> None:
     """Write the baseline explicitly and say what changed (to stderr when stdout carries a report file format)."""
-    from crosscheck.judge.baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
 
     old = load_baseline(args.baseline) if args.baseline.exists() else None
     new, kept = updated_baseline(results, args.baseline, old)
@@ -376,38 +369,6 @@ def _update_baseline(args: argparse.Namespace, results) -> None:
     write_baseline(new, args.baseline)
     out = sys.stderr if args.format != "text" and not args.output else sys.stdout
     print("\n".join(lines), file=out)
-
-
-def verify_format(given: str | None, output: Path | None) -> str:
-    """The --format asked for, else the one the --output file's extension names, else text."""
-    if given is not None:
-        return given
-    return _FORMAT_BY_EXTENSION.get(output.suffix.lower(), "text") if output is not None else "text"
-
-
-def render_report(fmt: str, results) -> str:
-    """The report text in one of the file formats (everything but the terminal's text)."""
-    if fmt == "json":
-        from crosscheck.report.results_json import results_document
-
-        return json.dumps(results_document(results), indent=2, ensure_ascii=False) + "\n"
-    if fmt == "junit":
-        from crosscheck.report.junit import junit_xml
-
-        return junit_xml(results)
-    if fmt == "csv":
-        from crosscheck.report.csv_out import csv_report
-
-        return csv_report(results)
-    if fmt == "html":
-        from crosscheck.report.html import html_report
-
-        return html_report(results)
-    if fmt == "markdown":
-        from crosscheck.report.markdown import markdown_report
-
-        return markdown_report(results)
-    raise ValueError(f"format must be one of {VERIFY_FORMATS} (got {fmt!r})")
 
 
 def _emit(text: str, output: Path | None) -> None:
@@ -422,9 +383,10 @@ def _fuzz(args: argparse.Namespace) -> int:
     """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
     from rich.console import Console
 
-    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
-    from crosscheck.fuzz.generate import Knobs
-    from crosscheck.report.fuzz_summary import fuzz_progress, print_summary, summary_document
+    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: loaded only by the commands that use it
+    from crosscheck.fuzz.generate import Knobs  # start-up time: loaded only by the commands that use it
+    from crosscheck.fuzz.reproducer import summary_document  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.fuzz_summary import fuzz_progress, print_summary  # start-up time: loaded only by the commands that use it
 
     try:
         knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)
@@ -437,7 +399,7 @@ def _fuzz(args: argparse.Namespace) -> int:
         if executor is None:
             summary = run_fuzz(options, on_progress=advance)
         else:
-            from crosscheck.run.batch import run_fuzz_batch
+            from crosscheck.fuzz.batch import run_fuzz_batch  # start-up time: loaded only by the commands that use it
 
             summary = run_fuzz_batch(options, executor, on_progress=advance)
     if args.format == "json":
@@ -454,7 +416,7 @@ def _executor(address: str | None):
 
     if address is None:
         return nullcontext(None)
-    from crosscheck.run.batch import cluster_executor
+    from crosscheck.run.batch import cluster_executor  # start-up time: loaded only by the commands that use it
 
     return cluster_executor(address)
 

@@ -116,9 +116,9 @@ class CaseItem(pytest.Item):
         self.result: Any = None
 
     def setup(self) -> None:
-        from crosscheck.run.check import load_network
-        from crosscheck.model.cases import load_case
-        from crosscheck.errors import CrosscheckError
+        from crosscheck.run.check import load_network  # start-up time: pytest loads this plugin in every session
+        from crosscheck.model.cases import load_case  # start-up time: pytest loads this plugin in every session
+        from crosscheck.errors import CrosscheckError  # start-up time: pytest loads this plugin in every session
 
         problem = None
         try:
@@ -130,8 +130,8 @@ class CaseItem(pytest.Item):
             pytest.fail(problem, pytrace=False)
 
     def runtest(self) -> None:
-        from crosscheck.run.check import run_cases
-        from crosscheck.report.frame import case_reason
+        from crosscheck.run.check import run_cases  # start-up time: pytest loads this plugin in every session
+        from crosscheck.report.frame import case_reason  # start-up time: pytest loads this plugin in every session
 
         engine = self.config.getoption("crosscheck_engine")
         pool = _pool(self.config) if engine == "both" else None
@@ -157,7 +157,7 @@ class CaseItem(pytest.Item):
 
 def failure_text(result: Any, rows: int = 8) -> str:
     """A few lines a reviewer can act on: the verdict, the obtained/expected table, and why."""
-    from crosscheck.report.frame import case_reason, findings, finding_table
+    from crosscheck.report.frame import case_reason, findings, finding_table  # start-up time: pytest loads this plugin in every session
 
     found = findings(result)
     lines = [f"crosscheck: {result.verdict} — {result.title} (port {result.port[0]} → {result.port[1]})"]
@@ -179,7 +179,7 @@ def _pool(config: pytest.Config) -> Any:
     """One ngspice worker for the whole session, started on first use (items run one at a time)."""
     pool = config.stash.get(_POOL_KEY, None)
     if pool is None:
-        from crosscheck.spice.workers import SpicePool
+        from crosscheck.spice.workers import SpicePool  # start-up time: pytest loads this plugin in every session
 
         pool = SpicePool(workers=1, timeout_s=config.getoption("crosscheck_timeout"))
         pool.__enter__()

@@ -51,12 +51,12 @@ class _HasPhasors(Protocol):
     in_: complex | None
 
 
-def unit(quantity: str) -> str:
+def quantity_unit(quantity: str) -> str:
     """The SI unit of a quantity key ("vth" -> "V")."""
     return QUANTITIES[quantity].unit
 
 
-def name(quantity: str) -> str:
+def quantity_name(quantity: str) -> str:
     """The printed name of a quantity key ("vth" -> "V_th")."""
     return QUANTITIES[quantity].name
 

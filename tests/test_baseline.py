@@ -11,7 +11,7 @@ from crosscheck.judge.baseline import BaselineError, case_key, diff_baselines, f
 from crosscheck.model.cases import load_case
 from crosscheck.run.check import run_cases
 from crosscheck.cli import EXIT_DRIFT, EXIT_ERROR, EXIT_FAIL, EXIT_OK, EXIT_UNAVAILABLE, EXIT_USAGE, exit_code, main
-from crosscheck.judge.compare import worst
+from crosscheck.vocabulary import worst
 from crosscheck.model.tolerance import BASELINE
 
 RC = "rc\nV1 in 0 AC 1 30\nR1 in out 1k\nC1 out 0 1u\n.end\n"
@@ -100,7 +100,7 @@ def test_case_missing_from_baseline_is_a_note_not_a_failure(tmp_path):
     target = tmp_path / "corpus" / "baseline.json"
     write_baseline(updated_baseline(_run(paths[:1]), target)[0], target)
     rc, rl = _run(paths, load_baseline(target))
-    assert rl.drift == [] and rl.verdict == "pass"
+    assert rl.drift == () and rl.verdict == "pass"
     assert "not in the baseline" in rl.baseline_note
     assert rc.baseline_note == "" and rc.drift
 

@@ -6,7 +6,8 @@ import math
 
 import pytest
 
-from crosscheck.judge.compare import EngineAnswer, compare_point, compare_quantity, magnitude_error_pct, phase_difference_deg, worst
+from crosscheck.judge.compare import EngineAnswer, compare_point, compare_quantity, magnitude_error_pct, phase_difference_deg
+from crosscheck.vocabulary import worst
 from crosscheck.own.equivalent import Equivalent
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 

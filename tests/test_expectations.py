@@ -13,7 +13,9 @@ from crosscheck.model.cases import Expectation, load_case
 from crosscheck.run.check import case_from_netlist, run_cases
 from crosscheck.cli import EXIT_FAIL, EXIT_OK, EXIT_USAGE, main
 from crosscheck.own.equivalent import thevenin
-from crosscheck.judge.expectations import ExpectOptionError, check_expectations, deviation, expectations_from_options, quantity_value
+from crosscheck.judge.expectations import check_expectations
+from crosscheck.judge.stated import deviation, quantity_value
+from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Port
 from crosscheck.model.tolerance import HAND_CALCULATION, Tolerance

@@ -11,8 +11,8 @@ from crosscheck.model.cases import load_case
 from crosscheck.run.check import load_network
 from crosscheck.cli import main
 from crosscheck.judge.compare import compare_quantity
-from crosscheck.fuzz.faults import injected
-from crosscheck.fuzz.loop import EXPLAINED_PHRASES, FuzzOptions, recheck, run_fuzz
+from crosscheck.fuzz.loop import FuzzOptions, recheck, run_fuzz
+from crosscheck.judge.records import ROUNDOFF_CAUSES, Cause
 from crosscheck.fuzz.generate import Knobs
 from crosscheck.model.tolerance import SOLVER_VS_SPICE
 from crosscheck.spice.workers import SpicePool
@@ -52,15 +52,15 @@ def test_seeded_run_has_no_unexplained_disagreement(pool):
 def test_shrinking_an_injected_fault(pool, tmp_path):
     """With a fault on, the failing case shrinks to one that still fails and is no larger; its files are a
     ready regression case: the case file loads, and without the fault the shrunk case passes."""
-    with injected("capacitor-inverted"):
-        summary = run_fuzz(FuzzOptions(count=50, seed=2, stop_after_failures=1, out=tmp_path, shrink_budget=150),
-                           pool=pool)
-        [rep] = summary.reproducers
-        original = summary.problems[0]
-        assert rep.outcome.problem and rep.outcome.status == original.status
-        again = recheck(original.case, rep.shrunk.network, rep.shrunk.port, rep.shrunk.freqs_hz, pool,
-                        SOLVER_VS_SPICE)
-        assert again.problem
+    options = FuzzOptions(count=50, seed=2, stop_after_failures=1, out=tmp_path, shrink_budget=150,
+                          faults=("capacitor-inverted",))
+    summary = run_fuzz(options, pool=pool)
+    [rep] = summary.reproducers
+    original = summary.problems[0]
+    assert rep.outcome.problem and rep.outcome.status == original.status
+    again = recheck(original.case, rep.shrunk.network, rep.shrunk.port, rep.shrunk.freqs_hz, pool,
+                    SOLVER_VS_SPICE, route=options.own_route())
+    assert again.problem
     before, after = rep.shrunk.original_size, rep.shrunk.size
     assert all(a <= b for a, b in zip(after, before)) and after < before, (before, after)
     assert after[2] == 1  # one frequency
@@ -109,16 +109,18 @@ def test_command_line_refuses_bad_knobs(capsys):
     assert "no R, L or C" in capsys.readouterr().err
 
 
-def test_explained_phrases_match_the_comparer():
-    """The fuzz loop recognises the comparer's ill-conditioning texts; if their wording changes, this fails."""
+def test_the_comparer_gives_each_failure_a_typed_cause():
+    """A failure carries the cause the fuzz loop reads (no phrase matching): ill-conditioning and a size that
+    fits the condition are roundoff; a difference far above the condition is a modelling difference."""
     tol = SOLVER_VS_SPICE
     ill = compare_quantity("zth", 1.0 + 1e-3, 1.0, tol, condition=1e12, scale=1e-9)
     fits = compare_quantity("zth", 1.0 + 1e-5, 1.0, tol, condition=1e9, scale=1e-9)
     model = compare_quantity("zth", 1.1, 1.0, tol, condition=1.0, scale=1.0)
     assert ill.verdict == fits.verdict == model.verdict == "fail"
-    assert any(p in ill.explanation for p in EXPLAINED_PHRASES)
-    assert any(p in fits.explanation for p in EXPLAINED_PHRASES)
-    assert not any(p in model.explanation for p in EXPLAINED_PHRASES)
+    assert (ill.cause, fits.cause, model.cause) == (Cause.ILL_CONDITIONED, Cause.FITS_CONDITION,
+                                                    Cause.MODEL_DIFFERENCE)
+    assert ill.cause in ROUNDOFF_CAUSES and fits.cause in ROUNDOFF_CAUSES and model.cause not in ROUNDOFF_CAUSES
+    assert "ill-conditioned" in ill.explanation and "fits the matrix condition" in fits.explanation
 
 
 def test_options_are_checked():

@@ -163,4 +163,4 @@ def test_bare_netlist_case_has_no_limits():
     """A netlist named on the command line has no limits: nothing is judged, nothing invented."""
     case = case_from_netlist("rc.cir", RC, ("out", "0"), [1e3])
     [result] = run_cases([case], engine="own")
-    assert result.limits == [] and result.verdict == "pass"
+    assert result.limits == () and result.verdict == "pass"

@@ -7,6 +7,8 @@ The results are made without ngspice: crosscheck's own solver runs the cases, an
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import base64
 import dataclasses
 import io
@@ -21,9 +23,11 @@ import pytest
 
 from crosscheck.model.cases import load_case
 from crosscheck.report.caution import CAUTION
-from crosscheck.run.check import CaseResult, run_cases
+from crosscheck.judge.result import CaseResult
+from crosscheck.run.check import run_cases
 from crosscheck.cli import verify_format
-from crosscheck.judge.compare import EngineAnswer, compare_point, worst
+from crosscheck.judge.compare import EngineAnswer, compare_point
+from crosscheck.vocabulary import worst
 from crosscheck.errors import CaseFileError
 from crosscheck.judge.records import DriftCheck
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
@@ -53,10 +57,9 @@ def _with_spice(result: CaseResult, factor: complex = 1.0, missing: str | None =
     for eq in result.own:
         ref = None if missing else EngineAnswer(eq.freq_hz, eq.vth, eq.zth * factor, eq.in_)
         points.append(compare_point(eq, ref, result.tolerance, missing or ""))
-    result.points = points
-    result.verdict = worst([p.verdict for p in points] + [e.verdict for e in result.expectations]
-                           + [c.verdict for c in result.limits] + [d.verdict for d in result.drift])
-    return result
+    verdict = worst([p.verdict for p in points] + [e.verdict for e in result.expectations]
+                    + [c.verdict for c in result.limits] + [d.verdict for d in result.drift])
+    return replace(result, points=tuple(points), verdict=verdict)
 
 
 @pytest.fixture(scope="module")
@@ -73,14 +76,13 @@ def results(tmp_path_factory: pytest.TempPathFactory) -> list[CaseResult]:
     items = [load_case(p) for p in (passing, failing, limit, single, drifting)]
     items.append((str(filters / "broken.toml"), CaseFileError(f"{filters / 'broken.toml'}: key 'port': a|b wrong")))
     out = run_cases(items, engine="own")
-    _with_spice(out[0])
-    _with_spice(out[1], factor=1 + 1e-3)
-    _with_spice(out[2])
-    _with_spice(out[3], missing="ngspice is not installed")
+    out[0] = _with_spice(out[0])
+    out[1] = _with_spice(out[1], factor=1 + 1e-3)
+    out[2] = _with_spice(out[2])
+    out[3] = _with_spice(out[3], missing="ngspice is not installed")
     eq = out[4].own[1]
-    out[4].drift = [DriftCheck(eq.freq_hz, "zth", eq.zth * (1 + 1e-6), eq.zth, 1e-6, "drift",
-                               "Z_th moved by 1e-06 since the baseline")]
-    _with_spice(out[4])
+    out[4] = _with_spice(replace(out[4], drift=(DriftCheck(eq.freq_hz, "zth", eq.zth * (1 + 1e-6), eq.zth, 1e-6,
+                                                           "drift", "Z_th moved by 1e-06 since the baseline"),)))
     return out
 
 

@@ -17,7 +17,7 @@ import pytest
 from crosscheck.model.cases import Expectation
 from crosscheck.run.check import case_from_netlist, run_cases
 from crosscheck.own.equivalent import thevenin
-from crosscheck.judge.expectations import deviation
+from crosscheck.judge.stated import deviation
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Port
 from crosscheck.judge.slips import capacitors_conjugated, dependent_sources_zeroed, diagnose

@@ -22,20 +22,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable, Sequence
 
-from crosscheck.own.equivalent import Equivalent
 from crosscheck.errors import CrosscheckError
-from crosscheck.judge.records import DriftCheck
+from crosscheck.judge.records import Cause, DriftCheck
 from crosscheck.model.tolerance import BASELINE, Tolerance
 from crosscheck.model.values import format_eng, format_rect
+from crosscheck.own.equivalent import Equivalent
+from crosscheck.version import __version__
+from crosscheck.vocabulary import COMPARED, Verdict, quantity_name, quantity_unit, same_frequency
 
 FORMAT = "crosscheck baseline"
 FORMAT_VERSION = 1
-STORED = ("vth", "zth", "in")
-NAMES = {"vth": "V_th", "zth": "Z_th", "in": "I_N"}
-UNITS = {"vth": " V", "zth": " Ω", "in": " A"}
-
-#: Frequencies this close (relative) are the same point.
-SAME_FREQUENCY = 1e-12
+#: What a baseline stores of each point: the compared quantities.
+STORED = COMPARED
 
 
 class BaselineError(CrosscheckError, ValueError):
@@ -58,8 +56,7 @@ class StoredCase:
     points: tuple[StoredPoint, ...]
 
     def point(self, freq_hz: float) -> StoredPoint | None:
-        return next((p for p in self.points
-                     if math.isclose(p.freq_hz, freq_hz, rel_tol=SAME_FREQUENCY, abs_tol=1e-300)), None)
+        return next((p for p in self.points if same_frequency(p.freq_hz, freq_hz)), None)
 
 
 @dataclass
@@ -220,8 +217,6 @@ def updated_baseline(results: Sequence[Any], path: str | Path,
                      previous: Baseline | None = None) -> tuple[Baseline, tuple[str, ...]]:
     """The baseline this run would write, and the cases whose previous entry is kept because they
     produced no equivalents this time (an error)."""
-    from crosscheck.version import __version__
-
     new = Baseline(__version__, path=Path(path))
     kept = []
     for r in results:
@@ -248,7 +243,7 @@ def _judge(old: complex | None, new: complex | None, tol: Tolerance) -> tuple[fl
 
 def _show(q: str, z: complex | None) -> str:
     """Rectangular, 10 significant figures: a drift in either part shows."""
-    return "none" if z is None else format_rect(z, 10, UNITS[q].strip())
+    return "none" if z is None else format_rect(z, 10, quantity_unit(q))
 
 
 def drift_checks(own: Sequence[Equivalent], stored: StoredCase, tolerance: Tolerance = BASELINE,
@@ -268,11 +263,12 @@ def drift_checks(own: Sequence[Equivalent], stored: StoredCase, tolerance: Toler
             old = point.values.get(q)
             rel, ok = _judge(old, obtained, tolerance)
             text = "" if ok else (
-                f"{NAMES[q]} at {format_eng(eq.freq_hz, 6, ' Hz')} moved from {_show(q, old)} to "
+                f"{quantity_name(q)} at {format_eng(eq.freq_hz, 6, ' Hz')} moved from {_show(q, old)} to "
                 f"{_show(q, obtained)} (relative change {rel:.3g}, baseline tolerance {tolerance.rel:.3g}){why}")
-            checks.append(DriftCheck(eq.freq_hz, q, old, obtained, rel, "pass" if ok else "drift", text))
+            checks.append(DriftCheck(eq.freq_hz, q, old, obtained, rel, Verdict.PASS if ok else Verdict.DRIFT, text,
+                                     Cause.AGREES if ok else Cause.OUT_OF_TOLERANCE))
     gone = [p.freq_hz for p in stored.points if not any(
-        math.isclose(p.freq_hz, eq.freq_hz, rel_tol=SAME_FREQUENCY, abs_tol=1e-300) for eq in own)]
+        same_frequency(p.freq_hz, eq.freq_hz) for eq in own)]
     if new_freqs:
         notes.append(f"{len(new_freqs)} frequency(ies) not in the baseline (first {format_eng(new_freqs[0], 6, ' Hz')})"
                      "; add them with --update-baseline")
@@ -337,7 +333,7 @@ def format_changes(changes: BaselineChanges, path: str | Path) -> list[str]:
     lines += [f"  removed  {k}" for k in changes.removed]
     lines += [f"  kept     {k} (did not run this time; previous entry kept)" for k in changes.kept]
     lines += [f"  frequencies changed  {k}" for k in changes.points_changed]
-    lines += [f"  moved    {m.case} at {format_eng(m.freq_hz, 6, ' Hz')} {NAMES[m.quantity]}: "
+    lines += [f"  moved    {m.case} at {format_eng(m.freq_hz, 6, ' Hz')} {quantity_name(m.quantity)}: "
               f"{_show(m.quantity, m.old)} → {_show(m.quantity, m.new)} (relative change {m.rel_err:.3g})"
               for m in changes.moved]
     return lines

@@ -20,34 +20,25 @@ carries no more absolute accuracy than that, and is not held to more.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Iterable, Sequence
 
 import numpy as np
 
-from crosscheck.own.equivalent import Equivalent
+from crosscheck.judge.records import Cause, PointCheck, QuantityCheck
 from crosscheck.model.tolerance import Tolerance
+from crosscheck.own.equivalent import Equivalent
+from crosscheck.spice.engine import SpicePoint
+from crosscheck.vocabulary import COMPARED, Verdict, phasor_of, quantity_unit, worst
 
 EPS = float(np.finfo(float).eps)
 #: 1 / pivrel: ngspice's threshold pivoting may grow the error by this much beyond κ·ε·‖x‖.
 ROUNDOFF_FACTOR = 1e3
 
-#: Order of severity: a point or case takes the worst verdict of its parts. ``drift`` is a result that
-#: moved from the stored baseline (see ``baseline``): worse than a missing quantity, milder than a failure.
-VERDICTS = ("pass", "unavailable", "drift", "fail", "error")
-
-COMPARED = ("vth", "zth", "in")
-UNITS = {"vth": "V", "zth": "Ω", "in": "A", "yn": "S"}
-
-
-def worst(verdicts: Iterable[str]) -> str:
-    ranked = [VERDICTS.index(v) for v in verdicts]
-    return VERDICTS[max(ranked)] if ranked else "pass"
-
 
 @dataclass(frozen=True)
 class EngineAnswer:
-    """One engine's equivalent at one frequency; None where it has no value, with ``note`` saying why."""
+    """One engine's equivalent at one frequency, as the comparer reads it; None where there is no value."""
 
     freq_hz: float
     vth: complex | None
@@ -56,33 +47,12 @@ class EngineAnswer:
     note: str = ""
 
     def get(self, quantity: str) -> complex | None:
-        return {"vth": self.vth, "zth": self.zth, "in": self.in_}[quantity]
+        return phasor_of(self, quantity)
 
 
-@dataclass(frozen=True)
-class QuantityCheck:
-    quantity: str
-    own: complex | None
-    ref: complex | None
-    err: float          # judged error (see module docstring); nan when not compared
-    rel_err: float      # plain |Δ| / |q_ref|, for display
-    mag_err_pct: float
-    phase_err_deg: float
-    verdict: str
-    explanation: str
-
-
-@dataclass(frozen=True)
-class PointCheck:
-    freq_hz: float
-    quantities: tuple[QuantityCheck, ...]
-    verdict: str
-    explanation: str
-    condition: float
-
-
-def own_answer(eq: Equivalent) -> EngineAnswer:
-    return EngineAnswer(eq.freq_hz, eq.vth, eq.zth, eq.in_, eq.note)
+def spice_answer(point: SpicePoint) -> EngineAnswer:
+    """ngspice's answer at one point, as the comparer reads it."""
+    return EngineAnswer(point.requested_hz, point.vth, point.zth, point.isc, "; ".join(point.notes))
 
 
 def phase_difference_deg(a: complex, b: complex) -> float:
@@ -114,14 +84,15 @@ def compare_quantity(quantity: str, own: complex | None, ref: complex | None, to
     """One quantity at one frequency: judged error, display errors, verdict and the reason."""
     if own is None and ref is None:
         why = own_note or ref_note or "no value from either engine"
-        return QuantityCheck(quantity, None, None, math.nan, math.nan, math.nan, math.nan, "pass",
-                             f"both engines agree that {quantity} does not exist here: {why}")
+        return QuantityCheck(quantity, None, None, math.nan, math.nan, math.nan, math.nan, Verdict.PASS,
+                             f"both engines agree that {quantity} does not exist here: {why}", Cause.BOTH_ABSENT)
     if own is None or ref is None:
         who, why = ("crosscheck", own_note) if own is None else (ref_name, ref_note)
         if own is None and ref is not None and ref_note == "" and own_note:
             why = own_note
-        return QuantityCheck(quantity, own, ref, math.nan, math.nan, math.nan, math.nan, "unavailable",
-                             f"{who} gives no {quantity}: {why or 'no reason given'}")
+        return QuantityCheck(quantity, own, ref, math.nan, math.nan, math.nan, math.nan, Verdict.UNAVAILABLE,
+                             f"{who} gives no {quantity}: {why or 'no reason given'}",
+                             Cause.OWN_ABSENT if own is None else Cause.REFERENCE_ABSENT)
     delta = abs(own - ref)
     roundoff = ROUNDOFF_FACTOR * condition * EPS * scale if math.isfinite(condition) else 0.0
     floor = max(tol.abs, roundoff) / tol.rel if tol.rel > 0 else 0.0
@@ -132,30 +103,32 @@ def compare_quantity(quantity: str, own: complex | None, ref: complex | None, to
     phase = phase_difference_deg(own, ref)
     ok = err <= tol.rel and (tol.phase_deg is None or abs(phase) <= tol.phase_deg or abs(ref) <= tol.abs)
     if ok:
-        note = "" if rel <= tol.rel else (
-            f"agrees to the accuracy the arithmetic allows (|Δ| = {delta:.3g} {UNITS[quantity]} is within "
-            f"1e3·κ·ε·‖x‖ = {roundoff:.3g} for condition κ = {condition:.3g}; 1e3 is the growth ngspice's "
-            "threshold pivoting allows)")
-        return QuantityCheck(quantity, own, ref, err, rel, mag, phase, "pass", note)
-    return QuantityCheck(quantity, own, ref, err, rel, mag, phase, "fail",
-                         _failure_reason(quantity, err, tol, condition, mag, phase))
+        if rel <= tol.rel:
+            return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, "", Cause.AGREES)
+        note = (f"agrees to the accuracy the arithmetic allows (|Δ| = {delta:.3g} {quantity_unit(quantity)} is within "
+                f"1e3·κ·ε·‖x‖ = {roundoff:.3g} for condition κ = {condition:.3g}; 1e3 is the growth ngspice's "
+                "threshold pivoting allows)")
+        return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, note, Cause.AGREES_TO_ROUNDOFF)
+    cause, reason = _failure_reason(quantity, err, tol, condition, mag, phase)
+    return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.FAIL, reason, cause)
 
 
 def _failure_reason(quantity: str, err: float, tol: Tolerance, condition: float, mag: float,
-                    phase: float) -> str:
+                    phase: float) -> tuple[Cause, str]:
     text = (f"{quantity} differs by {err:.3g} relative (tolerance {tol.rel:.3g}); magnitude {mag:+.3g} %, "
             f"phase {phase:+.3g}°")
     attainable = condition * EPS
     if attainable > tol.rel:
-        text += (f". The network is ill-conditioned (κ = {condition:.3g}, so κ·ε = {attainable:.2g} exceeds the "
-                 "tolerance): double precision cannot promise this agreement; loosen the tolerance or rescale "
-                 "the network (very large and very small impedances side by side)")
-    elif attainable * 1e3 > err:
-        text += f". The size fits the matrix condition (κ = {condition:.3g}): likely roundoff, not a modelling error"
-    else:
-        text += (f". Far above what the condition allows (κ·ε = {attainable:.2g}): the engines model the network "
-                 "differently; inspect the netlist for an element either engine reads another way")
-    return text
+        return Cause.ILL_CONDITIONED, text + (
+            f". The network is ill-conditioned (κ = {condition:.3g}, so κ·ε = {attainable:.2g} exceeds the "
+            "tolerance): double precision cannot promise this agreement; loosen the tolerance or rescale "
+            "the network (very large and very small impedances side by side)")
+    if attainable * 1e3 > err:
+        return Cause.FITS_CONDITION, text + (
+            f". The size fits the matrix condition (κ = {condition:.3g}): likely roundoff, not a modelling error")
+    return Cause.MODEL_DIFFERENCE, text + (
+        f". Far above what the condition allows (κ·ε = {attainable:.2g}): the engines model the network "
+        "differently; inspect the netlist for an element either engine reads another way")
 
 
 def compare_point(own: Equivalent, ref: EngineAnswer | None, tol: Tolerance, ref_note: str = "",
@@ -163,22 +136,24 @@ def compare_point(own: Equivalent, ref: EngineAnswer | None, tol: Tolerance, ref
     """All compared quantities at one frequency, and the point's verdict."""
     if ref is None:
         checks = tuple(
-            QuantityCheck(q, own_answer(own).get(q), None, math.nan, math.nan, math.nan, math.nan, "unavailable",
-                          f"{ref_name} gives no answer: {ref_note or 'not run'}")
+            QuantityCheck(q, phasor_of(own, q), None, math.nan, math.nan, math.nan, math.nan, Verdict.UNAVAILABLE,
+                          f"{ref_name} gives no answer: {ref_note or 'not run'}", Cause.REFERENCE_NOT_RUN)
             for q in COMPARED
         )
-        return PointCheck(own.freq_hz, checks, "unavailable", f"{ref_name}: {ref_note or 'not run'}",
-                          own.condition)
+        return PointCheck(own.freq_hz, checks, Verdict.UNAVAILABLE, f"{ref_name}: {ref_note or 'not run'}",
+                          own.condition, Cause.REFERENCE_NOT_RUN)
     checks = tuple(
-        compare_quantity(q, own_answer(own).get(q), ref.get(q), tol, own.condition, _scale(own, q),
+        compare_quantity(q, phasor_of(own, q), ref.get(q), tol, own.condition, _scale(own, q),
                          own.note, ref.note, ref_name)
         for q in COMPARED
     )
     verdict = worst(c.verdict for c in checks)
-    explanation = "; ".join(c.explanation for c in checks if c.verdict == verdict and c.explanation)
-    return PointCheck(own.freq_hz, checks, verdict, explanation, own.condition)
+    same = [c for c in checks if c.verdict == verdict]
+    explanation = "; ".join(c.explanation for c in same if c.explanation)
+    return PointCheck(own.freq_hz, checks, verdict, explanation, own.condition, same[0].cause)
 
 
 def compare_sweep(own: Sequence[Equivalent], ref: Sequence[EngineAnswer | None], tol: Tolerance,
-                  ref_note: str = "") -> list[PointCheck]:
-    return [compare_point(o, r, tol, ref_note) for o, r in zip(own, ref)]
+                  ref_note: str = "") -> tuple[PointCheck, ...]:
+    """Point by point; ``ref`` is None at points where the reference gave no answer."""
+    return tuple(compare_point(o, r, tol, ref_note) for o, r in zip(own, ref))

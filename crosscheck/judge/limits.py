@@ -11,17 +11,13 @@ from __future__ import annotations
 
 import cmath
 import math
-from typing import Sequence
+from collections.abc import Sequence
 
+from crosscheck.judge.records import Cause, LimitCheck
 from crosscheck.model.cases import Case, Limit
-from crosscheck.own.equivalent import Equivalent
-from crosscheck.judge.records import LimitCheck
 from crosscheck.model.values import format_eng
-
-UNITS = {"vth": "V", "zth": "Ω", "in": "A", "yn": "S"}
-
-#: A frequency this close (relative) to a band edge counts as inside the band.
-EDGE = 1e-9
+from crosscheck.own.equivalent import Equivalent
+from crosscheck.vocabulary import Verdict, phasor_of, quantity_unit, same_frequency
 
 
 def evaluate(function: str, value: complex) -> float:
@@ -41,7 +37,8 @@ def evaluate(function: str, value: complex) -> float:
 
 
 def unit(function: str, quantity: str) -> str:
-    return {"phase": "°", "db": "dB"}.get(function, UNITS[quantity])
+    """The unit of ``function(quantity)``: degrees for phase, dB for db, else the quantity's own."""
+    return {"phase": "°", "db": "dB"}.get(function) or quantity_unit(quantity)
 
 
 def margin(value: float, minimum: float | None, maximum: float | None) -> float:
@@ -64,11 +61,7 @@ def _in_band(f: float, band: tuple[float, float] | None) -> bool:
     if band is None:
         return True
     low, high = band
-    return low * (1 - EDGE) <= f <= high * (1 + EDGE)
-
-
-def _quantity(eq: Equivalent, quantity: str) -> complex | None:
-    return {"vth": eq.vth, "zth": eq.zth, "in": eq.in_, "yn": eq.yn}[quantity]
+    return low <= f <= high or same_frequency(f, low) or same_frequency(f, high)
 
 
 def check_limit(limit: Limit, own_equivalents: Sequence[Equivalent]) -> LimitCheck:
@@ -78,43 +71,45 @@ def check_limit(limit: Limit, own_equivalents: Sequence[Equivalent]) -> LimitChe
                  f"{format_eng(limit.band[0], 4, ' Hz')} to {format_eng(limit.band[1], 4, ' Hz')}")
     head = f"{_bounds(limit, u)} over {band_text}"
 
-    def result(verdict: str, worst_f=None, worst_v=None, m=None, why: str = "", values=()) -> LimitCheck:
+    def result(verdict: Verdict, worst_f: float | None = None, worst_v: float | None = None,
+               m: float | None = None, why: str = "", values: Sequence[tuple[float, float]] = ()) -> LimitCheck:
+        cause = {Verdict.PASS: Cause.LIMIT_HOLDS, Verdict.FAIL: Cause.LIMIT_BROKEN}.get(verdict, Cause.NO_VALUE)
         return LimitCheck(limit.index, limit.text, limit.function, limit.quantity, limit.minimum, limit.maximum,
-                          limit.band, worst_f, worst_v, m, verdict, why, tuple(values))
+                          limit.band, worst_f, worst_v, m, verdict, why, tuple(values), cause)
 
     if limit.band is not None and limit.band[0] > limit.band[1]:
-        return result("unavailable", why=f"{head}: the band's low edge is above its high edge; write [low, high]")
+        return result(Verdict.UNAVAILABLE, why=f"{head}: the band's low edge is above its high edge; write [low, high]")
     points = [eq for eq in own_equivalents if _in_band(eq.freq_hz, limit.band)]
     if not points:
-        return result("unavailable", why=f"{head}: no computed frequency lies in the band; add frequencies "
+        return result(Verdict.UNAVAILABLE, why=f"{head}: no computed frequency lies in the band; add frequencies "
                                          "(or a sweep) that cover it")
     values: list[tuple[float, float]] = []
     missing: list[tuple[float, str]] = []
     for eq in points:
-        q = _quantity(eq, limit.quantity)
+        q = phasor_of(eq, limit.quantity)
         if q is None:
             missing.append((eq.freq_hz, eq.note or f"no {limit.quantity} at this port"))
         else:
             values.append((eq.freq_hz, evaluate(limit.function, q)))
     if not values:
         f, why = missing[0]
-        return result("unavailable", why=f"{head}: {limit.quantity} does not exist at any frequency of the band "
+        return result(Verdict.UNAVAILABLE, why=f"{head}: {limit.quantity} does not exist at any frequency of the band "
                                          f"(at {format_eng(f, 4, ' Hz')}: {why})")
     worst_f, worst_v = min(values, key=lambda fv: margin(fv[1], limit.minimum, limit.maximum))
     m = margin(worst_v, limit.minimum, limit.maximum)
     where = f"worst at {format_eng(worst_f, 4, ' Hz')}: {format_eng(worst_v, 5, ' ' + u)}"
     if m < 0 or math.isnan(m):
         outside = sum(1 for _, v in values if not margin(v, limit.minimum, limit.maximum) >= 0)
-        return result("fail", worst_f, worst_v, m,
+        return result(Verdict.FAIL, worst_f, worst_v, m,
                       f"{head}: not met at {outside} of {len(values)} frequencies; {where}, "
                       f"{format_eng(-m, 4, ' ' + u)} outside the bound", values)
     if missing:
         f, why = missing[0]
-        return result("unavailable", worst_f, worst_v, m,
+        return result(Verdict.UNAVAILABLE, worst_f, worst_v, m,
                       f"{head}: met where it exists ({where}, margin {format_eng(m, 4, ' ' + u)}), but "
                       f"{limit.quantity} does not exist at {len(missing)} frequency(ies) of the band "
                       f"(at {format_eng(f, 4, ' Hz')}: {why})", values)
-    return result("pass", worst_f, worst_v, m, f"{head}: met; {where}, margin {format_eng(m, 4, ' ' + u)}", values)
+    return result(Verdict.PASS, worst_f, worst_v, m, f"{head}: met; {where}, margin {format_eng(m, 4, ' ' + u)}", values)
 
 
 def check_limits(case: Case, own_equivalents: Sequence[Equivalent]) -> list[LimitCheck]:

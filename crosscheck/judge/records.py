@@ -1,12 +1,72 @@
-"""What a case is judged on beyond solver-vs-SPICE: hand calculations, design limits, a baseline.
+"""The records of judgement: one per compared quantity, point, hand value, design limit and baseline check.
 
-These are plain records; ``expectations``, ``limits`` and ``baseline`` fill them,
-reports read them.
+Plain immutable records: ``compare``, ``expectations``, ``limits`` and ``baseline`` fill them, the
+case result (``result``) carries them, reports and the fuzzer read them. Each carries a typed
+``cause``, so a reader decides by the cause, never by matching words in the explanation.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from enum import StrEnum
+
+from crosscheck.vocabulary import Verdict
+
+
+class Cause(StrEnum):
+    """Why a judgement came out as it did."""
+
+    AGREES = "agrees"                          # within tolerance on its own terms
+    AGREES_TO_ROUNDOFF = "agrees-to-roundoff"  # within what the matrix condition allows, not within rel alone
+    BOTH_ABSENT = "both-absent"                # neither engine has the quantity (a degenerate port)
+    OWN_ABSENT = "own-absent"                  # crosscheck gives no value
+    REFERENCE_ABSENT = "reference-absent"      # the reference gives no value at this point
+    REFERENCE_NOT_RUN = "reference-not-run"    # the reference did not answer for the case
+    ILL_CONDITIONED = "ill-conditioned"        # κ·ε exceeds the tolerance: double precision cannot promise it
+    FITS_CONDITION = "fits-condition"          # the difference is the size the matrix condition allows
+    MODEL_DIFFERENCE = "model-difference"      # far above the condition: the engines model the network differently
+    OUT_OF_TOLERANCE = "out-of-tolerance"      # a hand value or a baseline value outside its tolerance
+    SLIP = "slip"                              # a hand value that a named usual slip reproduces
+    NO_VALUE = "no-value"                      # the quantity does not exist here (expectations, limits, drift)
+    LIMIT_HOLDS = "limit-holds"
+    LIMIT_BROKEN = "limit-broken"
+    NOT_IN_BASELINE = "not-in-baseline"
+    # What accounts for a generated case's failure or missing value (the fuzzer's reading):
+    NGSPICE_ROUNDOFF = "ngspice-roundoff"        # within ngspice's own attainable accuracy (threshold pivoting)
+    NGSPICE_PIVOT_ORDER = "ngspice-pivot-order"  # agrees when ngspice runs the frequency alone
+    EXPECTED_FOR_CASE = "expected-for-case"      # the generator's caveat for the case says why
+
+
+#: Causes that say a failure is the size the arithmetic allows, not a modelling difference.
+ROUNDOFF_CAUSES = frozenset({Cause.ILL_CONDITIONED, Cause.FITS_CONDITION})
+
+
+@dataclass(frozen=True)
+class QuantityCheck:
+    """One quantity at one frequency, own solver against the reference."""
+
+    quantity: str
+    own: complex | None
+    ref: complex | None
+    err: float          # judged error (see ``compare``); nan when not compared
+    rel_err: float      # plain |Δ| / |q_ref|, for display
+    mag_err_pct: float
+    phase_err_deg: float
+    verdict: Verdict
+    explanation: str
+    cause: Cause = Cause.AGREES
+
+
+@dataclass(frozen=True)
+class PointCheck:
+    """Every compared quantity at one frequency; the point takes the worst verdict and its cause."""
+
+    freq_hz: float
+    quantities: tuple[QuantityCheck, ...]
+    verdict: Verdict
+    explanation: str
+    condition: float
+    cause: Cause = Cause.AGREES
 
 
 @dataclass(frozen=True)
@@ -22,10 +82,11 @@ class ExpectationCheck:
     mag_err_pct: float       # (|expected| − |obtained|) / |obtained| · 100
     mag_err_db: float        # 20·log10(|expected| / |obtained|)
     phase_err_deg: float     # ∠expected − ∠obtained, wrapped to (−180, 180]
-    verdict: str             # pass, fail, unavailable
+    verdict: Verdict         # pass, fail, unavailable
     slip: str | None         # the usual hand-calculation slip that explains the number, if one does
     explanation: str
     how: str = ""            # how the hand value was obtained, as the case file says
+    cause: Cause = Cause.AGREES
 
 
 @dataclass(frozen=True)
@@ -42,9 +103,10 @@ class LimitCheck:
     worst_freq_hz: float | None
     worst_value: float | None
     margin: float | None     # distance inside (+) or outside (−) the nearest bound, in the quantity's unit
-    verdict: str             # pass, fail, unavailable
+    verdict: Verdict         # pass, fail, unavailable
     explanation: str
     values: tuple[tuple[float, float], ...] = ()  # (freq_hz, value) over the band, for plots
+    cause: Cause = Cause.LIMIT_HOLDS
 
 
 @dataclass(frozen=True)
@@ -56,5 +118,6 @@ class DriftCheck:
     baseline: complex | None
     obtained: complex | None
     rel_err: float
-    verdict: str             # pass, drift, unavailable
+    verdict: Verdict         # pass, drift, unavailable
     explanation: str
+    cause: Cause = Cause.AGREES

@@ -24,9 +24,10 @@ from typing import Callable, Iterator
 
 from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.errors import CrosscheckError
-from crosscheck.judge.expectations import NAMES, PHASORS, deviation, format_value, quantity_value
+from crosscheck.judge.stated import deviation, format_value, quantity_value
 from crosscheck.model.network import Network, Port, make_element
 from crosscheck.model.tolerance import Tolerance
+from crosscheck.vocabulary import PHASORS, quantity_name
 
 SQRT2 = math.sqrt(2.0)
 
@@ -108,7 +109,7 @@ def _candidates(network: Network | None, port: Port, quantity: str, true_eq: Equ
                 sources: str) -> Iterator[_Candidate]:
     """Every hypothesis in order of preference (used only to break exact ties)."""
     f = true_eq.freq_hz
-    q = NAMES[quantity]
+    q = quantity_name(quantity)
     if network is not None:
         zeroed = dependent_sources_zeroed(network)
         if zeroed is not None:

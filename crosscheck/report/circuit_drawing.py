@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from typing import Sequence
 
-from crosscheck.run.check import CaseResult
+from crosscheck.judge.result import CaseResult
 from crosscheck.own.equivalent import Equivalent
 from crosscheck.model.values import format_eng, format_polar
 

@@ -15,7 +15,7 @@ from typing import Sequence
 import pandas as pd
 
 from crosscheck.report.caution import CAUTION
-from crosscheck.run.check import CaseResult
+from crosscheck.judge.result import CaseResult
 from crosscheck.report.frame import COLUMNS, verdict_frame
 
 

@@ -8,6 +8,7 @@ from crosscheck.report.caution import CAUTION
 from crosscheck.own.equivalent import ElementForm, Equivalent
 from crosscheck.model.network import Network, Port
 from crosscheck.report.phasor_json import phasor
+from crosscheck.version import __version__
 
 
 def _form(form: ElementForm | None, resistive: str) -> dict[str, Any] | None:
@@ -32,7 +33,6 @@ def own_point(eq: Equivalent) -> dict[str, Any]:
 
 def equivalents_document(network: Network, port: Port, points: Sequence[Equivalent], sources: str,
                          source_file: str | None = None) -> dict[str, Any]:
-    from crosscheck.version import __version__
 
     return {
         "crosscheck_version": __version__,

@@ -18,8 +18,8 @@ from typing import Mapping, Sequence
 
 import pandas as pd
 
-from crosscheck.run.check import CaseResult
-from crosscheck.judge.compare import UNITS, VERDICTS
+from crosscheck.judge.result import CaseResult
+from crosscheck.vocabulary import QUANTITIES, Verdict, quantity_unit
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck
 from crosscheck.model.values import format_eng, format_polar
 
@@ -36,7 +36,6 @@ CHECKS = {
     "input": "the case could not be run (invalid input, or an engine crashed)",
 }
 
-_EXPECT_UNITS = {**UNITS, "series_r": "Ω", "series_l": "H", "series_c": "F"}
 _LIMIT_UNITS = {"phase": "°", "db": "dB"}
 
 
@@ -48,13 +47,17 @@ def _im(z: complex | None) -> float:
     return math.nan if z is None else z.imag
 
 
+def _unit(quantity: str) -> str:
+    return quantity_unit(quantity) if quantity in QUANTITIES else ""
+
+
 def severity(verdict: str) -> int:
     """Rank of a verdict (higher is worse); a verdict this module does not know ranks worst of all."""
-    return VERDICTS.index(verdict) if verdict in VERDICTS else len(VERDICTS)
+    return Verdict(verdict).rank if verdict in Verdict._value2member_map_ else len(Verdict)
 
 
 def limit_unit(check: LimitCheck) -> str:
-    return _LIMIT_UNITS.get(check.function, UNITS.get(check.quantity, ""))
+    return _LIMIT_UNITS.get(check.function, _unit(check.quantity))
 
 
 def _spice_rows(r: CaseResult) -> list[dict]:
@@ -105,8 +108,6 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
         body = _spice_rows(r) + [_expect_row(e) for e in r.expectations] + [_limit_row(c) for c in r.limits]
         body += [_drift_row(d) for d in r.drift]
         rows.extend(head | row for row in body)
-        for extra in r.extra.get("rows", []):
-            rows.append(head | extra)
     return pd.DataFrame(rows, columns=COLUMNS)
 
 
@@ -140,14 +141,14 @@ def _spice_findings(r: CaseResult) -> list[Finding]:
     for p in r.points:
         for q in p.quantities:
             error = "—" if math.isnan(q.err) else f"{q.err:.3g} (tolerance {r.tolerance.rel:.3g})"
-            out.append(Finding("spice", f"{q.quantity} vs SPICE", p.freq_hz, _polar(q.own, UNITS[q.quantity]),
-                               f"{_polar(q.ref, UNITS[q.quantity])} (ngspice)", error, q.verdict,
+            out.append(Finding("spice", f"{q.quantity} vs SPICE", p.freq_hz, _polar(q.own, quantity_unit(q.quantity)),
+                               f"{_polar(q.ref, quantity_unit(q.quantity))} (ngspice)", error, q.verdict,
                                q.explanation or p.explanation))
     return out
 
 
 def _expect_finding(e: ExpectationCheck) -> Finding:
-    unit = _EXPECT_UNITS.get(e.quantity, "")
+    unit = _unit(e.quantity)
     if e.quantity.startswith("series_"):
         obtained = "none" if e.obtained is None else format_eng(e.obtained.real, 6, " " + unit)
         expected = format_eng(e.expected.real, 6, " " + unit)
@@ -182,7 +183,7 @@ def _limit_finding(c: LimitCheck) -> Finding:
 
 
 def _drift_finding(d: DriftCheck) -> Finding:
-    unit = UNITS.get(d.quantity, "")
+    unit = _unit(d.quantity)
     error = "—" if math.isnan(d.rel_err) else f"{d.rel_err:.3g} relative"
     return Finding("drift", f"drift {d.quantity}", d.freq_hz, _polar(d.obtained, unit),
                    f"{_polar(d.baseline, unit)} (baseline)", error, d.verdict, d.explanation)
@@ -230,7 +231,7 @@ def finding_table(found: Sequence[Finding], limit: int = 8) -> list[str]:
 
 
 def overall_verdict(verdicts: Sequence[str]) -> str:
-    """The run's verdict: the worst case verdict (``pass`` for no cases), in the order of ``compare.VERDICTS``."""
+    """The run's verdict: the worst case verdict (``pass`` for no cases), in the order of ``vocabulary.Verdict``."""
     return max(verdicts, key=severity, default="pass")
 
 

@@ -1,4 +1,4 @@
-"""The fuzz run's summary, for the terminal and as JSON, and its progress bar (on stderr)."""
+"""The fuzz run's summary on the terminal, and its progress bar (on stderr)."""
 
 from __future__ import annotations
 
@@ -11,56 +11,13 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, ProgressColum
 from rich.table import Table
 from rich.text import Text
 
-from crosscheck.judge.compare import COMPARED
 from crosscheck.fuzz.faults import FAULTS
-from crosscheck.fuzz.loop import CaseOutcome, FuzzSummary, regenerate_command
+from crosscheck.fuzz.reproducer import regenerate_command
+from crosscheck.fuzz.summary import FuzzSummary
+from crosscheck.vocabulary import COMPARED
 
 #: How many explained cases the terminal lists (the JSON lists all).
 _SHOWN = 10
-
-
-def _outcome_document(o: CaseOutcome, knobs) -> dict:
-    c = o.case
-    return {"index": o.index, "seed": c.seed, "family": c.family, "traits": list(c.traits),
-            "elements": c.size[0], "nodes": c.size[1], "port": [c.port.a, c.port.b], "freqs_hz": list(c.freqs_hz),
-            "status": o.status, "explained": o.explained, "reason": o.reason,
-            "regenerate": regenerate_command(c.seed, knobs)}
-
-
-def summary_document(s: FuzzSummary) -> dict:
-    """Everything the terminal summary says, as plain data."""
-    k = s.options.knobs
-    return {
-        "cases": s.cases_run,
-        "requested": len(s.options.case_seeds) or s.options.count,
-        "seed": s.options.seed,
-        "case_seeds": list(s.options.case_seeds),
-        "knobs": {"family": k.family, "nodes": [k.min_nodes, k.max_nodes], "kinds": k.kinds, "decades": k.decades,
-                  "freq_hz": [k.min_hz, k.max_hz], "max_freqs": k.max_freqs, "dc": k.dc},
-        "tolerance": {"rel": s.options.tolerance.rel, "abs": s.options.tolerance.abs},
-        "faults_injected": [{"name": f, "bug": FAULTS[f]} for f in s.faults],
-        "verdicts": dict(s.counts),
-        "explained": dict(s.explained),
-        "problems": len(s.problems),
-        "first_problem_at": s.first_problem_at,
-        "stopped_early": s.stopped_early,
-        "worst": {q: {"err": e, "seed": seed, "freq_hz": f} for q, (e, seed, f) in s.worst.items()},
-        "error_percentiles": {q: s.percentiles(q) for q in COMPARED},
-        "rel_error_percentiles": {q: s.percentiles(q, relative=True) for q in COMPARED},
-        "compared": {q: len(s.errors[q]) for q in COMPARED},
-        "failures": [_outcome_document(o, k) for o in s.problems],
-        "explained_cases": [_outcome_document(o, k) for o in s.explained_cases],
-        "reproducers": [{"seed": r.seed, "size": {"original": list(r.shrunk.original_size),
-                                                  "shrunk": list(r.shrunk.size)},
-                         "checks": r.shrunk.checks, "still": r.outcome.status, "files": list(r.files)}
-                        for r in s.reproducers],
-        "elapsed_s": s.elapsed_s,
-        "cases_per_s": s.rate,
-        "own_solver_s": s.own_s,
-        "shrink_s": s.shrink_s,
-        "workers": s.workers,
-        "ngspice": s.ngspice_version,
-    }
 
 
 def _e(x: float | None) -> str:

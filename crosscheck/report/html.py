@@ -14,13 +14,14 @@ from collections import Counter
 from typing import Sequence
 
 from crosscheck.report.caution import CAUTION
-from crosscheck.run.check import CaseResult
-from crosscheck.judge.compare import UNITS
+from crosscheck.judge.result import CaseResult
+from crosscheck.vocabulary import quantity_unit
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
 from crosscheck.report.plots import case_figure_png, is_swept
 from crosscheck.report.results_json import ngspice_version
+from crosscheck.version import __version__
 
 _STYLE = """
 body { font-family: system-ui, sans-serif; margin: 1.5em auto; max-width: 72em; color: #222; padding: 0 1em; }
@@ -96,7 +97,7 @@ def _points_table(r: CaseResult) -> str:
         for p in r.points:
             for j, q in enumerate(p.quantities):
                 rows.append([_e(format_eng(p.freq_hz, 6, " Hz")) if j == 0 else "", _e(q.quantity),
-                             _z(q.own, UNITS[q.quantity]), _z(q.ref, UNITS[q.quantity]), _num(q.err),
+                             _z(q.own, quantity_unit(q.quantity)), _z(q.ref, quantity_unit(q.quantity)), _num(q.err),
                              _badge(q.verdict), _e(q.explanation)])
         return _table(("f", "qty", "crosscheck", "ngspice", "err", "verdict", "explanation"), rows,
                       numeric=(0, 4))
@@ -164,7 +165,6 @@ def _case_section(i: int, r: CaseResult) -> str:
 
 def html_report(results: Sequence[CaseResult], title: str = "crosscheck report") -> str:
     """The whole report as one HTML document (UTF-8 text)."""
-    from crosscheck.version import __version__
 
     counts = Counter(r.verdict for r in results)
     overall = overall_verdict([r.verdict for r in results])

@@ -21,10 +21,11 @@ from pathlib import PurePath
 from typing import Sequence
 
 from crosscheck.report.caution import CAUTION
-from crosscheck.run.check import CaseResult
+from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng
 from crosscheck.report.frame import case_reason, findings, finding_table, worst_spice_error
 from crosscheck.report.results_json import ngspice_version
+from crosscheck.version import __version__
 
 #: How each verdict appears: the child element of <testcase> (None for a pass).
 ELEMENT = {"pass": None, "fail": "failure", "drift": "failure", "error": "error", "unavailable": "skipped"}
@@ -98,7 +99,6 @@ def _testcase(parent: ET.Element, result: CaseResult) -> str:
 def junit_tree(results: Sequence[CaseResult], timestamp: str | None = None,
                hostname: str | None = None) -> ET.Element:
     """The ``<testsuites>`` element; ``timestamp`` (ISO 8601, no zone) and ``hostname`` default to now and here."""
-    from crosscheck.version import __version__
 
     stamp = timestamp or _dt.datetime.now().replace(microsecond=0).isoformat()
     host = hostname or socket.gethostname() or "localhost"

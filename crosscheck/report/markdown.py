@@ -12,9 +12,10 @@ from collections import Counter
 from typing import Sequence
 
 from crosscheck.report.caution import CAUTION
-from crosscheck.run.check import CaseResult
+from crosscheck.judge.result import CaseResult
 from crosscheck.report.frame import case_reason, count_words, findings, finding_table, overall_verdict, worst_spice_error
 from crosscheck.report.results_json import ngspice_version
+from crosscheck.version import __version__
 
 #: Status words for the header, by the run's overall verdict.
 STATUS = {"pass": "PASS", "fail": "FAIL", "error": "ERROR", "unavailable": "UNAVAILABLE", "drift": "DRIFT"}
@@ -66,7 +67,6 @@ def _passing_details(passing: Sequence[CaseResult]) -> list[str]:
 
 def markdown_report(results: Sequence[CaseResult]) -> str:
     """The comment text (GitHub-flavoured Markdown; also renders on other code hosts)."""
-    from crosscheck.version import __version__
 
     overall = overall_verdict([r.verdict for r in results])
     word = STATUS.get(overall, overall.upper())

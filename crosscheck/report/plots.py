@@ -14,7 +14,7 @@ from typing import Sequence
 
 import numpy as np
 
-from crosscheck.run.check import CaseResult
+from crosscheck.judge.result import CaseResult
 from crosscheck.judge.records import LimitCheck
 
 #: A case needs at least this many frequencies to be drawn as a sweep.

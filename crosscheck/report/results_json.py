@@ -7,10 +7,11 @@ from collections import Counter
 from typing import Any, Sequence
 
 from crosscheck.report.caution import CAUTION
-from crosscheck.run.check import CaseResult
-from crosscheck.judge.compare import VERDICTS
+from crosscheck.judge.result import CaseResult
+from crosscheck.vocabulary import Verdict
 from crosscheck.report.equivalents_json import own_point
 from crosscheck.report.phasor_json import phasor
+from crosscheck.version import __version__
 
 
 def _num(x: float) -> Any:
@@ -91,9 +92,6 @@ def case_document(result: CaseResult) -> dict[str, Any]:
     }
     if result.spice is not None:
         doc["spice_strategy"] = result.spice.strategy
-    for key, value in result.extra.items():
-        if key != "rows":
-            doc[key] = value
     return doc
 
 
@@ -103,11 +101,10 @@ def ngspice_version(results: Sequence[CaseResult]) -> str | None:
 
 def summary(results: Sequence[CaseResult]) -> dict[str, int]:
     counts = Counter(r.verdict for r in results)
-    return {"cases": len(results), **{v: counts.get(v, 0) for v in VERDICTS}}
+    return {"cases": len(results), **{v: counts.get(v, 0) for v in Verdict}}
 
 
 def results_document(results: Sequence[CaseResult]) -> dict[str, Any]:
-    from crosscheck.version import __version__
 
     return {
         "crosscheck_version": __version__,

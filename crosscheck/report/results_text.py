@@ -10,9 +10,12 @@ from rich.markup import escape
 from rich.table import Table
 
 from crosscheck.report.caution import CAUTION
-from crosscheck.run.check import CaseResult
+from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.report.results_json import ngspice_version, summary
+from crosscheck.judge.limits import unit
+from crosscheck.judge.stated import format_value
+from crosscheck.vocabulary import quantity_unit
 
 STYLE = {"pass": "green", "fail": "bold red", "error": "bold magenta", "unavailable": "yellow", "drift": "bold yellow"}
 
@@ -29,7 +32,6 @@ def _err(x: float) -> str:
     return "—" if x is None or math.isnan(x) else f"{x:.2e}"
 
 
-UNITS = {"vth": " V", "zth": " Ω", "in": " A"}
 
 
 def comparison_table(result: CaseResult) -> Table:
@@ -43,8 +45,8 @@ def comparison_table(result: CaseResult) -> Table:
                          overflow="fold" if folds else "ellipsis")
     for p in result.points:
         for i, q in enumerate(p.quantities):
-            table.add_row(format_eng(p.freq_hz, 4, " Hz") if i == 0 else "", q.quantity, _z(q.own, UNITS[q.quantity]),
-                          _z(q.ref, UNITS[q.quantity]), _err(q.err), _v(q.verdict))
+            table.add_row(format_eng(p.freq_hz, 4, " Hz") if i == 0 else "", q.quantity, _z(q.own, " " + quantity_unit(q.quantity)),
+                          _z(q.ref, " " + quantity_unit(q.quantity)), _err(q.err), _v(q.verdict))
     return table
 
 
@@ -62,7 +64,6 @@ def summary_table(results: Sequence[CaseResult]) -> Table:
 def expectation_table(result: CaseResult, detail: bool, wide: bool = True) -> Table | None:
     """Hand-calculated values against crosscheck's solver; without ``detail`` only the ones not passing.
     A narrow table leaves the slip out: the explanation printed under the table names it."""
-    from crosscheck.judge.expectations import format_value
 
     rows = [e for e in result.expectations if detail or e.verdict != "pass"]
     if not rows:
@@ -83,7 +84,6 @@ def expectation_table(result: CaseResult, detail: bool, wide: bool = True) -> Ta
 
 def limit_table(result: CaseResult, detail: bool) -> Table | None:
     """Design limits: worst point and margin; without ``detail`` only the ones not passing."""
-    from crosscheck.judge.limits import unit
 
     rows = [lim for lim in result.limits if detail or lim.verdict != "pass"]
     if not rows:
@@ -113,8 +113,8 @@ def drift_table(result: CaseResult, detail: bool) -> Table | None:
     for h in ("f", "qty", "baseline", "now", "rel change", "verdict"):
         table.add_column(h, justify="right" if h in ("f", "rel change") else "left")
     for d in rows:
-        table.add_row(format_eng(d.freq_hz, 6, " Hz"), d.quantity, _z(d.baseline, UNITS[d.quantity]),
-                      _z(d.obtained, UNITS[d.quantity]), _err(d.rel_err), _v(d.verdict))
+        table.add_row(format_eng(d.freq_hz, 6, " Hz"), d.quantity, _z(d.baseline, " " + quantity_unit(d.quantity)),
+                      _z(d.obtained, " " + quantity_unit(d.quantity)), _err(d.rel_err), _v(d.verdict))
     return table
 
 

@@ -12,7 +12,7 @@ alone.
 
 With no executor the local default runs: the own solver in this process and
 ngspice in a ``SpicePool`` of ``workers`` processes (``check.run_cases``).
-``python -m crosscheck.bench`` measures it against a process pool of whole-case
+``benchmarks/bench.py`` measures it against a process pool of whole-case
 tasks; the local default was the faster (see the README's benchmark section).
 
 Results come back in the order given whatever order the workers finish in;
@@ -27,26 +27,29 @@ import threading
 from collections import deque
 from concurrent.futures import Executor, Future
 from contextlib import contextmanager
-from typing import Any, Callable, Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from dataclasses import replace
+from typing import Any
 
-from crosscheck.model.cases import Case
-from crosscheck.run.check import ENGINES, CaseResult, case_verdict, run_cases
 from crosscheck.errors import CrosscheckError, EngineUnavailableError
-from crosscheck.model.tolerance import SOLVER_VS_SPICE
+from crosscheck.judge.baseline import Baseline
+from crosscheck.judge.case import with_baseline
+from crosscheck.judge.result import CaseResult, error_result
+from crosscheck.model.cases import Case
+from crosscheck.run.check import ENGINES, run_cases
+from crosscheck.spice.workers import SpicePool
 
 #: Tasks kept in flight per executor: enough to keep a cluster busy, bounded so that a million cases
 #: never sit in memory (or in the scheduler) at once.
 DEFAULT_WINDOW = 512
 
-_POOL = None
+_POOL: SpicePool | None = None
 _POOL_LOCK = threading.Lock()
 
 
-def worker_pool(timeout_s: float = 60.0):
+def worker_pool(timeout_s: float = 60.0) -> SpicePool:
     """This process's own one-worker ``SpicePool``, kept alive between tasks (started on first use)."""
     global _POOL
-    from crosscheck.spice.workers import SpicePool
-
     with _POOL_LOCK:
         if _POOL is None:
             _POOL = SpicePool(workers=1, timeout_s=timeout_s)
@@ -66,16 +69,15 @@ def check_case(item: Case, engine: str = "both", timeout_s: float = 60.0) -> Cas
 
 def _travel_light(result: CaseResult) -> CaseResult:
     """Drop what the caller already has or never reads (the decks ngspice ran), so results cross the wire fast."""
-    from dataclasses import replace
-
     spice = result.spice
-    if spice is not None and getattr(spice, "decks", ()):
-        result.spice = replace(spice, decks=())
+    if spice is not None and spice.decks:
+        return replace(result, spice=replace(spice, decks=()))
     return result
 
 
 def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Executor | None = None, *,
-              engine: str = "both", workers: int | None = None, timeout_s: float = 60.0, baseline=None,
+              engine: str = "both", workers: int | None = None, timeout_s: float = 60.0,
+              baseline: Baseline | None = None,
               on_done: Callable[[CaseResult], None] | None = None, window: int = DEFAULT_WINDOW) -> list[CaseResult]:
     """Check every case; results in the order given.
 
@@ -89,8 +91,6 @@ def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Exe
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {ENGINES} (got {engine!r})")
     if executor is None:
-        from crosscheck.spice.workers import SpicePool
-
         if engine == "own":
             return run_cases(cases, engine=engine, on_done=on_done, baseline=baseline)
         with SpicePool(workers=workers, timeout_s=timeout_s) as pool:
@@ -103,11 +103,8 @@ def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Exe
             result = run_cases([item], engine="own")[0]
         else:
             result = _outcome(item, future)
-            if baseline is not None and result.own is not None and result.error is None:
-                from crosscheck.judge.baseline import compare_with_baseline
-
-                result.drift, result.baseline_note = compare_with_baseline(result, baseline)
-                result.verdict = case_verdict(result)
+            if baseline is not None:
+                result = with_baseline(result, baseline)
         if on_done is not None:
             on_done(result)
         results.append(result)
@@ -128,8 +125,7 @@ def _outcome(item: Case, future: Future) -> CaseResult:
 
 
 def _error(item: Case, message: str) -> CaseResult:
-    return CaseResult(item.name, item.title, item.port, item.freqs_hz, item.tolerance, item.sources,
-                      error=message, verdict="error", case=item)
+    return error_result(item.name, message, item)
 
 
 def windowed(executor: Executor, fn: Callable, items: Iterable, args: tuple, window: int,
@@ -162,69 +158,7 @@ def windowed(executor: Executor, fn: Callable, items: Iterable, args: tuple, win
             raise
 
 
-# --------------------------------------------------------------------------- fuzzing on an executor
-
-
-def fuzz_case(seed: int, index: int, knobs, tolerance=SOLVER_VS_SPICE, timeout_s: float = 60.0):
-    """Generate, solve with both engines and judge one fuzz case in this process (the fuzz task).
-
-    The same steps, in the same order, as ``fuzz.run_fuzz`` takes for one case. Returns the
-    ``CaseOutcome`` and the seconds the own solver took.
-    """
-    import time
-
-    from crosscheck.fuzz.loop import _result, isolate, judge, solve_own  # fuzz's own steps, so both runs judge alike
-    from crosscheck.fuzz.generate import generate_case
-
-    pool = worker_pool(timeout_s)
-    case = generate_case(seed, knobs)
-    future = pool.submit(case.network, case.port, case.freqs_hz)
-    started = time.perf_counter()
-    own, own_error = solve_own(case.network, case.port, case.freqs_hz)
-    own_s = time.perf_counter() - started
-    spice, spice_error = _result(future)
-    outcome = judge(index, case, own, own_error, spice, spice_error, tolerance)
-    if outcome.status == "fail" and not outcome.explained and len(case.freqs_hz) > 1:
-        outcome = isolate(outcome, pool, tolerance)
-    return outcome, own_s
-
-
-def run_fuzz_batch(options, executor: Executor, on_progress=None, window: int = DEFAULT_WINDOW):
-    """``fuzz.run_fuzz`` with each case's generation, both engines and judgement as one task on ``executor``.
-
-    Outcomes are recorded in seed order, as a local run records them; shrinking what failed runs here
-    afterwards, with a local ngspice pool (failures are few; each shrink step is a small network).
-    """
-    import time
-
-    from crosscheck.fuzz import faults
-    from crosscheck.fuzz.loop import FuzzSummary, finish, note_outcome
-
-    summary = FuzzSummary(options, tuple(sorted(faults.active)))
-    if summary.faults:
-        raise ValueError(f"faults {', '.join(summary.faults)} are on in this process only; the executor's "
-                         "workers would not see them: run fuzz with injected faults locally")
-    seeds = options.seeds()
-    started = time.perf_counter()
-    tasks = windowed(executor, _fuzz_task, enumerate(seeds), (options.knobs, options.tolerance, options.timeout_s),
-                     window)
-    for (index, seed), future in tasks:
-        outcome, own_s = future.result()
-        summary.own_s += own_s
-        if note_outcome(summary, outcome, len(seeds), options, on_progress):
-            tasks.close()
-            break
-    summary.elapsed_s = time.perf_counter() - started
-    summary.workers = _worker_count(executor)
-    return finish(summary, options)  # shrinking runs here, on a local ngspice pool
-
-
-def _fuzz_task(numbered: tuple[int, int], knobs, tolerance, timeout_s: float):
-    index, seed = numbered
-    return fuzz_case(seed, index, knobs, tolerance, timeout_s)
-
-
-def _worker_count(executor: Executor) -> int:
+def worker_count(executor: Executor) -> int:
     """How many workers the executor has, where it says (0 when it does not)."""
     client = getattr(executor, "_client", None)
     if client is not None:

@@ -1,0 +1,68 @@
+"""The one result type: everything known about a case after both routes ran and it was judged.
+
+A ``CaseResult`` is immutable and flows unchanged from judging to every report, the pytest plugin
+and the fuzzer; a later judgement (a baseline held against it) makes a new one with ``replace``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
+from crosscheck.model.cases import Case
+from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
+from crosscheck.own.equivalent import Equivalent
+from crosscheck.spice.engine import SpiceResult
+from crosscheck.vocabulary import Verdict, worst
+
+
+@dataclass(frozen=True)
+class CaseResult:
+    """One case: its identity, both routes' answers (or why not), every judgement and the verdict."""
+
+    name: str
+    title: str
+    port: tuple[str, str]
+    freqs_hz: tuple[float, ...]
+    tolerance: Tolerance
+    sources: str = "peak"
+    own: tuple[Equivalent, ...] | None = None
+    spice: SpiceResult | None = None
+    spice_note: str = ""
+    points: tuple[PointCheck, ...] = ()
+    error: str | None = None
+    verdict: Verdict = Verdict.PASS
+    elapsed_own_s: float = 0.0
+    elapsed_spice_s: float = 0.0
+    case: Case | None = None
+    expectations: tuple[ExpectationCheck, ...] = ()
+    limits: tuple[LimitCheck, ...] = ()
+    drift: tuple[DriftCheck, ...] = ()
+    baseline_note: str = ""  # e.g. the case is not in the baseline: a note, never a verdict
+
+    @property
+    def explanation(self) -> str:
+        """The first explanation among the judgements that carry the case's verdict."""
+        if self.error:
+            return self.error
+        parts = [*self.points, *self.expectations, *self.limits, *self.drift]
+        notes = [p.explanation for p in parts if p.verdict == self.verdict and p.explanation]
+        return notes[0] if notes else ""
+
+
+def case_verdict(result: CaseResult) -> Verdict:
+    """The worst of solver-vs-SPICE, hand-calculated expectations, design limits and baseline drift;
+    ``error`` whenever an engine crashed on the case."""
+    if result.error:
+        return Verdict.ERROR
+    return worst([*(p.verdict for p in result.points), *(e.verdict for e in result.expectations),
+                  *(lim.verdict for lim in result.limits), *(d.verdict for d in result.drift)])
+
+
+def error_result(name: str, message: str, case: Case | None = None) -> CaseResult:
+    """A case that could not be run: its input is invalid, or its worker was lost."""
+    if case is None:
+        return CaseResult(name, name, ("?", "?"), (), SOLVER_VS_SPICE, error=message,
+                          verdict=Verdict.ERROR)
+    return CaseResult(case.name, case.title, case.port, case.freqs_hz, case.tolerance, case.sources,
+                      error=message, verdict=Verdict.ERROR, case=case)
