@@ -3,22 +3,25 @@
 from __future__ import annotations
 
 import argparse
-from contextlib import nullcontext
 import json
 import sys
+from collections.abc import Sequence
+from contextlib import nullcontext
+from dataclasses import replace
 from pathlib import Path
-from typing import Sequence
+
+from rich.console import Console
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
 from crosscheck.model.cases import find_case_files, load_case
 from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.netlist import read_netlist_text
-from crosscheck.model.network import Network, Port
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import VERIFY_FORMATS, render_report, verify_format
 from crosscheck.version import __version__
+from crosscheck.vocabulary import same_frequency
 
 # Exit codes (documented in the README).
 EXIT_OK = 0           # every compared quantity within tolerance (or nothing to compare)
@@ -92,7 +95,11 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _fuzz_parser(sub) -> None:
-    from crosscheck.fuzz.generate import ALL_KINDS, FAMILIES, MIXED  # start-up time: loaded only by the commands that use it
+    from crosscheck.fuzz.generate import (  # start-up time: loaded only by the commands that use it
+        ALL_KINDS,
+        FAMILIES,
+        MIXED,
+    )
 
     fuzz = sub.add_parser("fuzz", help="random networks through both engines; shrinks what disagrees")
     fuzz.add_argument("--count", type=int, default=100, metavar="N", help="how many networks (default 100)")
@@ -200,13 +207,15 @@ def exit_code(verdicts: Sequence[str]) -> int:
 
 
 def _reduce(args: argparse.Namespace) -> int:
-    from rich.console import Console
-
-    from crosscheck.run.check import case_from_netlist, run_cases  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.equivalents_json import equivalents_document  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.equivalents_text import print_equivalents  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.results_json import case_document, results_document  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
+    """One netlist at one port: the equivalents, and both routes compared unless --engine own."""
+    from crosscheck.report.reduction import (  # start-up time: loaded only by the commands that use it
+        print_reduction,
+        reduction_document,
+    )
+    from crosscheck.run.check import (  # start-up time: loaded only by the commands that use it
+        case_from_netlist,
+        run_cases,
+    )
 
     freqs = _frequencies(args.freq)
     try:
@@ -214,15 +223,10 @@ def _reduce(args: argparse.Namespace) -> int:
     except _UsageError as exc:
         print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
-    text = _read_text(args.netlist)
-    case = case_from_netlist(str(args.netlist), text, tuple(args.port), freqs, _tolerance(args),
+    extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
+    case = case_from_netlist(str(args.netlist), _read_text(args.netlist), tuple(args.port), freqs, _tolerance(args),
                              args.allow_negative, args.sources)
-    case = _keep_order(case, freqs + [e.at_hz for e in expectations
-                                      if not any(abs(e.at_hz - f) <= 1e-9 * abs(f) for f in freqs)])
-    if expectations:
-        from dataclasses import replace
-
-        case = replace(case, expectations=expectations)
+    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
@@ -232,34 +236,13 @@ def _reduce(args: argparse.Namespace) -> int:
             [result] = run_cases([case], engine="both", pool=pool)
     if result.error and result.own is None:
         raise _AlreadyReported(result.error)
-    source_note = f"Sources as written in the netlist, taken as {args.sources.upper()} phasors."
+    compared = args.engine != "own"
     if args.format == "json":
-        if args.engine == "own":
-
-            doc = equivalents_document(_network_title(result), Port(*result.port), result.own, args.sources,
-                                       source_file=str(args.netlist))
-        else:
-            doc = results_document([result])
-            doc.update({"port": list(result.port), "points": case_document(result)["points"],
-                        "verdict": result.verdict})
-        if expectations:
-            from crosscheck.report.results_json import checks_document  # start-up time: loaded only by the commands that use it
-
-            doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
+        doc = reduction_document(result, compared, args.sources, str(args.netlist), bool(expectations))
         json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
         print()
     else:
-        console = Console()
-        print_equivalents(console, result.title, result.port, result.own, source_note,
-                          caution=args.engine == "own" and not expectations)
-        if args.engine != "own":
-            print_results(console, [result], detail=True)
-        elif expectations:
-            from crosscheck.report.caution import CAUTION  # start-up time: loaded only by the commands that use it
-            from crosscheck.report.results_text import print_checks  # start-up time: loaded only by the commands that use it
-
-            print_checks(console, result, detail=True)
-            console.print(f"[dim]Caution: {CAUTION}[/]")
+        print_reduction(Console(), result, compared, args.sources, bool(expectations))
     return exit_code([result.verdict])
 
 
@@ -274,19 +257,8 @@ def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
         raise _UsageError(str(exc)) from None
 
 
-def _network_title(result):
-
-    return Network(result.title, ())
-
-
-def _keep_order(case, freqs):
-    from dataclasses import replace
-
-    return replace(case, freqs_hz=tuple(freqs))
-
-
-class _AlreadyReported(Exception):
-    pass
+class _AlreadyReported(CrosscheckError):
+    """An error already put in words by the case result; the command line prints it as it is."""
 
 
 def _read_text(path: Path) -> str:
@@ -298,9 +270,9 @@ def _verify(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
+    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
     from crosscheck.run.batch import run_batch  # start-up time: loaded only by the commands that use it
     from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
 
     if args.update_baseline and args.baseline is None:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)",
@@ -383,10 +355,13 @@ def _fuzz(args: argparse.Namespace) -> int:
     """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
     from rich.console import Console
 
-    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: loaded only by the commands that use it
     from crosscheck.fuzz.generate import Knobs  # start-up time: loaded only by the commands that use it
+    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: loaded only by the commands that use it
     from crosscheck.fuzz.reproducer import summary_document  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.fuzz_summary import fuzz_progress, print_summary  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.fuzz_summary import (  # start-up time: loaded only by the commands that use it
+        fuzz_progress,
+        print_summary,
+    )
 
     try:
         knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)

@@ -24,8 +24,9 @@ from __future__ import annotations
 
 import re
 import tomllib
+from collections.abc import Iterator
 from pathlib import Path
-from typing import Any, Iterator
+from typing import Any
 
 import pytest
 
@@ -116,9 +117,9 @@ class CaseItem(pytest.Item):
         self.result: Any = None
 
     def setup(self) -> None:
-        from crosscheck.run.check import load_network  # start-up time: pytest loads this plugin in every session
-        from crosscheck.model.cases import load_case  # start-up time: pytest loads this plugin in every session
         from crosscheck.errors import CrosscheckError  # start-up time: pytest loads this plugin in every session
+        from crosscheck.model.cases import load_case  # start-up time: pytest loads this plugin in every session
+        from crosscheck.run.check import load_network  # start-up time: pytest loads this plugin in every session
 
         problem = None
         try:
@@ -130,8 +131,8 @@ class CaseItem(pytest.Item):
             pytest.fail(problem, pytrace=False)
 
     def runtest(self) -> None:
-        from crosscheck.run.check import run_cases  # start-up time: pytest loads this plugin in every session
         from crosscheck.report.frame import case_reason  # start-up time: pytest loads this plugin in every session
+        from crosscheck.run.check import run_cases  # start-up time: pytest loads this plugin in every session
 
         engine = self.config.getoption("crosscheck_engine")
         pool = _pool(self.config) if engine == "both" else None
@@ -146,7 +147,7 @@ class CaseItem(pytest.Item):
             pytest.skip(f"crosscheck unavailable: {case_reason(result)}")
         raise CaseProblem(result)
 
-    def repr_failure(self, excinfo: pytest.ExceptionInfo[BaseException], style: Any = None) -> str:
+    def repr_failure(self, excinfo: pytest.ExceptionInfo[BaseException], style: Any = None) -> Any:
         if isinstance(excinfo.value, CaseProblem):
             return failure_text(excinfo.value.result)
         return super().repr_failure(excinfo, style=style)
@@ -157,7 +158,11 @@ class CaseItem(pytest.Item):
 
 def failure_text(result: Any, rows: int = 8) -> str:
     """A few lines a reviewer can act on: the verdict, the obtained/expected table, and why."""
-    from crosscheck.report.frame import case_reason, findings, finding_table  # start-up time: pytest loads this plugin in every session
+    from crosscheck.report.frame import (  # start-up time: pytest loads this plugin in every session
+        case_reason,
+        finding_table,
+        findings,
+    )
 
     found = findings(result)
     lines = [f"crosscheck: {result.verdict} — {result.title} (port {result.port[0]} → {result.port[1]})"]

@@ -46,9 +46,12 @@ _ATTRIBUTE = {"vth": "vth", "zth": "zth", "in": "in_", "yn": "yn"}
 
 
 class _HasPhasors(Protocol):
-    vth: complex | None
-    zth: complex | None
-    in_: complex | None
+    @property
+    def vth(self) -> complex | None: ...
+    @property
+    def zth(self) -> complex | None: ...
+    @property
+    def in_(self) -> complex | None: ...
 
 
 def quantity_unit(quantity: str) -> str:

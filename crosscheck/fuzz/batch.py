@@ -48,7 +48,8 @@ def run_fuzz_batch(options: FuzzOptions, executor: Executor, on_progress: Progre
     started = time.perf_counter()
     tasks = windowed(executor, _fuzz_task, enumerate(seeds), (options.knobs, options.tolerance, options.timeout_s),
                      window)
-    for (index, seed), future in tasks:
+    for _numbered, future in tasks:
+        assert future is not None  # every item gets a task: no skip was given
         outcome, own_s = future.result()
         summary.own_s += own_s
         if note_outcome(summary, outcome, len(seeds), options, on_progress):

@@ -188,7 +188,7 @@ def isolate(outcome: CaseOutcome, pool: SpicePool, tol: Tolerance) -> CaseOutcom
         if not failing or all(c.cause in ROUNDOFF_CAUSES for c in failing):
             continue
         alone, error = spice_result(pool.submit(case.network, case.port, [p.freq_hz]))
-        if error is not None or p.freq_hz not in own:
+        if alone is None or error is not None or p.freq_hz not in own:
             return outcome
         again = compare_point(own[p.freq_hz], spice_answer(alone.points[0]), tol)
         if again.verdict != "pass":

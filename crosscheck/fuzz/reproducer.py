@@ -7,7 +7,6 @@ import json
 import math
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
 
 from crosscheck.fuzz.faults import FAULTS
 from crosscheck.fuzz.generate import Knobs

@@ -18,9 +18,10 @@ import hashlib
 import json
 import math
 import os
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Iterable, Sequence
+from typing import Any
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.records import Cause, DriftCheck

@@ -12,6 +12,7 @@ from crosscheck.judge.baseline import Baseline, compare_with_baseline
 from crosscheck.judge.compare import EngineAnswer, compare_point, spice_answer
 from crosscheck.judge.expectations import check_expectations
 from crosscheck.judge.limits import check_limits
+from crosscheck.judge.records import ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.judge.result import CaseResult, case_verdict
 from crosscheck.model.network import Network
 from crosscheck.vocabulary import Verdict
@@ -26,11 +27,12 @@ def judged(result: CaseResult, network: Network | None, *, compare: bool = True,
     """
     if result.own is None:
         return replace(result, verdict=Verdict.ERROR)
-    expectations, limits = (), ()
+    expectations: tuple[ExpectationCheck, ...] = ()
+    limits: tuple[LimitCheck, ...] = ()
     if result.case is not None:
         expectations = tuple(check_expectations(result.case, result.own, network))
         limits = tuple(check_limits(result.case, result.own))
-    points = ()
+    points: tuple[PointCheck, ...] = ()
     if compare:
         refs: list[EngineAnswer | None] = (
             [spice_answer(p) for p in result.spice.points] if result.spice is not None else [None] * len(result.own))

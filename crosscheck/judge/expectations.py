@@ -16,8 +16,9 @@ from collections.abc import Sequence
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.records import Cause, ExpectationCheck
 from crosscheck.judge.slips import Slip, diagnose
-from crosscheck.judge.stated import SERIES, deviation, format_value, quantity_value, signed
+from crosscheck.judge.stated import deviation, format_value, quantity_value, signed
 from crosscheck.model.cases import Case, Expectation
+from crosscheck.model.expect_option import SERIES
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Network, Port
 from crosscheck.model.tolerance import Tolerance

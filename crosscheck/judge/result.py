@@ -45,7 +45,8 @@ class CaseResult:
         """The first explanation among the judgements that carry the case's verdict."""
         if self.error:
             return self.error
-        parts = [*self.points, *self.expectations, *self.limits, *self.drift]
+        parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck] = [
+            *self.points, *self.expectations, *self.limits, *self.drift]
         notes = [p.explanation for p in parts if p.verdict == self.verdict and p.explanation]
         return notes[0] if notes else ""
 

@@ -19,14 +19,14 @@ from __future__ import annotations
 
 import cmath
 import math
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, replace
-from typing import Callable, Iterator
 
-from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.stated import deviation, format_value, quantity_value
 from crosscheck.model.network import Network, Port, make_element
 from crosscheck.model.tolerance import Tolerance
+from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.vocabulary import PHASORS, quantity_name
 
 SQRT2 = math.sqrt(2.0)
@@ -108,8 +108,14 @@ def _from_network(name: str, eq: Equivalent | None, quantity: str, sentence: Cal
 def _candidates(network: Network | None, port: Port, quantity: str, true_eq: Equivalent,
                 sources: str) -> Iterator[_Candidate]:
     """Every hypothesis in order of preference (used only to break exact ties)."""
+    yield from _network_candidates(network, port, quantity, true_eq)
+    yield from _value_candidates(quantity, true_eq, sources)
+
+
+def _network_candidates(network: Network | None, port: Port, quantity: str,
+                        true_eq: Equivalent) -> Iterator[_Candidate]:
+    """Slips in the working: the network solved again as the slip would have it."""
     f = true_eq.freq_hz
-    q = quantity_name(quantity)
     if network is not None:
         zeroed = dependent_sources_zeroed(network)
         if zeroed is not None:
@@ -141,6 +147,11 @@ def _candidates(network: Network | None, port: Port, quantity: str, true_eq: Equ
             yield _from_network("capacitive reactance sign", _recompute(flipped, port, f), quantity, lambda v: (
                 f"the capacitors were given the inductive sign (+j/(ωC) instead of −j/(ωC) = 1/(jωC)), which "
                 f"gives {v}"))
+
+
+def _value_candidates(quantity: str, true_eq: Equivalent, sources: str) -> Iterator[_Candidate]:
+    """Slips in writing the answer down: the right value transformed as the slip would."""
+    q = quantity_name(quantity)
     true_value = quantity_value(true_eq, quantity)[0]
     if true_value is None or quantity not in PHASORS:
         return
@@ -158,14 +169,14 @@ def _candidates(network: Network | None, port: Port, quantity: str, true_eq: Equ
         angle = theta + turn
         wrapped = "" if turn == 0 else f" (carried unwrapped; wrapped it is {theta:.2f}°)"
         yield _Candidate("degrees read as radians", cmath.rect(abs(t), math.radians(math.radians(angle))),
-                         lambda v, angle=angle, wrapped=wrapped: (
+                         lambda v, angle=angle, wrapped=wrapped: (  # type: ignore[misc]
                              f"the stated angle is the true angle {angle:.2f}°{wrapped} expressed in radians "
                              f"({math.radians(angle):.4g}) and written as degrees: {v}; convert with 180/π "
                              "(or set the calculator to degrees)"))
     if t.real < 0:
         atan = math.degrees(math.atan(t.imag / t.real))
         yield _Candidate("angle off by 180° (atan for atan2)", cmath.rect(abs(t), math.radians(atan)),
-                         lambda v, atan=atan: (
+                         lambda v, atan=atan: (  # type: ignore[misc]
                              f"the angle was taken as atan(im/re) = {atan:.2f}°, which loses the quadrant when the "
                              f"real part is negative; atan2 gives {theta:.2f}°"))
     if quantity in ("vth", "in"):
@@ -199,6 +210,7 @@ def diagnose(network: Network | None, port: Port, quantity: str, stated: complex
         return None
     matches.sort(key=lambda m: (m[0], m[1]))
     score, _, best = matches[0]
+    assert best.value is not None  # candidates without a value were skipped above
     others = tuple(dict.fromkeys(m[2].name for m in matches[1:] if m[2].name != best.name))
     sentence = best.sentence(format_value(quantity, best.value))
     if others:

@@ -7,11 +7,11 @@ import math
 from dataclasses import dataclass
 
 from crosscheck.judge.compare import magnitude_error_pct, phase_difference_deg
-from crosscheck.model.expect_option import SERIES
 from crosscheck.model.tolerance import Tolerance
 from crosscheck.model.values import format_eng, format_polar, format_rect
 from crosscheck.own.equivalent import Equivalent
 from crosscheck.vocabulary import PHASORS, phasor_of, quantity_name, quantity_unit
+
 
 @dataclass(frozen=True)
 class Deviation:

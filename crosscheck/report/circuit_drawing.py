@@ -9,11 +9,11 @@ source at the port) the Norton current source is drawn instead.
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from collections.abc import Sequence
 
 from crosscheck.judge.result import CaseResult
-from crosscheck.own.equivalent import Equivalent
 from crosscheck.model.values import format_eng, format_polar
+from crosscheck.own.equivalent import Equivalent
 
 
 def representative(result: CaseResult) -> Equivalent | None:
@@ -40,10 +40,9 @@ def _series_elements(eq: Equivalent) -> Sequence[tuple[str, str]]:
     parts = []
     if form.resistance != 0 or form.reactive_kind is None:
         parts.append(("R", f"R = {format_eng(form.resistance, 4, ' Ω')}"))
-    if form.reactive_kind == "L":
-        parts.append(("L", f"L = {format_eng(form.reactive_value, 4, ' H')}"))
-    elif form.reactive_kind == "C":
-        parts.append(("C", f"C = {format_eng(form.reactive_value, 4, ' F')}"))
+    if form.reactive_kind is not None and form.reactive_value is not None:
+        unit = " H" if form.reactive_kind == "L" else " F"
+        parts.append((form.reactive_kind, f"{form.reactive_kind} = {format_eng(form.reactive_value, 4, unit)}"))
     return parts
 
 
@@ -66,7 +65,7 @@ def equivalent_svg(eq: Equivalent, port: tuple[str, str], sources: str = "peak")
             drawing.add(elm.Line().right().label("Z_th = 0"))
     else:
         source = drawing.add(elm.SourceI().up().label(
-            f"I_N = {format_polar(eq.in_, 4, ' A')}\n{sources} {at}", loc="top"))
+            f"I_N = {format_polar(eq.in_ or 0j, 4, ' A')}\n{sources} {at}", loc="top"))
         drawing.add(elm.Line().right().label("Y_N = 0: no Thevenin form"))
     drawing.add(elm.Dot(open=True).label(f"a ({port[0]})", loc="right"))
     drawing.add(elm.Gap().down().toy(source.start).label(["+", "port", "−"]))

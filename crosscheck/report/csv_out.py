@@ -10,12 +10,12 @@ row rather than a trailing comment, so the file stays one valid table.
 
 from __future__ import annotations
 
-from typing import Sequence
+from collections.abc import Sequence
 
 import pandas as pd
 
-from crosscheck.report.caution import CAUTION
 from crosscheck.judge.result import CaseResult
+from crosscheck.report.caution import CAUTION
 from crosscheck.report.frame import COLUMNS, verdict_frame
 
 

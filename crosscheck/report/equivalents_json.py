@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
-from crosscheck.report.caution import CAUTION
-from crosscheck.own.equivalent import ElementForm, Equivalent
 from crosscheck.model.network import Network, Port
+from crosscheck.own.equivalent import ElementForm, Equivalent
+from crosscheck.report.caution import CAUTION
 from crosscheck.report.phasor_json import phasor
 from crosscheck.version import __version__
 

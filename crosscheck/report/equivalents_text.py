@@ -2,14 +2,14 @@
 
 from __future__ import annotations
 
-from typing import Sequence
+from collections.abc import Sequence
 
 from rich.console import Console
 from rich.table import Table
 
-from crosscheck.report.caution import CAUTION
-from crosscheck.own.equivalent import ElementForm, Equivalent
 from crosscheck.model.values import format_eng, format_polar, format_rect
+from crosscheck.own.equivalent import ElementForm, Equivalent
+from crosscheck.report.caution import CAUTION
 
 
 def _form(form: ElementForm | None, series: bool) -> str:
@@ -18,6 +18,7 @@ def _form(form: ElementForm | None, series: bool) -> str:
     first = format_eng(form.resistance, 4, " Ω" if series else " S")
     if form.reactive_kind is None:
         return first
+    assert form.reactive_value is not None  # a form with a reactive kind has its value
     unit = " H" if form.reactive_kind == "L" else " F"
     joiner = " + " if series else " ‖ "
     return f"{first}{joiner}{form.reactive_kind} {format_eng(form.reactive_value, 4, unit)}"

@@ -13,15 +13,15 @@ all tell a user the same thing about a case.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Mapping, Sequence
 
 import pandas as pd
 
-from crosscheck.judge.result import CaseResult
-from crosscheck.vocabulary import QUANTITIES, Verdict, quantity_unit
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck
+from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
+from crosscheck.vocabulary import QUANTITIES, Verdict, quantity_unit
 
 COLUMNS = ["case", "title", "port", "check", "freq_hz", "quantity", "own_re", "own_im", "spice_re", "spice_im",
            "expected_re", "expected_im", "limit_min", "limit_max", "band_lo_hz", "band_hi_hz", "margin",
@@ -207,9 +207,9 @@ def case_reason(result: CaseResult) -> str:
     """One sentence on why the case has its verdict: the first finding with that verdict, else the worst one."""
     found = findings(result)
     same = [f for f in found if f.verdict == result.verdict]
-    pick = (same or found or [None])[0]
-    if pick is None:
+    if not (same or found):
         return result.explanation
+    pick = (same or found)[0]
     where = f" at {format_eng(pick.freq_hz, 4, ' Hz')}" if pick.freq_hz is not None else ""
     if pick.check == "input":
         return pick.why
@@ -241,8 +241,9 @@ def worst_spice_error(result: CaseResult) -> float | None:
     return max(errs) if errs else None
 
 
-def count_words(counts: Mapping[str, int]) -> str:
+def count_words(counts: Mapping[str, int] | Mapping[Verdict, int]) -> str:
     """'3 pass, 1 fail, 0 error, 0 unavailable' plus any other verdict that occurred (e.g. '1 drift')."""
+    by_word = {str(v): n for v, n in counts.items()}
     shown = ["pass", "fail", "error", "unavailable"]
-    shown += sorted((v for v in counts if v not in shown), key=severity)
-    return ", ".join(f"{counts.get(v, 0)} {v}" for v in shown)
+    shown += sorted((v for v in by_word if v not in shown), key=severity)
+    return ", ".join(f"{by_word.get(v, 0)} {v}" for v in shown)

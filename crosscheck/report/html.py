@@ -11,17 +11,17 @@ import base64
 import html
 import math
 from collections import Counter
-from typing import Sequence
+from collections.abc import Sequence
 
-from crosscheck.report.caution import CAUTION
 from crosscheck.judge.result import CaseResult
-from crosscheck.vocabulary import quantity_unit
 from crosscheck.model.values import format_eng, format_polar
+from crosscheck.report.caution import CAUTION
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
 from crosscheck.report.plots import case_figure_png, is_swept
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
+from crosscheck.vocabulary import quantity_unit
 
 _STYLE = """
 body { font-family: system-ui, sans-serif; margin: 1.5em auto; max-width: 72em; color: #222; padding: 0 1em; }
@@ -127,8 +127,8 @@ def _figures(r: CaseResult) -> str:
                      f'alt="equivalent circuit at {_attr(at)}"><figcaption>Equivalent at {_e(at)} (crosscheck\'s '
                      "solver): the source in series with Z_th drawn as R with L or C. Valid at this frequency "
                      "only.</figcaption></figure>")
-    if is_swept(r):
-        png = case_figure_png(r)
+    png = case_figure_png(r) if is_swept(r) else None
+    if png is not None:
         parts.append(f'<figure class="sweep"><img class="plot" src="{_data_uri("image/png", png)}" '
                      f'alt="Z_th and V_th against frequency from both engines, and the error"><figcaption>'
                      "crosscheck as lines, ngspice as circles; hand values as stars; design limits shade the "

@@ -17,13 +17,13 @@ import re
 import socket
 import xml.etree.ElementTree as ET
 from collections import Counter
+from collections.abc import Sequence
 from pathlib import PurePath
-from typing import Sequence
 
-from crosscheck.report.caution import CAUTION
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng
-from crosscheck.report.frame import case_reason, findings, finding_table, worst_spice_error
+from crosscheck.report.caution import CAUTION
+from crosscheck.report.frame import case_reason, finding_table, findings, worst_spice_error
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
 

@@ -9,11 +9,18 @@ at about 65,000 characters, so long lists are cut with a note of how many were l
 from __future__ import annotations
 
 from collections import Counter
-from typing import Sequence
+from collections.abc import Sequence
 
-from crosscheck.report.caution import CAUTION
 from crosscheck.judge.result import CaseResult
-from crosscheck.report.frame import case_reason, count_words, findings, finding_table, overall_verdict, worst_spice_error
+from crosscheck.report.caution import CAUTION
+from crosscheck.report.frame import (
+    case_reason,
+    count_words,
+    finding_table,
+    findings,
+    overall_verdict,
+    worst_spice_error,
+)
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
 

@@ -10,20 +10,21 @@ from __future__ import annotations
 
 import io
 import math
-from typing import Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
-from crosscheck.judge.result import CaseResult
 from crosscheck.judge.records import LimitCheck
+from crosscheck.judge.result import CaseResult
 
 #: A case needs at least this many frequencies to be drawn as a sweep.
 MIN_SWEEP_POINTS = 3
 #: Errors of exactly zero cannot sit on a log axis; they are drawn here and the axis says so.
 ERROR_FLOOR = 1e-18
 
-_OWN = dict(color="#1f5fa8", lw=1.6, label="crosscheck")
-_SPICE = dict(color="#d9822b", marker="o", ms=4.5, ls="none", mfc="none", mew=1.2, label="ngspice")
+_OWN: dict[str, Any] = dict(color="#1f5fa8", lw=1.6, label="crosscheck")
+_SPICE: dict[str, Any] = dict(color="#d9822b", marker="o", ms=4.5, ls="none", mfc="none", mew=1.2, label="ngspice")
 _VERDICT_COLOUR = {"pass": "#2e7d32", "fail": "#c62828", "unavailable": "#9e9e9e", "drift": "#6a1b9a"}
 _ERR_COLOURS = {"vth": "#1f5fa8", "zth": "#d9822b", "in": "#2e7d32"}
 _PANELS = {("abs", "zth"): "zmag", ("abs", "vth"): "vmag", ("phase", "zth"): "zph", ("phase", "vth"): "vph",
@@ -54,7 +55,8 @@ def _magnitude_axis(ax, *arrays: np.ndarray) -> None:
 def _limit_bounds(check: LimitCheck) -> tuple[float | None, float | None]:
     """Bounds in the panel's unit: a dB limit is drawn on the magnitude axis."""
     if check.function == "db":
-        return tuple(None if b is None else 10 ** (b / 20) for b in (check.minimum, check.maximum))
+        lo, hi = check.minimum, check.maximum
+        return (None if lo is None else 10 ** (lo / 20), None if hi is None else 10 ** (hi / 20))
     return check.minimum, check.maximum
 
 
@@ -73,7 +75,7 @@ def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float
         top = max(top, upper * 1.5 if log else upper + 0.1 * span)
     if lower is not None:
         bottom = min(bottom, lower / 1.5 if log else lower - 0.1 * span)
-    label = f"limit[{check.index}] {check.text} ({check.verdict})"
+    label: str | None = f"limit[{check.index}] {check.text} ({check.verdict})"
     for bound, edge in ((upper, top), (lower, bottom)):
         if bound is None:
             continue
@@ -143,10 +145,11 @@ def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
 
     if not is_swept(result):
         return None
-    freqs_all = np.array([eq.freq_hz for eq in result.own])
+    own_points = result.own or ()
+    freqs_all = np.array([eq.freq_hz for eq in own_points])
     keep = freqs_all > 0  # DC cannot sit on a log axis; it stays in the points table
     freqs = freqs_all[keep]
-    own = {"vth": _series([eq.vth for eq in result.own])[keep], "zth": _series([eq.zth for eq in result.own])[keep]}
+    own = {"vth": _series([eq.vth for eq in own_points])[keep], "zth": _series([eq.zth for eq in own_points])[keep]}
     ref = {q: (None if (s := _spice_values(result, q)) is None else s[keep]) for q in ("vth", "zth")}
 
     fig = Figure(figsize=(10, 9.5))
@@ -162,11 +165,12 @@ def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
         quantity = "zth" if key.startswith("z") else "vth"
         transform = np.abs if key.endswith("mag") else (lambda z: np.angle(z, deg=True))
         ax.plot(freqs, transform(own[quantity]), **_OWN)
-        if ref[quantity] is not None:
-            ax.plot(freqs, transform(ref[quantity]), **_SPICE)
+        reference = ref[quantity]
+        if reference is not None:
+            ax.plot(freqs, transform(reference), **_SPICE)
         ax.set_xscale("log")
         if key.endswith("mag"):
-            _magnitude_axis(ax, own[quantity], ref[quantity])
+            _magnitude_axis(ax, own[quantity], *([] if reference is None else [reference]))
         ax.set_title(titles[key][0])
         ax.set_ylabel(titles[key][1])
         ax.set_xlabel("frequency (Hz)")

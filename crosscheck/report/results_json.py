@@ -4,14 +4,15 @@ from __future__ import annotations
 
 import math
 from collections import Counter
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
-from crosscheck.report.caution import CAUTION
 from crosscheck.judge.result import CaseResult
-from crosscheck.vocabulary import Verdict
+from crosscheck.report.caution import CAUTION
 from crosscheck.report.equivalents_json import own_point
 from crosscheck.report.phasor_json import phasor
 from crosscheck.version import __version__
+from crosscheck.vocabulary import Verdict
 
 
 def _num(x: float) -> Any:

@@ -3,18 +3,18 @@
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from collections.abc import Sequence
 
 from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from crosscheck.report.caution import CAUTION
-from crosscheck.judge.result import CaseResult
-from crosscheck.model.values import format_eng, format_polar
-from crosscheck.report.results_json import ngspice_version, summary
 from crosscheck.judge.limits import unit
+from crosscheck.judge.result import CaseResult
 from crosscheck.judge.stated import format_value
+from crosscheck.model.values import format_eng, format_polar
+from crosscheck.report.caution import CAUTION
+from crosscheck.report.results_json import ngspice_version, summary
 from crosscheck.vocabulary import quantity_unit
 
 STYLE = {"pass": "green", "fail": "bold red", "error": "bold magenta", "unavailable": "yellow", "drift": "bold yellow"}

@@ -25,9 +25,9 @@ from __future__ import annotations
 import atexit
 import threading
 from collections import deque
+from collections.abc import Callable, Generator, Iterable, Iterator, Sequence
 from concurrent.futures import Executor, Future
 from contextlib import contextmanager
-from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import replace
 from typing import Any
 
@@ -129,7 +129,7 @@ def _error(item: Case, message: str) -> CaseResult:
 
 
 def windowed(executor: Executor, fn: Callable, items: Iterable, args: tuple, window: int,
-             skip: Callable[[Any], bool] = lambda item: False) -> Iterator[tuple[Any, Future | None]]:
+             skip: Callable[[Any], bool] = lambda item: False) -> Generator[tuple[Any, Future | None], None, None]:
     """Submit ``fn(item, *args)`` for each item, at most ``window`` ahead of the one yielded; in order.
 
     Items for which ``skip`` is true get no task (yielded with None).

@@ -70,8 +70,8 @@ def run_cases(cases: Sequence[Case | tuple[str, CrosscheckError]], engine: str =
         staged.append((head, network, future))
 
     out: list[CaseResult] = []
-    for head, network, future in staged:
-        result = head if network is None else _finish(head, network, future, engine, baseline)
+    for head, parsed, future in staged:
+        result = head if parsed is None else _finish(head, parsed, future, engine, baseline)
         if on_done is not None:
             on_done(result)
         out.append(result)
