@@ -12,14 +12,20 @@ NGSPICE_LIB := /usr/lib/$(shell uname -m)-linux-gnu/libngspice.so.0
 APT_PACKAGES := libngspice0 libngspice0-dev libklu1 gcc libc6-dev
 have_lib = ldconfig -p 2>/dev/null | grep -q '$(1) '
 
-.PHONY: demo test test-full test-spice bench fuzz-full system-libs venv clean
+.PHONY: demo test lint test-full test-spice bench fuzz-full system-libs venv clean
 
 demo: $(STAMP) system-libs
 	$(BIN)/crosscheck reduce corpus/audio/mixer_line_out.cir --port far_end 0 --freq 20 1k 20k
 	$(BIN)/crosscheck verify corpus --output out/corpus-report.html
 
-test: $(STAMP) system-libs
+test: $(STAMP) system-libs lint
 	$(BIN)/python -m pytest -m "not slow" -p no:cacheprovider
+
+# The package and the benchmark: lint, format and types (configured in pyproject.toml).
+lint: $(STAMP)
+	$(BIN)/ruff check crosscheck benchmarks
+	$(BIN)/ruff format --check crosscheck benchmarks
+	$(BIN)/mypy
 
 # Everything, including the long fuzz runs and large networks (not part of CI).
 test-full: $(STAMP) system-libs
