@@ -15,7 +15,7 @@ def _modules_after(statement: str) -> set[str]:
 
 
 def test_solver_imports_neither_pyspice_nor_pandas():
-    """Importing the solver and equivalents must not pull in PySpice or pandas (STYLE.md rule 1)."""
+    """Importing the solver and equivalents must not pull in PySpice or pandas."""
     loaded = _modules_after("import crosscheck.own.equivalent, crosscheck.own.solver")
     assert not any(m == "PySpice" or m.startswith("PySpice.") for m in loaded)
     assert "pandas" not in loaded
@@ -48,7 +48,7 @@ def test_public_api_matches_all():
 
 
 def test_errors_derive_from_builtins():
-    """Every crosscheck error also derives from the built-in it resembles (STYLE.md rule 2)."""
+    """Every crosscheck error also derives from the built-in it resembles."""
     assert issubclass(crosscheck.NetlistError, ValueError)
     assert issubclass(crosscheck.SingularNetworkError, ArithmeticError)
     assert issubclass(crosscheck.ReferenceEngineError, RuntimeError)

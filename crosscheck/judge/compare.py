@@ -1,6 +1,6 @@
 """Compare two engines' equivalents and give verdicts that say why.
 
-Judging rule (DESIGN.md): a quantity q of a point passes when
+Judging rule: a quantity q of a point passes when
 
     |q − q_ref| <= max(tol.rel·|q_ref|, tol.abs, G·κ·ε·scale_q)
 

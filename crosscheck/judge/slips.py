@@ -5,7 +5,7 @@ itself where the slip is in the working, on the right value where it is in the
 last step) and is accepted only when the stated value matches *that* within the
 expectation's own tolerance, and the slip's value is itself told apart from the
 right one at that tolerance. The signatures are the project's list of
-hand-calculation slips (REFERENCES.md): an angle in radians written as degrees;
+hand-calculation slips (common practice): an angle in radians written as degrees;
 atan for atan2 (180° off); f used for ω (reactances 2π off); capacitive terms
 with the inductive sign; RMS against peak (√2); independent sources not zeroed
 or dependent ones zeroed; a conjugate; the port's polarity reversed.

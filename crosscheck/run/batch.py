@@ -11,9 +11,9 @@ executor says so through its future) becomes an ``error`` result for that case
 alone.
 
 With no executor the local default runs: the own solver in this process and
-ngspice in a ``SpicePool`` of ``workers`` processes (``check.run_cases``).
-``benchmarks/bench.py`` measures it against a process pool of whole-case
-tasks; the local default was the faster (see the README's benchmark section).
+ngspice in a ``SpicePool`` of ``workers`` processes (``check.run_cases``):
+one engine per worker, the own solver never waiting for a task slot.
+``benchmarks/bench.py`` times it against a process pool of whole-case tasks.
 
 Results come back in the order given whatever order the workers finish in;
 the own solver and ngspice are deterministic, so a cluster run gives the same
