@@ -173,30 +173,20 @@ def test_unreachable_cluster_is_an_error_naming_the_address():
 @pytest.mark.spice
 def test_fuzz_batch_stops_after_failures_and_shrinks_like_a_local_run(monkeypatch, tmp_path):
     """run_fuzz_batch's stop-after-failures and shrinking paths, which a cluster never exercises (faults do not
-    reach its workers). A one-thread executor shares this process, so a fault turned on inside each task and
-    around the shrinking reaches both; with a window of 1 no task overlaps another. The run must stop at the
-    same case as the local loop under the same fault, and shrink that case to a smaller one that still fails."""
+    reach its workers). A one-thread executor shares this process, so the fuzz loop's own route, replaced by a
+    broken one, serves both the tasks and the shrinking; with a window of 1 no task overlaps another. The run
+    must stop at the same case as the local loop under the same fault, and shrink that case to a smaller one
+    that still fails."""
     from concurrent.futures import ThreadPoolExecutor
 
-    from crosscheck.run import batch; from crosscheck.fuzz import loop as fuzz
-    from crosscheck.fuzz.faults import injected
+    from crosscheck.fuzz import loop as fuzz
+    from crosscheck.fuzz.faults import faulty_route, injected
 
     fault = "capacitor-inverted"
-    real_task, real_finish = batch._fuzz_task, fuzz.finish
-
-    def task_with_fault(*args):
-        with injected(fault):
-            return real_task(*args)
-
-    def finish_with_fault(summary, options, pool=None):
-        with injected(fault):
-            return real_finish(summary, options, pool)
-
+    monkeypatch.setattr(fuzz, "thevenin", faulty_route(fault))  # the own route of every case and of shrinking
     options = FuzzOptions(count=50, seed=2, stop_after_failures=1, shrink_budget=150, workers=1)
     with injected(fault):
         local = run_fuzz(options)
-    monkeypatch.setattr(batch, "_fuzz_task", task_with_fault)
-    monkeypatch.setattr(fuzz, "finish", finish_with_fault)
     batched_options = FuzzOptions(count=50, seed=2, stop_after_failures=1, shrink_budget=150, workers=1, out=tmp_path)
     with ThreadPoolExecutor(1) as executor:
         remote = run_fuzz_batch(batched_options, executor, window=1)

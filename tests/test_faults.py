@@ -1,4 +1,4 @@
-"""Fault injection: the hook is off unless a ``with`` block turns it on, each fault really breaks the own
+"""Fault injection: faults are named only inside a ``with`` block, each fault's stamps really break the own
 solver, and a bounded, seeded fuzz run catches every one."""
 
 from __future__ import annotations
@@ -7,8 +7,9 @@ import pytest
 from rich.console import Console
 
 from crosscheck.fuzz import faults
+from crosscheck.fuzz import loop
 from crosscheck.own.equivalent import thevenin
-from crosscheck.fuzz.faults import FAULTS, injected
+from crosscheck.fuzz.faults import FAULTS, faulty_route, faulty_stamps, injected, own_route
 from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Port
@@ -29,9 +30,10 @@ BOUND = 300
 
 def test_off_unless_injected():
     """No fault is on outside a with block; inside, exactly the named ones; after it (even on error), none."""
-    assert faults.active == frozenset()
+    assert faults.active == frozenset() and own_route() is thevenin
     with injected("vccs-sign") as on:
         assert on == faults.active == {"vccs-sign"}
+        assert own_route().keywords["stamps"].names == {"vccs-sign"}
         with injected("mutual-sign"):
             assert faults.active == {"vccs-sign", "mutual-sign"}
         assert faults.active == {"vccs-sign"}
@@ -47,18 +49,21 @@ def test_unknown_fault_is_refused():
         pass
     with pytest.raises(ValueError, match="at least one"), injected():
         pass
+    with pytest.raises(ValueError, match="vccs-sign"):
+        faulty_stamps("vccs-sing")
+    with pytest.raises(ValueError, match="at least one"):
+        faulty_route()
     assert faults.active == frozenset()
 
 
 @pytest.mark.parametrize("name", sorted(FAULTS))
 def test_each_fault_breaks_the_own_solver(name):
     """On its showcase network each fault moves V_th or Z_th by more than 1e-3 relative; without it the
-    answers are the same to 1e-12 before and after (the hook leaves nothing behind)."""
+    answers are the same to 1e-12 before and after (the broken stamps leave nothing behind)."""
     text, port, f = SHOWCASES[name]
     network = read_netlist(text)
     [before] = thevenin(network, port, [f])
-    with injected(name):
-        [broken] = thevenin(network, port, [f])
+    [broken] = faulty_route(name)(network, port, [f])
     [after] = thevenin(network, port, [f])
     moved = max(abs(getattr(broken, q) - getattr(before, q)) / max(abs(getattr(before, q)), 1e-300)
                 for q in ("vth", "zth") if getattr(before, q) is not None and getattr(broken, q) is not None)
@@ -69,8 +74,9 @@ def test_each_fault_breaks_the_own_solver(name):
 
 @pytest.mark.spice
 @pytest.mark.parametrize("name", sorted(FAULTS))
-def test_fuzz_catches_each_fault(name, record_property):
+def test_fuzz_catches_each_fault(name, record_property, monkeypatch):
     """A seeded fuzz run (seed 1) meets each fault within BOUND cases, says a fault was on, and turns it off."""
+    monkeypatch.setattr(loop, "thevenin", faulty_route(name))  # the fuzz loop's own route, broken
     with injected(name):
         summary = run_fuzz(FuzzOptions(count=BOUND, seed=1, workers=2, stop_after_failures=1, shrink=False))
     assert faults.active == frozenset()

@@ -11,7 +11,8 @@ from crosscheck.model.cases import load_case
 from crosscheck.run.check import load_network
 from crosscheck.cli import main
 from crosscheck.judge.compare import compare_quantity
-from crosscheck.fuzz.faults import injected
+from crosscheck.fuzz import loop
+from crosscheck.fuzz.faults import faulty_route, injected
 from crosscheck.fuzz.loop import EXPLAINED_PHRASES, FuzzOptions, recheck, run_fuzz
 from crosscheck.fuzz.generate import Knobs
 from crosscheck.model.tolerance import SOLVER_VS_SPICE
@@ -52,7 +53,8 @@ def test_seeded_run_has_no_unexplained_disagreement(pool):
 def test_shrinking_an_injected_fault(pool, tmp_path):
     """With a fault on, the failing case shrinks to one that still fails and is no larger; its files are a
     ready regression case: the case file loads, and without the fault the shrunk case passes."""
-    with injected("capacitor-inverted"):
+    with pytest.MonkeyPatch.context() as patch, injected("capacitor-inverted"):
+        patch.setattr(loop, "thevenin", faulty_route("capacitor-inverted"))  # the fuzz loop's own route, broken
         summary = run_fuzz(FuzzOptions(count=50, seed=2, stop_after_failures=1, out=tmp_path, shrink_budget=150),
                            pool=pool)
         [rep] = summary.reproducers

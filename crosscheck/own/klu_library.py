@@ -171,7 +171,7 @@ class Symbolic:
         """The address of KLU's symbolic object (for the compiled sweep loop, ``sweep_kernel``)."""
         return self._handle
 
-    def factor(self, values: np.ndarray) -> "Numeric":
+    def factor(self, values: np.ndarray) -> Numeric:
         """A full factorization with threshold partial pivoting (pivot order chosen afresh).
 
         Each factorization has its own ``klu_common`` (KLU writes statistics there), so factorizations
@@ -197,7 +197,7 @@ class Numeric:
 
     def __init__(self, symbolic: Symbolic, handle: int, common: ctypes.Structure) -> None:
         self._symbolic = symbolic  # kept alive: the factors refer to its ordering
-        self._handle = handle
+        self._handle = handle  # 0 once freed
         self._common = common
         self._common_ref = ctypes.byref(common)
         lib = symbolic._library.lib
@@ -237,4 +237,4 @@ class Numeric:
         if getattr(self, "_handle", None):
             handle = _P(self._handle)
             self._symbolic._library.lib.klu_z_free_numeric(ctypes.byref(handle), ctypes.byref(self._common))
-            self._handle = None
+            self._handle = 0

@@ -88,7 +88,8 @@ class Run:
         rhs_sizes = np.ascontiguousarray(rhs_sizes, dtype=float)
         for name, array, order in (("columns", columns, "F_CONTIGUOUS"), ("xs", xs, "C_CONTIGUOUS"),
                                    ("conds", conds, "C_CONTIGUOUS")):
-            if not array.flags[order] or not array.flags.writeable:
+            in_order = array.flags.f_contiguous if order == "F_CONTIGUOUS" else array.flags.c_contiguous
+            if not in_order or not array.flags.writeable:
                 raise ValueError(f"the sweep kernel writes {name} in place: it must be {order} and writeable")
         k = rhs.shape[1]
         estimate = columns.shape[1] == k + 2
