@@ -21,7 +21,8 @@ from crosscheck.errors import CrosscheckError
 from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
 from crosscheck.fuzz.generate import case_seed, generate_case
 from crosscheck.model.netlist import write_netlist
-from crosscheck.spice.workers import FAULT_ENV
+from crosscheck.spice import workers
+from misbehaving_solve import MisbehavingPool, use_misbehaving_pools
 
 CORPUS = Path(__file__).resolve().parent.parent / "corpus"
 DIVIDER = "{title}\nV1 s 0 AC 10\nR1 s a 1k\nR2 a 0 {r2}\n.end\n"
@@ -79,13 +80,15 @@ def test_windowed_gives_no_task_to_skipped_items():
 @pytest.mark.spice
 def test_process_pool_gives_the_local_results_and_a_crash_costs_one_case(monkeypatch, tmp_path):
     """Whole-case tasks in a process pool match the local run; a case that kills ngspice is its own error."""
-    monkeypatch.setenv(FAULT_ENV, "1")  # inherited by the pool's processes and read there at submit
+    # Every ngspice pool built here and in the executor's processes runs the tests' misbehaving solver.
+    monkeypatch.setattr(workers, "SpicePool", MisbehavingPool)
     die = case_from_netlist("die.cir", DIVIDER.format(title="crosscheck-test-fault:die", r2="500"), ("a", "0"),
                             [1e3])
     cases = _generated(12)
     cases.insert(5, die)
     local = run_batch(cases, workers=2)
-    with ProcessPoolExecutor(2, mp_context=multiprocessing.get_context("spawn")) as executor:
+    with ProcessPoolExecutor(2, mp_context=multiprocessing.get_context("spawn"),
+                             initializer=use_misbehaving_pools) as executor:
         pooled = run_batch(cases, executor)
     assert _fingerprint(pooled) == _fingerprint(local)
     assert pooled[5].verdict == "error" and "ngspice" in pooled[5].error, pooled[5].error
