@@ -126,8 +126,7 @@ def _from_open_port(system: MnaSystem, port: Port, freqs: Sequence[float] | np.n
     volts = _port_voltage(system, np.moveaxis(xs, 1, 0), port)  # (F, 2), for the whole sweep at once
     # Scales over the whole solution, branch currents included: when a voltage source pins the port,
     # every node voltage of the test solution is 0 while the 1 A test current flows in branches.
-    # Column by column: numpy reduces the middle axis of a (F, n, 2) array ~10x more slowly (1.6 ms for a
-    # 30-point sweep at 1,500 unknowns, against 0.2 ms).
+    # Column by column: numpy reduces the middle axis of a (F, n, 2) array about ten times more slowly.
     scales = np.stack([np.abs(xs[:, :, c]).max(axis=1, initial=0.0) for c in range(xs.shape[2])], axis=1)  # (F, 2)
     return [_equivalent(float(f), complex(volts[i, 0]), complex(volts[i, 1]), float(conds[i]),
                         float(scales[i, 0]), float(scales[i, 1])) for i, f in enumerate(freqs)]
