@@ -22,7 +22,8 @@ from crosscheck.errors import CrosscheckError
 from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
 from crosscheck.fuzz.generate import case_seed, generate_case
 from crosscheck.model.netlist import write_netlist
-from crosscheck.spice.workers import FAULT_ENV
+from crosscheck.spice import workers
+from misbehaving_solve import MISBEHAVING
 
 CORPUS = Path(__file__).resolve().parent.parent / "corpus"
 DIVIDER = "{title}\nV1 s 0 AC 10\nR1 s a 1k\nR2 a 0 {r2}\n.end\n"
@@ -78,16 +79,16 @@ def test_windowed_gives_no_task_to_skipped_items():
 
 
 @pytest.mark.spice
-def test_process_pool_gives_the_local_results_and_a_crash_costs_one_case(monkeypatch, tmp_path):
+def test_process_pool_gives_the_local_results_and_a_crash_costs_one_case():
     """Whole-case tasks in a process pool match the local run; a case that kills ngspice is its own error."""
-    monkeypatch.setenv(FAULT_ENV, "1")  # inherited by the pool's processes and read there at submit
+    # Every ngspice pool built here and in the executor's processes runs the tests' misbehaving solver.
     die = case_from_netlist("die.cir", DIVIDER.format(title="crosscheck-test-fault:die", r2="500"), ("a", "0"),
                             [1e3])
     cases = _generated(12)
     cases.insert(5, die)
-    local = run_batch(cases, workers=2)
+    local = run_batch(cases, workers=2, solve=MISBEHAVING)
     with ProcessPoolExecutor(2, mp_context=multiprocessing.get_context("spawn")) as executor:
-        pooled = run_batch(cases, executor)
+        pooled = run_batch(cases, executor, solve=MISBEHAVING)
     assert _fingerprint(pooled) == _fingerprint(local)
     assert pooled[5].verdict == "error" and "ngspice" in pooled[5].error, pooled[5].error
     assert [r.verdict for i, r in enumerate(pooled) if i != 5] == ["pass"] * 12
@@ -175,8 +176,8 @@ def test_unreachable_cluster_is_an_error_naming_the_address():
 def test_fuzz_batch_stops_after_failures_and_shrinks_like_a_local_run(monkeypatch, tmp_path):
     """run_fuzz_batch's stop-after-failures and shrinking paths, which a cluster never exercises (faults are
     refused there). A one-thread executor shares this process, so a broken own route patched into the task's
-    solve step and into the shrinking reaches both; with a window of 1 no task overlaps another. The run must stop at the
-    same case as the local loop under the same fault, and shrink that case to a smaller one that still fails."""
+    solve step and into the shrinking reaches both; with a window of 1 no task overlaps another. The run
+    must stop at the same case as the local loop under the same fault, and shrink that case to a smaller one that still fails."""
     from concurrent.futures import ThreadPoolExecutor
 
     from dataclasses import replace

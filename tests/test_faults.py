@@ -1,18 +1,18 @@
-"""Fault injection: the hook is off unless a ``with`` block turns it on, each fault really breaks the own
-solver, and a bounded, seeded fuzz run catches every one."""
+"""Fault injection: faults enter only as broken stamps handed to the own route (no switch anywhere), each
+fault really breaks the own solver, and a bounded, seeded fuzz run catches every one."""
 
 from __future__ import annotations
 
 import pytest
 from rich.console import Console
 
-from crosscheck.fuzz import faults
-from crosscheck.own.equivalent import thevenin
-from crosscheck.fuzz.faults import FAULTS, injected
+from crosscheck.fuzz.faults import FAULTS, faulty_route, faulty_stamps
 from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
+from crosscheck.fuzz.reproducer import summary_document
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Port
-from crosscheck.report.fuzz_summary import print_summary, summary_document
+from crosscheck.own.equivalent import thevenin
+from crosscheck.report.fuzz_summary import print_summary
 
 #: A small network per fault on which it must show (each needs its element: G, K, L or C, two nodes).
 SHOWCASES = {
@@ -27,38 +27,32 @@ SHOWCASES = {
 BOUND = 300
 
 
-def test_off_unless_injected():
-    """No fault is on outside a with block; inside, exactly the named ones; after it (even on error), none."""
-    assert faults.active == frozenset()
-    with injected("vccs-sign") as on:
-        assert on == faults.active == {"vccs-sign"}
-        with injected("mutual-sign"):
-            assert faults.active == {"vccs-sign", "mutual-sign"}
-        assert faults.active == {"vccs-sign"}
-    assert faults.active == frozenset()
-    with pytest.raises(RuntimeError), injected("f-for-omega"):
-        raise RuntimeError("a test that blows up inside the block")
-    assert faults.active == frozenset()
+def test_a_run_without_faults_uses_the_real_route():
+    """Faults are named per run: a run names none by default and its own route is ``thevenin`` itself; a run
+    that names one gets stamps with exactly that fault, handed to ``thevenin``."""
+    assert FuzzOptions().faults == () and FuzzOptions().own_route() is thevenin
+    route = FuzzOptions(faults=("vccs-sign", "mutual-sign")).own_route()
+    assert route.func is thevenin and route.keywords["stamps"].names == {"vccs-sign", "mutual-sign"}
 
 
 def test_unknown_fault_is_refused():
-    """A misspelt fault name is an error that lists the real ones, and turns nothing on."""
-    with pytest.raises(ValueError, match="vccs-sign"), injected("vccs-sing"):
-        pass
-    with pytest.raises(ValueError, match="at least one"), injected():
-        pass
-    assert faults.active == frozenset()
+    """A misspelt fault name is an error that lists the real ones."""
+    with pytest.raises(ValueError, match="vccs-sign"):
+        FuzzOptions(faults=("vccs-sing",))
+    with pytest.raises(ValueError, match="vccs-sign"):
+        faulty_stamps("vccs-sing")
+    with pytest.raises(ValueError, match="at least one"):
+        faulty_route()
 
 
 @pytest.mark.parametrize("name", sorted(FAULTS))
 def test_each_fault_breaks_the_own_solver(name):
     """On its showcase network each fault moves V_th or Z_th by more than 1e-3 relative; without it the
-    answers are the same to 1e-12 before and after (the hook leaves nothing behind)."""
+    answers are the same to 1e-12 before and after (the broken stamps leave nothing behind)."""
     text, port, f = SHOWCASES[name]
     network = read_netlist(text)
     [before] = thevenin(network, port, [f])
-    with injected(name):
-        [broken] = thevenin(network, port, [f])
+    [broken] = faulty_route(name)(network, port, [f])
     [after] = thevenin(network, port, [f])
     moved = max(abs(getattr(broken, q) - getattr(before, q)) / max(abs(getattr(before, q)), 1e-300)
                 for q in ("vth", "zth") if getattr(before, q) is not None and getattr(broken, q) is not None)
@@ -70,10 +64,9 @@ def test_each_fault_breaks_the_own_solver(name):
 @pytest.mark.spice
 @pytest.mark.parametrize("name", sorted(FAULTS))
 def test_fuzz_catches_each_fault(name, record_property):
-    """A seeded fuzz run (seed 1) meets each fault within BOUND cases, says a fault was on, and turns it off."""
-    with injected(name):
-        summary = run_fuzz(FuzzOptions(count=BOUND, seed=1, workers=2, stop_after_failures=1, shrink=False))
-    assert faults.active == frozenset()
+    """A seeded fuzz run (seed 1) meets each fault within BOUND cases and says a fault was on."""
+    summary = run_fuzz(FuzzOptions(count=BOUND, seed=1, workers=2, stop_after_failures=1, shrink=False,
+                                   faults=(name,)))
     assert summary.first_problem_at is not None and summary.first_problem_at <= BOUND, name
     assert summary.problems[0].status in ("fail", "unavailable", "error")
     assert summary.faults == (name,)

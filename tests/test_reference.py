@@ -18,9 +18,9 @@ import pytest
 
 from crosscheck.errors import EngineUnavailableError, NetworkError, ReferenceEngineError
 from crosscheck.model.network import Network, Port, make_element as el
-from crosscheck.spice.engine import SpicePoint, SpiceResult, ngspice_available, route_mismatch, spice_equivalent
+from crosscheck.spice.engine import SpicePoint, SpiceResult, ngspice_available, route_mismatch
 from crosscheck.spice.deck import analysis_cards, build_combined_deck, build_deck, port_is_voltage_defined
-from crosscheck.spice.workers import SpicePool
+from crosscheck.spice.workers import SpicePool, spice_equivalent
 
 #: ngspice against an exact formula: double-precision agreement, with room for conditioning.
 EXACT = 1e-9

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from crosscheck.own.equivalent import thevenin
-from crosscheck.fuzz.faults import injected
+from crosscheck.fuzz.faults import faulty_route
 from crosscheck.fuzz.generate import Knobs, generate_cases, well_posed
 from crosscheck.model.network import Network, Port, make_element, validate
 from crosscheck.fuzz.shrink import shrink, size_of
@@ -17,8 +17,7 @@ SHOWS = 1e-6
 def _fault_shows(fault: str):
     def still_fails(network: Network, port: Port, freqs: tuple[float, ...]) -> bool:
         healthy = thevenin(network, port, freqs)
-        with injected(fault):
-            broken = thevenin(network, port, freqs)
+        broken = faulty_route(fault)(network, port, freqs)
         for h, b in zip(healthy, broken):
             for q in ("vth", "zth"):
                 x, y = getattr(h, q), getattr(b, q)

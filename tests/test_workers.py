@@ -1,7 +1,8 @@
 """Isolation of ngspice in worker processes: a crash or a hang costs one case, and nothing leaks in.
 
-Faults are injected on purpose through ``crosscheck.spice.workers.FAULT_TITLES``, which a worker honours
-only when ``CROSSCHECK_TEST_FAULTS=1`` is set in the parent at submit time.
+Faults are injected on purpose through the pool's ``solve`` seam: a pool built with
+``solve=misbehaving_solve.MISBEHAVING`` runs this directory's misbehaving solver, which hangs, spins,
+dies or hogs memory for the network titles in ``misbehaving_solve.TITLES``.
 """
 
 from __future__ import annotations
@@ -17,7 +18,8 @@ import pytest
 from crosscheck.errors import CrosscheckError, NetworkError, ReferenceEngineError
 from crosscheck.model.network import Network, Port, make_element as el
 from crosscheck.spice.engine import SpiceResult
-from crosscheck.spice.workers import FAULT_ENV, FAULT_TITLES, SpicePool, _worker_environment
+from crosscheck.spice.workers import SpicePool, _worker_environment
+from misbehaving_solve import MISBEHAVING, TITLES
 
 #: ngspice against an exact formula (a resistive divider): double-precision agreement.
 EXACT = 1e-9
@@ -40,19 +42,14 @@ def assert_divider(result: SpiceResult, r2: float) -> None:
 
 
 def fault(kind: str) -> tuple[Network, Port]:
-    title = next(t for t, k in FAULT_TITLES.items() if k == kind)
+    title = next(t for t, k in TITLES.items() if k == kind)
     return divider(500.0, title=title)
 
 
-@pytest.fixture
-def faults(monkeypatch):
-    monkeypatch.setenv(FAULT_ENV, "1")
-
-
 @pytest.mark.spice
-def test_hung_case_is_an_error_and_the_next_case_runs(faults):
+def test_hung_case_is_an_error_and_the_next_case_runs():
     """A case that hangs is stopped at its wall-clock limit; the replaced worker runs the next case."""
-    with SpicePool(workers=1, timeout_s=30.0) as pool:
+    with SpicePool(workers=1, timeout_s=30.0, solve=MISBEHAVING) as pool:
         hung = pool.submit(*fault("hang"), [1e3], timeout_s=1.5)
         after = pool.submit(*divider(3000.0), [1e3])
         with pytest.raises(ReferenceEngineError, match="did not finish this case within 1.5 s"):
@@ -61,9 +58,9 @@ def test_hung_case_is_an_error_and_the_next_case_runs(faults):
 
 
 @pytest.mark.spice
-def test_killed_worker_is_an_error_for_its_case_only(faults):
+def test_killed_worker_is_an_error_for_its_case_only():
     """A worker that dies mid-case gives that case an error naming the signal; the following cases succeed."""
-    with SpicePool(workers=1) as pool:
+    with SpicePool(workers=1, solve=MISBEHAVING) as pool:
         before = pool.submit(*divider(100.0), [50.0])
         died = pool.submit(*fault("die"), [50.0])
         after = [pool.submit(*divider(r), [50.0]) for r in (200.0, 400.0)]
@@ -75,9 +72,9 @@ def test_killed_worker_is_an_error_for_its_case_only(faults):
 
 
 @pytest.mark.spice
-def test_cpu_limit_stops_a_spinning_case(faults):
+def test_cpu_limit_stops_a_spinning_case():
     """A case that burns CPU is ended by RLIMIT_CPU (SIGXCPU) before the wall clock; the next case runs."""
-    with SpicePool(workers=1, timeout_s=60.0, cpu_s=1.0) as pool:
+    with SpicePool(workers=1, timeout_s=60.0, cpu_s=1.0, solve=MISBEHAVING) as pool:
         spin = pool.submit(*fault("spin"), [1e3])
         after = pool.submit(*divider(1000.0), [1e3])
         with pytest.raises(ReferenceEngineError, match="SIGXCPU"):
@@ -86,9 +83,9 @@ def test_cpu_limit_stops_a_spinning_case(faults):
 
 
 @pytest.mark.spice
-def test_memory_limit_turns_a_hog_into_an_error(faults):
+def test_memory_limit_turns_a_hog_into_an_error():
     """An allocation past RLIMIT_AS is this case's ReferenceEngineError; the next case runs."""
-    with SpicePool(workers=1, memory_bytes=1 << 30) as pool:
+    with SpicePool(workers=1, memory_bytes=1 << 30, solve=MISBEHAVING) as pool:
         hog = pool.submit(*fault("hog"), [1e3])
         after = pool.submit(*divider(250.0), [1e3])
         with pytest.raises(ReferenceEngineError, match="out of memory"):
@@ -97,21 +94,21 @@ def test_memory_limit_turns_a_hog_into_an_error(faults):
 
 
 @pytest.mark.spice
-def test_fault_titles_do_nothing_without_the_environment_variable(monkeypatch):
-    """The magic titles alone do not misbehave: the variable must be set in the parent too."""
-    monkeypatch.delenv(FAULT_ENV, raising=False)
+def test_fault_titles_do_nothing_in_a_default_pool():
+    """The magic titles alone do not misbehave: a pool built without the misbehaving solver gives them to
+    ngspice like any other network."""
     with SpicePool(workers=1, timeout_s=20.0) as pool:
         for kind in ("die", "hang"):
             assert_divider(pool.submit(*fault(kind), [1e3]).result(timeout=60), 500.0)
 
 
 @pytest.mark.spice
-def test_batch_keeps_order_and_isolates_failures(faults):
+def test_batch_keeps_order_and_isolates_failures():
     """map() yields each case's outcome in order; a dying and an invalid case are errors, the rest are answers."""
     bad = Network("floating part", (*divider(1.0)[0].elements, el("R9", "R", ("p", "q"), 1.0)))
     cases = [(*divider(r), [1e3]) for r in (100.0, 200.0)] + [(*fault("die"), [1e3]), (bad, Port("a", "0"), [1e3])]
     cases += [(*divider(r), [1e3]) for r in (300.0, 600.0, 900.0)]
-    with SpicePool(workers=2) as pool:
+    with SpicePool(workers=2, solve=MISBEHAVING) as pool:
         outcomes = list(pool.map(cases))
     assert [type(o).__name__ for o in outcomes] == (
         ["SpiceResult"] * 2 + ["ReferenceEngineError", "NetworkError"] + ["SpiceResult"] * 3)
@@ -171,8 +168,9 @@ def test_worker_runs_in_its_own_empty_directory(tmp_path):
     """The worker process's cwd is a fresh empty directory, not the caller's (checked from inside the worker)."""
     script = textwrap.dedent(f"""
         import os, sys
-        from crosscheck.spice.workers import _Worker, _Settings
-        w = _Worker(lambda d: _Settings(d, None, 1 << 30, 10.0, 10), 60.0)
+        from crosscheck.spice.sandbox import Settings
+        from crosscheck.spice.workers import _Worker
+        w = _Worker(lambda d: Settings(d, None, 1 << 30, 10.0, 10), 60.0)
         cwd = os.readlink(f"/proc/{{w.process.pid}}/cwd")
         env = open(f"/proc/{{w.process.pid}}/environ", "rb").read().split(b"\\0")
         print("CWD", cwd, sorted(os.listdir(cwd)))

@@ -1,22 +1,29 @@
 """Deliberate, realistic bugs in the own solver, to measure what the fuzzer can catch.
 
-Only the context manager ``injected`` turns a fault on, and it always turns it off again (also when
-the block raises), so a fault cannot be left on by accident::
+Each fault is a broken ``Stamps`` object (``crosscheck.own.assembly``) handed to the solver through its
+``stamps`` parameter; the solver holds no switch of its own and reads no global::
 
-    from crosscheck.fuzz.faults import injected
-    with injected("vccs-sign"):
-        summary = run_fuzz(FuzzOptions(count=300, seed=1))
-    assert summary.faults == ("vccs-sign",)   # the summary says a fault was on
+    from crosscheck.fuzz.faults import faulty_route
+    broken = faulty_route("vccs-sign")      # thevenin with the VCCS stamped with the wrong sign
+    equivalents = broken(network, port, [1e3])
 
-``MnaSystem._assemble`` and ``MnaSystem.injection_vector`` read ``active`` at the stamps concerned:
-one membership test of an (almost always empty) frozenset per stamped element. The ngspice workers
-are separate processes and never see a fault, which is the point: the reference stays right.
+A fuzz run names its faults in ``FuzzOptions(faults=...)`` and passes this route to every case and to
+the shrinking; the run's summary reports them. The ngspice workers never see a fault, which is the
+point: the reference stays right.
 """
 
 from __future__ import annotations
 
-from contextlib import contextmanager
-from typing import Iterator
+import functools
+import math
+from collections.abc import Callable, Sequence
+
+import numpy as np
+
+from crosscheck.errors import CrosscheckError
+from crosscheck.model.network import Network, Port
+from crosscheck.own.assembly import Stamps
+from crosscheck.own.equivalent import Equivalent, thevenin
 
 #: Every fault, with the bug it imitates.
 FAULTS = {
@@ -27,31 +34,57 @@ FAULTS = {
     "injection-node": "the 1 A test current of Z_th injected at the next node in the list instead of at the port",
 }
 
-#: The faults on right now. Read it at call time (``faults.active``), never import the name: it is rebound.
-active: frozenset[str] = frozenset()
+#: The own solver's route: ``thevenin``'s signature without the keyword arguments.
+OwnRoute = Callable[[Network, Port, Sequence[float]], list[Equivalent]]
 
 
-@contextmanager
-def injected(*names: str) -> Iterator[frozenset[str]]:
-    """Turn the named faults on for the ``with`` block only (nested blocks add to the outer ones)."""
-    global active
+class UnknownFaultError(CrosscheckError, ValueError):
+    """A fault name that is not in ``FAULTS``, or no name at all."""
+
+
+class FaultyStamps(Stamps):
+    """The correct stamps with the named faults in them; every element is stamped one at a time."""
+
+    bulk = False
+
+    def __init__(self, names: frozenset[str]):
+        self.names = names
+        self.capacitor_as_impedance = "capacitor-inverted" in names  # 1/(jωC): an inductor of C henries
+
+    def vccs_gain(self, gm: float) -> float:
+        return -gm if "vccs-sign" in self.names else gm
+
+    def mutual(self, m: float) -> float:
+        return -m if "mutual-sign" in self.names else m
+
+    def per_omega(self, entries: np.ndarray) -> np.ndarray:
+        # j·f·A1 instead of j·ω·A1
+        return entries / (2.0 * math.pi) if "f-for-omega" in self.names else entries
+
+    def injection_rows(self, a: int | None, b: int | None, nodes: int) -> tuple[int | None, int | None]:
+        if "injection-node" not in self.names:  # else an off-by-one node index on one terminal
+            return a, b
+        if a is not None:
+            return (a + 1) % nodes, b
+        if b is not None:
+            return a, (b + 1) % nodes
+        return a, b
+
+
+def _checked(names: Sequence[str]) -> frozenset[str]:
     unknown = [n for n in names if n not in FAULTS]
-    if unknown or not names:
-        raise ValueError(f"unknown fault(s) {unknown!r}; name one or more of: {', '.join(FAULTS)}"
-                         if unknown else f"name at least one fault: {', '.join(FAULTS)}")
-    previous = active
-    active = previous | frozenset(names)
-    try:
-        yield active
-    finally:
-        active = previous
+    if unknown:
+        raise UnknownFaultError(f"unknown fault(s) {unknown!r}; name one or more of: {', '.join(FAULTS)}")
+    if not names:
+        raise UnknownFaultError(f"no fault named; name at least one of: {', '.join(FAULTS)}")
+    return frozenset(names)
 
 
-def faulty_route(*names: str):  # TEMPORARY until the stamps seam lands
-    from crosscheck.own.equivalent import thevenin  # start-up time: temporary
+def faulty_stamps(*names: str) -> FaultyStamps:
+    """Stamps with the named faults (one or more of ``FAULTS``), for ``MnaSystem(..., stamps=...)``."""
+    return FaultyStamps(_checked(names))
 
-    def route(network, port, freqs):
-        with injected(*names):
-            return thevenin(network, port, freqs)
 
-    return route
+def faulty_route(*names: str) -> OwnRoute:
+    """``thevenin`` with the named faults: a drop-in for the own solver's route."""
+    return functools.partial(thevenin, stamps=faulty_stamps(*names))

@@ -14,13 +14,14 @@ A generated case is judged as every case is (``judge.case.judged``); the fuzzer 
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from concurrent.futures import Future
 from dataclasses import dataclass, replace
 
 import numpy as np
 
 from crosscheck.errors import CrosscheckError, EngineUnavailableError, SingularNetworkError
+from crosscheck.fuzz.faults import OwnRoute
 from crosscheck.fuzz.generate import GeneratedCase
 from crosscheck.judge.case import judged
 from crosscheck.judge.compare import compare_point, spice_answer
@@ -37,11 +38,6 @@ from crosscheck.vocabulary import Verdict
 #: ngspice's element growth allowance: 1 / pivrel, pivrel's default being 1e-3 (see ``_explain``).
 NGSPICE_GROWTH = 1e3
 EPS = float(np.finfo(float).eps)
-
-#: The own route: equivalents of a network at a port and frequencies. ``thevenin`` unless a test passes
-#: a deliberately broken one (``fuzz.faults``).
-OwnRoute = Callable[[Network, Port, Sequence[float]], Sequence[Equivalent]]
-
 
 @dataclass(frozen=True)
 class CaseOutcome:

@@ -17,7 +17,8 @@ from concurrent.futures import Future
 from dataclasses import replace
 
 from crosscheck.fuzz.generate import GeneratedCase, generate_case, well_posed
-from crosscheck.fuzz.judging import CaseOutcome, OwnRoute, isolate, judge, solve_own, spice_result
+from crosscheck.fuzz.faults import OwnRoute
+from crosscheck.fuzz.judging import CaseOutcome, isolate, judge, solve_own, spice_result
 from crosscheck.fuzz.reproducer import write_outputs
 from crosscheck.fuzz.shrink import shrink
 from crosscheck.fuzz.summary import FuzzOptions, FuzzSummary, Reproducer

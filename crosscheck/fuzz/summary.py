@@ -7,9 +7,9 @@ from pathlib import Path
 
 import numpy as np
 
-from crosscheck.fuzz.faults import FAULTS, faulty_route
+from crosscheck.fuzz.faults import OwnRoute, faulty_route, faulty_stamps
 from crosscheck.fuzz.generate import Knobs, case_seed
-from crosscheck.fuzz.judging import CaseOutcome, OwnRoute
+from crosscheck.fuzz.judging import CaseOutcome
 from crosscheck.fuzz.shrink import ShrinkResult
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
@@ -45,9 +45,8 @@ class FuzzOptions:
             raise ValueError(f"case seeds must be >= 0 (got {self.case_seeds})")
         if self.workers is not None and self.workers < 1:
             raise ValueError(f"workers must be at least 1 (got {self.workers})")
-        unknown = [f for f in self.faults if f not in FAULTS]
-        if unknown:
-            raise ValueError(f"unknown fault(s) {unknown!r}; name one or more of: {', '.join(FAULTS)}")
+        if self.faults:
+            faulty_stamps(*self.faults)  # refuses unknown names (UnknownFaultError, a ValueError)
 
     def own_route(self) -> OwnRoute:
         """The own route this run holds against ngspice: ``thevenin``, or one broken on purpose."""

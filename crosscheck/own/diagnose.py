@@ -3,15 +3,17 @@
 Validation already refuses what is singular at every frequency; what is left
 is singular at some frequencies only: at DC an inductor is a short and a
 capacitor is open, and at a lossless resonance a tank's admittance is zero.
+``singular_error`` turns that into the error the solver raises.
 """
 
 from __future__ import annotations
 
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import scipy.sparse as sp
 
+from crosscheck.errors import SingularNetworkError
 from crosscheck.model.network import CURRENT_OUTPUT_KINDS, GROUND, Network, _UnionFind
 
 #: Above this many unknowns the null space is not computed (a dense SVD), and no nodes are named.
@@ -70,9 +72,25 @@ def nodes_in_null_space(matrix: sp.spmatrix | np.ndarray, node_names: Sequence[s
     n = matrix.shape[0]
     if n == 0 or n > _NULL_SPACE_LIMIT or not node_names:
         return ()
-    dense = matrix.toarray() if sp.issparse(matrix) else np.asarray(matrix)
+    dense = matrix if isinstance(matrix, np.ndarray) else matrix.toarray()
     null = np.abs(np.linalg.svd(dense)[2][-1])
     at_nodes = null[: len(node_names)]
     if at_nodes.max(initial=0.0) <= 1e-6 * null.max():
         return ()
     return tuple(name for name, x in zip(node_names, at_nodes) if x >= 0.1 * at_nodes.max())
+
+
+def singular_error(network: Network, freq_hz: float, detail: str, matrix: sp.spmatrix | None = None,
+                   node_names: tuple[str, ...] = (), ties: Sequence[str] = ()) -> SingularNetworkError:
+    """Name the likely cause of a singular matrix from the structure at this frequency.
+
+    With no structural cause, the nodes are read from the matrix's null space when it is given.
+    """
+    cause, nodes = likely_singularity(network, freq_hz, ties)
+    if not nodes and matrix is not None:
+        nodes = nodes_in_null_space(matrix, node_names)
+        if nodes:
+            cause += f"; the undetermined voltages are at node(s) {', '.join(nodes[:8])}"
+    where = f" at {freq_hz:g} Hz" if freq_hz else " at DC (0 Hz)"
+    return SingularNetworkError(f"the network's equations are singular{where}: {cause} ({detail})",
+                                nodes=nodes, freq_hz=freq_hz)

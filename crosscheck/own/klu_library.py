@@ -1,15 +1,13 @@
 """SuiteSparse's KLU called directly through ctypes: analyse, factor, refactor and solve.
 
-Written by hand (about 150 lines) because no maintained Python package exposes what a
-frequency sweep needs at a cost that fits a 1,000-node network: kvxopt's ``klu`` module
-(used here before this binding) copies every right-hand side into its own matrix type, has no
-refactorization, and its call overhead (~25 µs a call) was a third of a 1,000-node ladder's
-time per frequency. Here a
+Written by hand because no maintained Python package exposes what a frequency sweep needs at
+a cost that fits a 1,000-node network: kvxopt's ``klu`` module copies every right-hand side
+into its own matrix type, has no refactorization, and its call overhead is a large part of a
+1,000-node network's time per frequency. Here a
 right-hand side goes to KLU as numpy's own memory (complex128 is KLU's interleaved
 real/imaginary layout) and ``klu_z_refactor`` reuses the pivot order of the last full
 factorization. ctypes releases the GIL during each call, so threads factor in parallel.
-(KLU's own ``klu_z_condest`` was measured no faster than the solver's Higham estimator, so it is
-not bound.)
+(KLU's own ``klu_z_condest`` is not bound: it is no faster than the solver's Higham estimator.)
 
 The library is Debian's ``libklu1`` (``apt-get install libklu1``; ``make test`` installs it as
 root), else the copy inside the kvxopt wheel (``pip install 'crosscheck[fast]'``). The layout of
@@ -106,8 +104,8 @@ class KluLibrary:
 
     def new_common(self) -> ctypes.Structure:
         """KLU's defaults, except no row scaling (``scale = 0``; the default 2 scales by each row's largest
-        entry). Measured on a 1,000-node ladder: a refactorization 56 µs instead of 96, a 4-column solve
-        59 µs instead of 104. The pivots are then chosen on the unscaled matrix, as SPICE's own sparse
+        entry): refactorizations and solves take little more than half the time. The pivots are then
+        chosen on the unscaled matrix, as SPICE's own sparse
         solver does; the solver checks every solve's backward error and refines or pivots afresh."""
         common = self.common_type()
         self.lib.klu_defaults(ctypes.byref(common))
@@ -171,7 +169,7 @@ class Symbolic:
         """The address of KLU's symbolic object (for the compiled sweep loop, ``sweep_kernel``)."""
         return self._handle
 
-    def factor(self, values: np.ndarray) -> "Numeric":
+    def factor(self, values: np.ndarray) -> Numeric:
         """A full factorization with threshold partial pivoting (pivot order chosen afresh).
 
         Each factorization has its own ``klu_common`` (KLU writes statistics there), so factorizations
@@ -197,7 +195,7 @@ class Numeric:
 
     def __init__(self, symbolic: Symbolic, handle: int, common: ctypes.Structure) -> None:
         self._symbolic = symbolic  # kept alive: the factors refer to its ordering
-        self._handle = handle
+        self._handle = handle  # 0 once freed
         self._common = common
         self._common_ref = ctypes.byref(common)
         lib = symbolic._library.lib
@@ -237,4 +235,4 @@ class Numeric:
         if getattr(self, "_handle", None):
             handle = _P(self._handle)
             self._symbolic._library.lib.klu_z_free_numeric(ctypes.byref(handle), ctypes.byref(self._common))
-            self._handle = None
+            self._handle = 0

@@ -1,36 +1,36 @@
-"""Phasor modified nodal analysis (MNA) with one factorization per frequency.
+"""Phasor modified nodal analysis (MNA): one factorization per frequency, over a whole sweep.
 
-The stamps are those of Ho, Ruehli and Brennan, "The modified nodal approach
-to network analysis", IEEE Trans. Circuits and Systems CAS-22 (1975): node
-voltages plus a branch current for every element whose voltage is fixed
-(V, E, H, L, ideal shorts). Inductors carry a branch current so that DC
-(L is a short) and mutual coupling (K) need no special case.
-
-The matrix is A(ω) = A0 + jω·A1 with a pattern built once per network; each
-frequency only refills the values. One LU factorization per frequency serves
-every right-hand side (the sources, the port's test injection). Small networks
-solve a whole sweep as one batched dense problem; large ones use a sparse LU
-(``sparse_backends``: KLU or SuperLU) whose fill-reducing ordering is found once
-per network, with Higham's 1-norm condition estimate riding on the same solves.
-With KLU, a compiled loop (``sweep_kernel``) finishes the usual frequencies of a
-sweep with the same arithmetic; the Python loop here is the reference and takes
-every frequency out of the usual.
+The matrix is A(ω) = A0 + jω·A1 with a pattern built once per network (``assembly``); each frequency
+only refills the values. One LU factorization per frequency serves every right-hand side (the sources,
+the port's test injection). Small networks solve a whole sweep as one batched dense problem; large ones
+use a sparse LU (``sparse_backends``: KLU or SuperLU) whose fill-reducing ordering is found once per
+network, with Higham's 1-norm condition estimate (``condition``) riding on the same solves and the
+backward error checked and refined where needed (``refinement``). With KLU, a compiled loop
+(``sweep_kernel``) finishes the usual frequencies of a sweep with the same arithmetic; the Python loop
+here is the reference and takes every frequency out of the usual.
 """
 
 from __future__ import annotations
 
 import math
 import os
+from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
-from typing import Callable, Sequence
 
 import numpy as np
 import scipy.sparse as sp
 
-from crosscheck.own import klu_library, sparse_backends, sweep_kernel
 from crosscheck.errors import SingularNetworkError
-from crosscheck.model.network import GROUND, SOURCE_KINDS, Network
+from crosscheck.model.network import SOURCE_KINDS, Network
+from crosscheck.own import klu_library, sparse_backends, sweep_kernel
+from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps, assemble
+from crosscheck.own.condition import condition_estimate, inverse_norm, ramp
+from crosscheck.own.diagnose import singular_error
+from crosscheck.own.refinement import REFINE_ABOVE, backward_error, column_sizes, refined
+
+__all__ = ["DENSE_LIMIT", "REFINE_ABOVE", "SINGULAR_CONDITION", "SWEEP_CHUNK", "THREADS_FROM", "THREADS_VAR",
+           "Factorization", "MnaSystem", "Stamps", "default_threads"]
 
 #: Below this many unknowns a sweep is solved as one batched dense problem (faster than sparse LU).
 DENSE_LIMIT = 80
@@ -40,17 +40,12 @@ SINGULAR_CONDITION = 1e17
 #: chain of refactorizations, solved in parallel threads (ctypes and numpy release the GIL). Fixed, not per
 #: core, so that the numbers do not depend on the machine: every run of a sweep is the same computation.
 SWEEP_CHUNK = 16
-#: Below this many unknowns a sweep stays in one thread: at 1,500 unknowns (a 1,000-node ladder) two threads
-#: were measured no faster than one (Python holds the GIL for half the time), at 15,000 1.3-1.5x faster.
+#: Below this many unknowns a sweep stays in one thread: two threads gain nothing while Python holds the
+#: GIL for about half of each frequency's time (a 1,000-node ladder, 1,500 unknowns), and 1.3-1.5x at
+#: 15,000 unknowns.
 THREADS_FROM = 4000
-#: Normwise backward error above which a sparse solve is refined (~32ε; LU with partial pivoting gives ~ε).
-REFINE_ABOVE = 2.0 ** -47
 #: A right-hand side whose largest entry is below this (and not 0) keeps its sweep off the compiled loop.
 TINY_RHS = 1e-250
-
-_BRANCH_KINDS = frozenset("VEHL")
-#: Kinds whose entries are stamped in bulk by numpy when no fault is on.
-_BULK_KINDS = frozenset("RCLV")
 
 
 @dataclass(frozen=True)
@@ -68,6 +63,8 @@ class MnaSystem:
     ``ties`` are extra nodes held at 0 V through a zero-volt branch: the
     reference of a part with no ground (a floating port). No current flows in
     such a tie, so it changes no voltage difference inside that part.
+    ``stamps``: how elements and the test current enter the matrix (``assembly.Stamps``); the
+    correct ones unless a caller measuring the comparison passes broken ones.
     """
 
     #: The sparse LU back end (``sparse_backends``); None takes the default (KLU when a KLU library loads).
@@ -79,13 +76,13 @@ class MnaSystem:
     _analysis: sparse_backends.Analysis | None = None  # the symbolic analysis, made on the first factorization
     _entry_columns: np.ndarray | None = None  # the column of each stored entry, for ‖A‖₁ per frequency
 
-    def __init__(self, network: Network, ties: Sequence[str] = ()):
+    def __init__(self, network: Network, ties: Sequence[str] = (), stamps: Stamps = STAMPS):
         self.network = network
         #: Shared with the network, which builds it once: read it, never change it.
         self.node_index: dict[str, int] = network.node_index
         arrays = network.element_arrays
         # V, E, H, L and ideal shorts (R = 0) carry a branch current, in element order.
-        self._branch_elements = arrays.of_kind(_BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))
+        self._branch_elements = arrays.of_kind(BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))
         elements = network.elements
         branches = [elements[i].name for i in np.flatnonzero(self._branch_elements).tolist()]
         branches += [f"tie:{n}" for n in ties]
@@ -93,133 +90,12 @@ class MnaSystem:
         self.branch_index: dict[str, int] = dict(zip(branches, range(offset, offset + len(branches))))
         self.size = offset + len(branches)
         self._ties = tuple(ties)
-        self._assemble()
+        self._stamps = stamps
+        assembled = assemble(network, self.node_index, self.branch_index, self._branch_elements, self._ties, stamps)
+        self.size = assembled.size
+        self._pattern, self._a0, self._a1 = assembled.pattern, assembled.a0, assembled.a1
 
-    # ------------------------------------------------------------------ assembly
-
-    def _assemble(self) -> None:
-        rows: list[int] = []
-        cols: list[int] = []
-        constant: list[float] = []  # A0 entries
-        per_omega: list[float] = []  # A1 entries (multiplied by jω)
-        node = self.node_index.get
-        from crosscheck.fuzz import faults  # deliberate bugs for measuring the fuzzer; empty unless faults.injected(...)
-
-        broken = faults.active
-
-        def put(r: int | None, c: int | None, a0: float = 0.0, a1: float = 0.0) -> None:
-            if r is None or c is None:
-                return
-            rows.append(r)
-            cols.append(c)
-            constant.append(a0)
-            per_omega.append(a1)
-
-        # Two-terminal admittances and branch incidences are noted as one index row per element here and
-        # stamped as arrays below: four entries each, ground (-1) dropped (see _noted_entries).
-        two_terminal: list[tuple[int, int, float, float]] = []
-        incidence: list[tuple[int, int, int]] = []
-
-        def admittance(a: str, b: str, a0: float, a1: float) -> None:
-            two_terminal.append((node(a, -1), node(b, -1), a0, a1))
-
-        def branch_incidence(k: int, a: str, b: str) -> None:
-            # KCL: the branch current leaves node a and enters node b; branch row: V(a) - V(b).
-            incidence.append((k, node(a, -1), node(b, -1)))
-
-        # With no fault on, R, C, L and V elements (the bulk of a large network) are stamped by numpy in one
-        # pass (_bulk_entries) and the loop takes the rest; with a fault on, the loop takes every element.
-        bulk, rest = [], self.network.elements
-        if not broken:
-            bulk, rest = self._bulk_entries()
-        by_name = {}  # K elements look up their inductors by name
-        if any(e.kind == "K" for e in rest):
-            by_name = {e.name: e for e in self.network.elements if e.kind == "L"}
-        for e in rest:
-            kind = e.kind
-            if kind == "R" and not e.is_short:
-                admittance(*e.terminals, 1.0 / e.value, 0.0)
-            elif kind == "C" and "capacitor-inverted" in broken:  # fault: 1/(jωC), an inductor of C henries
-                self.size += 1
-                branch_incidence(self.size - 1, *e.terminals)
-                put(self.size - 1, self.size - 1, 0.0, -e.value)
-            elif kind == "C":
-                admittance(*e.terminals, 0.0, e.value)
-            elif kind == "G":
-                # Current gm·(V(nc+) - V(nc-)) flows from n+ through the source to n-.
-                p, m, cp, cm = (node(n) for n in e.nodes)
-                gm = -e.value if "vccs-sign" in broken else e.value
-                put(p, cp, gm)
-                put(p, cm, -gm)
-                put(m, cp, -gm)
-                put(m, cm, gm)
-            elif kind == "F":
-                k_ctl = self.branch_index[e.control]  # type: ignore[index]
-                put(node(e.nodes[0]), k_ctl, e.value)
-                put(node(e.nodes[1]), k_ctl, -e.value)
-            elif kind in _BRANCH_KINDS or e.is_short:
-                k = self.branch_index[e.name]
-                branch_incidence(k, *e.terminals)
-                if kind == "L":
-                    put(k, k, 0.0, -e.value)
-                elif kind == "E":
-                    put(k, node(e.nodes[2]), -e.value)
-                    put(k, node(e.nodes[3]), e.value)
-                elif kind == "H":
-                    put(k, self.branch_index[e.control], -e.value)  # type: ignore[index]
-            elif kind == "K":
-                l1, l2 = (by_name[n] for n in e.coupled)  # type: ignore[union-attr]
-                mutual = e.value * math.sqrt(l1.value * l2.value)
-                if "mutual-sign" in broken:
-                    mutual = -mutual
-                k1, k2 = self.branch_index[l1.name], self.branch_index[l2.name]
-                put(k1, k2, 0.0, -mutual)
-                put(k2, k1, 0.0, -mutual)
-        for n in self._ties:
-            branch_incidence(self.branch_index[f"tie:{n}"], n, GROUND)
-        blocks = [(rows, cols, constant, per_omega), *bulk]
-        if two_terminal or incidence:
-            blocks.append(_noted_entries(two_terminal, incidence))
-        rows, cols, constant, per_omega = _joined(blocks)
-        if "f-for-omega" in broken:  # fault: j·f·A1 instead of j·ω·A1
-            per_omega = [x / (2.0 * math.pi) for x in per_omega]
-
-        # Sum duplicates once, keeping A0 and A1 on one shared pattern.
-        combined = sp.coo_matrix(
-            (np.asarray(constant) + 1j * np.asarray(per_omega), (rows, cols)),
-            shape=(self.size, self.size),
-        ).tocsc()
-        combined.sum_duplicates()
-        combined.sort_indices()
-        self._pattern = combined
-        self._a0 = combined.data.real.copy()
-        self._a1 = combined.data.imag.copy()
-
-    def _bulk_entries(self) -> tuple[list[_Entries], list]:
-        """Blocks of entries for every R, C, L and V element (ideal shorts included), and the other elements.
-
-        Read from the network's element columns (``Network.element_arrays``, built once per network), so
-        numpy does the work and Python touches only the elements of other kinds.
-        """
-        arrays = self.network.element_arrays
-        kind, value, a, b = arrays.kind, arrays.value, arrays.a, arrays.b
-        chosen = arrays.of_kind(_BULK_KINDS)
-        elements = self.network.elements
-        rest = [elements[i] for i in np.flatnonzero(~chosen).tolist()]
-        resistor = (kind == ord("R")) & (value != 0.0)
-        capacitor = kind == ord("C")
-        branch = chosen & self._branch_elements  # L, V and ideal shorts carry a branch current
-        # Branch rows follow the nodes in element order (see __init__): each one's row is its rank among them.
-        k = len(self.node_index) + (np.cumsum(self._branch_elements) - 1)[branch]
-        conductance = 1.0 / value[resistor]
-        inductor = kind[branch] == ord("L")
-        k_l = k[inductor]
-        return [
-            _admittance_entries(a[resistor], b[resistor], conductance, np.zeros(len(conductance))),
-            _admittance_entries(a[capacitor], b[capacitor], np.zeros(int(capacitor.sum())), value[capacitor]),
-            _incidence_entries(k, a[branch], b[branch]),
-            (k_l, k_l, np.zeros(len(k_l)), -value[branch][inductor]),  # a branch row: V(a) - V(b) - jωL·I = 0
-        ], rest
+    # ------------------------------------------------------------------ the matrix
 
     def matrix(self, freq_hz: float) -> sp.csc_matrix:
         """A(ω) = A0 + jω·A1 on the shared pattern (its index arrays are shared, not copied)."""
@@ -262,14 +138,7 @@ class MnaSystem:
     def injection_vector(self, a: str, b: str, amps: complex = 1.0) -> np.ndarray:
         """A test current driven into node a and out of node b (sources left out)."""
         z = np.zeros(self.size, dtype=complex)
-        ia, ib = self.node_index.get(a), self.node_index.get(b)
-        from crosscheck.fuzz import faults  # deliberate bugs for measuring the fuzzer; empty unless faults.injected(...)
-
-        if "injection-node" in faults.active:  # fault: an off-by-one node index on one terminal
-            if ia is not None:
-                ia = (ia + 1) % len(self.node_index)
-            elif ib is not None:
-                ib = (ib + 1) % len(self.node_index)
+        ia, ib = self._stamps.injection_rows(self.node_index.get(a), self.node_index.get(b), len(self.node_index))
         if ia is not None:
             z[ia] += amps
         if ib is not None:
@@ -297,10 +166,10 @@ class MnaSystem:
             self._check_condition(freq_hz, condition, a)
         else:
             condition = math.nan
-        return Factorization(freq_hz, lambda b: _refined(a, lu, np.asarray(b, dtype=complex), norm_inf),
+        return Factorization(freq_hz, lambda b: refined(a, lu, np.asarray(b, dtype=complex), norm_inf),
                              condition)
 
-    def solve_many(self, freqs_hz: Sequence[float], rhs: np.ndarray,
+    def solve_many(self, freqs_hz: Sequence[float] | np.ndarray, rhs: np.ndarray,
                    estimate_condition: bool = True) -> tuple[np.ndarray, np.ndarray]:
         """Solve A(ω)·X = rhs for every frequency: (F, n, k) solutions and (F,) conditions (NaN if not estimated).
 
@@ -341,14 +210,7 @@ class MnaSystem:
         """
         k = rhs.shape[1]
         n = self.size
-        # Solved with the right-hand sides in one call: LAPACK's ramp (the estimator's last safeguard) and the
-        # estimator's start vector, which is e/n at the first frequency and then e_j for the column j where
-        # the last frequency's estimate peaked (it rarely moves between neighbouring frequencies).
-        columns = np.empty((n, k + 2), dtype=complex, order="F") if estimate_condition else np.asfortranarray(rhs)
-        if estimate_condition:
-            columns[:, :k] = rhs
-            columns[:, k] = _ramp(n)
-            columns[:, k + 1] = 1.0 / n
+        columns = _with_probes(rhs) if estimate_condition else np.asfortranarray(rhs)
         xs = np.empty((len(freqs), n, k), dtype=complex)
         conds = np.full(len(freqs), math.nan)
         # A(ω) on the shared pattern, its values refilled in place at each frequency (the factorization
@@ -357,16 +219,17 @@ class MnaSystem:
                           shape=self._pattern.shape)
         lu = None  # the last frequency's factor: the next refactors on its pivot order when that stays accurate
         peak = None
-        rhs_sizes = _column_sizes(rhs)
+        rhs_sizes = column_sizes(rhs)
         sizes = np.empty(len(self._a0))
         compiled = self._compiled_run(k, rhs_sizes)
         freq_list = freqs.tolist()
         i = 0
         while i < len(freq_list):
-            if compiled is not None and isinstance(getattr(lu, "numeric", None), klu_library.Numeric):
+            numeric = getattr(lu, "numeric", None)
+            if compiled is not None and isinstance(numeric, klu_library.Numeric):
                 # The compiled loop takes the frequencies that follow a KLU factorization for as long as they
                 # are usual; the first unusual one (if any) comes back to the loop below, which redoes it.
-                done, peak = compiled.advance(lu.numeric, freqs[i:], rhs, rhs_sizes, columns, peak, xs[i:], conds[i:])
+                done, peak = compiled.advance(numeric, freqs[i:], rhs, rhs_sizes, columns, peak, xs[i:], conds[i:])
                 i += done
                 if i == len(freq_list):
                     break
@@ -375,22 +238,22 @@ class MnaSystem:
             norm_1, norm_inf = self._norms(a, out=sizes)
             lu = self._factor(f, a, reuse=lu)
             y = lu.solve(columns)
-            checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
+            checked = backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
             if lu.reused and not checked[1] <= REFINE_ABOVE:
                 # The kept pivot order lost accuracy at this frequency: pivot afresh (and keep the new order).
                 lu = self._factor(f, a)
                 y = lu.solve(columns)
-                checked = _backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
+                checked = backward_error(a, norm_inf, rhs, y[:, :k], rhs_sizes)
             if estimate_condition:
-                inverse_norm, j = _inverse_norm(lu, y[:, k + 1], y[:, k], peak)
+                inverse, j = inverse_norm(lu, y[:, k + 1], y[:, k], peak)
                 if j != peak:  # the next frequency starts from column j
                     columns[:, k + 1] = 0.0
                     columns[j, k + 1] = 1.0
                     peak = j
-                conds[i] = norm_1 * inverse_norm
+                conds[i] = norm_1 * inverse
                 self._check_condition(f, conds[i], a)
             # Refined only when the backward error asks for it (_refined would return y unchanged otherwise).
-            xs[i] = y[:, :k] if checked[1] <= REFINE_ABOVE else _refined(a, lu, rhs, norm_inf, y[:, :k], checked)
+            xs[i] = y[:, :k] if checked[1] <= REFINE_ABOVE else refined(a, lu, rhs, norm_inf, y[:, :k], checked)
             if not estimate_condition and not np.isfinite(xs[i]).all():
                 raise self._singular(f, "the solution is not finite", a)
             i += 1
@@ -408,6 +271,7 @@ class MnaSystem:
             return None
         if np.any((rhs_sizes > 0) & (rhs_sizes < TINY_RHS)):
             return None
+        assert self._entry_columns is not None, "made with the analysis (_ensure_analysis)"
         return sweep_kernel.Run(symbolic, self._a0, self._a1, self._entry_columns, k, REFINE_ABOVE, SINGULAR_CONDITION)
 
     def _solve_dense(self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool) -> tuple[np.ndarray, np.ndarray]:
@@ -438,6 +302,7 @@ class MnaSystem:
         """‖a‖₁ and ‖a‖∞ (largest column and row sums of |a|), from the stored entries in two bincounts;
         ``out``: a buffer for the entries' sizes (a sweep reuses one)."""
         size = np.abs(a.data, out=out)
+        assert self._entry_columns is not None, "made with the analysis (_ensure_analysis)"
         norm_1 = float(np.bincount(self._entry_columns, size, minlength=self.size).max(initial=0.0))
         norm_inf = float(np.bincount(a.indices, size, minlength=self.size).max(initial=0.0))
         return norm_1, norm_inf
@@ -468,6 +333,21 @@ class MnaSystem:
             raise self._singular(freq_hz, f"condition number {condition:.3g}", a)
 
 
+def _with_probes(rhs: np.ndarray) -> np.ndarray:
+    """The right-hand sides and the condition estimate's two probes, as one column-major block solved in one call.
+
+    The probes are LAPACK's ramp (the estimator's last safeguard) and the estimator's start vector, e/n
+    at a chain's first frequency; the sweep then replaces it by e_j for the column j where the last
+    frequency's estimate peaked (it rarely moves between neighbouring frequencies).
+    """
+    n, k = rhs.shape
+    columns = np.empty((n, k + 2), dtype=complex, order="F")
+    columns[:, :k] = rhs
+    columns[:, k] = ramp(n)
+    columns[:, k + 1] = 1.0 / n
+    return columns
+
+
 THREADS_VAR = "CROSSCHECK_SWEEP_THREADS"
 
 
@@ -481,6 +361,8 @@ def default_threads() -> int:
         raise ValueError(f"{THREADS_VAR}={text!r} is not a whole number of threads >= 1; "
                          "set it to 1 for no threads, or unset it for one per core")
     return int(text)
+
+
 _pools: dict[tuple[int, int], ThreadPoolExecutor] = {}
 
 
@@ -490,177 +372,3 @@ def _thread_pool(threads: int) -> ThreadPoolExecutor:
     if key not in _pools:
         _pools[key] = ThreadPoolExecutor(threads, thread_name_prefix="crosscheck-sweep")
     return _pools[key]
-
-
-#: Matrix entries as (rows, columns, A0 values, A1 values); index -1 is ground.
-_Entries = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]
-
-
-def _admittance_entries(a: np.ndarray, b: np.ndarray, y0: np.ndarray, y1: np.ndarray) -> _Entries:
-    """An admittance y between a and b: +y at (a, a) and (b, b), −y at (a, b) and (b, a)."""
-    return (np.concatenate([a, b, a, b]), np.concatenate([a, b, b, a]),
-            np.concatenate([y0, y0, -y0, -y0]), np.concatenate([y1, y1, -y1, -y1]))
-
-
-def _incidence_entries(k: np.ndarray, a: np.ndarray, b: np.ndarray) -> _Entries:
-    """Branch k from a to b: its current leaves a and enters b (KCL rows), its row reads V(a) − V(b)."""
-    one = np.ones(len(k))
-    return (np.concatenate([a, b, k, k]), np.concatenate([k, k, a, b]),
-            np.concatenate([one, -one, one, -one]), np.zeros(4 * len(k)))
-
-
-def _noted_entries(two_terminal: list, incidence: list) -> _Entries:
-    """The admittances and incidences noted one element at a time, as entry arrays."""
-    adm = np.array(two_terminal, dtype=float).reshape(-1, 4)
-    inc = np.array(incidence, dtype=np.intp).reshape(-1, 3)
-    return _joined([_admittance_entries(adm[:, 0].astype(np.intp), adm[:, 1].astype(np.intp), adm[:, 2], adm[:, 3]),
-                    _incidence_entries(inc[:, 0], inc[:, 1], inc[:, 2])])
-
-
-def _joined(parts: Sequence[tuple]) -> _Entries:
-    """Entry blocks (arrays or lists) as one block, with every entry in a ground row or column dropped."""
-    r, c, v0, v1 = (np.concatenate([np.asarray(p[i], dtype=dtype) for p in parts])
-                    for i, dtype in enumerate((np.intp, np.intp, float, float)))
-    keep = (r >= 0) & (c >= 0)
-    return r[keep], c[keep], v0[keep], v1[keep]
-
-
-def _ramp(n: int) -> np.ndarray:
-    """LAPACK's alternating ramp (−1)^i·(1 + i/(n−1)): the estimator's safeguard against a misleading start."""
-    i = np.arange(n)
-    return ((-1.0) ** i * (1.0 + i / max(n - 1, 1))).astype(complex)
-
-
-def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, norm_1: float) -> float:
-    """κ₁(A) = ‖A‖₁·‖A⁻¹‖₁, with ‖A⁻¹‖₁ from Higham's estimator.
-
-    N. J. Higham, "FORTRAN codes for estimating the one-norm of a real or complex matrix, with
-    applications to condition estimation", ACM TOMS 14(4), 1988, Algorithm 4.1 (LAPACK's ZLACN2). It
-    gives a lower bound that is usually exact and rarely off by more than a factor 3, from A⁻¹ applied
-    to e/n and to a ramp, then typically one or two more solves. Deterministic, unlike scipy's
-    randomised block ``onenormest``, which took ~10 solves.
-    """
-    n = a.shape[0]
-    if n == 0:
-        return 1.0
-    if n <= 4:
-        return norm_1 * float(np.abs(lu.solve(np.eye(n, dtype=complex))).sum(axis=0).max())
-    y = lu.solve(np.stack([np.full(n, 1.0 / n, dtype=complex), _ramp(n)], axis=1))
-    return norm_1 * _inverse_norm(lu, y[:, 0], y[:, 1])[0]
-
-
-def _inverse_norm(lu: sparse_backends.Factor, y: np.ndarray, ramp: np.ndarray,
-                  start: int | None = None) -> tuple[float, int]:
-    """Higham's iteration on ‖A⁻¹‖₁, and the column j where it ended; NaN for a solve that is not finite.
-
-    ``y`` = A⁻¹·x for the start vector x: e/n (``start`` None, as in ZLACN2) or the unit vector e_start
-    (a sweep passes the column where the frequency before ended). Every iterate is ‖A⁻¹·x‖₁ for some
-    ‖x‖₁ = 1, so any start gives a lower bound; from the last frequency's column a typical frequency
-    stops after one adjoint solve. ``ramp`` = A⁻¹·(LAPACK's ramp) is the final safeguard.
-    """
-    n = y.shape[0]
-    estimate = float(np.abs(y).sum())
-    if not math.isfinite(estimate):
-        return math.nan, 0
-    j = start if start is not None else -1
-    for _ in range(5):  # at most five iterations, as in ZLACN2
-        z_size = np.abs(lu.solve(_unit_phases(y), adjoint=True))
-        j_last, j = j, int(z_size.argmax())
-        if j_last >= 0 and z_size[j_last] >= z_size[j]:
-            j = j_last  # no column promises more than the one just taken: converged
-            break
-        y = lu.solve(_unit(n, j))
-        latest = float(np.abs(y).sum())
-        if not math.isfinite(latest):
-            return math.nan, j
-        if latest <= estimate:
-            break
-        estimate = latest
-    return max(estimate, 2.0 * float(np.abs(ramp).sum()) / (3.0 * n)), j
-
-
-def _unit(n: int, j: int) -> np.ndarray:
-    """The unit vector e_j (complex)."""
-    e = np.zeros(n, dtype=complex)
-    e[j] = 1.0
-    return e
-
-
-_TINY = float(np.finfo(float).tiny)  # the smallest normal double
-
-
-def _unit_phases(y: np.ndarray) -> np.ndarray:
-    """y/|y| elementwise (1 where y is 0): the complex 'sign' vector of Higham's iteration."""
-    size = np.abs(y)
-    if size.min(initial=math.inf) >= _TINY:  # the usual case, without the masked division's cost
-        return y / size
-    # Divide only by normal sizes: |Re y|, |Im y| <= |y| then keeps every phase finite.
-    return np.divide(y, size, out=np.ones_like(y), where=size >= _TINY)
-
-
-def _refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, norm_inf: float, x: np.ndarray | None = None,
-             checked: tuple[np.ndarray, float] | None = None) -> np.ndarray:
-    """A⁻¹·b, improved by up to two steps of iterative refinement while the backward error exceeds REFINE_ABOVE.
-
-    The normwise backward error ‖r‖∞/(‖A‖∞·‖x‖∞ + ‖b‖∞) of each column (Rigal and Gaches 1967) is ~ε
-    after LU with partial pivoting; KLU's threshold pivoting (relative threshold 1e-3) can leave it
-    larger. A refinement step in working precision brings it back (Skeel 1980; Higham, "Accuracy and
-    Stability of Numerical Algorithms", 2nd ed., chapter 12) for one sparse product and one more solve.
-    ``checked``: the residual and backward error of ``x``, when the caller has them already.
-    Normwise rather than componentwise: along a long ladder the far nodes' voltages shrink by many
-    decades and carry no digits of their own, so their componentwise error stays ~1 whatever is done.
-    """
-    x = lu.solve(b) if x is None else x
-    if not np.isfinite(x).all():
-        return x
-    residual, error = _backward_error(a, norm_inf, b, x) if checked is None else checked
-    for _ in range(2):
-        if not error > REFINE_ABOVE:
-            break
-        better = x + lu.solve(residual)
-        residual_better, error_better = _backward_error(a, norm_inf, b, better)
-        if not error_better < error:
-            break
-        x, residual, error = better, residual_better, error_better
-    return x
-
-
-def _backward_error(a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray,
-                    b_sizes: np.ndarray | None = None) -> tuple[np.ndarray, float]:
-    """The residual b − A·x and the largest normwise backward error of its columns (0/0 counts as 0)."""
-    residual = b - a @ np.ascontiguousarray(x)  # scipy would copy a column-major block itself, more slowly
-    scale = norm_a * _column_sizes(x) + (_column_sizes(b) if b_sizes is None else b_sizes)
-    # max over columns of max|r_j|/scale_j is the largest |r_ij|/scale_j over every entry: one pass over the
-    # row-major residual instead of a reduction per column (numpy's slow case for a tall, narrow array).
-    ratio = np.abs(residual)
-    # Divided, not multiplied by 1/scale: a subnormal scale (right-hand sides of ~1e-310) has no finite
-    # reciprocal. Scale 0 means x = b = 0, so r = 0 there too.
-    ratio /= np.where(scale > 0, scale, 1.0)
-    return residual, float(ratio.max(initial=0.0))
-
-
-def _column_sizes(m: np.ndarray) -> np.ndarray:
-    """max |m| of each column (of a vector: one value). In column-major order, where numpy reduces a
-    tall two-column array ~5x faster than in row-major (a copy to that order is cheaper than the difference)."""
-    m = m.reshape(m.shape[0], -1)
-    if not m.flags.f_contiguous:
-        m = np.asfortranarray(m)
-    return np.abs(m).max(axis=0, initial=0.0)
-
-
-def singular_error(network: Network, freq_hz: float, detail: str, matrix: sp.spmatrix | None = None,
-                   node_names: tuple[str, ...] = (), ties: Sequence[str] = ()) -> SingularNetworkError:
-    """Name the likely cause of a singular matrix from the structure at this frequency.
-
-    With no structural cause, the nodes are read from the matrix's null space when it is given.
-    """
-    from crosscheck.own.diagnose import likely_singularity, nodes_in_null_space  # late import keeps the hot path lean
-
-    cause, nodes = likely_singularity(network, freq_hz, ties)
-    if not nodes and matrix is not None:
-        nodes = nodes_in_null_space(matrix, node_names)
-        if nodes:
-            cause += f"; the undetermined voltages are at node(s) {', '.join(nodes[:8])}"
-    where = f" at {freq_hz:g} Hz" if freq_hz else " at DC (0 Hz)"
-    return SingularNetworkError(f"the network's equations are singular{where}: {cause} ({detail})",
-                                nodes=nodes, freq_hz=freq_hz)

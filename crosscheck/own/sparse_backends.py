@@ -14,20 +14,14 @@ for the numeric factorization. Two back ends:
 * ``superlu``: scipy's SuperLU with the MMD ordering of Aᵀ+A and partial
   pivoting. Always there; it recomputes its ordering at each factorization
   (scipy exposes no symbolic reuse, and reusing a column permutation by hand
-  with NATURAL was measured far slower on grids).
+  with NATURAL is far slower on grids).
 
-Measured with ``python -m crosscheck.bench`` (2 cores; KLU without row scaling, see ``klu_library``):
-one numeric factorization and a two-column solve at 10,000 nodes take 1.5 ms (KLU) against 9.2 ms
-(SuperLU, its best ordering) on a ladder, 1.9 against 15 ms on a tree and 5.3 against 23 ms on a
-random graph; at 100,000 nodes 17 against 96 ms (ladder) and 0.11 against 7.0 s (random graph). On
-the grid the two meet at 10,000 nodes (28 against 31 ms) and SuperLU wins at 100,000 (0.60 against
-1.13 s): fill reaches ~11x there and its supernodal kernels pay off. So ``klu`` is the default
-when a KLU library loads, else ``superlu``; for very large meshes ``superlu`` is worth choosing. UMFPACK
-(also in kvxopt) matched KLU on grids but was 3-4x slower on ladders and trees; pypardiso (~600 MB of
-MKL) refuses complex matrices, and python-mumps has no wheel here (its build needs MUMPS itself). Of
-SuperLU's orderings, MMD on Aᵀ+A was the best or within 10 % of it on ladders, trees and grids, where
-COLAMD and MMD_ATA took up to 1.3x as long; on the 10,000-node random graph COLAMD was 1.8x faster;
-NATURAL was ~600x slower there.
+Why KLU first: on the network families of ``crosscheck.fuzz.large`` (ladders, trees, random graphs)
+it factors and solves several times faster than SuperLU, whose supernodal kernels pay off only where
+fill is heavy (large two-dimensional grids). So ``klu`` is the default when a KLU library loads, else
+``superlu``; for very large meshes ``superlu`` is worth choosing (``benchmarks/bench.py`` measures
+both). UMFPACK was slower than KLU on ladders and trees; pypardiso refuses complex matrices. MMD on
+Aᵀ+A is SuperLU's best ordering on these families or close to it.
 
 ``CROSSCHECK_SPARSE`` (``klu`` or ``superlu``) overrides the choice, for
 comparisons and for tests of the fallback.

@@ -2,9 +2,9 @@
 
 ``MnaSystem._sweep`` hands it runs of frequencies after the first of each chain; it finishes those
 whose solve is usual (kept pivot order accurate, no refinement, a finite and non-singular condition
-estimate) and hands the first unusual one back. Same arithmetic as the Python loop, 1.2-1.7x faster
-at 1,000 nodes (a ladder's 30-point sweep: 11.5 -> 7.2 ms), where that loop's time went to numpy's
-per-call overhead around KLU and to arithmetic on subnormal numbers (see _sweep_kernel.c).
+estimate) and hands the first unusual one back. Same arithmetic as the Python loop, without numpy's
+per-call overhead around KLU, which dominates that loop's time at around 1,000 nodes, and with
+subnormal numbers flushed to zero (see _sweep_kernel.c).
 
 No compiler at install time means no kernel: ``load`` returns None and the Python loop does all of it.
 """
@@ -88,7 +88,8 @@ class Run:
         rhs_sizes = np.ascontiguousarray(rhs_sizes, dtype=float)
         for name, array, order in (("columns", columns, "F_CONTIGUOUS"), ("xs", xs, "C_CONTIGUOUS"),
                                    ("conds", conds, "C_CONTIGUOUS")):
-            if not array.flags[order] or not array.flags.writeable:
+            in_order = array.flags.f_contiguous if order == "F_CONTIGUOUS" else array.flags.c_contiguous
+            if not in_order or not array.flags.writeable:
                 raise ValueError(f"the sweep kernel writes {name} in place: it must be {order} and writeable")
         k = rhs.shape[1]
         estimate = columns.shape[1] == k + 2

@@ -37,32 +37,35 @@ from crosscheck.judge.case import with_baseline
 from crosscheck.judge.result import CaseResult, error_result
 from crosscheck.model.cases import Case
 from crosscheck.run.check import ENGINES, run_cases
+from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver
 from crosscheck.spice.workers import SpicePool
 
 #: Tasks kept in flight per executor: enough to keep a cluster busy, bounded so that a million cases
 #: never sit in memory (or in the scheduler) at once.
 DEFAULT_WINDOW = 512
 
-_POOL: SpicePool | None = None
+_POOLS: dict[CaseSolver, SpicePool] = {}
 _POOL_LOCK = threading.Lock()
 
 
-def worker_pool(timeout_s: float = 60.0) -> SpicePool:
-    """This process's own one-worker ``SpicePool``, kept alive between tasks (started on first use)."""
-    global _POOL
+def worker_pool(timeout_s: float = 60.0, solve: CaseSolver = ENGINE_SOLVE) -> SpicePool:
+    """This process's own one-worker ``SpicePool`` for ``solve``, kept alive between tasks (started on first use)."""
     with _POOL_LOCK:
-        if _POOL is None:
-            _POOL = SpicePool(workers=1, timeout_s=timeout_s)
-            atexit.register(_POOL.close)
-        return _POOL
+        pool = _POOLS.get(solve)
+        if pool is None:
+            pool = _POOLS[solve] = SpicePool(workers=1, timeout_s=timeout_s, solve=solve)
+            atexit.register(pool.close)
+        return pool
 
 
-def check_case(item: Case, engine: str = "both", timeout_s: float = 60.0) -> CaseResult:
+def check_case(item: Case, engine: str = "both", timeout_s: float = 60.0,
+               solve: CaseSolver = ENGINE_SOLVE) -> CaseResult:
     """The whole check of one case in this process: the task that executors run.
 
     ngspice runs in this process's ``worker_pool``; a baseline, if any, is applied by the caller.
+    ``solve``: the function the ngspice worker calls per case (a test seam; ngspice's own by default).
     """
-    pool = worker_pool(timeout_s) if engine in ("spice", "both") else None
+    pool = worker_pool(timeout_s, solve) if engine in ("spice", "both") else None
     result = run_cases([item], engine=engine, pool=pool)[0]
     return _travel_light(result)
 
@@ -77,7 +80,7 @@ def _travel_light(result: CaseResult) -> CaseResult:
 
 def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Executor | None = None, *,
               engine: str = "both", workers: int | None = None, timeout_s: float = 60.0,
-              baseline: Baseline | None = None,
+              baseline: Baseline | None = None, solve: CaseSolver = ENGINE_SOLVE,
               on_done: Callable[[CaseResult], None] | None = None, window: int = DEFAULT_WINDOW) -> list[CaseResult]:
     """Check every case; results in the order given.
 
@@ -93,11 +96,11 @@ def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Exe
     if executor is None:
         if engine == "own":
             return run_cases(cases, engine=engine, on_done=on_done, baseline=baseline)
-        with SpicePool(workers=workers, timeout_s=timeout_s) as pool:
+        with SpicePool(workers=workers, timeout_s=timeout_s, solve=solve) as pool:
             return run_cases(cases, engine=engine, pool=pool, on_done=on_done, baseline=baseline)
 
     results: list[CaseResult] = []
-    for item, future in windowed(executor, check_case, cases, (engine, timeout_s), window,
+    for item, future in windowed(executor, check_case, cases, (engine, timeout_s, solve), window,
                                  skip=lambda x: isinstance(x, tuple)):
         if future is None:  # a case file that could not be read
             result = run_cases([item], engine="own")[0]

@@ -31,17 +31,15 @@ change size with frequency that cost 1e-5 relative accuracy at condition 164
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Iterable, Literal, Mapping, Sequence
+from typing import Literal
 
 from crosscheck.model.network import GROUND, Network, Port, _UnionFind, floating_reference, validate
 
 Run = Literal["open", "short", "test"]
 RUNS: tuple[Run, ...] = ("open", "short", "test")
 
-#: Relative distance under which a requested frequency and one ngspice returns are the same point.
-#: ngspice steps sweeps by repeated multiplication or addition, which drifts by ~1e-15 per step.
-FREQ_MATCH_REL = 1e-9
 #: How exactly requested frequencies must follow a decade or linear grid to be sent as one sweep card.
 _GRID_REL = 1e-12
 

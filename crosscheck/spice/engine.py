@@ -4,7 +4,7 @@ This is the only module that imports PySpice, and only inside functions, so
 ``import crosscheck`` works where ngspice is not installed. Everything that
 leaves it is plain data: ``complex`` values, tuples, strings, our own errors.
 
-Three runs give the equivalent (see ``spice_deck``): open circuit (V_th),
+Three runs give the equivalent (see ``deck``): open circuit (V_th),
 short circuit (I_N) and a 1 A test current with the independent sources
 zeroed (Z_th). Two of them determine the third, so ``route_mismatch`` reports
 how far V_th/Z_th is from I_N: an independent consistency check on ngspice.
@@ -28,23 +28,24 @@ import logging
 import math
 import os
 import time
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
-from typing import Iterable, Literal, Sequence
+from typing import Literal
 
 import numpy as np
 
 from crosscheck.errors import EngineUnavailableError, ReferenceEngineError
 from crosscheck.model.network import Network, Port, validate
-from crosscheck.spice.deck import FREQ_MATCH_REL, RUNS, Deck, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
+from crosscheck.spice.deck import RUNS, Deck, Run, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
+from crosscheck.vocabulary import same_frequency
 
 INSTALL_COMMAND = "sudo apt-get install -y libngspice0 libngspice0-dev"
 _LIBRARY_CANDIDATES = ("libngspice.so", "libngspice.so.0")
 
 Strategy = Literal["combined", "separate"]
-#: Measured on ngspice 39 in a worker (median engine time per case): 0.7 ms combined vs 1.2 ms separate for a
-#: 4-element network at one frequency, 1.6 vs 3.6 ms over 51 frequencies, 6 vs 10 ms for 151 elements;
-#: equal within noise at ~900-3000 elements. Both give the same numbers (to ~1e-15); a combined run
-#: that fails is repeated as separate runs, so the choice never changes an answer.
+#: One combined deck per case costs ngspice about half the time of separate runs on small and medium networks
+#: and the same on large ones. Both give the same numbers (to ~1e-15); a combined run that fails is
+#: repeated as separate runs, so the choice never changes an answer.
 DEFAULT_STRATEGY: Strategy = "combined"
 
 #: Words in an ngspice stderr line that mean the run did not do what was asked.
@@ -117,18 +118,6 @@ class SpiceResult:
 
 
 # --------------------------------------------------------------------------- public entry points
-
-
-def spice_equivalent(network: Network, port: Port, freqs: Iterable[float], timeout_s: float = 60.0,
-                     strategy: Strategy = DEFAULT_STRATEGY) -> SpiceResult:
-    """ngspice's equivalent of ``network`` at ``port``, computed in an isolated worker process.
-
-    For one-off calls; a batch should use ``crosscheck.spice.workers.SpicePool`` directly.
-    Raises ``ReferenceEngineError`` (ngspice's own words) or ``EngineUnavailableError``.
-    """
-    from crosscheck.spice.workers import shared_pool  # workers imports this module: import it only when used
-
-    return shared_pool().submit(network, port, freqs, timeout_s=timeout_s, strategy=strategy).result()
 
 
 def ngspice_available(library: str | None = None) -> str | None:
@@ -324,10 +313,11 @@ def solve(engine: Engine, network: Network, port: Port, freqs: Iterable[float],
         if degenerate:
             point_notes.append(notes[0])
         freq_hz = next((v[0] for v in got.values() if v is not None and v[0] is not None), f)
-        vth, isc, zth = (None if got[r] is None else got[r][1] for r in ("open", "short", "test"))
-        derived = degenerate and isc is None and vth is not None and bool(zth)
-        if derived:
+        vth, isc, zth = (None if (v := got[r]) is None else v[1] for r in ("open", "short", "test"))
+        derived = False
+        if degenerate and isc is None and vth is not None and zth:
             # No shorted run is possible; ngspice's own two other runs still give I_N = V_th / Z_th.
+            derived = True
             isc = vth / zth
             point_notes.append("I_N here is V_th / Z_th from ngspice's open-circuit and test runs")
         points.append(SpicePoint(freq_hz=freq_hz, requested_hz=f, vth=vth, zth=zth, isc=isc,
@@ -361,7 +351,7 @@ class _Case:
         self.notes: list[str] = []
         self.decks: list[str] = []
 
-    def solve_group(self, freqs: list[float], runs: tuple[str, ...], strategy: Strategy) -> str:
+    def solve_group(self, freqs: list[float], runs: tuple[Run, ...], strategy: Strategy) -> str:
         if strategy == "combined" and len(runs) > 1:
             deck = build_combined_deck(self.network, self.port, freqs, runs)
             try:
@@ -417,7 +407,7 @@ class _Case:
                 raise _RunFailed(f"plot {name} lacks the vectors {', '.join(missing)}", [], deck.text)
             for row, got in enumerate(freq.real.tolist()):
                 i = bisect.bisect_left(wanted, got)
-                match = [f for f in wanted[max(i - 1, 0):i + 1] if _same_freq(f, got)]
+                match = [f for f in wanted[max(i - 1, 0):i + 1] if same_frequency(f, got)]
                 if len(match) != 1 or match[0] in rows:
                     raise _RunFailed(f"plot {name} has a row at {got!r} Hz that was not asked for once", [],
                                      deck.text)
@@ -434,10 +424,6 @@ class _Case:
                     value = (vectors[probe.plus][row] if probe.plus else 0j) - (
                         vectors[probe.minus][row] if probe.minus else 0j)
                 self.values[(run, f)] = (got, complex(value))
-
-
-def _same_freq(want: float, got: float) -> bool:
-    return math.isclose(want, got, rel_tol=FREQ_MATCH_REL, abs_tol=0.0) or (want == 0 and got == 0)
 
 
 def _short(exc: _RunFailed) -> str:

@@ -25,20 +25,19 @@ that dies or overruns is killed and replaced; its case becomes a
 ngspice instance between cases and retires after an engine error (its state
 is then uncertain) or after ``cases_per_worker`` cases.
 
-Fault injection, for tests only: when ``CROSSCHECK_TEST_FAULTS=1`` is set in
-the parent's environment at ``submit`` time, a network whose title is one of
-``FAULT_TITLES`` makes its worker hang (sleep), spin (burn CPU), die
-(SIGKILL) or hog memory instead of running ngspice. Both conditions are needed, so neither a
-stray title nor a stray variable can trigger it.
+What runs inside a worker is in ``crosscheck.spice.sandbox``. Which function
+solves each case is the pool's ``solve`` argument (a ``sandbox.CaseSolver``,
+ngspice's ``engine.solve`` by default): only the code that builds the pool
+chooses it, never anything a case carries (see ``sandbox`` for why that is
+safe). The worker tests use it to run functions of their own that hang, spin,
+die or hog memory.
 """
 
 from __future__ import annotations
 
 import atexit
-import math
 import os
 import queue
-import resource
 import shutil
 import signal
 import socket
@@ -46,144 +45,20 @@ import subprocess
 import sys
 import tempfile
 import threading
-import time
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
 from multiprocessing.connection import Connection
-from dataclasses import dataclass
-from typing import Any, Iterable, Iterator, Sequence
+from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.network import Network, Port, validate
-from crosscheck.spice.engine import DEFAULT_STRATEGY, Engine, SpiceResult, Strategy, solve
 from crosscheck.spice.deck import check_freqs
-
-FAULT_ENV = "CROSSCHECK_TEST_FAULTS"
-#: Network titles that make a worker misbehave on purpose when FAULT_ENV is "1" in the parent.
-FAULT_TITLES = {
-    "crosscheck-test-fault:hang": "hang",
-    "crosscheck-test-fault:spin": "spin",
-    "crosscheck-test-fault:die": "die",
-    "crosscheck-test-fault:hog": "hog",
-}
+from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
+from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver, Settings, Task, describe_bytes
 
 DEFAULT_TIMEOUT_S = 60.0
 DEFAULT_MEMORY_BYTES = 2 << 30
 _START_TIMEOUT_S = 60.0  # a worker's interpreter, numpy, PySpice and ngspice: ~0.5 s when well
-
-
-@dataclass(frozen=True)
-class _Settings:
-    """What a worker needs to set itself up; sent once, when it starts."""
-
-    directory: str
-    library: str | None
-    memory_bytes: int | None
-    cpu_s: float | None
-    cases_per_worker: int
-
-
-@dataclass(frozen=True)
-class _Task:
-    network: Network
-    port: Port
-    freqs: tuple[float, ...]
-    strategy: Strategy
-    faults: bool
-
-
-# --------------------------------------------------------------------------- inside the worker
-
-
-def _worker_main(conn: Any, settings: _Settings) -> None:
-    """A worker's whole life: sandbox, engine, then one case per message until told to stop."""
-    library = _enter_sandbox(settings)
-    engine: Engine | None = None
-    startup_error: CrosscheckError | None = None
-    try:
-        engine = Engine(library)
-    except CrosscheckError as exc:
-        startup_error = exc
-    conn.send(("ready", engine.version if engine else None))
-    done = 0
-    while True:
-        try:
-            task = conn.recv()
-        except (EOFError, OSError):  # the parent is gone without stopping us: clean up after ourselves
-            shutil.rmtree(settings.directory, ignore_errors=True)
-            return
-        if task is None:
-            return
-        _limit_cpu(settings.cpu_s)
-        retire = False
-        try:
-            if task.faults:
-                inject_fault(task.network.title)
-            if engine is None:
-                assert startup_error is not None
-                raise startup_error
-            outcome: tuple[str, Any] = ("ok", solve(engine, task.network, task.port, task.freqs, task.strategy))
-        except CrosscheckError as exc:
-            outcome = ("error", exc)
-            retire = engine is not None and isinstance(exc, ReferenceEngineError)
-        except MemoryError:
-            outcome = ("error", ReferenceEngineError(
-                f"the ngspice worker ran out of memory (limit {_bytes(settings.memory_bytes)}) on this case; "
-                "raise memory_bytes if the network is genuinely that large"))
-            retire = True
-        except Exception as exc:  # a bug or an engine fault: report it as this case's error, then retire
-            outcome = ("error", ReferenceEngineError(f"the ngspice worker failed: {type(exc).__name__}: {exc}"))
-            retire = True
-        done += 1
-        retire = retire or done >= settings.cases_per_worker
-        try:
-            conn.send((outcome, retire))
-        except Exception as exc:  # the outcome could not be pickled: send its words instead
-            conn.send((("error", ReferenceEngineError(f"{outcome[1]} (unpicklable result: {exc})")), True))
-        if retire:
-            return
-
-
-def _enter_sandbox(settings: _Settings) -> str | None:
-    """Resource limits, and the working directory and environment the parent prepared. Returns the library path.
-
-    The parent already started this process in an empty directory with a private HOME and no
-    SPICE_* / NGSPICE_* variables but the library path (``_worker_environment``).
-    """
-    os.chdir(os.path.join(settings.directory, "work"))
-    resource.setrlimit(resource.RLIMIT_CORE, (0, 0))
-    if settings.memory_bytes:
-        _, hard = resource.getrlimit(resource.RLIMIT_AS)
-        limit = settings.memory_bytes if hard == resource.RLIM_INFINITY else min(hard, settings.memory_bytes)
-        resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
-    return settings.library or os.environ.get("NGSPICE_LIBRARY_PATH") or None
-
-
-def _limit_cpu(cpu_s: float | None) -> None:
-    """Let this case use ``cpu_s`` more seconds of CPU; past that the kernel sends SIGXCPU, which ends the worker."""
-    if not cpu_s:
-        return
-    usage = resource.getrusage(resource.RUSAGE_SELF)
-    soft = math.ceil(usage.ru_utime + usage.ru_stime + cpu_s)
-    _, hard = resource.getrlimit(resource.RLIMIT_CPU)
-    if hard != resource.RLIM_INFINITY:
-        soft = min(soft, hard)
-    resource.setrlimit(resource.RLIMIT_CPU, (soft, hard))
-
-
-def inject_fault(title: str) -> None:
-    """Misbehave as the title asks (see FAULT_TITLES); a no-op for any other title. Only workers call this."""
-    kind = FAULT_TITLES.get(title)
-    if kind == "hang":
-        while True:
-            time.sleep(3600)
-    elif kind == "spin":
-        while True:
-            pass
-    elif kind == "die":
-        os.kill(os.getpid(), signal.SIGKILL)
-    elif kind == "hog":
-        hoard = [bytearray(1 << 28) for _ in range(64)]  # 16 GiB: past any sane memory limit
-        raise AssertionError(f"the memory limit did not stop an allocation of {len(hoard) >> 2} GiB")
 
 
 # --------------------------------------------------------------------------- in the parent
@@ -193,8 +68,8 @@ class _WorkerLost(Exception):
     pass
 
 
-#: What a worker runs. ``-c`` rather than ``-m crosscheck.spice.workers``, so this module is imported once, by name.
-_CHILD_COMMAND = "import sys; from crosscheck.spice.workers import _child_entry; _child_entry(sys.argv[1:])"
+#: What a worker runs. ``-c`` rather than ``-m crosscheck.spice.sandbox``, so that module is imported once, by name.
+_CHILD_COMMAND = "import sys; from crosscheck.spice.sandbox import child_entry; child_entry(sys.argv[1:])"
 
 
 class _Worker:
@@ -213,7 +88,7 @@ class _Worker:
             self.kill()
             raise _WorkerLost(f"the ngspice worker could not be started ({type(exc).__name__}: {exc})") from None
 
-    def _start(self, settings: _Settings, start_timeout_s: float) -> None:
+    def _start(self, settings: Settings, start_timeout_s: float) -> None:
         work = os.path.join(self.directory, "work")
         os.makedirs(work)
         self._log_path = os.path.join(self.directory, "worker.log")
@@ -237,7 +112,8 @@ class _Worker:
         except (EOFError, OSError):
             raise _WorkerLost(f"the ngspice worker died while starting ({self._exit_text()})") from None
 
-    def call(self, task: _Task, timeout_s: float) -> tuple[tuple[str, Any], bool]:
+    def call(self, task: Task, timeout_s: float) -> tuple[tuple[str, Any], bool]:
+        assert self.conn is not None, "a _Worker that exists has started (or __init__ raised)"
         try:
             self.conn.send(task)
         except (BrokenPipeError, EOFError, OSError):
@@ -278,6 +154,7 @@ class _Worker:
 
     def stop(self) -> None:
         """Ask the worker to finish, then make sure it has."""
+        assert self.conn is not None and self.process is not None, "a _Worker that exists has started"
         try:
             self.conn.send(None)
             self.process.wait(timeout=5.0)
@@ -319,12 +196,16 @@ class SpicePool:
     ill-posed network, ``ReferenceEngineError`` when ngspice fails, crashes or
     overruns, ``EngineUnavailableError`` when ngspice is not installed. Use it
     as a context manager; leaving waits for the cases already submitted.
+
+    ``solve``: the function each worker calls per case (``sandbox.CaseSolver``); ngspice's
+    ``engine.solve`` unless a test names one of its own.
     """
 
     def __init__(self, workers: int | None = None, *, timeout_s: float = DEFAULT_TIMEOUT_S,
                  memory_bytes: int | None = DEFAULT_MEMORY_BYTES, cpu_s: float | None = None,
                  strategy: Strategy = DEFAULT_STRATEGY, library: str | None = None,
-                 cases_per_worker: int = 1000, start_timeout_s: float = _START_TIMEOUT_S):
+                 cases_per_worker: int = 1000, start_timeout_s: float = _START_TIMEOUT_S,
+                 solve: CaseSolver = ENGINE_SOLVE):
         count = (os.cpu_count() or 1) if workers is None else int(workers)
         if count < 1:
             raise ValueError(f"workers must be at least 1 (got {workers!r})")
@@ -333,9 +214,12 @@ class SpicePool:
         self.workers = count
         self.timeout_s = float(timeout_s)
         self.strategy = strategy
-        self._settings = dict(library=library or os.environ.get("NGSPICE_LIBRARY_PATH") or None,
-                              memory_bytes=memory_bytes, cpu_s=cpu_s if cpu_s is not None else self.timeout_s,
-                              cases_per_worker=int(cases_per_worker))
+        self._cpu_s = float(cpu_s) if cpu_s is not None else self.timeout_s
+        self._memory_bytes = memory_bytes
+        # Every worker's settings but its directory (``_settings_for`` adds that).
+        self._settings: Callable[[str], Settings] = lambda directory: Settings(
+            directory, library or os.environ.get("NGSPICE_LIBRARY_PATH") or None, memory_bytes, self._cpu_s,
+            int(cases_per_worker), solve)
         self._start_timeout_s = start_timeout_s
         self._queue: queue.SimpleQueue = queue.SimpleQueue()
         self._closed = False
@@ -345,14 +229,14 @@ class SpicePool:
         for t in self._threads:
             t.start()
 
-    def __enter__(self) -> "SpicePool":
+    def __enter__(self) -> SpicePool:
         return self
 
     def __exit__(self, *exc_info: object) -> None:
         self.close()
 
     def submit(self, network: Network, port: Port, freqs: Iterable[float], *, timeout_s: float | None = None,
-               strategy: Strategy | None = None) -> "Future[SpiceResult]":
+               strategy: Strategy | None = None) -> Future[SpiceResult]:
         """Queue one case; its future holds the ``SpiceResult`` or the error of that case alone."""
         future: Future = Future()
         with self._lock:
@@ -362,8 +246,7 @@ class SpicePool:
                 validate(network, port)
                 if (strategy or self.strategy) not in ("combined", "separate"):
                     raise ValueError(f"strategy must be 'combined' or 'separate' (got {strategy!r})")
-                task = _Task(network, port, check_freqs(freqs), strategy or self.strategy,
-                             faults=os.environ.get(FAULT_ENV) == "1")
+                task = Task(network, port, check_freqs(freqs), strategy or self.strategy)
             except (CrosscheckError, ValueError) as exc:
                 future.set_exception(exc)
                 return future
@@ -432,12 +315,12 @@ class SpicePool:
             if worker is not None:
                 worker.stop()
 
-    def _settings_for(self, directory: str) -> _Settings:
-        return _Settings(directory=directory, **self._settings)
+    def _settings_for(self, directory: str) -> Settings:
+        return self._settings(directory)
 
-    def _lost(self, lost: _WorkerLost, task: _Task) -> ReferenceEngineError:
-        limits = (f"limits: {self.timeout_s:g} s wall clock, {self._settings['cpu_s']:g} s CPU, "
-                  f"{_bytes(self._settings['memory_bytes'])} memory")
+    def _lost(self, lost: _WorkerLost, task: Task) -> ReferenceEngineError:
+        limits = (f"limits: {self.timeout_s:g} s wall clock, {self._cpu_s:g} s CPU, "
+                  f"{describe_bytes(self._memory_bytes)} memory")
         return ReferenceEngineError(
             f"{lost}; the worker was stopped and replaced, and the other cases go on "
             f"(network {task.network.title!r}, {len(task.network.elements)} elements, {limits}). "
@@ -446,16 +329,12 @@ class SpicePool:
         )
 
 
-def _bytes(n: int | None) -> str:
-    return "no limit on" if not n else f"{n / 2**30:g} GiB"
-
-
 _SHARED: SpicePool | None = None
 _SHARED_LOCK = threading.Lock()
 
 
 def shared_pool() -> SpicePool:
-    """A one-worker pool kept for this process's one-off calls (``reference.spice_equivalent``)."""
+    """A one-worker pool kept for this process's one-off calls (``spice_equivalent``)."""
     global _SHARED
     with _SHARED_LOCK:
         if _SHARED is None:
@@ -464,8 +343,11 @@ def shared_pool() -> SpicePool:
         return _SHARED
 
 
-def _child_entry(argv: Sequence[str]) -> None:
-    """A worker's entry point (``_CHILD_COMMAND``): serve cases on the socket inherited as file descriptor argv[0]."""
-    conn = Connection(int(argv[0]))
-    settings = conn.recv()
-    _worker_main(conn, settings)
+def spice_equivalent(network: Network, port: Port, freqs: Iterable[float], timeout_s: float = 60.0,
+                     strategy: Strategy = DEFAULT_STRATEGY) -> SpiceResult:
+    """ngspice's equivalent of ``network`` at ``port``, computed in an isolated worker process.
+
+    For one-off calls (it uses ``shared_pool``); a batch should use a ``SpicePool`` directly.
+    Raises ``ReferenceEngineError`` (ngspice's own words) or ``EngineUnavailableError``.
+    """
+    return shared_pool().submit(network, port, freqs, timeout_s=timeout_s, strategy=strategy).result()

@@ -1,0 +1,172 @@
+"""Inside an ngspice worker process: the sandbox it enters, and the loop that solves one case per message.
+
+A worker is a fresh interpreter started by ``crosscheck.spice.workers`` (``child_entry``) talking to its
+parent over a socket pair. Before loading ngspice it enters the directory and environment the parent
+prepared (an empty directory, a private empty ``HOME``: ngspice executes a ``.spiceinit`` found in
+either), limits its address space (``RLIMIT_AS``) and its CPU time per case (``RLIMIT_CPU``), and writes
+no core files.
+
+Which function solves a case is a ``CaseSolver`` the parent's ``SpicePool`` sends once, in the worker's
+settings: ``engine.solve`` unless the code that built the pool named another (the worker tests name
+functions of their own that hang, spin, die or hog memory, to prove the pool survives them). The seam is
+safe because only the pool's constructor chooses it: nothing a case carries (its network, title, port,
+frequencies) is ever read to pick a function, and ngspice sees only the deck our writer made from the
+model. A module named in a ``CaseSolver`` runs with the caller's own rights, as any import the caller
+makes would.
+"""
+
+from __future__ import annotations
+
+import importlib
+import math
+import os
+import resource
+import shutil
+import sys
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from multiprocessing.connection import Connection
+from typing import Any
+
+from crosscheck.errors import CrosscheckError, ReferenceEngineError
+from crosscheck.model.network import Network, Port
+from crosscheck.spice.engine import Engine, SpiceResult, Strategy
+
+
+@dataclass(frozen=True)
+class CaseSolver:
+    """The function a worker calls for each case, named so that a fresh worker process can import it.
+
+    It is called as ``function(engine, network, port, freqs, strategy)`` and returns a ``SpiceResult``
+    (``engine.solve``'s signature). ``path``: a directory put first on the worker's ``sys.path`` before
+    ``module`` is imported (for a module outside the package, such as one of the tests').
+    """
+
+    module: str = "crosscheck.spice.engine"
+    name: str = "solve"
+    path: str | None = None
+
+    def load(self) -> Callable[[Engine, Network, Port, tuple[float, ...], Strategy], SpiceResult]:
+        """Import the function (in the worker)."""
+        if self.path and self.path not in sys.path:
+            sys.path.insert(0, self.path)
+        function = getattr(importlib.import_module(self.module), self.name)
+        if not callable(function):
+            raise TypeError(f"{self.module}.{self.name} is not callable; name a function with engine.solve's "
+                            "signature")
+        return function
+
+
+#: ngspice's own solve: what every pool uses unless its constructor is told otherwise.
+ENGINE_SOLVE = CaseSolver()
+
+
+@dataclass(frozen=True)
+class Settings:
+    """What a worker needs to set itself up; sent once, when it starts."""
+
+    directory: str
+    library: str | None
+    memory_bytes: int | None
+    cpu_s: float | None
+    cases_per_worker: int
+    solve: CaseSolver = ENGINE_SOLVE
+
+
+@dataclass(frozen=True)
+class Task:
+    """One case for a worker."""
+
+    network: Network
+    port: Port
+    freqs: tuple[float, ...]
+    strategy: Strategy
+
+
+def describe_bytes(n: int | None) -> str:
+    """A memory limit in words ("2 GiB", or "no limit on")."""
+    return "no limit on" if not n else f"{n / 2**30:g} GiB"
+
+
+def child_entry(argv: Sequence[str]) -> None:
+    """A worker's entry point: serve cases on the socket inherited as file descriptor argv[0]."""
+    conn = Connection(int(argv[0]))
+    settings = conn.recv()
+    worker_main(conn, settings)
+
+
+def worker_main(conn: Any, settings: Settings) -> None:
+    """A worker's whole life: sandbox, engine, then one case per message until told to stop."""
+    library = enter_sandbox(settings)
+    solve_case = settings.solve.load()
+    engine: Engine | None = None
+    startup_error: CrosscheckError | None = None
+    try:
+        engine = Engine(library)
+    except CrosscheckError as exc:
+        startup_error = exc
+    conn.send(("ready", engine.version if engine else None))
+    done = 0
+    while True:
+        try:
+            task = conn.recv()
+        except (EOFError, OSError):  # the parent is gone without stopping us: clean up after ourselves
+            shutil.rmtree(settings.directory, ignore_errors=True)
+            return
+        if task is None:
+            return
+        limit_cpu(settings.cpu_s)
+        outcome, retire = _one_case(solve_case, engine, startup_error, task, settings)
+        done += 1
+        retire = retire or done >= settings.cases_per_worker
+        try:
+            conn.send((outcome, retire))
+        except Exception as exc:  # the outcome could not be pickled: send its words instead
+            conn.send((("error", ReferenceEngineError(f"{outcome[1]} (unpicklable result: {exc})")), True))
+        if retire:
+            return
+
+
+def _one_case(solve_case: Callable[..., SpiceResult], engine: Engine | None, startup_error: CrosscheckError | None,
+              task: Task, settings: Settings) -> tuple[tuple[str, Any], bool]:
+    """One case's outcome, ("ok", result) or ("error", error), and whether the worker retires after it."""
+    try:
+        if engine is None:
+            assert startup_error is not None
+            raise startup_error
+        return ("ok", solve_case(engine, task.network, task.port, task.freqs, task.strategy)), False
+    except CrosscheckError as exc:
+        return ("error", exc), engine is not None and isinstance(exc, ReferenceEngineError)
+    except MemoryError:
+        return ("error", ReferenceEngineError(
+            f"the ngspice worker ran out of memory (limit {describe_bytes(settings.memory_bytes)}) on this case; "
+            "raise memory_bytes if the network is genuinely that large")), True
+    except Exception as exc:  # a bug or an engine fault: report it as this case's error, then retire
+        return ("error", ReferenceEngineError(f"the ngspice worker failed: {type(exc).__name__}: {exc}")), True
+
+
+def enter_sandbox(settings: Settings) -> str | None:
+    """Resource limits, and the working directory and environment the parent prepared. Returns the library path.
+
+    The parent already started this process in an empty directory with a private HOME and no
+    SPICE_* / NGSPICE_* variables but the library path (``workers._worker_environment``).
+    """
+    os.chdir(os.path.join(settings.directory, "work"))
+    resource.setrlimit(resource.RLIMIT_CORE, (0, 0))
+    if settings.memory_bytes:
+        _, hard = resource.getrlimit(resource.RLIMIT_AS)
+        limit = settings.memory_bytes if hard == resource.RLIM_INFINITY else min(hard, settings.memory_bytes)
+        resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
+    return settings.library or os.environ.get("NGSPICE_LIBRARY_PATH") or None
+
+
+def limit_cpu(cpu_s: float | None) -> None:
+    """Let this case use ``cpu_s`` more seconds of CPU; past that the kernel sends SIGXCPU, which ends the worker."""
+    if not cpu_s:
+        return
+    usage = resource.getrusage(resource.RUSAGE_SELF)
+    soft = math.ceil(usage.ru_utime + usage.ru_stime + cpu_s)
+    _, hard = resource.getrlimit(resource.RLIMIT_CPU)
+    if hard != resource.RLIM_INFINITY:
+        soft = min(soft, hard)
+    resource.setrlimit(resource.RLIMIT_CPU, (soft, hard))
