@@ -12,7 +12,8 @@ from typing import Sequence
 import numpy as np
 import scipy.sparse as sp
 
-from crosscheck.model.network import CURRENT_OUTPUT_KINDS, GROUND, Network, _UnionFind
+from crosscheck.model.graph import UnionFind as _UnionFind
+from crosscheck.model.network import CURRENT_OUTPUT_KINDS, GROUND, Network
 
 #: Above this many unknowns the null space is not computed (a dense SVD), and no nodes are named.
 _NULL_SPACE_LIMIT = 2000

@@ -34,7 +34,8 @@ import math
 from dataclasses import dataclass, field
 from typing import Iterable, Literal, Mapping, Sequence
 
-from crosscheck.model.network import GROUND, Network, Port, _UnionFind, floating_reference, validate
+from crosscheck.model.graph import UnionFind as _UnionFind
+from crosscheck.model.network import GROUND, Network, Port, floating_reference, validate
 
 Run = Literal["open", "short", "test"]
 RUNS: tuple[Run, ...] = ("open", "short", "test")
