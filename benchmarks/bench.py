@@ -338,7 +338,7 @@ def _best(fn: Callable[[], object], repeat: int = 3) -> str:
 def _small_cases(count: int, seed: int = 11):
     from crosscheck.run.check import case_from_netlist
     from crosscheck.fuzz.generate import case_seed, generate_case
-    from crosscheck.model.netlist import write_netlist
+    from crosscheck.model.netlist_writer import write_netlist
 
     out = []
     for i in range(count):

@@ -34,7 +34,7 @@ from crosscheck.judge.compare import COMPARED, PointCheck, compare_point
 from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.errors import CrosscheckError, EngineUnavailableError, SingularNetworkError
 from crosscheck.fuzz.generate import GeneratedCase, Knobs, case_seed, generate_case, well_posed
-from crosscheck.model.netlist import write_netlist
+from crosscheck.model.netlist_writer import write_netlist
 from crosscheck.model.network import Network, Port, floating_reference
 from crosscheck.own.solver import MnaSystem
 from crosscheck.fuzz.shrink import ShrinkResult, shrink
