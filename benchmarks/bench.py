@@ -32,9 +32,9 @@ import subprocess
 import sys
 import tempfile
 import time
-from pathlib import Path
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
-from typing import Callable, Sequence
+from pathlib import Path
 
 import numpy as np
 
@@ -77,8 +77,8 @@ def _child(job: dict) -> dict:
     freqs = list(SWEEP_HZ[: job["freqs"]])
     out: dict = {"resident_mib": _resident_mib()}
     if job["route"] == "own":
-        from crosscheck.own.equivalent import thevenin
         from crosscheck.model.network import floating_reference
+        from crosscheck.own.equivalent import thevenin
         from crosscheck.own.solver import MnaSystem
 
         thevenin(*build(job["family"], 200), freqs)  # imports and first-call costs (sparse path), untimed
@@ -96,7 +96,7 @@ def _child(job: dict) -> dict:
         rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
         for estimate in (True, False):
             key = "solve_with_condition" if estimate else "solve_without_condition"
-            out[key], _ = _timed(lambda: system.solve_many(freqs, rhs, estimate_condition=estimate), repeat)
+            out[key], _ = _timed(lambda e=estimate: system.solve_many(freqs, rhs, estimate_condition=e), repeat)
     else:
         from crosscheck.spice.engine import Engine, solve
 
@@ -310,14 +310,15 @@ def report_backends(families: Sequence[str], sizes: Sequence[int]) -> None:
                 started = time.perf_counter()
                 analysis = sparse_backends.analyse(system._pattern, "klu")
                 symbolic = time.perf_counter() - started
-                cells.append(_best(lambda: analysis.factor(a.data).solve(rhs)) + f" +{_fmt_s(symbolic)}")
+                cells.append(_best(lambda an=analysis, m=a, b=rhs: an.factor(m.data).solve(b)) + f" +{_fmt_s(symbolic)}")
             else:
                 cells.append("not installed")
             for ordering in ORDERINGS:
                 if nodes > 10_000 and ordering != sparse_backends.SUPERLU_ORDERING:
                     cells.append("—")
                     continue
-                cells.append(_best(lambda: splu(a, permc_spec=ordering).solve(rhs), repeat=1 if nodes >= 10_000 else 3))
+                cells.append(_best(lambda m=a, o=ordering, b=rhs: splu(m, permc_spec=o).solve(b),
+                                  repeat=1 if nodes >= 10_000 else 3))
             print(f"{family:8} {nodes:>7} " + " ".join(f"{c:>14}" for c in cells), flush=True)
     print(f"default: {sparse_backends.default_backend()} (SuperLU, when it is used, orders with "
           f"{sparse_backends.SUPERLU_ORDERING}); at 100,000 nodes only the default SuperLU ordering is timed")
@@ -336,9 +337,9 @@ def _best(fn: Callable[[], object], repeat: int = 3) -> str:
 
 
 def _small_cases(count: int, seed: int = 11):
-    from crosscheck.run.check import case_from_netlist
     from crosscheck.fuzz.generate import case_seed, generate_case
-    from crosscheck.model.netlist import write_netlist
+    from crosscheck.model.netlist_writer import write_netlist
+    from crosscheck.run.check import case_from_netlist
 
     out = []
     for i in range(count):
@@ -352,9 +353,9 @@ def report_throughput(count: int, spice_ok: str | None) -> dict:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
 
+    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
     from crosscheck.run.batch import run_batch
     from crosscheck.run.check import run_cases
-    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
     from crosscheck.spice.workers import SpicePool
 
     section(f"batch throughput ({count} small random cases, 2-8 nodes, both engines and the comparison)")

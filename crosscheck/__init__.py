@@ -8,6 +8,7 @@ The public API is re-exported here; everything else is internal. In a notebook::
     crosscheck.results_frame(crosscheck.run_case_files(["cases/amp.toml"]))
 """
 
+from crosscheck.api import reduce_netlist, results_frame, run_case_files
 from crosscheck.errors import (
     CaseFileError,
     CrosscheckError,
@@ -20,13 +21,12 @@ from crosscheck.errors import (
     SingularNetworkError,
     ValueSyntaxError,
 )
-from crosscheck.model.network import Element, Network, Port, make_element, validate
-from crosscheck.model.values import format_eng, format_polar, format_rect, parse_number, parse_phasor
-from crosscheck.api import reduce_netlist, results_frame, run_case_files
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.cases import Case, load_case
 from crosscheck.model.netlist import read_netlist, read_netlist_file
+from crosscheck.model.network import Element, Network, Port, make_element, validate
 from crosscheck.model.tolerance import Tolerance
+from crosscheck.model.values import format_eng, format_polar, format_rect, parse_number, parse_phasor
 from crosscheck.own.equivalent import ElementForm, Equivalent, thevenin
 from crosscheck.version import __version__ as __version__
 from crosscheck.vocabulary import Verdict

@@ -16,6 +16,7 @@ from crosscheck.errors import CrosscheckError
 from crosscheck.judge.baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
 from crosscheck.model.cases import find_case_files, load_case
 from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
+from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
@@ -148,14 +149,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _frequencies(texts: Sequence[str]) -> list[float]:
-
-    freqs = []
-    for text in texts:
-        f = parse_number(text)
-        if not f >= 0 or f == float("inf"):
-            raise CrosscheckError(f"frequency {text!r} must be a finite number >= 0 Hz")
-        freqs.append(f)
-    return freqs
+    """--freq values in the order given (engineering numbers; finite and >= 0)."""
+    return list(checked_frequencies((parse_number(t) for t in texts), where="--freq"))
 
 
 def _tolerance(args: argparse.Namespace):

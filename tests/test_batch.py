@@ -21,7 +21,7 @@ from crosscheck.run.check import case_from_netlist
 from crosscheck.errors import CrosscheckError
 from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
 from crosscheck.fuzz.generate import case_seed, generate_case
-from crosscheck.model.netlist import write_netlist
+from crosscheck.model.netlist_writer import write_netlist
 from crosscheck.spice import workers
 from misbehaving_solve import MISBEHAVING
 

@@ -7,11 +7,12 @@ factors fill in, a random geometric graph has irregular fill. Values are drawn f
 from __future__ import annotations
 
 import math
-from typing import Callable
+from collections.abc import Callable
 
 import numpy as np
 
-from crosscheck.model.network import Element, Network, Port, _UnionFind
+from crosscheck.model.graph import UnionFind
+from crosscheck.model.network import Element, Network, Port
 
 FAMILIES = ("ladder", "tree", "grid", "random")
 
@@ -89,7 +90,7 @@ def _random(n: int, rng) -> tuple[list[Element], Port]:
             out.append(_reactive(str(m), kind, f"x{a}", f"x{b}", rng))
     for i in range(0, n, 5):
         out.append(_el(f"rs{i}", "R", f"x{i}", "0", rng.uniform(1e3, 1e5)))
-    joined = _UnionFind()
+    joined = UnionFind()
     for e in out:
         joined.union(*e.terminals)
     for i in range(n):  # a cluster of points far from the rest: tie it to ground

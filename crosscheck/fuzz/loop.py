@@ -16,8 +16,8 @@ from collections.abc import Callable
 from concurrent.futures import Future
 from dataclasses import replace
 
-from crosscheck.fuzz.generate import GeneratedCase, generate_case, well_posed
 from crosscheck.fuzz.faults import OwnRoute
+from crosscheck.fuzz.generate import GeneratedCase, generate_case, well_posed
 from crosscheck.fuzz.judging import CaseOutcome, isolate, judge, solve_own, spice_result
 from crosscheck.fuzz.reproducer import write_outputs
 from crosscheck.fuzz.shrink import shrink

@@ -12,7 +12,7 @@ from crosscheck.fuzz.faults import FAULTS
 from crosscheck.fuzz.generate import Knobs
 from crosscheck.fuzz.judging import CaseOutcome
 from crosscheck.fuzz.summary import FuzzSummary, Reproducer
-from crosscheck.model.netlist import write_netlist
+from crosscheck.model.netlist_writer import write_netlist
 from crosscheck.model.network import Network
 from crosscheck.vocabulary import COMPARED
 

@@ -15,8 +15,8 @@ asks whether the outcome is still the same kind of unexplained failure.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, replace
-from typing import Callable, Iterator
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.model.network import GROUND, Element, Network, Port, validate

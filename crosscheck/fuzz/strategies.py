@@ -18,12 +18,15 @@ condition estimate, not this module.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable
 from dataclasses import replace
-from typing import Iterable
 
 from hypothesis import strategies as st
 from hypothesis.errors import InvalidArgument
 
+from crosscheck.fuzz.generate import generate_case
+from crosscheck.fuzz.knobs import ALL_KINDS, CENTRES, F_CENTRE, FAMILIES, GAIN_CENTRES, MIXED, SOURCE_CENTRES, Knobs
+from crosscheck.model.graph import UnionFind
 from crosscheck.model.network import GROUND, Element, Network, Port, make_element, validate
 
 __all__ = [
@@ -35,33 +38,7 @@ __all__ = [
     "ports",
 ]
 
-#: Centre values: R in Ω, L in H, C in F; √(L/C) = R so all three impedances meet at F_CENTRE.
-CENTRES = {"R": 1e3, "L": 1e-2, "C": 1e-8}
-#: 1/(2π√(LC)) for the centre values, about 15.9 kHz.
-F_CENTRE = 1.0 / (2.0 * math.pi * math.sqrt(CENTRES["L"] * CENTRES["C"]))
-
-_SOURCE_CENTRES = {"V": 1.0, "I": 1e-3}  # volts, amperes: about 1 V across 1 kΩ
 _GAIN_DECADES = (-1.0, 0.3)  # dependent-source gains between 0.1 and 2 (times R or 1/R for H and G)
-_ALL = "RLCVIEFGHK"
-
-
-class _Loops:
-    """Union-find over nodes joined by voltage-defined branches (V, E, H): a new one must not close a loop."""
-
-    def __init__(self) -> None:
-        self._parent: dict[str, str] = {}
-
-    def find(self, x: str) -> str:
-        self._parent.setdefault(x, x)
-        while self._parent[x] != x:
-            x = self._parent[x]
-        return x
-
-    def join(self, a: str, b: str) -> None:
-        self._parent[self.find(a)] = self.find(b)
-
-    def open_pairs(self, nodes: list[str]) -> list[tuple[str, str]]:
-        return [(a, b) for i, a in enumerate(nodes) for b in nodes[i + 1:] if self.find(a) != self.find(b)]
 
 
 def _passive_kinds(kinds: str, lossless: bool, single_reactive: str | None) -> str:
@@ -122,7 +99,7 @@ def _passive(draw: st.DrawFn, b: _Builder, kinds: str, nodes: tuple[str, str],
 
 
 def _source(draw: st.DrawFn, b: _Builder, kind: str, nodes: tuple[str, str], decades: tuple[float, float]) -> None:
-    b.add(kind, nodes, ac_mag=_scaled(draw, _SOURCE_CENTRES[kind], decades),
+    b.add(kind, nodes, ac_mag=_scaled(draw, SOURCE_CENTRES[kind], decades),
           ac_phase_deg=draw(st.floats(-180.0, 180.0)))
 
 
@@ -136,7 +113,7 @@ def _add_sense_source(draw: st.DrawFn, b: _Builder, node: str) -> Element:
 
 
 @st.composite
-def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str = _ALL,
+def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str = ALL_KINDS,
              passive_only: bool = False, lossless: bool = False, single_reactive: str | None = None,
              value_decades: tuple[float, float] = (-1.0, 1.0), max_extra: int = 6,
              coupling: tuple[float, float] = (0.1, 0.95), min_sources: int = 1) -> Network:
@@ -170,7 +147,7 @@ def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str
     tree_nodes = [f"n{i}" for i in range(1, n + (0 if sense else 1))]
 
     b = _Builder()
-    loops = _Loops()
+    loops = UnionFind()
     everything = [GROUND]
     for node in tree_nodes:
         parent = draw(st.sampled_from(everything))
@@ -178,9 +155,19 @@ def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str
         everything.append(node)
     if sense:
         vs = _add_sense_source(draw, b, f"n{n}")
-        loops.join(*vs.terminals)
+        loops.union(*vs.terminals)
         everything.append(f"n{n}")
 
+    _add_extras(draw, b, loops, extras, everything, value_decades)
+
+    if "K" in kinds and "L" in passive:
+        _couple(draw, b, coupling)
+    return validate(Network("hypothesis network", tuple(b.elements)))
+
+
+def _add_extras(draw: st.DrawFn, b: _Builder, loops: UnionFind, extras: list[str], everything: list[str],
+                value_decades: tuple[float, float]) -> None:
+    """The elements beyond the spanning tree; V, E and H only where no loop of voltage-defined branches closes."""
     for kind in sorted(extras, key=lambda k: k in "FH"):  # F and H last: their control must exist
         if kind in "EG" and len(everything) < 3:  # the control pair would be the output pair itself
             continue
@@ -193,7 +180,7 @@ def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str
             nodes = draw(st.sampled_from(pairs))
             if draw(st.booleans()):
                 nodes = nodes[::-1]
-            loops.join(*nodes)
+            loops.union(*nodes)
         if kind in "RLC":
             b.add(kind, nodes, _scaled(draw, CENTRES[kind], value_decades))
         elif kind in "VI":
@@ -201,18 +188,14 @@ def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str
         elif kind in "EG":
             others = [(p, q) for p in everything for q in everything if p != q and {p, q} != set(nodes)]
             control = draw(st.sampled_from(others))
-            gain = _gain(draw, 1.0 if kind == "E" else 1.0 / CENTRES["R"])
+            gain = _gain(draw, GAIN_CENTRES[kind])
             b.add(kind, nodes + control, gain)
         else:  # F, H
             controls = [e.name for e in b.elements if e.kind == "V"]
             if not controls:  # every loop-free place was taken before a V could be put down
                 continue
-            gain = _gain(draw, 1.0 if kind == "F" else CENTRES["R"])
+            gain = _gain(draw, GAIN_CENTRES[kind])
             b.add(kind, nodes, gain, control=draw(st.sampled_from(controls)))
-
-    if "K" in kinds and "L" in passive:
-        _couple(draw, b, coupling)
-    return validate(Network("hypothesis network", tuple(b.elements)))
 
 
 def _couple(draw: st.DrawFn, b: _Builder, coupling: tuple[float, float]) -> None:
@@ -251,7 +234,7 @@ def network_and_port(draw: st.DrawFn, floating: bool | None = None, **network_kw
     ``floating=None`` draws whether to (when K and L are allowed); the secondary takes two or three
     nodes of the ``max_nodes`` budget.
     """
-    kinds = network_kwargs.get("kinds", _ALL).upper()
+    kinds = network_kwargs.get("kinds", ALL_KINDS).upper()
     passive = _passive_kinds(kinds, network_kwargs.get("lossless", False), network_kwargs.get("single_reactive"))
     possible = "K" in kinds and "L" in passive
     if floating is None:
@@ -298,7 +281,7 @@ def network_and_port(draw: st.DrawFn, floating: bool | None = None, **network_kw
 # the reported seed rebuilds the case with ``generate_case(seed, Knobs(...))``.
 
 
-def generated_cases(family: str | None = None, min_nodes: int = 2, max_nodes: int = 8, kinds: str = _ALL,
+def generated_cases(family: str | None = None, min_nodes: int = 2, max_nodes: int = 8, kinds: str = ALL_KINDS,
                     decades: float = 1.0, min_hz: float = F_CENTRE / 100.0, max_hz: float = F_CENTRE * 100.0,
                     max_freqs: int = 3, dc: bool = True) -> st.SearchStrategy:
     """``GeneratedCase`` objects (network, port, frequencies, caveat) from a topology family.
@@ -307,8 +290,6 @@ def generated_cases(family: str | None = None, min_nodes: int = 2, max_nodes: in
     the five well-posed families, ``"mixed"`` any of the six. Awkward cases may carry a ``caveat`` saying
     which answers may legitimately be missing. The other knobs are ``crosscheck.fuzz.generate.Knobs``'.
     """
-    from crosscheck.fuzz.generate import FAMILIES, MIXED, Knobs, generate_case
-
     try:
         knobs = Knobs(min_nodes=min_nodes, max_nodes=max_nodes, kinds=kinds, decades=decades, min_hz=min_hz,
                       max_hz=max_hz, max_freqs=max_freqs, dc=dc, family=family or MIXED)

@@ -17,14 +17,16 @@ from typing import Any
 import numpy as np
 
 from crosscheck.errors import CaseFileError, CrosscheckError
+from crosscheck.model.frequencies import FrequencyError, frequency_list
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
+from crosscheck.vocabulary import PHASORS, QUANTITIES, same_frequency
 
 #: Untrusted input may not ask for more than this many frequency points in one case.
 MAX_POINTS = 10_000
 
-QUANTITIES = ("vth", "zth", "in", "yn")
-SERIES_KEYS = {"series_r": "R", "series_l": "L", "series_c": "C"}
+#: The series-model keys of an expectation and the element each stands for ("series_r" -> "R").
+SERIES_KEYS = {key: key.rsplit("_", 1)[1].upper() for key, q in QUANTITIES.items() if not q.phasor}
 LIMIT_FUNCTIONS = ("abs", "phase", "re", "im", "db")
 
 
@@ -182,10 +184,10 @@ def _frequencies(path: Path, data: dict[str, Any]) -> list[float]:
             raise _err(path, "frequencies", "must be a non-empty list like [\"50\", \"1k\"]")
         _check_count(path, "frequencies", len(raw))
         freqs = [_number(path, f"frequencies[{i}]", f) for i, f in enumerate(raw)]
-    for f in freqs:
-        if f < 0:
-            raise _err(path, "frequencies", f"{f:g} Hz is negative")
-    return freqs
+    try:
+        return list(frequency_list(freqs, where=f"{path}: key 'frequencies'"))
+    except FrequencyError as exc:
+        raise CaseFileError(str(exc)) from None
 
 
 def _expectations(path: Path, data: dict[str, Any], freqs: list[float]) -> list[Expectation]:
@@ -198,20 +200,20 @@ def _expectations(path: Path, data: dict[str, Any], freqs: list[float]) -> list[
             raise _err(path, key, "needs at = \"<frequency>\"")
         at = _number(path, f"{key}.at", item["at"])
         values: dict[str, complex] = {}
-        for q in QUANTITIES:
+        for q in PHASORS:
             if q in item:
                 values[q] = _phasor(path, f"{key}.{q}", item[q])
         for s in SERIES_KEYS:
             if s in item:
                 values[s] = complex(_number(path, f"{key}.{s}", item[s]))
         if not values:
-            raise _err(path, key, f"states no value; give any of {', '.join(QUANTITIES + tuple(SERIES_KEYS))}")
-        unknown = set(item) - {"at", "rel", "abs", "phase_deg", "how", *QUANTITIES, *SERIES_KEYS}
+            raise _err(path, key, f"states no value; give any of {', '.join(PHASORS + tuple(SERIES_KEYS))}")
+        unknown = set(item) - {"at", "rel", "abs", "phase_deg", "how", *PHASORS, *SERIES_KEYS}
         if unknown:
             raise _err(path, key, f"unknown key(s) {sorted(unknown)}")
         tolerance = _tolerance(path, key, item, HAND_CALCULATION)
         out.append(Expectation(at, values, tolerance, str(item.get("how", "")), i))
-        if not any(math.isclose(at, f, rel_tol=1e-9) for f in freqs):
+        if not any(same_frequency(at, f) for f in freqs):
             freqs.append(at)
     return out
 
@@ -219,13 +221,13 @@ def _expectations(path: Path, data: dict[str, Any], freqs: list[float]) -> list[
 def parse_limit_expression(path: Path, key: str, text: str) -> tuple[str, str]:
     """``abs(zth)`` -> ("abs", "zth"); a bare quantity means its magnitude."""
     t = text.strip().lower().replace(" ", "")
-    if t in QUANTITIES:
+    if t in PHASORS:
         return "abs", t
     for fn in LIMIT_FUNCTIONS:
-        if t.startswith(fn + "(") and t.endswith(")") and t[len(fn) + 1 : -1] in QUANTITIES:
+        if t.startswith(fn + "(") and t.endswith(")") and t[len(fn) + 1 : -1] in PHASORS:
             return fn, t[len(fn) + 1 : -1]
     raise _err(path, key, f"cannot read {text!r}; write one of {', '.join(f + '(zth)' for f in LIMIT_FUNCTIONS)} "
-                          f"with a quantity from {', '.join(QUANTITIES)}")
+                          f"with a quantity from {', '.join(PHASORS)}")
 
 
 def _limits(path: Path, data: dict[str, Any]) -> list[Limit]:
@@ -283,7 +285,7 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         netlist_text=text,
         netlist_file=netlist_file,
         port=_port(path, data),
-        freqs_hz=tuple(sorted(set(freqs))),
+        freqs_hz=tuple(sorted(freqs)),
         sources=sources,
         tolerance=tolerance,
         expectations=tuple(expectations),

@@ -1,4 +1,4 @@
-"""Read the SPICE subset crosscheck supports, and write netlists that read back unchanged.
+"""Read the SPICE subset crosscheck supports (the writer is ``model.netlist_writer``).
 
 The reader takes netlists written by others: the first line is the title (as
 in SPICE), ``*`` comment lines, ``;`` and ``$`` inline comments, ``+``
@@ -7,26 +7,38 @@ values, ``.subckt``/``.ends`` with ``X`` instances flattened the way ngspice
 names them (R2 in X1 becomes ``r.x1.r2``, node n3 becomes ``x1.n3``).
 Analysis and output cards (``.ac .op .options .print .plot .save .probe``) are
 ignored with a note; everything that could read other files, run scripts or
-needs a nonlinear or transient model is refused with the file and line.
-
-The writer produces the only text ngspice ever sees from us, so it refuses
-names that could smuggle a second card into the netlist.
+needs a nonlinear or transient model is refused with the file and line
+(the cards and devices are listed in ``model.netlist_subset``).
 """
 
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from os import PathLike
-from typing import NamedTuple, Union
+from typing import NamedTuple
 
-from crosscheck.errors import Location, NetlistError, NetworkError, ValueSyntaxError
+from crosscheck.errors import Location, NetlistError, ValueSyntaxError
+from crosscheck.model.netlist_subset import (
+    BEHAVIOURAL,
+    CONTROL_CHAR,
+    DEVICES,
+    IGNORED_CARDS,
+    NAME,
+    NAME_CHARS,
+    REFUSED_CARDS,
+    SUBSET,
+    TRANSIENT,
+    USAGE,
+    VALUE_KEYS,
+)
 from crosscheck.model.network import GROUND, Element, Network, Port, make_element, validate
 from crosscheck.model.params import assignments, evaluate
+from crosscheck.model.subcircuits import Instance, Subckt, check_local_references, flatten
 from crosscheck.model.values import parse_number
 
 __all__ = ["read_netlist", "read_netlist_with_notes", "read_netlist_file", "read_netlist_file_with_notes",
-           "read_netlist_text", "write_netlist", "format_element", "MAX_ELEMENTS", "MAX_LINE_CHARS", "MAX_SUBCKT_DEPTH"]
+           "read_netlist_text", "MAX_ELEMENTS", "MAX_LINE_CHARS", "MAX_SUBCKT_DEPTH"]
 
 #: Limits for untrusted input: beyond these the reader refuses instead of using unbounded time or memory.
 MAX_ELEMENTS = 200_000          # elements (and subcircuit instances) after flattening
@@ -34,56 +46,10 @@ MAX_LINE_CHARS = 100_000
 MAX_SUBCKT_DEPTH = 50
 MAX_TEXT_CHARS = 64 * 2**20
 
-_SUBSET = "crosscheck reads linear R L C V I E F G H K networks and X subcircuits"
-_FREQS = "crosscheck chooses the frequencies from the command line or the case file"
-_NAME = re.compile(r"^[a-z0-9_.:#+\-\[\]<>!/]+$", re.IGNORECASE)
-_NAME_CHARS = "letters, digits and _ . : # + - [ ] < > ! /"
-_CONTROL_CHAR = re.compile(r"[\x00-\x08\x0b\x0e-\x1f\x7f]")
 _DOLLAR_COMMENT = re.compile(r"(?:^|\s)\$(?:\s|$)")
 _FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}=]+|=)|(?P<open>[({])|(?P<close>[)}]))")
 _PLAIN = re.compile(r"^[^,(){}=]*$")
 _NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{)")
-
-_IGNORED_CARDS = {".ac": _FREQS, ".op": "the operating point does not change a linear network",
-                  **dict.fromkeys((".options", ".option"), "crosscheck sets the simulator's options itself"),
-                  **dict.fromkeys((".print", ".plot", ".save", ".probe"), "crosscheck chooses what to report")}
-_SCRIPT = ("ngspice control blocks are scripts (they can run shell commands and write files) and crosscheck never "
-           "runs them; delete everything from .control to .endc")
-_OTHER_FILES = ("crosscheck reads one self-contained file and never opens files named inside it; paste the "
-                "subcircuits you need into this netlist")
-_REFUSED_CARDS = {
-    **dict.fromkeys((".control", ".endc"), _SCRIPT), **dict.fromkeys((".include", ".inc", ".lib"), _OTHER_FILES),
-    ".model": "device models belong to nonlinear devices (diodes, transistors, switches); "
-              f"{_SUBSET}: replace the device by its small-signal linear model and remove the .model card",
-    ".func": "user-defined functions are not supported; write the arithmetic out in {...} or with .param",
-    ".global": "global nodes are not supported; pass the node through the subcircuit's terminals "
-               "(ground, 0, is always global)",
-    **dict.fromkeys((".meas", ".measure"), "measurements are made by crosscheck itself; remove the card"),
-    ".ic": "initial conditions only affect transient analysis; remove the card",
-    ".nodeset": "node sets only steer the operating-point search, which a linear network does not need; "
-                "remove the card",
-    ".temp": "temperature is outside the linear model (components are taken at their stated values); remove the card",
-    **{card: f"{card[1:]} analysis is outside crosscheck's small-signal AC model; remove the {card} card: {_FREQS}"
-       for card in (".tran", ".dc", ".noise", ".four", ".disto", ".sens", ".tf", ".pz", ".sp", ".pss")},
-}
-
-_DEVICES = {
-    "d": "a diode", "q": "a bipolar transistor", "m": "a MOSFET", "j": "a JFET", "z": "a MESFET",
-    "s": "a voltage-controlled switch", "w": "a current-controlled switch", "t": "a transmission line",
-    "o": "a lossy transmission line", "u": "a distributed RC line", "y": "a transmission line",
-    "p": "a coupled multiconductor line", "n": "a compiled device model", "b": "a behavioural source",
-    "a": "an XSPICE code model",
-}
-_TRANSIENT = frozenset({"sin", "pulse", "pwl", "exp", "sffm", "am", "trnoise", "trrandom", "pat"})
-_BEHAVIOURAL = frozenset({"poly", "value", "table", "laplace", "freq", "vol", "cur"})
-_USAGE = {  # the card's form; its last word names the value
-    "r": "Rname n+ n- resistance", "l": "Lname n+ n- inductance", "c": "Cname n+ n- capacitance",
-    "v": "Vname n+ n- [DC v] [AC [mag [phase]]]", "i": "Iname n+ n- [DC v] [AC [mag [phase]]]",
-    "e": "Ename n+ n- nc+ nc- gain", "g": "Gname n+ n- nc+ nc- transconductance",
-    "f": "Fname n+ n- Vcontrol gain", "h": "Hname n+ n- Vcontrol transresistance",
-    "k": "Kname Lname1 Lname2 coupling", "x": "Xname node1 node2 ... SUBCKTNAME",
-}
-_VALUE_KEYS = {"r": ("r", "resistance"), "l": ("l", "inductance"), "c": ("c", "capacitance")}
 
 
 class _Tok(NamedTuple):
@@ -91,7 +57,7 @@ class _Tok(NamedTuple):
 
     text: str
     line: int
-    value: "_Tok | None" = None
+    value: _Tok | None = None
 
 
 @dataclass
@@ -102,22 +68,6 @@ class _Card:
 
     def line_at(self, offset: int) -> int:
         return max(line for start, line in self.starts if start <= offset)
-
-
-class _Instance(NamedTuple):
-    name: str
-    nodes: tuple[str, ...]
-    subckt: str
-    where: Location
-
-
-@dataclass
-class _Subckt:
-    name: str
-    ports: tuple[str, ...]
-    line: int
-    cards: list[tuple[_Card, list[_Tok]]]
-    protos: list[Element | _Instance] | None = None
 
 
 # --------------------------------------------------------------------------- public API
@@ -139,19 +89,19 @@ def read_netlist_with_notes(text: str, file: str = "<string>", *, allow_negative
     return _Reader(file).read(text, allow_negative, port)
 
 
-def read_netlist_file(path: Union[str, PathLike], *, allow_negative: bool = False,
+def read_netlist_file(path: str | PathLike, *, allow_negative: bool = False,
                       port: Port | None = None) -> Network:
     """Read a netlist file (UTF-8 text; binary data and NUL bytes are refused)."""
     return read_netlist_file_with_notes(path, allow_negative=allow_negative, port=port)[0]
 
 
-def read_netlist_file_with_notes(path: Union[str, PathLike], *, allow_negative: bool = False,
+def read_netlist_file_with_notes(path: str | PathLike, *, allow_negative: bool = False,
                                  port: Port | None = None) -> tuple[Network, list[str]]:
     """``read_netlist_with_notes`` for a file, refused before parsing if it is not UTF-8 text."""
     return read_netlist_with_notes(read_netlist_text(path), str(path), allow_negative=allow_negative, port=port)
 
 
-def read_netlist_text(path: Union[str, PathLike]) -> str:
+def read_netlist_text(path: str | PathLike) -> str:
     """The text of a netlist file; unreadable, oversized, binary (NUL bytes) or non-UTF-8 files are refused."""
     file = str(path)
     try:
@@ -175,38 +125,6 @@ def read_netlist_text(path: Union[str, PathLike]) -> str:
                            "save it as UTF-8 (a binary file is not a netlist)", Location(file, line)) from None
 
 
-def format_element(e: Element) -> str:
-    """One card for ``e``, in the form ``read_netlist`` reads back to an equal element."""
-    names = [("name", e.name), *(("node", n) for n in e.nodes), *(("inductor", n) for n in e.coupled or ())]
-    if e.kind in "FH":
-        names.append(("controlling source", e.control or ""))
-    for label, name in names:
-        if not _NAME.match(name) or name != name.lower():
-            raise NetworkError(f"{e.name!r}: {label} {name!r} cannot be written to a netlist; "
-                               f"use lower-case {_NAME_CHARS}", e.where)
-    if e.name[0] != e.kind.lower():
-        raise NetworkError(f"{e.name!r}: a {e.kind} element's name must start with {e.kind.lower()!r}, "
-                           "because SPICE takes the kind from the first letter", e.where)
-    head = " ".join((e.name, *e.nodes))
-    if e.kind in "VI":
-        return f"{head} DC 0 AC {e.ac_mag!r} {e.ac_phase_deg!r}"
-    if e.kind in "FH":
-        return f"{head} {e.control} {e.value!r}"
-    if e.kind == "K":
-        assert e.coupled is not None
-        return f"{e.name} {e.coupled[0]} {e.coupled[1]} {e.value!r}"
-    return f"{head} {e.value!r}"
-
-
-def write_netlist(network: Network) -> str:
-    """A clean netlist: the title, one card per element, ``.end``."""
-    if "\n" in network.title or "\r" in network.title or _CONTROL_CHAR.search(network.title):
-        raise NetworkError(f"the title {network.title!r} contains a line break or control character; "
-                           "use a one-line title")
-    cards = [network.title, *(format_element(e) for e in network.elements), ".end"]
-    return "\n".join(cards) + "\n"
-
-
 # --------------------------------------------------------------------------- lines, cards, fields
 
 
@@ -226,7 +144,7 @@ class _Reader:
         self.notes: list[tuple[int, str]] = []
         self.params: dict[str, float] = {}
         self.param_lines: dict[str, int] = {}
-        self.subckts: dict[str, _Subckt] = {}
+        self.subckts: dict[str, Subckt] = {}
         self.count = 0
 
     def err(self, message: str, line: int | None) -> NetlistError:
@@ -249,7 +167,7 @@ class _Reader:
             if len(raw) > MAX_LINE_CHARS:
                 raise self.err(f"line of {len(raw)} characters is longer than the limit ({MAX_LINE_CHARS}); "
                                "split it with + continuation lines", number)
-            bad = _CONTROL_CHAR.search(raw)
+            bad = CONTROL_CHAR.search(raw)
             if bad:
                 raise self.err(f"control character {bad.group()!r} in the text: binary data is not a netlist; "
                                "give the SPICE text file", number)
@@ -286,7 +204,7 @@ class _Reader:
             return [_Tok(word, card.line) for word in text.split()]
         line = card.line_at
         while (m := _FIELD.match(text, pos)) is not None:
-            word, opener, closer = m.group("word"), m.group("open"), m.group("close")
+            opener, closer = m.group("open"), m.group("close")
             start = m.start(m.lastindex or 0)
             if closer:
                 raise self.err(f"unbalanced {closer!r} on this card", line(start))
@@ -322,7 +240,7 @@ class _Reader:
     def read(self, text: str, allow_negative: bool, port: Port | None) -> tuple[Network, list[str]]:
         title, cards, last = self.cards(text)
         top: list[tuple[_Card, list[_Tok]]] = []
-        current: _Subckt | None = None
+        current: Subckt | None = None
         for card in cards:
             first = card.text.split(None, 1)[0]
             word = first.lower()
@@ -351,23 +269,21 @@ class _Reader:
                                    f"(line {current.line}); make the names match", card.line)
                 self.subckts[current.name] = current
                 current = None
-            elif word in _IGNORED_CARDS:
-                self.note(f"{first} card ignored: {_IGNORED_CARDS[word]}", card.line)
-            elif word in _REFUSED_CARDS:
-                raise self.err(f"{first} is not supported: {_REFUSED_CARDS[word]}", card.line)
+            elif word in IGNORED_CARDS:
+                self.note(f"{first} card ignored: {IGNORED_CARDS[word]}", card.line)
+            elif word in REFUSED_CARDS:
+                raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
             else:
-                raise self.err(f"unknown card {_show(first)}; {_SUBSET} with .param, .subckt/.ends and "
-                               f".end (and ignores {' '.join(sorted(_IGNORED_CARDS))}); remove it", card.line)
+                raise self.err(f"unknown card {_show(first)}; {SUBSET} with .param, .subckt/.ends and "
+                               f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}); remove it", card.line)
         if current is not None:
             raise self.err(f"subcircuit {current.name!r} is never closed; add '.ends {current.name}' "
                            "after its last card", current.line)
         for sub in self.subckts.values():
             sub.protos = [self.element(card, toks) for card, toks in sub.cards]
-            self.check_local_references(sub)
+            check_local_references(sub)
         protos = [self.element(card, toks) for card, toks in top]
-        self.count = 0
-        elements: list[Element] = []
-        self.flatten(protos, "", {}, (), elements)
+        elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH)
         if not elements:
             raise self.err("the netlist has no element cards; add the network's elements after the title", last)
         network = Network(title, tuple(elements), allow_negative=allow_negative)
@@ -390,7 +306,7 @@ class _Reader:
                 raise self.err(f".param {name}: {exc}", line) from None
             self.param_lines[name] = line
 
-    def subckt_header(self, card: _Card, toks: list[_Tok]) -> _Subckt:
+    def subckt_header(self, card: _Card, toks: list[_Tok]) -> Subckt:
         if len(toks) < 2:
             raise self.err(".subckt needs a name: .subckt NAME node1 node2 ...", card.line)
         self.refuse_subckt_params(toks)
@@ -405,7 +321,7 @@ class _Reader:
         if name in self.subckts:
             raise self.err(f"subcircuit {name!r} is defined twice (first at line {self.subckts[name].line}); "
                            "rename one of them", card.line)
-        return _Subckt(name, ports, card.line, [])
+        return Subckt(name, ports, card.line, [])
 
     # ---- element cards
 
@@ -416,14 +332,14 @@ class _Reader:
                                "the values inside the subcircuit or define them with .param at the top level", t.line)
 
     def name(self, tok: _Tok, what: str) -> str:
-        if tok.value is not None or not _NAME.match(tok.text):
-            raise self.err(f"{what} {_show(tok.text)} is not a valid name; use {_NAME_CHARS}", tok.line)
+        if tok.value is not None or not NAME.match(tok.text):
+            raise self.err(f"{what} {_show(tok.text)} is not a valid name; use {NAME_CHARS}", tok.line)
         return tok.text.lower()
 
     def value(self, tok: _Tok, element: str, what: str) -> float:
         if tok.value is not None:
             raise self.err(f"{element}: expected the {what}, got the parameter {tok.text}=...; "
-                           f"write it as {_USAGE.get(element[0], 'a plain value')}", tok.line)
+                           f"write it as {USAGE.get(element[0], 'a plain value')}", tok.line)
         text = tok.text
         try:
             if text.startswith("{"):
@@ -433,23 +349,23 @@ class _Reader:
             hint = f" (to use the parameter, write {{{text}}})" if text.lower() in self.params else ""
             raise self.err(f"{element}: {what}: {exc}{hint}", tok.line) from None
 
-    def element(self, card: _Card, toks: list[_Tok]) -> Element | _Instance:
+    def element(self, card: _Card, toks: list[_Tok]) -> Element | Instance:
         if not toks:
             raise self.err(f"the card {_show(card.text)} has no fields; remove it", card.line)
         letter = toks[0].text[0].lower()
-        if letter in _DEVICES:
-            raise self.err(f"{toks[0].text} is {_DEVICES[letter]}, outside the supported subset; {_SUBSET}: "
+        if letter in DEVICES:
+            raise self.err(f"{toks[0].text} is {DEVICES[letter]}, outside the supported subset; {SUBSET}: "
                            "replace it by its small-signal linear model (R, C, E/G sources) and remove any "
                            ".model card", card.line)
-        if letter not in _USAGE:
+        if letter not in USAGE:
             raise self.err(f"unknown element {_show(toks[0].text)}: the first letter names the kind, and "
-                           f"{_SUBSET}", card.line)
+                           f"{SUBSET}", card.line)
         name = self.name(toks[0], "element name")
         where = Location(self.file, card.line)
-        usage = _USAGE[letter]
+        usage = USAGE[letter]
         if letter in "efgh":
             for i, t in enumerate(toks):
-                if (i == 3 or t.value is not None) and t.text.lower() in _BEHAVIOURAL or t.text.startswith("("):
+                if (i == 3 or t.value is not None) and t.text.lower() in BEHAVIOURAL or t.text.startswith("("):
                     raise self.err(f"{name}: the {_show(t.text.upper())} form is behavioural or polynomial, outside "
                                    f"the linear subset; write a linear source: {usage}", t.line)
         if letter == "x":
@@ -457,7 +373,7 @@ class _Reader:
             if len(toks) < 2:
                 raise self.err(f"{name}: too few fields; write {usage}", card.line)
             nodes = tuple(self.name(t, f"{name}: node") for t in toks[1:-1])
-            return _Instance(name, nodes, self.name(toks[-1], f"{name}: subcircuit"), where)
+            return Instance(name, nodes, self.name(toks[-1], f"{name}: subcircuit"), where)
         if letter in "vi":
             return self.source(name, card, toks, where)
         positional = [t for t in toks if t.value is None]
@@ -465,7 +381,7 @@ class _Reader:
         value_tok = None
         for t in keyed:
             key = t.text.lower()
-            if letter in _VALUE_KEYS and key in _VALUE_KEYS[letter]:
+            if letter in VALUE_KEYS and key in VALUE_KEYS[letter]:
                 if value_tok is not None or len(positional) >= 4:
                     raise self.err(f"{name}: the value is given twice; write {usage}", t.line)
                 value_tok = t.value
@@ -486,12 +402,12 @@ class _Reader:
         if letter == "k":
             coupled = (self.name(positional[1], f"{name}: inductor"), self.name(positional[2], f"{name}: inductor"))
             return make_element(name, "K", (), value, coupled=coupled, where=where)
-        nodes = [self.name(t, f"{name}: node") for t in positional[1:(5 if letter in "eg" else 3)]]
+        nodes = tuple(self.name(t, f"{name}: node") for t in positional[1:(5 if letter in "eg" else 3)])
         control = self.name(positional[3], f"{name}: controlling source") if letter in "fh" else None
         return make_element(name, None, nodes, value, control=control, where=where)
 
     def source(self, name: str, card: _Card, toks: list[_Tok], where: Location) -> Element:
-        usage = _USAGE[name[0]]
+        usage = USAGE[name[0]]
         if len(toks) < 3 or any(t.value is not None for t in toks[:3]):
             raise self.err(f"{name}: too few fields; write {usage}", card.line)
         nodes = [self.name(t, f"{name}: node") for t in toks[1:3]]
@@ -521,11 +437,11 @@ class _Reader:
                     mag, k = self.value(rest[k], name, "AC magnitude"), k + 1
                     if is_value(k):
                         phase, k = self.value(rest[k], name, "AC phase"), k + 1
-            elif word in _TRANSIENT and k + 1 < len(rest) and rest[k + 1].text.startswith("("):
+            elif word in TRANSIENT and k + 1 < len(rest) and rest[k + 1].text.startswith("("):
                 self.note(f"{name}: transient function {t.text.upper()}(...) ignored: it has no effect on AC "
                           "analysis", t.line)
                 k += 2
-            elif word in _TRANSIENT:
+            elif word in TRANSIENT:
                 raise self.err(f"{name}: write the transient function's arguments in parentheses, as "
                                f"{t.text.upper()}(...); crosscheck ignores it for AC analysis", t.line)
             elif word.startswith("distof"):
@@ -533,56 +449,3 @@ class _Reader:
             else:
                 raise self.err(f"{name}: unexpected field {_show(t.text)}; write {usage}", t.line)
         return make_element(name, None, nodes, 0.0, ac_mag=mag, ac_phase_deg=phase, where=where)
-
-    # ---- subcircuits
-
-    def check_local_references(self, sub: _Subckt) -> None:
-        """ngspice renames a subcircuit's elements per instance, so F, H and K can only name their own."""
-        own = {p.name for p in sub.protos or () if isinstance(p, Element)}
-        for p in sub.protos or ():
-            if isinstance(p, Element):
-                for ref in (p.control,) + (p.coupled or ()):
-                    if ref is not None and ref not in own:
-                        raise NetlistError(f"{p.name} in subcircuit {sub.name!r} refers to {ref!r}, which is not "
-                                           "defined inside the subcircuit; elements in a subcircuit can only refer "
-                                           "to elements of the same subcircuit", p.where)
-
-    def flatten(self, protos: list[Element | _Instance], path: str, ports: dict[str, str],
-                stack: tuple[str, ...], out: list[Element]) -> None:
-        def scoped_node(n: str) -> str:
-            return n if not path or n == GROUND else ports.get(n, f"{path}.{n}")
-
-        def scoped(name: str) -> str:
-            return f"{name[0]}.{path}.{name}"
-
-        for p in protos:
-            self.count += 1
-            if self.count > MAX_ELEMENTS:
-                raise NetlistError(f"more than {MAX_ELEMENTS} elements and subcircuit instances after "
-                                   "flattening the subcircuits; a network that large is refused", p.where)
-            if isinstance(p, Element):
-                if path:
-                    p = replace(p, name=scoped(p.name), nodes=tuple(scoped_node(n) for n in p.nodes),
-                                control=scoped(p.control) if p.control else None,
-                                coupled=(scoped(p.coupled[0]), scoped(p.coupled[1])) if p.coupled else None)
-                out.append(p)
-                continue
-            sub = self.subckts.get(p.subckt)
-            if sub is None:
-                known = ", ".join(sorted(self.subckts)) or "none"
-                raise NetlistError(f"{p.name}: unknown subcircuit {p.subckt!r} (defined: {known}); "
-                                   "define it with .subckt ... .ends in this file", p.where)
-            if p.subckt in stack:
-                chain = " -> ".join((*stack[stack.index(p.subckt):], p.subckt))
-                raise NetlistError(f"{p.name}: subcircuit {p.subckt!r} contains itself ({chain}); "
-                                   "a subcircuit cannot instantiate itself, directly or indirectly", p.where)
-            if len(stack) >= MAX_SUBCKT_DEPTH:
-                raise NetlistError(f"{p.name}: subcircuits nested deeper than {MAX_SUBCKT_DEPTH} levels are "
-                                   "refused", p.where)
-            if len(p.nodes) != len(sub.ports):
-                raise NetlistError(f"{p.name} connects {len(p.nodes)} node(s) but subcircuit {sub.name!r} "
-                                   f"(line {sub.line}) has {len(sub.ports)} terminal(s) "
-                                   f"({' '.join(sub.ports) or 'none'}); give one node per terminal", p.where)
-            inner = f"{path}.{p.name}" if path else p.name
-            actual = dict(zip(sub.ports, (scoped_node(n) for n in p.nodes)))
-            self.flatten(sub.protos or [], inner, actual, stack + (sub.name,), out)

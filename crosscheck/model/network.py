@@ -12,14 +12,16 @@ from __future__ import annotations
 import itertools
 import math
 from collections import defaultdict
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field, fields, replace
 from functools import cached_property
 from operator import attrgetter
-from typing import Iterable, Iterator, NamedTuple
+from typing import NamedTuple
 
 import numpy as np
 
 from crosscheck.errors import Location, NetworkError, PortError
+from crosscheck.model.graph import UnionFind, connected_parts
 
 GROUND = "0"
 GROUND_ALIASES = frozenset({"0", "gnd"})
@@ -100,7 +102,7 @@ class _Topology(NamedTuple):
     """Every node of every element as an index into ``nodes`` (ground: -1), found in one pass."""
 
     nodes: tuple[str, ...]
-    index: dict[str, int]
+    positions: dict[str, int]
     ids: np.ndarray  # the nodes of all elements, concatenated in element order
     starts: np.ndarray  # where each element's nodes begin in ``ids``
     counts: np.ndarray  # how many nodes each element has
@@ -161,7 +163,7 @@ class Network:
     @cached_property
     def node_index(self) -> dict[str, int]:
         """Each non-ground node's position in ``nodes``. Shared by every user: read it, never change it."""
-        return self._topology.index
+        return self._topology.positions
 
     @cached_property
     def element_arrays(self) -> ElementArrays:
@@ -219,10 +221,10 @@ class Network:
         n = canonical_node(name)
         return n == GROUND or n in self.node_index
 
-    def with_elements(self, elements: Iterable[Element]) -> "Network":
+    def with_elements(self, elements: Iterable[Element]) -> Network:
         return replace(self, elements=tuple(elements))
 
-    def zero_sources(self) -> "Network":
+    def zero_sources(self) -> Network:
         """The same network with every independent source set to zero (dependent ones stay)."""
         return self.with_elements(
             replace(e, ac_mag=0.0) if e.kind in SOURCE_KINDS else e for e in self.elements
@@ -251,32 +253,6 @@ def make_element(name: str, kind: str | None = None, nodes: Iterable[str] = (), 
 # --------------------------------------------------------------------------- validation
 
 
-class _UnionFind:
-    def __init__(self) -> None:
-        self.parent: dict[str, str] = {}
-
-    def find(self, x: str) -> str:
-        self.parent.setdefault(x, x)
-        while self.parent[x] != x:
-            self.parent[x] = self.parent[self.parent[x]]
-            x = self.parent[x]
-        return x
-
-    def union(self, a: str, b: str) -> bool:
-        """Join two sets; False when they were already one (the new edge closes a loop)."""
-        ra, rb = self.find(a), self.find(b)
-        if ra == rb:
-            return False
-        self.parent[ra] = rb
-        return True
-
-    def groups(self, items: Iterable[str]) -> dict[str, list[str]]:
-        out: dict[str, list[str]] = defaultdict(list)
-        for x in items:
-            out[self.find(x)].append(x)
-        return out
-
-
 _EXPECTED_NODES = {"R": 2, "L": 2, "C": 2, "V": 2, "I": 2, "E": 4, "G": 4, "F": 2, "H": 2, "K": 0}
 
 
@@ -299,18 +275,9 @@ def _fail(e: Element, message: str) -> NetworkError:
 
 def _parts(network: Network, chosen: np.ndarray) -> tuple[int, np.ndarray]:
     """How many connected parts the ``chosen`` elements' branches make, and each node's part (ground last)."""
-    from scipy.sparse import csr_matrix  # late import: the model itself needs only numpy
-    from scipy.sparse.csgraph import connected_components
-
     arrays = network.element_arrays
     size = len(network.nodes) + 1
-    a, b = arrays.a[chosen] % size, arrays.b[chosen] % size  # ground (-1) is the last vertex
-    # Each branch an arc a -> b, its rows compressed here (half the cost of scipy's COO route at 1,000
-    # nodes); the weakly connected parts of these arcs are the connected parts of the branches.
-    indptr = np.zeros(size + 1, dtype=np.intp)
-    np.cumsum(np.bincount(a, minlength=size), out=indptr[1:])
-    graph = csr_matrix((np.ones(len(a)), b[np.argsort(a, kind="stable")], indptr), shape=(size, size))
-    return connected_components(graph, directed=True, connection="weak")
+    return connected_parts(arrays.a[chosen] % size, arrays.b[chosen] % size, size)  # ground (-1) is last
 
 
 def _check_elements(network: Network) -> None:
@@ -427,7 +394,7 @@ def _check_voltage_loops(network: Network) -> None:
     parts, _ = _parts(network, fixing)
     if int(fixing.sum()) <= len(network.nodes) + 1 - parts:
         return
-    uf = _UnionFind()
+    uf = UnionFind()
     for e in network.elements:
         if e.kind in "VEH" or e.is_short:
             a, b = e.terminals
@@ -481,7 +448,7 @@ def _first_where(network: Network, nodes: Iterable[str]) -> Location | None:
     """Where the first element touching any of ``nodes`` was defined, so the message can name a line."""
     top = network._topology
     wanted = np.zeros(len(top.nodes) + 1, dtype=bool)  # the last entry, ground, is never wanted
-    wanted[[top.index[n] for n in nodes if n in top.index]] = True
+    wanted[[top.positions[n] for n in nodes if n in top.positions]] = True
     hits = np.flatnonzero(wanted[top.ids])
     if not hits.size:
         return None

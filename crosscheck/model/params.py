@@ -14,7 +14,7 @@ import ast
 import math
 import operator
 import re
-from typing import Mapping
+from collections.abc import Callable, Mapping
 
 from crosscheck.errors import ValueSyntaxError
 from crosscheck.model.values import parse_number
@@ -33,9 +33,10 @@ _TOKEN = re.compile(
 )
 
 _ASSIGN = re.compile(r"([a-z_][a-z0-9_]*)\s*=(?!=)", re.IGNORECASE)
-_BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
-           ast.Div: operator.truediv, ast.Pow: operator.pow}
-_UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
+_BINARY: dict[type[ast.operator], Callable[[float, float], float]] = {
+    ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
+    ast.Div: operator.truediv, ast.Pow: operator.pow}
+_UNARY: dict[type[ast.unaryop], Callable[[float], float]] = {ast.USub: operator.neg, ast.UAdd: operator.pos}
 
 _ALLOWED = "numbers, parameter names, + - * / ** (or ^) and parentheses"
 

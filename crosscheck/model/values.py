@@ -163,13 +163,11 @@ def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
     if x == 0:
         return f"0{unit}"
     ax = abs(x)
-    for scale, prefix in _PREFIXES:
-        if ax >= scale * (1 - 0.5 * 10 ** (-sig)):
-            break
-    else:
+    threshold = 1 - 0.5 * 10 ** (-sig)  # a value this close below a prefix's scale rounds up to it
+    found = next(((scale, prefix) for scale, prefix in _PREFIXES if ax >= scale * threshold), None)
+    if found is None or ax >= 1e15 * threshold:  # below every prefix, or would round up to "1000T"
         return f"{x:.{sig - 1}e}{unit}"
-    if ax >= 1e15 * (1 - 0.5 * 10 ** (-sig)):  # would round up to "1000T"
-        return f"{x:.{sig - 1}e}{unit}"
+    scale, prefix = found
     text = f"{x / scale:.{sig}g}"
     return f"{text}{prefix}{unit}"
 

@@ -14,7 +14,8 @@ import numpy as np
 import scipy.sparse as sp
 
 from crosscheck.errors import SingularNetworkError
-from crosscheck.model.network import CURRENT_OUTPUT_KINDS, GROUND, Network, _UnionFind
+from crosscheck.model.graph import UnionFind
+from crosscheck.model.network import CURRENT_OUTPUT_KINDS, GROUND, Network
 
 #: Above this many unknowns the null space is not computed (a dense SVD), and no nodes are named.
 _NULL_SPACE_LIMIT = 2000
@@ -42,7 +43,7 @@ def likely_singularity(network: Network, freq_hz: float, ties: Sequence[str] = (
 
 
 def _voltage_loop(network: Network, at_dc: bool) -> list[str]:
-    uf = _UnionFind()
+    uf = UnionFind()
     for e in network.elements:
         if e.kind in "VEH" or e.is_short or (at_dc and e.kind == "L"):
             if not uf.union(*e.terminals):
@@ -54,7 +55,7 @@ def _voltage_loop(network: Network, at_dc: bool) -> list[str]:
 
 
 def _nodes_without_path(network: Network, at_dc: bool, ties: Sequence[str] = ()) -> list[str]:
-    uf = _UnionFind()
+    uf = UnionFind()
     uf.find(GROUND)
     for node in ties:
         uf.union(node, GROUND)

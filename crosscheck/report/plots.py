@@ -137,6 +137,27 @@ def _other_limits_panel(ax, result: CaseResult, checks: list[LimitCheck]) -> Non
     ax.legend(fontsize=8, loc="best")
 
 
+def _draw_routes(axes: dict[str, Any], freqs: np.ndarray, own: dict[str, np.ndarray],
+                 ref: dict[str, np.ndarray | None], sources: str) -> None:
+    """|Z_th|, |V_th| and their phases against frequency: crosscheck as lines, ngspice as circles."""
+    titles = {"zmag": ("|Z_th|", "Ω"), "vmag": ("|V_th|", f"V {sources}"), "zph": ("phase of Z_th", "°"),
+              "vph": ("phase of V_th", "°")}
+    for key, ax in axes.items():
+        quantity = "zth" if key.startswith("z") else "vth"
+        transform = np.abs if key.endswith("mag") else (lambda z: np.angle(z, deg=True))
+        ax.plot(freqs, transform(own[quantity]), **_OWN)
+        reference = ref[quantity]
+        if reference is not None:
+            ax.plot(freqs, transform(reference), **_SPICE)
+        ax.set_xscale("log")
+        if key.endswith("mag"):
+            _magnitude_axis(ax, own[quantity], *([] if reference is None else [reference]))
+        ax.set_title(titles[key][0])
+        ax.set_ylabel(titles[key][1])
+        ax.set_xlabel("frequency (Hz)")
+        ax.grid(True, which="both", alpha=0.25)
+
+
 def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
     """The case's figure as PNG bytes, or None when the case is not a sweep (fewer than 3 frequencies > 0)."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -159,22 +180,7 @@ def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
             "zph": fig.add_subplot(grid[1, 0]), "vph": fig.add_subplot(grid[1, 1])}
     other = [c for c in result.limits if (c.function, c.quantity) not in _PANELS]
     error_ax = fig.add_subplot(grid[2, 0] if other else grid[2, :])
-    titles = {"zmag": ("|Z_th|", "Ω"), "vmag": ("|V_th|", f"V {result.sources}"), "zph": ("phase of Z_th", "°"),
-              "vph": ("phase of V_th", "°")}
-    for key, ax in axes.items():
-        quantity = "zth" if key.startswith("z") else "vth"
-        transform = np.abs if key.endswith("mag") else (lambda z: np.angle(z, deg=True))
-        ax.plot(freqs, transform(own[quantity]), **_OWN)
-        reference = ref[quantity]
-        if reference is not None:
-            ax.plot(freqs, transform(reference), **_SPICE)
-        ax.set_xscale("log")
-        if key.endswith("mag"):
-            _magnitude_axis(ax, own[quantity], *([] if reference is None else [reference]))
-        ax.set_title(titles[key][0])
-        ax.set_ylabel(titles[key][1])
-        ax.set_xlabel("frequency (Hz)")
-        ax.grid(True, which="both", alpha=0.25)
+    _draw_routes(axes, freqs, own, ref, result.sources)
     _expectation_points(axes, result)
     for c in result.limits:
         panel = _PANELS.get((c.function, c.quantity))

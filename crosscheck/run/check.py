@@ -18,6 +18,7 @@ from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import judged
 from crosscheck.judge.result import CaseResult, error_result
 from crosscheck.model.cases import Case
+from crosscheck.model.frequencies import frequency_list
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Network, Port
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
@@ -110,5 +111,5 @@ def case_from_netlist(path: str, text: str, port: tuple[str, str], freqs: Iterab
                       sources: str = "peak") -> Case:
     """A case for a bare netlist named on the command line with its port and frequencies."""
     return Case(path=Path(path), title="", netlist_text=text, netlist_file=path, port=port,
-                freqs_hz=tuple(sorted(set(float(f) for f in freqs))), sources=sources, tolerance=tolerance,
+                freqs_hz=frequency_list(freqs, where=f"{path}: frequencies"), sources=sources, tolerance=tolerance,
                 allow_negative=allow_negative)

@@ -35,7 +35,9 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Literal
 
-from crosscheck.model.network import GROUND, Network, Port, _UnionFind, floating_reference, validate
+from crosscheck.model.frequencies import checked_frequencies, frequency_list
+from crosscheck.model.graph import UnionFind
+from crosscheck.model.network import GROUND, Network, Port, floating_reference, validate
 
 Run = Literal["open", "short", "test"]
 RUNS: tuple[Run, ...] = ("open", "short", "test")
@@ -75,18 +77,7 @@ class Deck:
 
 def check_freqs(freqs: Iterable[float]) -> tuple[float, ...]:
     """Frequencies as floats, refusing what no AC analysis can mean."""
-    out = []
-    for f in freqs:
-        try:
-            x = float(f)
-        except (TypeError, ValueError):
-            raise ValueError(f"frequency {f!r} is not a number; give frequencies in hertz as numbers") from None
-        if not math.isfinite(x) or x < 0:
-            raise ValueError(f"frequency {x!r} Hz is not a finite number >= 0; give frequencies in hertz, 0 for DC")
-        out.append(x)
-    if not out:
-        raise ValueError("no frequencies given; give at least one frequency in hertz")
-    return tuple(out)
+    return checked_frequencies(freqs, where="frequencies")
 
 
 def port_is_voltage_defined(network: Network, port: Port) -> bool:
@@ -97,7 +88,7 @@ def port_is_voltage_defined(network: Network, port: Port) -> bool:
     only V sources and shorts Z_th = 0 (no Norton form); a controlled source (E,
     H) in the path can leave Z_th finite, and I_N then comes from V_th / Z_th only.
     """
-    uf = _UnionFind()
+    uf = UnionFind()
     for e in network.elements:
         if e.kind in "VEH" or e.is_short:
             uf.union(*e.terminals)
@@ -109,7 +100,7 @@ def analysis_cards(freqs: Sequence[float], *, grids: bool = True) -> tuple[str, 
 
     Otherwise one ``.ac lin 1 f f`` card per distinct frequency (ngspice 39 has no ``.ac list``).
     """
-    distinct = sorted(set(check_freqs(freqs)))
+    distinct = list(frequency_list(freqs, where="frequencies"))
     if grids and len(distinct) >= 3:
         per_decade = _decade_grid(distinct)
         if per_decade is not None:
@@ -180,7 +171,7 @@ def build_combined_deck(network: Network, port: Port, freqs: Sequence[float], ru
         text="\n".join(lines) + "\n",
         runs=runs,
         probes=probes,
-        freqs=tuple(sorted(set(check_freqs(freqs)))),
+        freqs=frequency_list(freqs, where="frequencies"),
         cards=cards,
         names=names,
     )

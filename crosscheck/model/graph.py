@@ -1,0 +1,62 @@
+"""Graph helpers over node names and node indices: one union-find, and connected parts with scipy.
+
+The union-find serves every check that walks branches one at a time and must name the branch that
+closes a loop (validation, the fuzz generators, the engines' diagnoses); ``connected_parts`` counts
+parts of thousands of branches at once, without a Python call per branch.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+from collections.abc import Iterable
+
+import numpy as np
+
+
+class UnionFind:
+    """Disjoint sets of node names; a name not seen before is a set of its own."""
+
+    def __init__(self) -> None:
+        self.parent: dict[str, str] = {}
+
+    def find(self, x: str) -> str:
+        """The representative of ``x``'s set (path halving keeps later look-ups short)."""
+        self.parent.setdefault(x, x)
+        while self.parent[x] != x:
+            self.parent[x] = self.parent[self.parent[x]]
+            x = self.parent[x]
+        return x
+
+    def union(self, a: str, b: str) -> bool:
+        """Join two sets; False when they were already one (the new edge closes a loop)."""
+        ra, rb = self.find(a), self.find(b)
+        if ra == rb:
+            return False
+        self.parent[ra] = rb
+        return True
+
+    def groups(self, items: Iterable[str]) -> dict[str, list[str]]:
+        """``items`` grouped by their set's representative, each group in the order given."""
+        out: dict[str, list[str]] = defaultdict(list)
+        for x in items:
+            out[self.find(x)].append(x)
+        return out
+
+    def open_pairs(self, nodes: list[str]) -> list[tuple[str, str]]:
+        """Every pair (a, b), a before b in ``nodes``, that an edge could join without closing a loop."""
+        return [(a, b) for i, a in enumerate(nodes) for b in nodes[i + 1:] if self.find(a) != self.find(b)]
+
+
+def connected_parts(a: np.ndarray, b: np.ndarray, size: int) -> tuple[int, np.ndarray]:
+    """How many connected parts the branches ``a[i]``–``b[i]`` make over vertices ``0..size-1``, and each
+    vertex's part."""
+    from scipy.sparse import csr_matrix  # late import: the model itself needs only numpy
+    from scipy.sparse.csgraph import connected_components
+
+    # Each branch an arc a -> b, its rows compressed here (half the cost of scipy's COO route at 1,000
+    # nodes); the weakly connected parts of these arcs are the connected parts of the branches.
+    indptr = np.zeros(size + 1, dtype=np.intp)
+    np.cumsum(np.bincount(a, minlength=size), out=indptr[1:])
+    graph = csr_matrix((np.ones(len(a)), b[np.argsort(a, kind="stable")], indptr), shape=(size, size))
+    parts, labels = connected_components(graph, directed=True, connection="weak")
+    return int(parts), labels
