@@ -84,8 +84,11 @@ def _child(job: dict) -> dict:
         thevenin(*build(job["family"], 200), freqs)  # imports and first-call costs (sparse path), untimed
         repeat = _repeats(job["nodes"])
         out["one_frequency_seconds"], eqs = _timed(lambda: thevenin(fresh(network), port, freqs[:1]), repeat)
-        out["seconds"], eqs = _timed(lambda: thevenin(fresh(network), port, freqs), repeat) if len(freqs) > 1 else (
-            out["one_frequency_seconds"], eqs)
+        out["seconds"], eqs = (
+            _timed(lambda: thevenin(fresh(network), port, freqs), repeat)
+            if len(freqs) > 1
+            else (out["one_frequency_seconds"], eqs)
+        )
         out["vth"] = [[e.vth.real, e.vth.imag] for e in eqs]
         out["zth"] = [[e.zth.real, e.zth.imag] for e in eqs]
         out["condition"] = max(e.condition for e in eqs)
@@ -148,8 +151,14 @@ def _run_child(job: dict, limit_s: float | None) -> dict:
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
     env["PYTHONPATH"] = os.pathsep.join(p for p in (root, env.get("PYTHONPATH")) if p)
     try:
-        done = subprocess.run([sys.executable, str(Path(__file__).resolve()), "--child", json.dumps(job)], cwd=work,
-                              env=env, capture_output=True, text=True, timeout=limit_s)
+        done = subprocess.run(
+            [sys.executable, str(Path(__file__).resolve()), "--child", json.dumps(job)],
+            cwd=work,
+            env=env,
+            capture_output=True,
+            text=True,
+            timeout=limit_s,
+        )
     except subprocess.TimeoutExpired:
         return {"stopped": f"> {limit_s:g} s (stopped)"}
     finally:
@@ -207,8 +216,10 @@ def section(title: str) -> None:
 
 def run_routes(families: Sequence[str], sizes: Sequence[int], spice_limit_s: float, spice_ok: str | None) -> list[_Row]:
     section("own solver vs SPICE route (same networks, same frequencies)")
-    print(f"{'family':8} {'nodes':>7} {'unknowns':>8} {'freqs':>5} {'own':>10} {'SPICE route':>20} "
-          f"{'SPICE/own':>10} {'own peak':>10} {'SPICE peak':>11} {'agree':>8} {'condition':>10}")
+    print(
+        f"{'family':8} {'nodes':>7} {'unknowns':>8} {'freqs':>5} {'own':>10} {'SPICE route':>20} "
+        f"{'SPICE/own':>10} {'own peak':>10} {'SPICE peak':>11} {'agree':>8} {'condition':>10}"
+    )
     rows = []
     for family in families:
         spice_before: float | None = None
@@ -235,10 +246,14 @@ def run_routes(families: Sequence[str], sizes: Sequence[int], spice_limit_s: flo
                 spice_before = spice.get("seconds", spice_limit_s)
             rows.append(_Row(family, nodes, freqs, own, spice, note, spice_limit_s))
             _print_row(rows[-1])
-    print("peak: the measuring process's peak resident memory (interpreter, network and solve), MiB; "
-          "agree: largest |Δ|/|ngspice| of V_th and Z_th over the sweep")
-    print(f"times: the best of each route's runs; where the SPICE route takes under 5 s, {ROUNDS} rounds of "
-          "both routes, alternating, each in a fresh process")
+    print(
+        "peak: the measuring process's peak resident memory (interpreter, network and solve), MiB; "
+        "agree: largest |Δ|/|ngspice| of V_th and Z_th over the sweep"
+    )
+    print(
+        f"times: the best of each route's runs; where the SPICE route takes under 5 s, {ROUNDS} rounds of "
+        "both routes, alternating, each in a fresh process"
+    )
     return rows
 
 
@@ -253,28 +268,40 @@ def _print_row(row: _Row) -> None:
         print(f"{row.family:8} {row.nodes:>7} own route {own['stopped']}")
         return
     s_time = spice.get("seconds")
-    ratio = f"{s_time / own['seconds']:.1f}x" if s_time else (
-        f"> {row.spice_limit_s / own['seconds']:.0f}x" if "stopped" in spice and "s (stopped)" in spice["stopped"] else "—")
+    ratio = (
+        f"{s_time / own['seconds']:.1f}x"
+        if s_time
+        else (
+            f"> {row.spice_limit_s / own['seconds']:.0f}x"
+            if "stopped" in spice and "s (stopped)" in spice["stopped"]
+            else "—"
+        )
+    )
     spice_text = _fmt_s(s_time) if s_time else (row.spice_note or "—")
     agree = f"{_agreement(own, spice):.1e}" if s_time else "—"
-    print(f"{row.family:8} {row.nodes:>7} {own['unknowns']:>8} {row.freqs:>5} {_fmt_s(own['seconds']):>10} "
-          f"{spice_text[:40]:>20} {ratio:>10} {own['peak_mib']:>7.0f} MiB "
-          f"{(str(round(spice['peak_mib'])) + ' MiB') if s_time else '—':>11} {agree:>8} {own['condition']:>10.2g}",
-          flush=True)
+    print(
+        f"{row.family:8} {row.nodes:>7} {own['unknowns']:>8} {row.freqs:>5} {_fmt_s(own['seconds']):>10} "
+        f"{spice_text[:40]:>20} {ratio:>10} {own['peak_mib']:>7.0f} MiB "
+        f"{(str(round(spice['peak_mib'])) + ' MiB') if s_time else '—':>11} {agree:>8} {own['condition']:>10.2g}",
+        flush=True,
+    )
 
 
 def report_growth(rows: list[_Row]) -> None:
     section("growth with node count (fitted exponent, log-log least squares)")
-    print("cost ∝ nodes^k; own: the equivalent at one frequency (network set-up included); "
-          "SPICE: the whole 30-point run")
+    print(
+        "cost ∝ nodes^k; own: the equivalent at one frequency (network set-up included); SPICE: the whole 30-point run"
+    )
     for family in sorted({r.family for r in rows}, key=FAMILIES.index):
         mine = [r for r in rows if r.family == family and "seconds" in r.own]
         own_k = fitted_exponent([r.nodes for r in mine], [r.own["one_frequency_seconds"] for r in mine])
         spiced = [r for r in mine if r.spice and "seconds" in r.spice]
         spice_k = fitted_exponent([r.nodes for r in spiced], [r.spice["seconds"] for r in spiced])
         sizes = ", ".join(f"{r.nodes:,}" for r in mine)
-        print(f"{family:8} own k = {own_k:.2f} (sizes {sizes});  SPICE route k = {spice_k:.2f} "
-              f"(sizes {', '.join(f'{r.nodes:,}' for r in spiced) or 'none'})")
+        print(
+            f"{family:8} own k = {own_k:.2f} (sizes {sizes});  SPICE route k = {spice_k:.2f} "
+            f"(sizes {', '.join(f'{r.nodes:,}' for r in spiced) or 'none'})"
+        )
 
 
 def report_condition_cost(rows: list[_Row]) -> None:
@@ -285,8 +312,10 @@ def report_condition_cost(rows: list[_Row]) -> None:
             continue
         extra = own["solve_with_condition"] - own["solve_without_condition"]
         share = extra / own["solve_with_condition"] if own["solve_with_condition"] > 0 else math.nan
-        print(f"{r.family:8} {r.nodes:>7} nodes, {r.freqs:>2} freqs: with {_fmt_s(own['solve_with_condition'])}, "
-              f"without {_fmt_s(own['solve_without_condition'])} (estimate {share:.0%} of the solve)")
+        print(
+            f"{r.family:8} {r.nodes:>7} nodes, {r.freqs:>2} freqs: with {_fmt_s(own['solve_with_condition'])}, "
+            f"without {_fmt_s(own['solve_without_condition'])} (estimate {share:.0%} of the solve)"
+        )
 
 
 def report_backends(families: Sequence[str], sizes: Sequence[int]) -> None:
@@ -296,8 +325,11 @@ def report_backends(families: Sequence[str], sizes: Sequence[int]) -> None:
     from crosscheck.own.solver import MnaSystem
 
     section("sparse LU back ends and orderings (one numeric factorization + a 2-column solve, at 1 kHz)")
-    print(f"{'family':8} {'nodes':>7} " + " ".join(f"{name:>14}" for name in ("KLU", *ORDERINGS)) +
-          "  (SuperLU's orderings; KLU's analysis is timed apart, once per network)")
+    print(
+        f"{'family':8} {'nodes':>7} "
+        + " ".join(f"{name:>14}" for name in ("KLU", *ORDERINGS))
+        + "  (SuperLU's orderings; KLU's analysis is timed apart, once per network)"
+    )
     for family in families:
         for nodes in sizes:
             network, port = build(family, nodes)
@@ -306,22 +338,32 @@ def report_backends(families: Sequence[str], sizes: Sequence[int]) -> None:
             rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
             cells = []
             if "klu" in sparse_backends.available():
-                sparse_backends.analyse(MnaSystem(build(family, 200)[0])._pattern, "klu")  # load the KLU library, untimed
+                sparse_backends.analyse(
+                    MnaSystem(build(family, 200)[0])._pattern, "klu"
+                )  # load the KLU library, untimed
                 started = time.perf_counter()
                 analysis = sparse_backends.analyse(system._pattern, "klu")
                 symbolic = time.perf_counter() - started
-                cells.append(_best(lambda an=analysis, m=a, b=rhs: an.factor(m.data).solve(b)) + f" +{_fmt_s(symbolic)}")
+                cells.append(
+                    _best(lambda an=analysis, m=a, b=rhs: an.factor(m.data).solve(b)) + f" +{_fmt_s(symbolic)}"
+                )
             else:
                 cells.append("not installed")
             for ordering in ORDERINGS:
                 if nodes > 10_000 and ordering != sparse_backends.SUPERLU_ORDERING:
                     cells.append("—")
                     continue
-                cells.append(_best(lambda m=a, o=ordering, b=rhs: splu(m, permc_spec=o).solve(b),
-                                  repeat=1 if nodes >= 10_000 else 3))
+                cells.append(
+                    _best(
+                        lambda m=a, o=ordering, b=rhs: splu(m, permc_spec=o).solve(b),
+                        repeat=1 if nodes >= 10_000 else 3,
+                    )
+                )
             print(f"{family:8} {nodes:>7} " + " ".join(f"{c:>14}" for c in cells), flush=True)
-    print(f"default: {sparse_backends.default_backend()} (SuperLU, when it is used, orders with "
-          f"{sparse_backends.SUPERLU_ORDERING}); at 100,000 nodes only the default SuperLU ordering is timed")
+    print(
+        f"default: {sparse_backends.default_backend()} (SuperLU, when it is used, orders with "
+        f"{sparse_backends.SUPERLU_ORDERING}); at 100,000 nodes only the default SuperLU ordering is timed"
+    )
 
 
 def _best(fn: Callable[[], object], repeat: int = 3) -> str:
@@ -377,10 +419,14 @@ def report_throughput(count: int, spice_ok: str | None) -> dict:
         fuzz = run_fuzz(FuzzOptions(count=count, seed=3, shrink=False), pool=pool)
     print(f"verify, local default (own solver here, ngspice pool of 2): {count / local_s:.0f} cases/s")
     same = [r.verdict for r in tasks] == [r.verdict for r in local]
-    print(f"verify, process pool of 2 whole-case tasks: {count / tasks_s:.0f} cases/s (same verdicts: "
-          f"{'yes' if same else 'NO'})")
-    print(f"fuzz, local (generate, both engines, judge): {fuzz.rate:.0f} cases/s "
-          f"({sum(fuzz.counts.values())} cases: {', '.join(f'{k} {v}' for k, v in fuzz.counts.items())})")
+    print(
+        f"verify, process pool of 2 whole-case tasks: {count / tasks_s:.0f} cases/s (same verdicts: "
+        f"{'yes' if same else 'NO'})"
+    )
+    print(
+        f"fuzz, local (generate, both engines, judge): {fuzz.rate:.0f} cases/s "
+        f"({sum(fuzz.counts.values())} cases: {', '.join(f'{k} {v}' for k, v in fuzz.counts.items())})"
+    )
     print("pools were started before timing; starting one costs ~0.5 s per ngspice worker")
     return {"cases": cases, "local": local, "local_s": local_s}
 
@@ -395,27 +441,42 @@ def report_dask(local: dict, count: int) -> None:
 
         from distributed import Client, LocalCluster
     except ImportError:
-        print("same verdicts: n/a (Dask's distributed is not installed: pip install 'crosscheck[cluster]')\n"
-              "overhead per case: n/a")
+        print(
+            "same verdicts: n/a (Dask's distributed is not installed: pip install 'crosscheck[cluster]')\n"
+            "overhead per case: n/a"
+        )
         return
     from crosscheck.run.batch import run_batch
 
     cases = local["cases"]
     started = time.perf_counter()
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                      dashboard_address=None, silence_logs=logging.CRITICAL) as cluster, Client(cluster) as client:
+    with (
+        LocalCluster(
+            n_workers=2,
+            threads_per_worker=1,
+            processes=True,
+            host="127.0.0.1",
+            dashboard_address=None,
+            silence_logs=logging.CRITICAL,
+        ) as cluster,
+        Client(cluster) as client,
+    ):
         boot = time.perf_counter() - started
         executor = client.get_executor(pure=False)
         run_batch(cases[:8], executor)
         remote_s, remote = _timed(lambda: run_batch(cases, executor), 1)
         remote_s = min(remote_s, _timed(lambda: run_batch(cases, executor), 1)[0])
     same = [r.verdict for r in remote] == [r.verdict for r in local["local"]]
-    numbers = all(a.own == b.own and getattr(a.spice, "points", None) == getattr(b.spice, "points", None)
-                  for a, b in zip(remote, local["local"]))
+    numbers = all(
+        a.own == b.own and getattr(a.spice, "points", None) == getattr(b.spice, "points", None)
+        for a, b in zip(remote, local["local"])
+    )
     overhead = (remote_s - local["local_s"]) / count
     print(f"same verdicts: {'yes' if same else 'NO'} ({count} cases; same numbers: {'yes' if numbers else 'NO'})")
-    print(f"cluster: {count / remote_s:.0f} cases/s, local pool: {count / local['local_s']:.0f} cases/s; "
-          f"overhead per case: {overhead * 1e3:+.2f} ms (cluster start {boot:.1f} s, not counted)")
+    print(
+        f"cluster: {count / remote_s:.0f} cases/s, local pool: {count / local['local_s']:.0f} cases/s; "
+        f"overhead per case: {overhead * 1e3:+.2f} ms (cluster start {boot:.1f} s, not counted)"
+    )
 
 
 # --------------------------------------------------------------------------- main
@@ -423,14 +484,25 @@ def report_dask(local: dict, count: int) -> None:
 
 def main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(prog="python -m crosscheck.bench", description=__doc__.split("\n\n")[0])
-    parser.add_argument("--quick", action="store_true", help=f"sizes {', '.join(map(str, QUICK_SIZES))} only, "
-                                                              "fewer cases: a smoke test")
+    parser.add_argument(
+        "--quick", action="store_true", help=f"sizes {', '.join(map(str, QUICK_SIZES))} only, fewer cases: a smoke test"
+    )
     parser.add_argument("--sizes", type=int, nargs="+", metavar="N", help="node counts (default 100 1000 10000 100000)")
     parser.add_argument("--families", nargs="+", choices=FAMILIES, default=list(FAMILIES))
-    parser.add_argument("--spice-limit", type=float, default=SPICE_LIMIT_S, metavar="S",
-                        help=f"seconds the SPICE route may take on one network (default {SPICE_LIMIT_S:g})")
-    parser.add_argument("--cases", type=int, default=None, metavar="N",
-                        help="small random cases for the throughput and Dask figures (default 400, quick 60)")
+    parser.add_argument(
+        "--spice-limit",
+        type=float,
+        default=SPICE_LIMIT_S,
+        metavar="S",
+        help=f"seconds the SPICE route may take on one network (default {SPICE_LIMIT_S:g})",
+    )
+    parser.add_argument(
+        "--cases",
+        type=int,
+        default=None,
+        metavar="N",
+        help="small random cases for the throughput and Dask figures (default 400, quick 60)",
+    )
     parser.add_argument("--child", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
@@ -464,11 +536,15 @@ def _header() -> None:
     backend = sparse_backends.default_backend()
     loop = "compiled" if backend == "klu" and sweep_kernel.load() is not None else "Python"
     print("crosscheck benchmark")
-    print(f"machine: {os.cpu_count()} cores, Python {platform.python_version()}, numpy {np.__version__}, "
-          f"scipy {scipy.__version__}, sparse LU: {backend}, sweep loop: {loop}; "
-          f"load average at start: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
-    print(f"sweep: {len(SWEEP_HZ)} frequencies, {SWEEP_HZ[0]:g} Hz to {SWEEP_HZ[-1]:.4g} Hz; from "
-          f"{ONE_FREQUENCY_FROM:,} nodes one frequency ({SWEEP_HZ[0]:g} Hz)")
+    print(
+        f"machine: {os.cpu_count()} cores, Python {platform.python_version()}, numpy {np.__version__}, "
+        f"scipy {scipy.__version__}, sparse LU: {backend}, sweep loop: {loop}; "
+        f"load average at start: {', '.join(f'{x:.1f}' for x in os.getloadavg())}"
+    )
+    print(
+        f"sweep: {len(SWEEP_HZ)} frequencies, {SWEEP_HZ[0]:g} Hz to {SWEEP_HZ[-1]:.4g} Hz; from "
+        f"{ONE_FREQUENCY_FROM:,} nodes one frequency ({SWEEP_HZ[0]:g} Hz)"
+    )
 
 
 if __name__ == "__main__":

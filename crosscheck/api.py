@@ -23,9 +23,16 @@ if TYPE_CHECKING:  # pandas is loaded only when a frame is asked for
     import pandas as pd
 
 
-def reduce_netlist(netlist: str | PathLike[str], port: tuple[str, str], freqs: Iterable[float], *,
-                   engine: str = "both", tolerance: Tolerance = SOLVER_VS_SPICE, sources: str = "peak",
-                   allow_negative: bool = False) -> CaseResult:
+def reduce_netlist(
+    netlist: str | PathLike[str],
+    port: tuple[str, str],
+    freqs: Iterable[float],
+    *,
+    engine: str = "both",
+    tolerance: Tolerance = SOLVER_VS_SPICE,
+    sources: str = "peak",
+    allow_negative: bool = False,
+) -> CaseResult:
     """Equivalents of one netlist at ``port`` and ``freqs`` (Hz), compared with ngspice unless ``engine="own"``.
 
     ``netlist`` is the netlist's text when it is a ``str``, and a file when it is a path (``pathlib.Path``).
@@ -39,8 +46,9 @@ def reduce_netlist(netlist: str | PathLike[str], port: tuple[str, str], freqs: I
     return run_case_objects([case], engine=engine)[0]
 
 
-def run_case_files(paths: Iterable[str | PathLike[str]], *, engine: str = "both",
-                   workers: int | None = None) -> list[CaseResult]:
+def run_case_files(
+    paths: Iterable[str | PathLike[str]], *, engine: str = "both", workers: int | None = None
+) -> list[CaseResult]:
     """Run case files (TOML); a file that cannot be read becomes an ``error`` result and the rest go on."""
     items: list[Case | tuple[str, CrosscheckError]] = []
     for path in paths:
@@ -51,8 +59,9 @@ def run_case_files(paths: Iterable[str | PathLike[str]], *, engine: str = "both"
     return run_case_objects(items, engine=engine, workers=workers)
 
 
-def run_case_objects(items: Sequence[Case | tuple[str, CrosscheckError]], *, engine: str = "both",
-                     workers: int | None = None) -> list[CaseResult]:
+def run_case_objects(
+    items: Sequence[Case | tuple[str, CrosscheckError]], *, engine: str = "both", workers: int | None = None
+) -> list[CaseResult]:
     """Cases already read, through the chosen routes (``own``, ``spice`` or ``both``)."""
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {', '.join(ENGINES)} (got {engine!r})")

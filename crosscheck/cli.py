@@ -25,15 +25,17 @@ from crosscheck.version import __version__
 from crosscheck.vocabulary import same_frequency
 
 # Exit codes (documented in the README).
-EXIT_OK = 0           # every compared quantity within tolerance (or nothing to compare)
-EXIT_FAIL = 1         # some quantity outside tolerance, or a design limit or expectation not met
-EXIT_USAGE = 2        # the command line itself is wrong (argparse's own code)
-EXIT_ERROR = 3        # invalid input (netlist, case file) or an engine crashed on a case
+EXIT_OK = 0  # every compared quantity within tolerance (or nothing to compare)
+EXIT_FAIL = 1  # some quantity outside tolerance, or a design limit or expectation not met
+EXIT_USAGE = 2  # the command line itself is wrong (argparse's own code)
+EXIT_ERROR = 3  # invalid input (netlist, case file) or an engine crashed on a case
 EXIT_UNAVAILABLE = 4  # nothing failed, but an engine could not produce some quantity
-EXIT_DRIFT = 5        # nothing failed, but a result moved from the stored baseline (verify --baseline)
+EXIT_DRIFT = 5  # nothing failed, but a result moved from the stored baseline (verify --baseline)
 
-CLUSTER_HELP = ("run every case as a task on the Dask cluster whose scheduler is at ADDRESS (tcp://host:port); "
-                "its workers need crosscheck and ngspice installed (pip install 'crosscheck[cluster]')")
+CLUSTER_HELP = (
+    "run every case as a task on the Dask cluster whose scheduler is at ADDRESS (tcp://host:port); "
+    "its workers need crosscheck and ngspice installed (pip install 'crosscheck[cluster]')"
+)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -41,55 +43,99 @@ def _parser() -> argparse.ArgumentParser:
     top = argparse.ArgumentParser(
         prog="crosscheck",
         description="Thevenin and Norton equivalents of linear AC networks, from crosscheck's own "
-                    "solver and checked against ngspice.",
+        "solver and checked against ngspice.",
         epilog="Exit codes: 0 pass, 1 fail, 2 usage, 3 error (invalid input), 4 unavailable, "
-               "5 drift from the baseline.",
+        "5 drift from the baseline.",
     )
     top.add_argument("--version", action="version", version=f"crosscheck {__version__}")
     sub = top.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     reduce = sub.add_parser("reduce", help="equivalents of one netlist at a port and frequencies")
     reduce.add_argument("netlist", type=Path, help="SPICE netlist file (R L C V I E F G H K, .subckt, .param)")
-    reduce.add_argument("--port", nargs=2, metavar=("A", "B"), required=True,
-                        help="port nodes: V_th = V(A) - V(B)")
-    reduce.add_argument("--freq", nargs="+", required=True, metavar="F",
-                        help="frequencies in Hz, engineering notation allowed (50 1k 10.7meg; 0 is DC)")
+    reduce.add_argument("--port", nargs=2, metavar=("A", "B"), required=True, help="port nodes: V_th = V(A) - V(B)")
+    reduce.add_argument(
+        "--freq",
+        nargs="+",
+        required=True,
+        metavar="F",
+        help="frequencies in Hz, engineering notation allowed (50 1k 10.7meg; 0 is DC)",
+    )
     reduce.add_argument("--format", choices=("text", "json"), default="text")
-    reduce.add_argument("--engine", choices=("own", "spice", "both"), default="both",
-                        help="own: crosscheck's solver only; spice: compare with ngspice too (same as both)")
-    reduce.add_argument("--expect", action="append", default=[], metavar="QTY[@F]=VALUE",
-                        help="a hand-calculated value to check, e.g. vth=57.34∠-55° or \"zth=4.7 - j6.7\" "
-                             "(vth zth in yn series_r series_l series_c); @F names the frequency when several "
-                             "--freq are given; repeat for more values")
-    reduce.add_argument("--expect-rel", type=float, default=None, metavar="REL",
-                        help="magnitude tolerance of --expect values (default 0.01: three significant figures)")
-    reduce.add_argument("--expect-phase", type=_phase_option, default=None, metavar="DEG",
-                        help="phase tolerance of --expect values in degrees (default 0.5); 'none' judges the "
-                             "complex relative error against --expect-rel instead")
+    reduce.add_argument(
+        "--engine",
+        choices=("own", "spice", "both"),
+        default="both",
+        help="own: crosscheck's solver only; spice: compare with ngspice too (same as both)",
+    )
+    reduce.add_argument(
+        "--expect",
+        action="append",
+        default=[],
+        metavar="QTY[@F]=VALUE",
+        help='a hand-calculated value to check, e.g. vth=57.34∠-55° or "zth=4.7 - j6.7" '
+        "(vth zth in yn series_r series_l series_c); @F names the frequency when several "
+        "--freq are given; repeat for more values",
+    )
+    reduce.add_argument(
+        "--expect-rel",
+        type=float,
+        default=None,
+        metavar="REL",
+        help="magnitude tolerance of --expect values (default 0.01: three significant figures)",
+    )
+    reduce.add_argument(
+        "--expect-phase",
+        type=_phase_option,
+        default=None,
+        metavar="DEG",
+        help="phase tolerance of --expect values in degrees (default 0.5); 'none' judges the "
+        "complex relative error against --expect-rel instead",
+    )
     _common_options(reduce)
 
     verify = sub.add_parser("verify", help="check case files (and netlists) with both engines")
-    verify.add_argument("paths", nargs="+", type=Path, metavar="PATH",
-                        help="case files (*.toml), folders searched for them, or netlists (with --port and --freq)")
+    verify.add_argument(
+        "paths",
+        nargs="+",
+        type=Path,
+        metavar="PATH",
+        help="case files (*.toml), folders searched for them, or netlists (with --port and --freq)",
+    )
     verify.add_argument("--port", nargs=2, metavar=("A", "B"), help="port for netlists named directly")
     verify.add_argument("--freq", nargs="+", metavar="F", help="frequencies for netlists named directly")
-    verify.add_argument("--format", choices=VERIFY_FORMATS, default=None,
-                        help="report format (default: from the --output file's extension — .json, .xml (junit), "
-                             ".csv, .html, .md — else text)")
-    verify.add_argument("--output", type=Path, action="append",
-                        help="write the report to this file instead of standard output; repeat it for several "
-                             "formats from one run (each file's extension names its format)")
+    verify.add_argument(
+        "--format",
+        choices=VERIFY_FORMATS,
+        default=None,
+        help="report format (default: from the --output file's extension — .json, .xml (junit), "
+        ".csv, .html, .md — else text)",
+    )
+    verify.add_argument(
+        "--output",
+        type=Path,
+        action="append",
+        help="write the report to this file instead of standard output; repeat it for several "
+        "formats from one run (each file's extension names its format)",
+    )
     verify.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
     verify.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
     verify.add_argument("--timeout", type=float, default=60.0, help="seconds ngspice may take per case (default 60)")
-    verify.add_argument("--allow-outside-paths", action="store_true",
-                        help="let case files name netlists outside their own folder")
+    verify.add_argument(
+        "--allow-outside-paths", action="store_true", help="let case files name netlists outside their own folder"
+    )
     verify.add_argument("--detail", action="store_true", help="show every point of every case")
-    verify.add_argument("--baseline", type=Path, metavar="FILE",
-                        help="compare the own solver's equivalents with this stored baseline; a change beyond "
-                             "numerical noise is 'drift' (exit code 5)")
-    verify.add_argument("--update-baseline", action="store_true",
-                        help="write this run's equivalents to --baseline FILE and list what changed")
+    verify.add_argument(
+        "--baseline",
+        type=Path,
+        metavar="FILE",
+        help="compare the own solver's equivalents with this stored baseline; a change beyond "
+        "numerical noise is 'drift' (exit code 5)",
+    )
+    verify.add_argument(
+        "--update-baseline",
+        action="store_true",
+        help="write this run's equivalents to --baseline FILE and list what changed",
+    )
     _common_options(verify)
     _fuzz_parser(sub)
     return top
@@ -105,29 +151,54 @@ def _fuzz_parser(sub) -> None:
     fuzz = sub.add_parser("fuzz", help="random networks through both engines; shrinks what disagrees")
     fuzz.add_argument("--count", type=int, default=100, metavar="N", help="how many networks (default 100)")
     fuzz.add_argument("--seed", type=int, default=0, metavar="S", help="run seed; case i gets seed S*1000003+i")
-    fuzz.add_argument("--case-seed", type=int, nargs="+", metavar="SEED",
-                      help="run only these case seeds (printed with every failure) instead of --count/--seed")
-    fuzz.add_argument("--nodes", type=int, nargs=2, default=(2, 8), metavar=("MIN", "MAX"),
-                      help="non-ground nodes per network (default 2 8)")
-    fuzz.add_argument("--family", choices=(MIXED, *FAMILIES), default=MIXED,
-                      help="topology family; mixed (default) draws one per case")
-    fuzz.add_argument("--kinds", default=ALL_KINDS, metavar="LETTERS",
-                      help=f"element kinds to draw from (default {ALL_KINDS}; F and H bring 0 V sensing sources)")
+    fuzz.add_argument(
+        "--case-seed",
+        type=int,
+        nargs="+",
+        metavar="SEED",
+        help="run only these case seeds (printed with every failure) instead of --count/--seed",
+    )
+    fuzz.add_argument(
+        "--nodes",
+        type=int,
+        nargs=2,
+        default=(2, 8),
+        metavar=("MIN", "MAX"),
+        help="non-ground nodes per network (default 2 8)",
+    )
+    fuzz.add_argument(
+        "--family",
+        choices=(MIXED, *FAMILIES),
+        default=MIXED,
+        help="topology family; mixed (default) draws one per case",
+    )
+    fuzz.add_argument(
+        "--kinds",
+        default=ALL_KINDS,
+        metavar="LETTERS",
+        help=f"element kinds to draw from (default {ALL_KINDS}; F and H bring 0 V sensing sources)",
+    )
     fuzz.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
     fuzz.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
-    fuzz.add_argument("--out", type=Path, metavar="DIR",
-                      help="write summary.json and, per failure, the shrunk netlist, case file and numbers here")
+    fuzz.add_argument(
+        "--out",
+        type=Path,
+        metavar="DIR",
+        help="write summary.json and, per failure, the shrunk netlist, case file and numbers here",
+    )
     fuzz.add_argument("--format", choices=("text", "json"), default="text", help="summary on standard output")
     fuzz.add_argument("--no-shrink", action="store_true", help="report failures without shrinking them")
 
 
 def _common_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--allow-negative", action="store_true",
-                   help="accept negative resistances (active device models)")
-    p.add_argument("--sources", choices=("peak", "rms"), default="peak",
-                   help="how the netlist's AC magnitudes are meant (labels the output; default peak)")
-    p.add_argument("--rel", type=float, default=None,
-                   help="relative tolerance, solver vs SPICE (default 1e-6)")
+    p.add_argument("--allow-negative", action="store_true", help="accept negative resistances (active device models)")
+    p.add_argument(
+        "--sources",
+        choices=("peak", "rms"),
+        default="peak",
+        help="how the netlist's AC magnitudes are meant (labels the output; default peak)",
+    )
+    p.add_argument("--rel", type=float, default=None, help="relative tolerance, solver vs SPICE (default 1e-6)")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -219,8 +290,15 @@ def _reduce(args: argparse.Namespace) -> int:
         print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
     extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
-    case = case_from_netlist(str(args.netlist), _read_text(args.netlist), tuple(args.port), freqs, _tolerance(args),
-                             args.allow_negative, args.sources)
+    case = case_from_netlist(
+        str(args.netlist),
+        _read_text(args.netlist),
+        tuple(args.port),
+        freqs,
+        _tolerance(args),
+        args.allow_negative,
+        args.sources,
+    )
     case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
@@ -270,12 +348,14 @@ def _verify(args: argparse.Namespace) -> int:
     from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
 
     if args.update_baseline and args.baseline is None:
-        print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)",
-              file=sys.stderr)
+        print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)", file=sys.stderr)
         return EXIT_USAGE
     if args.output and len(args.output) > 1 and args.format is not None:
-        print("crosscheck verify: error: --format with several --output files is ambiguous; leave it out and "
-              "let each file's extension (.xml, .md, .html, .json, .csv) name its format", file=sys.stderr)
+        print(
+            "crosscheck verify: error: --format with several --output files is ambiguous; leave it out and "
+            "let each file's extension (.xml, .md, .html, .json, .csv) name its format",
+            file=sys.stderr,
+        )
         return EXIT_USAGE
     baseline = _baseline(args)
     items: list = []
@@ -286,28 +366,49 @@ def _verify(args: argparse.Namespace) -> int:
             else:
                 if not args.port or not args.freq:
                     raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
-                items.append(case_from_netlist(str(path), _read_text(path), tuple(args.port),
-                                               _frequencies(args.freq), _tolerance(args), args.allow_negative,
-                                               args.sources))
+                items.append(
+                    case_from_netlist(
+                        str(path),
+                        _read_text(path),
+                        tuple(args.port),
+                        _frequencies(args.freq),
+                        _tolerance(args),
+                        args.allow_negative,
+                        args.sources,
+                    )
+                )
         except CrosscheckError as exc:
             items.append((str(path), exc))
     if not items:
         raise CrosscheckError(f"no case files (*.toml) found under {', '.join(map(str, args.paths))}")
     err_console = Console(stderr=True)
-    progress = Progress(TextColumn("checking"), BarColumn(), MofNCompleteColumn(), TextColumn("{task.fields[rate]}"),
-                        TimeRemainingColumn(), console=err_console, transient=True,
-                        disable=not err_console.is_terminal)
+    progress = Progress(
+        TextColumn("checking"),
+        BarColumn(),
+        MofNCompleteColumn(),
+        TextColumn("{task.fields[rate]}"),
+        TimeRemainingColumn(),
+        console=err_console,
+        transient=True,
+        disable=not err_console.is_terminal,
+    )
     with progress, _executor(args.cluster) as executor:
         task = progress.add_task("cases", total=len(items), rate="")
-        results = run_batch(items, executor, workers=args.workers, timeout_s=args.timeout,
-                            on_done=lambda r: progress.advance(task), baseline=baseline)
+        results = run_batch(
+            items,
+            executor,
+            workers=args.workers,
+            timeout_s=args.timeout,
+            on_done=lambda r: progress.advance(task),
+            baseline=baseline,
+        )
     outputs = args.output or [None]
     for output in outputs:
         fmt = verify_format(args.format, output)
         if fmt != "text":
             _emit(render_report(fmt, results), output)
         else:
-            with (open(output, "w", encoding="utf-8") if output else nullcontext(None)) as handle:
+            with open(output, "w", encoding="utf-8") if output else nullcontext(None) as handle:
                 print_results(Console(file=handle, width=160 if handle else None), results, detail=args.detail)
     args.format = verify_format(args.format, outputs[0])
     if args.output:
@@ -360,8 +461,15 @@ def _fuzz(args: argparse.Namespace) -> int:
 
     try:
         knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)
-        options = FuzzOptions(count=args.count, seed=args.seed, knobs=knobs, workers=args.workers, out=args.out,
-                              shrink=not args.no_shrink, case_seeds=tuple(args.case_seed or ()))
+        options = FuzzOptions(
+            count=args.count,
+            seed=args.seed,
+            knobs=knobs,
+            workers=args.workers,
+            out=args.out,
+            shrink=not args.no_shrink,
+            case_seeds=tuple(args.case_seed or ()),
+        )
     except ValueError as exc:
         print(f"crosscheck fuzz: error: {exc}", file=sys.stderr)
         return EXIT_USAGE

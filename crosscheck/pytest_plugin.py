@@ -38,16 +38,34 @@ _POOL_KEY = pytest.StashKey[Any]()
 
 def pytest_addoption(parser: pytest.Parser) -> None:
     group = parser.getgroup("crosscheck", "crosscheck case files")
-    group.addoption("--crosscheck", action="store_true", default=False, dest="crosscheck_cases",
-                    help="collect crosscheck case files (*.toml with netlist and port keys) under every path, "
-                         "not only under paths named on the command line")
-    group.addoption("--crosscheck-engine", choices=("both", "own"), default="both",
-                    help="both: compare with ngspice (default); own: crosscheck's solver only, for quick runs "
-                         "of expectations and limits")
-    group.addoption("--crosscheck-timeout", type=float, default=60.0, metavar="SECONDS",
-                    help="seconds ngspice may take per case (default 60)")
-    parser.addini("crosscheck_cases", type="bool", default=False,
-                  help="collect crosscheck case files under every path pytest searches (e.g. testpaths)")
+    group.addoption(
+        "--crosscheck",
+        action="store_true",
+        default=False,
+        dest="crosscheck_cases",
+        help="collect crosscheck case files (*.toml with netlist and port keys) under every path, "
+        "not only under paths named on the command line",
+    )
+    group.addoption(
+        "--crosscheck-engine",
+        choices=("both", "own"),
+        default="both",
+        help="both: compare with ngspice (default); own: crosscheck's solver only, for quick runs "
+        "of expectations and limits",
+    )
+    group.addoption(
+        "--crosscheck-timeout",
+        type=float,
+        default=60.0,
+        metavar="SECONDS",
+        help="seconds ngspice may take per case (default 60)",
+    )
+    parser.addini(
+        "crosscheck_cases",
+        type="bool",
+        default=False,
+        help="collect crosscheck case files under every path pytest searches (e.g. testpaths)",
+    )
 
 
 def looks_like_case(path: Path) -> bool:

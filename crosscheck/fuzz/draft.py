@@ -19,9 +19,11 @@ from crosscheck.model.network import GROUND, Element, Network, Port, make_elemen
 
 _PORT_TRIES = 20
 #: Why a port that a controlled voltage source joins may have no I_N from SPICE.
-CONTROLLED_PORT = ("a controlled voltage source (E or H) joins the port's nodes: shorting the port puts it in "
-                   "parallel with the short, which is singular, so SPICE's short-circuit run gives no I_N "
-                   "(crosscheck's I_N is V_th / Z_th)")
+CONTROLLED_PORT = (
+    "a controlled voltage source (E or H) joins the port's nodes: shorting the port puts it in "
+    "parallel with the short, which is singular, so SPICE's short-circuit run gives no I_N "
+    "(crosscheck's I_N is V_th / Z_th)"
+)
 
 
 def joined_through(elements: Sequence[Element], port: Port, kinds: str) -> bool:
@@ -131,8 +133,7 @@ class Draft:
             if kind in "FH":
                 control = "existing" if has_v and self.chance(0.5) else "sense"
             plan.sources.append((kind, mode, control))
-        plan.isolated = "L" in kinds and "K" in kinds and (
-            "tight-coupling" in traits or self.chance(0.12))
+        plan.isolated = "L" in kinds and "K" in kinds and ("tight-coupling" in traits or self.chance(0.12))
         plan.no_dc_port = "no-dc-port" in traits
         return plan
 
@@ -164,7 +165,7 @@ class Draft:
         """Two nodes a voltage-defined branch may join without closing a loop with inductors and sources."""
         uf = self.forest()
         nodes = [GROUND, *self.all_nodes()]
-        pairs = [(a, b) for i, a in enumerate(nodes) for b in nodes[i + 1:] if uf.find(a) != uf.find(b)]
+        pairs = [(a, b) for i, a in enumerate(nodes) for b in nodes[i + 1 :] if uf.find(a) != uf.find(b)]
         return self.choice(pairs) if pairs else None
 
     def all_nodes(self) -> list[str]:
@@ -188,8 +189,7 @@ class Draft:
                 outputs[i] = self.swap(*self._split())
         # Series outputs first (the forest must hold them before a parallel one looks for a free pair),
         # then the rest; F and H after the others, so that every V they might sense exists.
-        for i, (kind, _, _) in sorted(enumerate(plan.sources),
-                                      key=lambda t: (t[1][1] != "series", t[1][0] in "FH")):
+        for i, (kind, _, _) in sorted(enumerate(plan.sources), key=lambda t: (t[1][1] != "series", t[1][0] in "FH")):
             nodes = outputs.get(i)
             if nodes is None and kind in "VEH":
                 nodes = self._free_pair()
@@ -201,8 +201,12 @@ class Draft:
             if kind in "FH" and i not in senses and not any(e.kind == "V" for e in self.elements):
                 kind = {"F": "G", "H": "E"}[kind]  # nothing to sense yet: the voltage-controlled twin instead
             if kind in "VI":
-                self.add(kind, nodes, ac_mag=tidy(SOURCE_CENTRES[kind] * 10.0 ** self.uniform(-1.0, 1.0)),
-                         ac_phase_deg=tidy(self.uniform(-180.0, 180.0)))
+                self.add(
+                    kind,
+                    nodes,
+                    ac_mag=tidy(SOURCE_CENTRES[kind] * 10.0 ** self.uniform(-1.0, 1.0)),
+                    ac_phase_deg=tidy(self.uniform(-180.0, 180.0)),
+                )
             elif kind in "EG":
                 self.add(kind, nodes + self._control_pair(nodes), self.gain(kind))
             else:
@@ -240,8 +244,7 @@ class Draft:
         k = self.knobs
         count = int(self.rng.integers(1, k.max_freqs + 1))
         lo, hi = math.log10(k.min_hz), math.log10(k.max_hz)
-        return tuple(sorted({tidy(min(max(10.0 ** self.uniform(lo, hi), k.min_hz), k.max_hz))
-                             for _ in range(count)}))
+        return tuple(sorted({tidy(min(max(10.0 ** self.uniform(lo, hi), k.min_hz), k.max_hz)) for _ in range(count)}))
 
     def dc_path_everywhere(self, except_node: str | None = None) -> bool:
         """Every node reaches ground (or its isolated part's reference) through R, L, V, E or H."""

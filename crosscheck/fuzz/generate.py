@@ -41,8 +41,19 @@ from crosscheck.fuzz.traits import CAVEATS, ILL_CONDITIONED, awkward_traits, hig
 from crosscheck.model.graph import UnionFind
 from crosscheck.model.network import GROUND, Network, Port, validate
 
-__all__ = ["ALL_KINDS", "FAMILIES", "MIXED", "SEED_STRIDE", "TRAITS", "GeneratedCase", "Knobs", "case_seed",
-           "generate_case", "generate_cases", "well_posed"]
+__all__ = [
+    "ALL_KINDS",
+    "FAMILIES",
+    "MIXED",
+    "SEED_STRIDE",
+    "TRAITS",
+    "GeneratedCase",
+    "Knobs",
+    "case_seed",
+    "generate_case",
+    "generate_cases",
+    "well_posed",
+]
 
 #: Seeds of the cases of one run: case_seed(S, i) = S * SEED_STRIDE + i (a prime, so runs rarely overlap).
 SEED_STRIDE = 1_000_003
@@ -72,8 +83,11 @@ def well_posed(network: Network, port: Port, freqs: Sequence[float]) -> bool:
             if e.kind in "RLVEH":
                 dc.union(*e.terminals)
     reference = GROUND if every.find(port.b) == every.find(GROUND) else port.b
-    return all(dc.find(n) == dc.find(GROUND) or dc.find(n) == dc.find(reference) or n in (port.a, port.b)
-               for n in network.nodes if every.find(n) in (every.find(GROUND), every.find(reference)))
+    return all(
+        dc.find(n) == dc.find(GROUND) or dc.find(n) == dc.find(reference) or n in (port.a, port.b)
+        for n in network.nodes
+        if every.find(n) in (every.find(GROUND), every.find(reference))
+    )
 
 
 def case_seed(run_seed: int, index: int) -> int:
@@ -152,8 +166,9 @@ def _build(d: Draft, family: str) -> GeneratedCase:
     title = f"fuzz {family}{f' on {base}' if family == 'awkward' else ''} seed {d.seed}"
     network = Network(title, tuple(d.elements))
     validate(network, port)
-    return GeneratedCase(d.seed, family, network, port, freqs, "; ".join(caveats), tuple(traits),
-                         base if family == "awkward" else "")
+    return GeneratedCase(
+        d.seed, family, network, port, freqs, "; ".join(caveats), tuple(traits), base if family == "awkward" else ""
+    )
 
 
 def _skeleton(d: Draft, base: str, passive: str, traits: list[str]) -> tuple[Plan, list[str]]:
@@ -190,8 +205,9 @@ def _stress(d: Draft, traits: list[str], freqs: tuple[float, ...]) -> list[str]:
     return traits
 
 
-def _direct_current(d: Draft, plan: Plan, port: Port | None, freqs: tuple[float, ...],
-                    traits: list[str]) -> tuple[Port | None, tuple[float, ...], list[str], list[str]]:
+def _direct_current(
+    d: Draft, plan: Plan, port: Port | None, freqs: tuple[float, ...], traits: list[str]
+) -> tuple[Port | None, tuple[float, ...], list[str], list[str]]:
     """Whether 0 Hz is asked for: always with a port reached only through capacitors (when the rest of the
     network has a DC path), otherwise sometimes when every node has one. Returns the port, the
     frequencies, the caveats so far and the traits."""

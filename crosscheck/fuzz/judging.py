@@ -39,6 +39,7 @@ from crosscheck.vocabulary import Verdict
 NGSPICE_GROWTH = 1e3
 EPS = float(np.finfo(float).eps)
 
+
 @dataclass(frozen=True)
 class CaseOutcome:
     """How one fuzz case went: the case result, its status, and whether (and by what) it is accounted for."""
@@ -69,8 +70,9 @@ class CaseOutcome:
         return self.status == "error" or (self.status in ("fail", "unavailable") and not self.explained)
 
 
-def solve_own(network: Network, port: Port, freqs: Sequence[float],
-              route: OwnRoute = thevenin) -> tuple[Sequence[Equivalent] | None, CrosscheckError | None]:
+def solve_own(
+    network: Network, port: Port, freqs: Sequence[float], route: OwnRoute = thevenin
+) -> tuple[Sequence[Equivalent] | None, CrosscheckError | None]:
     """The own route's equivalents, or the error it raised (a case's error is data, not an exception)."""
     try:
         return route(network, port, freqs), None
@@ -86,13 +88,27 @@ def spice_result(future: Future) -> tuple[SpiceResult | None, CrosscheckError | 
         return None, exc
 
 
-def judge(index: int, case: GeneratedCase, own: Sequence[Equivalent] | None, own_error: CrosscheckError | None,
-          spice: SpiceResult | None, spice_error: CrosscheckError | None, tol: Tolerance) -> CaseOutcome:
+def judge(
+    index: int,
+    case: GeneratedCase,
+    own: Sequence[Equivalent] | None,
+    own_error: CrosscheckError | None,
+    spice: SpiceResult | None,
+    spice_error: CrosscheckError | None,
+    tol: Tolerance,
+) -> CaseOutcome:
     """The outcome of one case from both engines' answers (or errors)."""
     if isinstance(spice_error, EngineUnavailableError):
         raise spice_error  # no ngspice at all: nothing to fuzz against
-    head = CaseResult(f"fuzz case {case.seed}", case.network.title, (case.port.a, case.port.b), case.freqs_hz, tol,
-                      own=None if own is None else tuple(own), spice=spice)
+    head = CaseResult(
+        f"fuzz case {case.seed}",
+        case.network.title,
+        (case.port.a, case.port.b),
+        case.freqs_hz,
+        tol,
+        own=None if own is None else tuple(own),
+        spice=spice,
+    )
     if spice_error is not None:
         why = f"ngspice: {spice_error}"
         return CaseOutcome(index, case, "error", False, why, replace(head, error=why, verdict=Verdict.ERROR))
@@ -100,8 +116,15 @@ def judge(index: int, case: GeneratedCase, own: Sequence[Equivalent] | None, own
         why = f"own solver: {own_error}"
         errored = replace(head, error=why, verdict=Verdict.ERROR)
         if isinstance(own_error, SingularNetworkError):
-            return CaseOutcome(index, case, "unavailable", bool(case.caveat), _with_caveat(why, case), errored,
-                               Cause.EXPECTED_FOR_CASE if case.caveat else None)
+            return CaseOutcome(
+                index,
+                case,
+                "unavailable",
+                bool(case.caveat),
+                _with_caveat(why, case),
+                errored,
+                Cause.EXPECTED_FOR_CASE if case.caveat else None,
+            )
         return CaseOutcome(index, case, "error", False, why, errored)
     result = judged(head, case.network)
     checks = [(p, c) for p in result.points for c in p.quantities]
@@ -111,20 +134,30 @@ def judge(index: int, case: GeneratedCase, own: Sequence[Equivalent] | None, own
     missing = [(p, c) for p, c in checks if c.verdict == Verdict.UNAVAILABLE]
     if missing:
         p, c = missing[0]
-        return CaseOutcome(index, case, "unavailable", bool(case.caveat),
-                           _with_caveat(f"at {p.freq_hz:g} Hz: {c.explanation}", case), result,
-                           Cause.EXPECTED_FOR_CASE if case.caveat else None)
+        return CaseOutcome(
+            index,
+            case,
+            "unavailable",
+            bool(case.caveat),
+            _with_caveat(f"at {p.freq_hz:g} Hz: {c.explanation}", case),
+            result,
+            Cause.EXPECTED_FOR_CASE if case.caveat else None,
+        )
     return CaseOutcome(index, case, "pass", True, "", result)
 
 
-def _failed(index: int, case: GeneratedCase, result: CaseResult,
-            failing: list[tuple[PointCheck, QuantityCheck]]) -> CaseOutcome:
+def _failed(
+    index: int, case: GeneratedCase, result: CaseResult, failing: list[tuple[PointCheck, QuantityCheck]]
+) -> CaseOutcome:
     """A failing case: the worst failure's reason, explained when every failure has a roundoff cause."""
     whys = [_explain(case, p, c) for p, c in failing]
     i = max(range(len(failing)), key=lambda j: failing[j][1].err)
     p, c = failing[i]
-    reason = (f"at {p.freq_hz:g} Hz: {c.quantity} {whys[i]} (the comparer said: {c.explanation})" if whys[i]
-              else f"at {p.freq_hz:g} Hz: {c.explanation}")
+    reason = (
+        f"at {p.freq_hz:g} Hz: {c.quantity} {whys[i]} (the comparer said: {c.explanation})"
+        if whys[i]
+        else f"at {p.freq_hz:g} Hz: {c.explanation}"
+    )
     explained = all(c.cause in ROUNDOFF_CAUSES or why for (_, c), why in zip(failing, whys))
     cause = None
     if explained:
@@ -163,9 +196,11 @@ def _explain(case: GeneratedCase, point: PointCheck, check: QuantityCheck) -> st
     delta = abs(check.own - check.ref)
     if not delta <= bound:
         return ""
-    return (f"within ngspice's roundoff: |Δ| = {delta:.3g} <= {NGSPICE_GROWTH:g}·κ·ε·‖x‖∞ = {bound:.3g} "
-            f"(κ = {fac.condition:.3g}, ‖x‖∞ = {scale:.3g} over node voltages and branch currents; ngspice pivots "
-            "with a relative threshold of 1e-3)")
+    return (
+        f"within ngspice's roundoff: |Δ| = {delta:.3g} <= {NGSPICE_GROWTH:g}·κ·ε·‖x‖∞ = {bound:.3g} "
+        f"(κ = {fac.condition:.3g}, ‖x‖∞ = {scale:.3g} over node voltages and branch currents; ngspice pivots "
+        "with a relative threshold of 1e-3)"
+    )
 
 
 def isolate(outcome: CaseOutcome, pool: SpicePool, tol: Tolerance) -> CaseOutcome:
@@ -190,16 +225,18 @@ def isolate(outcome: CaseOutcome, pool: SpicePool, tol: Tolerance) -> CaseOutcom
         if again.verdict != "pass":
             return outcome
         worst = max(failing, key=lambda c: c.err)
-        notes.append(f"at {p.freq_hz:g} Hz {worst.quantity} differed by {worst.err:.3g} (judged) with the other "
-                     f"frequencies in ngspice's deck and agrees when ngspice runs this frequency alone")
+        notes.append(
+            f"at {p.freq_hz:g} Hz {worst.quantity} differed by {worst.err:.3g} (judged) with the other "
+            f"frequencies in ngspice's deck and agrees when ngspice runs this frequency alone"
+        )
     if not notes:
         return outcome
-    reason = ("; ".join(notes) + ": ngspice keeps the pivot order of the analysis it ran before, which lost it "
-              "accuracy here (an ngspice limitation, not a modelling difference)")
+    reason = (
+        "; ".join(notes) + ": ngspice keeps the pivot order of the analysis it ran before, which lost it "
+        "accuracy here (an ngspice limitation, not a modelling difference)"
+    )
     return replace(outcome, explained=True, reason=reason, cause=Cause.NGSPICE_PIVOT_ORDER)
 
 
 def _with_caveat(reason: str, case: GeneratedCase) -> str:
     return f"{reason} (expected for this case: {case.caveat})" if case.caveat else reason
-
-

@@ -17,7 +17,6 @@ from crosscheck.model.network import Element, Network, Port
 FAMILIES = ("ladder", "tree", "grid", "random")
 
 
-
 def build(family: str, nodes: int, seed: int = 1) -> tuple[Network, Port]:
     """A network of ``family`` with ``nodes`` non-ground nodes (a grid rounds to a square), and its port."""
     rng = np.random.default_rng(seed)
@@ -98,5 +97,3 @@ def _random(n: int, rng) -> tuple[list[Element], Port]:
             out.append(_el(f"rj{i}", "R", f"x{i}", "0", 1e4))
             joined.union(f"x{i}", "0")
     return out, Port(f"x{n - 1}", "0")
-
-

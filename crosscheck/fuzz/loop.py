@@ -34,8 +34,7 @@ Progress = Callable[[int, int, CaseOutcome], None]
 # --------------------------------------------------------------------------- the run
 
 
-def run_fuzz(options: FuzzOptions, on_progress: Progress | None = None,
-             pool: SpicePool | None = None) -> FuzzSummary:
+def run_fuzz(options: FuzzOptions, on_progress: Progress | None = None, pool: SpicePool | None = None) -> FuzzSummary:
     """Generate, solve, compare; then shrink and write out what failed. ``pool``: a SpicePool to reuse."""
     summary = FuzzSummary(options, tuple(sorted(options.faults)))
     if pool is None:
@@ -80,8 +79,9 @@ def _run(options: FuzzOptions, summary: FuzzSummary, pool: SpicePool, on_progres
     return finish(summary, options, pool)
 
 
-def note_outcome(summary: FuzzSummary, outcome: CaseOutcome, total: int, options: FuzzOptions,
-                 on_progress: Progress | None) -> bool:
+def note_outcome(
+    summary: FuzzSummary, outcome: CaseOutcome, total: int, options: FuzzOptions, on_progress: Progress | None
+) -> bool:
     """Record one case's outcome and report progress; True once ``stop_after_failures`` problems are in."""
     _record(summary, outcome)
     if on_progress is not None:
@@ -130,12 +130,19 @@ def _record(summary: FuzzSummary, outcome: CaseOutcome) -> None:
         summary.explained_cases.append(outcome)
 
 
-
 # --------------------------------------------------------------------------- shrinking
 
 
-def recheck(case: GeneratedCase, network: Network, port: Port, freqs: tuple[float, ...], pool: SpicePool,
-            tol: Tolerance, index: int = -1, route: OwnRoute = thevenin) -> CaseOutcome:
+def recheck(
+    case: GeneratedCase,
+    network: Network,
+    port: Port,
+    freqs: tuple[float, ...],
+    pool: SpicePool,
+    tol: Tolerance,
+    index: int = -1,
+    route: OwnRoute = thevenin,
+) -> CaseOutcome:
     """Both engines and the judgement for a variant of ``case`` (the shrinker's probe)."""
     variant = replace(case, network=network, port=port, freqs_hz=tuple(freqs))
     own, own_error = solve_own(network, port, freqs, route)
@@ -167,10 +174,10 @@ def _shrink_one(outcome: CaseOutcome, options: FuzzOptions, pool: SpicePool) -> 
 
     # Stay among well-posed networks if the original was one, so the failure stays the original's.
     admissible = well_posed if well_posed(case.network, case.port, case.freqs_hz) else None
-    result = shrink(case.network, case.port, case.freqs_hz, still_fails, budget=options.shrink_budget,
-                    admissible=admissible)
-    final = recheck(case, result.network, result.port, result.freqs_hz, pool, options.tolerance, outcome.index,
-                    options.own_route())
+    result = shrink(
+        case.network, case.port, case.freqs_hz, still_fails, budget=options.shrink_budget, admissible=admissible
+    )
+    final = recheck(
+        case, result.network, result.port, result.freqs_hz, pool, options.tolerance, outcome.index, options.own_route()
+    )
     return Reproducer(case.seed, result, final)
-
-

@@ -32,8 +32,8 @@ class ShrinkResult:
     port: Port
     freqs_hz: tuple[float, ...]
     original_size: tuple[int, int, int]  # (elements, nodes, frequencies)
-    checks: int                          # calls of still_fails
-    accepted: int                        # changes kept
+    checks: int  # calls of still_fails
+    accepted: int  # changes kept
 
     @property
     def size(self) -> tuple[int, int, int]:
@@ -44,8 +44,14 @@ def size_of(network: Network, freqs: tuple[float, ...]) -> tuple[int, int, int]:
     return len(network.elements), len(network.nodes), len(freqs)
 
 
-def shrink(network: Network, port: Port, freqs: tuple[float, ...], still_fails: StillFails,
-           budget: int = 200, admissible: StillFails | None = None) -> ShrinkResult:
+def shrink(
+    network: Network,
+    port: Port,
+    freqs: tuple[float, ...],
+    still_fails: StillFails,
+    budget: int = 200,
+    admissible: StillFails | None = None,
+) -> ShrinkResult:
     """Shrink while ``still_fails``; at most ``budget`` checks. The input itself is assumed to fail.
 
     ``admissible`` (optional, free of charge) refuses candidates before they are checked, e.g. ones that
@@ -61,13 +67,21 @@ def shrink(network: Network, port: Port, freqs: tuple[float, ...], still_fails: 
                 if state.checks >= budget:
                     break
                 changed |= state.try_(*candidate)
-    return ShrinkResult(state.network, state.port, state.freqs, size_of(network, tuple(freqs)),
-                        state.checks, state.accepted)
+    return ShrinkResult(
+        state.network, state.port, state.freqs, size_of(network, tuple(freqs)), state.checks, state.accepted
+    )
 
 
 class _State:
-    def __init__(self, network: Network, port: Port, freqs: tuple[float, ...], still_fails: StillFails,
-                 budget: int, admissible: StillFails | None):
+    def __init__(
+        self,
+        network: Network,
+        port: Port,
+        freqs: tuple[float, ...],
+        still_fails: StillFails,
+        budget: int,
+        admissible: StillFails | None,
+    ):
         self.network, self.port, self.freqs = network, port, freqs
         self.still_fails = still_fails
         self.admissible = admissible
@@ -126,8 +140,9 @@ def _contractions(s: _State) -> Iterator[tuple]:
         port = Port(*(rename.get(n, n) for n in s.port))
         if port.a == port.b:
             continue
-        merged = s.network.with_elements(replace(x, nodes=tuple(rename.get(n, n) for n in x.nodes))
-                                         for x in s.network.elements if x.name != name)
+        merged = s.network.with_elements(
+            replace(x, nodes=tuple(rename.get(n, n) for n in x.nodes)) for x in s.network.elements if x.name != name
+        )
         collapsed = {x.name for x in merged.elements if x.kind != "K" and x.nodes[0] == x.nodes[1]}
         yield _without(merged, collapsed), port, None
 
@@ -145,7 +160,7 @@ def _round_frequencies(s: _State) -> Iterator[tuple]:
     for i in range(len(s.freqs)):
         for f in _round_number(s.freqs[i]):
             if i < len(s.freqs) and f != s.freqs[i] and f not in s.freqs:
-                yield s.network, s.port, tuple(sorted(s.freqs[:i] + (f,) + s.freqs[i + 1:]))
+                yield s.network, s.port, tuple(sorted(s.freqs[:i] + (f,) + s.freqs[i + 1 :]))
 
 
 # --------------------------------------------------------------------------- helpers
@@ -155,9 +170,12 @@ def _without(network: Network, names: set[str]) -> Network | None:
     """The network less ``names`` and what depends on them (K on a removed L, F or H sensing a removed V)."""
     gone = set(names)
     while True:
-        more = {e.name for e in network.elements if e.name not in gone and (
-            (e.kind == "K" and any(n in gone for n in e.coupled or ())) or
-            (e.kind in "FH" and e.control in gone))}
+        more = {
+            e.name
+            for e in network.elements
+            if e.name not in gone
+            and ((e.kind == "K" and any(n in gone for n in e.coupled or ())) or (e.kind in "FH" and e.control in gone))
+        }
         if not more:
             break
         gone |= more

@@ -52,8 +52,10 @@ def _passive_kinds(kinds: str, lossless: bool, single_reactive: str | None) -> s
     elif single_reactive is not None:
         raise InvalidArgument(f"single_reactive must be None, 'L' or 'C' (got {single_reactive!r})")
     if not allowed:
-        raise InvalidArgument(f"kinds={kinds!r} with lossless={lossless}, single_reactive={single_reactive!r} "
-                              "leaves no R, L or C for the spanning tree; allow at least one of them")
+        raise InvalidArgument(
+            f"kinds={kinds!r} with lossless={lossless}, single_reactive={single_reactive!r} "
+            "leaves no R, L or C for the spanning tree; allow at least one of them"
+        )
     return allowed
 
 
@@ -92,15 +94,15 @@ class _Builder:
         return e
 
 
-def _passive(draw: st.DrawFn, b: _Builder, kinds: str, nodes: tuple[str, str],
-             decades: tuple[float, float], suffix: str = "") -> Element:
+def _passive(
+    draw: st.DrawFn, b: _Builder, kinds: str, nodes: tuple[str, str], decades: tuple[float, float], suffix: str = ""
+) -> Element:
     kind = draw(st.sampled_from(kinds))
     return b.add(kind, nodes, _scaled(draw, CENTRES[kind], decades), prefix=kind.lower() + suffix)
 
 
 def _source(draw: st.DrawFn, b: _Builder, kind: str, nodes: tuple[str, str], decades: tuple[float, float]) -> None:
-    b.add(kind, nodes, ac_mag=_scaled(draw, SOURCE_CENTRES[kind], decades),
-          ac_phase_deg=draw(st.floats(-180.0, 180.0)))
+    b.add(kind, nodes, ac_mag=_scaled(draw, SOURCE_CENTRES[kind], decades), ac_phase_deg=draw(st.floats(-180.0, 180.0)))
 
 
 def _add_sense_source(draw: st.DrawFn, b: _Builder, node: str) -> Element:
@@ -113,10 +115,19 @@ def _add_sense_source(draw: st.DrawFn, b: _Builder, node: str) -> Element:
 
 
 @st.composite
-def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str = ALL_KINDS,
-             passive_only: bool = False, lossless: bool = False, single_reactive: str | None = None,
-             value_decades: tuple[float, float] = (-1.0, 1.0), max_extra: int = 6,
-             coupling: tuple[float, float] = (0.1, 0.95), min_sources: int = 1) -> Network:
+def networks(
+    draw: st.DrawFn,
+    min_nodes: int = 2,
+    max_nodes: int = 8,
+    kinds: str = ALL_KINDS,
+    passive_only: bool = False,
+    lossless: bool = False,
+    single_reactive: str | None = None,
+    value_decades: tuple[float, float] = (-1.0, 1.0),
+    max_extra: int = 6,
+    coupling: tuple[float, float] = (0.1, 0.95),
+    min_sources: int = 1,
+) -> Network:
     """A valid network of ``min_nodes``..``max_nodes`` non-ground nodes.
 
     ``kinds`` limits the element letters; ``passive_only`` drops dependent sources (E F G H);
@@ -165,8 +176,14 @@ def networks(draw: st.DrawFn, min_nodes: int = 2, max_nodes: int = 8, kinds: str
     return validate(Network("hypothesis network", tuple(b.elements)))
 
 
-def _add_extras(draw: st.DrawFn, b: _Builder, loops: UnionFind, extras: list[str], everything: list[str],
-                value_decades: tuple[float, float]) -> None:
+def _add_extras(
+    draw: st.DrawFn,
+    b: _Builder,
+    loops: UnionFind,
+    extras: list[str],
+    everything: list[str],
+    value_decades: tuple[float, float],
+) -> None:
     """The elements beyond the spanning tree; V, E and H only where no loop of voltage-defined branches closes."""
     for kind in sorted(extras, key=lambda k: k in "FH"):  # F and H last: their control must exist
         if kind in "EG" and len(everything) < 3:  # the control pair would be the output pair itself
@@ -217,13 +234,13 @@ def ports(network: Network) -> st.SearchStrategy[Port]:
     return st.sampled_from([Port(a, b) for a in nodes for b in nodes if a != b])
 
 
-def frequencies(min_hz: float = F_CENTRE / 10.0, max_hz: float = F_CENTRE * 10.0,
-                dc: bool = False) -> st.SearchStrategy[float]:
+def frequencies(
+    min_hz: float = F_CENTRE / 10.0, max_hz: float = F_CENTRE * 10.0, dc: bool = False
+) -> st.SearchStrategy[float]:
     """Frequencies in hertz, log-uniform over [min_hz, max_hz]; with ``dc`` also 0 Hz."""
     if not 0.0 < min_hz <= max_hz or not math.isfinite(max_hz):
         raise InvalidArgument(f"need 0 < min_hz <= max_hz < inf (got {min_hz}, {max_hz})")
-    positive = st.floats(math.log10(min_hz), math.log10(max_hz)).map(
-        lambda u: min(max(10.0 ** u, min_hz), max_hz))
+    positive = st.floats(math.log10(min_hz), math.log10(max_hz)).map(lambda u: min(max(10.0**u, min_hz), max_hz))
     return st.one_of(st.just(0.0), positive) if dc else positive
 
 
@@ -247,8 +264,7 @@ def network_and_port(draw: st.DrawFn, floating: bool | None = None, **network_kw
 
     secondary = draw(st.integers(2, 3))
     main_max = max(1, network_kwargs.get("max_nodes", 8) - secondary)
-    main_kwargs = dict(network_kwargs, max_nodes=main_max,
-                       min_nodes=min(network_kwargs.get("min_nodes", 2), main_max))
+    main_kwargs = dict(network_kwargs, max_nodes=main_max, min_nodes=min(network_kwargs.get("min_nodes", 2), main_max))
     network = draw(networks(**main_kwargs))
     decades = network_kwargs.get("value_decades", (-1.0, 1.0))
     b = _Builder()  # new names carry a "t" or "p" so they never clash with the main network's
@@ -258,13 +274,20 @@ def network_and_port(draw: st.DrawFn, floating: bool | None = None, **network_kw
     if free:
         primary = draw(st.sampled_from(free))
     else:
-        primary = b.add("L", (draw(st.sampled_from(network.nodes)), GROUND),
-                        _scaled(draw, CENTRES["L"], decades), prefix="lp").name
+        primary = b.add(
+            "L", (draw(st.sampled_from(network.nodes)), GROUND), _scaled(draw, CENTRES["L"], decades), prefix="lp"
+        ).name
     t = [f"t{i}" for i in range(1, secondary + 1)]
-    winding = b.add("L", (t[0], t[1]) if draw(st.booleans()) else (t[1], t[0]),
-                    _scaled(draw, CENTRES["L"], decades), prefix="lt")
-    b.add("K", (), draw(st.floats(*network_kwargs.get("coupling", (0.1, 0.95)))),
-          coupled=(primary, winding.name), prefix="kt")
+    winding = b.add(
+        "L", (t[0], t[1]) if draw(st.booleans()) else (t[1], t[0]), _scaled(draw, CENTRES["L"], decades), prefix="lt"
+    )
+    b.add(
+        "K",
+        (),
+        draw(st.floats(*network_kwargs.get("coupling", (0.1, 0.95)))),
+        coupled=(primary, winding.name),
+        prefix="kt",
+    )
     if draw(st.booleans()):
         _passive(draw, b, passive, (t[0], t[1]), decades, suffix="t")
     if secondary == 3:
@@ -281,9 +304,17 @@ def network_and_port(draw: st.DrawFn, floating: bool | None = None, **network_kw
 # the reported seed rebuilds the case with ``generate_case(seed, Knobs(...))``.
 
 
-def generated_cases(family: str | None = None, min_nodes: int = 2, max_nodes: int = 8, kinds: str = ALL_KINDS,
-                    decades: float = 1.0, min_hz: float = F_CENTRE / 100.0, max_hz: float = F_CENTRE * 100.0,
-                    max_freqs: int = 3, dc: bool = True) -> st.SearchStrategy:
+def generated_cases(
+    family: str | None = None,
+    min_nodes: int = 2,
+    max_nodes: int = 8,
+    kinds: str = ALL_KINDS,
+    decades: float = 1.0,
+    min_hz: float = F_CENTRE / 100.0,
+    max_hz: float = F_CENTRE * 100.0,
+    max_freqs: int = 3,
+    dc: bool = True,
+) -> st.SearchStrategy:
     """``GeneratedCase`` objects (network, port, frequencies, caveat) from a topology family.
 
     ``family``: ``ladder``, ``grid``, ``random``, ``tree``, ``bridge`` or ``awkward``; ``None`` draws one of
@@ -291,8 +322,17 @@ def generated_cases(family: str | None = None, min_nodes: int = 2, max_nodes: in
     which answers may legitimately be missing. The other knobs are ``crosscheck.fuzz.generate.Knobs``'.
     """
     try:
-        knobs = Knobs(min_nodes=min_nodes, max_nodes=max_nodes, kinds=kinds, decades=decades, min_hz=min_hz,
-                      max_hz=max_hz, max_freqs=max_freqs, dc=dc, family=family or MIXED)
+        knobs = Knobs(
+            min_nodes=min_nodes,
+            max_nodes=max_nodes,
+            kinds=kinds,
+            decades=decades,
+            min_hz=min_hz,
+            max_hz=max_hz,
+            max_freqs=max_freqs,
+            dc=dc,
+            family=family or MIXED,
+        )
     except ValueError as exc:
         raise InvalidArgument(str(exc)) from None
     if family is None:
@@ -301,8 +341,9 @@ def generated_cases(family: str | None = None, min_nodes: int = 2, max_nodes: in
         chosen = st.sampled_from(FAMILIES)
     else:
         chosen = st.just(family)
-    return st.builds(lambda seed, fam: generate_case(seed, replace(knobs, family=fam)),
-                     st.integers(0, 2**63 - 1), chosen)
+    return st.builds(
+        lambda seed, fam: generate_case(seed, replace(knobs, family=fam)), st.integers(0, 2**63 - 1), chosen
+    )
 
 
 def family_networks(family: str | None = None, **knobs) -> st.SearchStrategy[Network]:

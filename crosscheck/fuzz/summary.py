@@ -56,8 +56,6 @@ class FuzzOptions:
         return list(self.case_seeds) if self.case_seeds else [case_seed(self.seed, i) for i in range(self.count)]
 
 
-
-
 @dataclass(frozen=True)
 class Reproducer:
     """A shrunk failure and the files written for it."""

@@ -85,7 +85,7 @@ class BaselineChanges:
 
     added: tuple[str, ...]
     removed: tuple[str, ...]
-    kept: tuple[str, ...]        # did not run this time (error), old entry kept
+    kept: tuple[str, ...]  # did not run this time (error), old entry kept
     moved: tuple[Moved, ...]
     points_changed: tuple[str, ...]  # cases whose frequency list changed
 
@@ -140,8 +140,10 @@ def _decode(path: Path, where: str, raw: Any) -> complex | None:
     try:
         return complex(float(raw["re"]), float(raw["im"]))
     except (TypeError, KeyError, ValueError):
-        raise BaselineError(f"{path}: {where} must be {{\"re\": …, \"im\": …}} or null (got {raw!r}); "
-                            "rewrite the baseline with --update-baseline") from None
+        raise BaselineError(
+            f'{path}: {where} must be {{"re": …, "im": …}} or null (got {raw!r}); '
+            "rewrite the baseline with --update-baseline"
+        ) from None
 
 
 def load_baseline(path: str | Path) -> Baseline:
@@ -150,30 +152,40 @@ def load_baseline(path: str | Path) -> Baseline:
     try:
         doc = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
-        raise BaselineError(f"{path}: no baseline file here; write one with "
-                            f"crosscheck verify ... --baseline {path} --update-baseline") from None
+        raise BaselineError(
+            f"{path}: no baseline file here; write one with crosscheck verify ... --baseline {path} --update-baseline"
+        ) from None
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise BaselineError(f"{path}: not a JSON baseline ({exc}); rewrite it with --update-baseline") from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT:
-        raise BaselineError(f"{path}: not a crosscheck baseline (no \"format\": \"{FORMAT}\"); "
-                            "name the right file, or write one with --update-baseline")
+        raise BaselineError(
+            f'{path}: not a crosscheck baseline (no "format": "{FORMAT}"); '
+            "name the right file, or write one with --update-baseline"
+        )
     if doc.get("format_version") != FORMAT_VERSION:
-        raise BaselineError(f"{path}: baseline format version {doc.get('format_version')!r}, this crosscheck reads "
-                            f"{FORMAT_VERSION}; rewrite it with --update-baseline")
+        raise BaselineError(
+            f"{path}: baseline format version {doc.get('format_version')!r}, this crosscheck reads "
+            f"{FORMAT_VERSION}; rewrite it with --update-baseline"
+        )
     cases: dict[str, StoredCase] = {}
     raw_cases = doc.get("cases")
     if not isinstance(raw_cases, dict):
-        raise BaselineError(f"{path}: \"cases\" must be an object keyed by case path")
+        raise BaselineError(f'{path}: "cases" must be an object keyed by case path')
     for key, entry in raw_cases.items():
         try:
             points = tuple(
-                StoredPoint(float(p["freq_hz"]),
-                            {q: _decode(path, f"cases[{key!r}] at {p['freq_hz']} Hz: {q}", p.get(q)) for q in STORED})
-                for p in entry["points"])
+                StoredPoint(
+                    float(p["freq_hz"]),
+                    {q: _decode(path, f"cases[{key!r}] at {p['freq_hz']} Hz: {q}", p.get(q)) for q in STORED},
+                )
+                for p in entry["points"]
+            )
             port = (str(entry.get("port", ("?", "?"))[0]), str(entry.get("port", ("?", "?"))[1]))
         except (TypeError, KeyError, ValueError, AttributeError, IndexError):
-            raise BaselineError(f"{path}: case {key!r} is malformed (needs points with freq_hz, vth, zth, in); "
-                                "rewrite the baseline with --update-baseline") from None
+            raise BaselineError(
+                f"{path}: case {key!r} is malformed (needs points with freq_hz, vth, zth, in); "
+                "rewrite the baseline with --update-baseline"
+            ) from None
         cases[key] = StoredCase(entry.get("case_sha256"), entry.get("netlist_sha256"), port, points)
     return Baseline(str(doc.get("crosscheck_version", "?")), cases, path)
 
@@ -189,8 +201,9 @@ def baseline_document(baseline: Baseline, tolerance: Tolerance = BASELINE) -> di
                 "case_sha256": entry.case_sha256,
                 "netlist_sha256": entry.netlist_sha256,
                 "port": list(entry.port),
-                "points": [{"freq_hz": p.freq_hz, **{q: _encode(p.values.get(q)) for q in STORED}}
-                           for p in entry.points],
+                "points": [
+                    {"freq_hz": p.freq_hz, **{q: _encode(p.values.get(q)) for q in STORED}} for p in entry.points
+                ],
             }
             for key, entry in sorted(baseline.cases.items())
         },
@@ -214,8 +227,9 @@ def stored_case(result: Any) -> StoredCase:
     return StoredCase(case_hash, netlist_hash, tuple(result.port), points)
 
 
-def updated_baseline(results: Sequence[Any], path: str | Path,
-                     previous: Baseline | None = None) -> tuple[Baseline, tuple[str, ...]]:
+def updated_baseline(
+    results: Sequence[Any], path: str | Path, previous: Baseline | None = None
+) -> tuple[Baseline, tuple[str, ...]]:
     """The baseline this run would write, and the cases whose previous entry is kept because they
     produced no equivalents this time (an error)."""
     new = Baseline(__version__, path=Path(path))
@@ -247,13 +261,17 @@ def _show(q: str, z: complex | None) -> str:
     return "none" if z is None else format_rect(z, 10, quantity_unit(q))
 
 
-def drift_checks(own: Sequence[Equivalent], stored: StoredCase, tolerance: Tolerance = BASELINE,
-                 changed_input: bool = False) -> tuple[list[DriftCheck], list[str]]:
+def drift_checks(
+    own: Sequence[Equivalent], stored: StoredCase, tolerance: Tolerance = BASELINE, changed_input: bool = False
+) -> tuple[list[DriftCheck], list[str]]:
     """Each stored quantity against this run; notes for frequencies only one side has."""
     checks: list[DriftCheck] = []
     notes: list[str] = []
-    why = ("; the case file or netlist changed since the baseline was written, so the change may be intended"
-           if changed_input else "; the case is unchanged, so the solver's answer itself moved")
+    why = (
+        "; the case file or netlist changed since the baseline was written, so the change may be intended"
+        if changed_input
+        else "; the case is unchanged, so the solver's answer itself moved"
+    )
     new_freqs = []
     for eq in own:
         point = stored.point(eq.freq_hz)
@@ -263,28 +281,48 @@ def drift_checks(own: Sequence[Equivalent], stored: StoredCase, tolerance: Toler
         for q, obtained in (("vth", eq.vth), ("zth", eq.zth), ("in", eq.in_)):
             old = point.values.get(q)
             rel, ok = _judge(old, obtained, tolerance)
-            text = "" if ok else (
-                f"{quantity_name(q)} at {format_eng(eq.freq_hz, 6, ' Hz')} moved from {_show(q, old)} to "
-                f"{_show(q, obtained)} (relative change {rel:.3g}, baseline tolerance {tolerance.rel:.3g}){why}")
-            checks.append(DriftCheck(eq.freq_hz, q, old, obtained, rel, Verdict.PASS if ok else Verdict.DRIFT, text,
-                                     Cause.AGREES if ok else Cause.OUT_OF_TOLERANCE))
-    gone = [p.freq_hz for p in stored.points if not any(
-        same_frequency(p.freq_hz, eq.freq_hz) for eq in own)]
+            text = (
+                ""
+                if ok
+                else (
+                    f"{quantity_name(q)} at {format_eng(eq.freq_hz, 6, ' Hz')} moved from {_show(q, old)} to "
+                    f"{_show(q, obtained)} (relative change {rel:.3g}, baseline tolerance {tolerance.rel:.3g}){why}"
+                )
+            )
+            checks.append(
+                DriftCheck(
+                    eq.freq_hz,
+                    q,
+                    old,
+                    obtained,
+                    rel,
+                    Verdict.PASS if ok else Verdict.DRIFT,
+                    text,
+                    Cause.AGREES if ok else Cause.OUT_OF_TOLERANCE,
+                )
+            )
+    gone = [p.freq_hz for p in stored.points if not any(same_frequency(p.freq_hz, eq.freq_hz) for eq in own)]
     if new_freqs:
-        notes.append(f"{len(new_freqs)} frequency(ies) not in the baseline (first {format_eng(new_freqs[0], 6, ' Hz')})"
-                     "; add them with --update-baseline")
+        notes.append(
+            f"{len(new_freqs)} frequency(ies) not in the baseline (first {format_eng(new_freqs[0], 6, ' Hz')})"
+            "; add them with --update-baseline"
+        )
     if gone:
         notes.append(f"{len(gone)} baseline frequency(ies) no longer computed (first {format_eng(gone[0], 6, ' Hz')})")
     if changed_input:
         notes.append("the case file or netlist changed since the baseline was written")
     if any(c.verdict == "drift" for c in checks):
-        notes.append("accept the new values with --update-baseline if the change is intended" if changed_input
-                     else "find out why before accepting the new values with --update-baseline")
+        notes.append(
+            "accept the new values with --update-baseline if the change is intended"
+            if changed_input
+            else "find out why before accepting the new values with --update-baseline"
+        )
     return checks, notes
 
 
-def compare_with_baseline(result: Any, baseline: Baseline,
-                          tolerance: Tolerance = BASELINE) -> tuple[list[DriftCheck], str]:
+def compare_with_baseline(
+    result: Any, baseline: Baseline, tolerance: Tolerance = BASELINE
+) -> tuple[list[DriftCheck], str]:
     """Drift records for one case result and a note (a case missing from the baseline is a note only)."""
     if result.own is None:
         return [], ""
@@ -294,15 +332,16 @@ def compare_with_baseline(result: Any, baseline: Baseline,
     if stored is None:
         return [], f"not in the baseline {baseline_path} (as {key!r}); add it with --update-baseline"
     case_hash, netlist_hash = case_hashes(result.case)
-    changed = ((stored.case_sha256 is not None and case_hash is not None and stored.case_sha256 != case_hash)
-               or (stored.netlist_sha256 is not None and netlist_hash is not None
-                   and stored.netlist_sha256 != netlist_hash))
+    changed = (stored.case_sha256 is not None and case_hash is not None and stored.case_sha256 != case_hash) or (
+        stored.netlist_sha256 is not None and netlist_hash is not None and stored.netlist_sha256 != netlist_hash
+    )
     checks, notes = drift_checks(result.own, stored, tolerance, changed)
     return checks, "; ".join(notes)
 
 
-def diff_baselines(old: Baseline | None, new: Baseline, kept: Iterable[str] = (),
-                   tolerance: Tolerance = BASELINE) -> BaselineChanges:
+def diff_baselines(
+    old: Baseline | None, new: Baseline, kept: Iterable[str] = (), tolerance: Tolerance = BASELINE
+) -> BaselineChanges:
     """What replacing ``old`` by ``new`` changes, quantity by quantity beyond ``tolerance``."""
     old_cases = old.cases if old is not None else {}
     added = tuple(sorted(set(new.cases) - set(old_cases)))
@@ -326,15 +365,23 @@ def diff_baselines(old: Baseline | None, new: Baseline, kept: Iterable[str] = ()
 
 def format_changes(changes: BaselineChanges, path: str | Path) -> list[str]:
     """Lines for the terminal: what the written baseline changed."""
-    lines = [f"baseline {path}: " + ("no changes beyond tolerance" if changes.empty else
-                                     f"{len(changes.added)} case(s) added, {len(changes.removed)} removed, "
-                                     f"{len(changes.moved)} quantity(ies) moved, "
-                                     f"{len(changes.points_changed)} frequency list(s) changed")]
+    lines = [
+        f"baseline {path}: "
+        + (
+            "no changes beyond tolerance"
+            if changes.empty
+            else f"{len(changes.added)} case(s) added, {len(changes.removed)} removed, "
+            f"{len(changes.moved)} quantity(ies) moved, "
+            f"{len(changes.points_changed)} frequency list(s) changed"
+        )
+    ]
     lines += [f"  added    {k}" for k in changes.added]
     lines += [f"  removed  {k}" for k in changes.removed]
     lines += [f"  kept     {k} (did not run this time; previous entry kept)" for k in changes.kept]
     lines += [f"  frequencies changed  {k}" for k in changes.points_changed]
-    lines += [f"  moved    {m.case} at {format_eng(m.freq_hz, 6, ' Hz')} {quantity_name(m.quantity)}: "
-              f"{_show(m.quantity, m.old)} → {_show(m.quantity, m.new)} (relative change {m.rel_err:.3g})"
-              for m in changes.moved]
+    lines += [
+        f"  moved    {m.case} at {format_eng(m.freq_hz, 6, ' Hz')} {quantity_name(m.quantity)}: "
+        f"{_show(m.quantity, m.old)} → {_show(m.quantity, m.new)} (relative change {m.rel_err:.3g})"
+        for m in changes.moved
+    ]
     return lines

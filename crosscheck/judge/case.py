@@ -18,8 +18,9 @@ from crosscheck.model.network import Network
 from crosscheck.vocabulary import Verdict
 
 
-def judged(result: CaseResult, network: Network | None, *, compare: bool = True,
-           baseline: Baseline | None = None) -> CaseResult:
+def judged(
+    result: CaseResult, network: Network | None, *, compare: bool = True, baseline: Baseline | None = None
+) -> CaseResult:
     """``result`` with every judgement made and its verdict; ``error`` when the own route gave nothing.
 
     ``compare``: hold the own route against the reference (off for an own-only run). ``network`` lets
@@ -35,7 +36,8 @@ def judged(result: CaseResult, network: Network | None, *, compare: bool = True,
     points: tuple[PointCheck, ...] = ()
     if compare:
         refs: list[EngineAnswer | None] = (
-            [spice_answer(p) for p in result.spice.points] if result.spice is not None else [None] * len(result.own))
+            [spice_answer(p) for p in result.spice.points] if result.spice is not None else [None] * len(result.own)
+        )
         points = tuple(compare_point(o, r, result.tolerance, result.spice_note) for o, r in zip(result.own, refs))
     new = replace(result, expectations=expectations, limits=limits, points=points)
     if baseline is not None:

@@ -78,21 +78,48 @@ def _scale(eq: Equivalent, quantity: str) -> float:
     return abs(eq.in_) if eq.in_ is not None else 0.0
 
 
-def compare_quantity(quantity: str, own: complex | None, ref: complex | None, tol: Tolerance,
-                     condition: float, scale: float, own_note: str = "", ref_note: str = "",
-                     ref_name: str = "SPICE") -> QuantityCheck:
+def compare_quantity(
+    quantity: str,
+    own: complex | None,
+    ref: complex | None,
+    tol: Tolerance,
+    condition: float,
+    scale: float,
+    own_note: str = "",
+    ref_note: str = "",
+    ref_name: str = "SPICE",
+) -> QuantityCheck:
     """One quantity at one frequency: judged error, display errors, verdict and the reason."""
     if own is None and ref is None:
         why = own_note or ref_note or "no value from either engine"
-        return QuantityCheck(quantity, None, None, math.nan, math.nan, math.nan, math.nan, Verdict.PASS,
-                             f"both engines agree that {quantity} does not exist here: {why}", Cause.BOTH_ABSENT)
+        return QuantityCheck(
+            quantity,
+            None,
+            None,
+            math.nan,
+            math.nan,
+            math.nan,
+            math.nan,
+            Verdict.PASS,
+            f"both engines agree that {quantity} does not exist here: {why}",
+            Cause.BOTH_ABSENT,
+        )
     if own is None or ref is None:
         who, why = ("crosscheck", own_note) if own is None else (ref_name, ref_note)
         if own is None and ref is not None and ref_note == "" and own_note:
             why = own_note
-        return QuantityCheck(quantity, own, ref, math.nan, math.nan, math.nan, math.nan, Verdict.UNAVAILABLE,
-                             f"{who} gives no {quantity}: {why or 'no reason given'}",
-                             Cause.OWN_ABSENT if own is None else Cause.REFERENCE_ABSENT)
+        return QuantityCheck(
+            quantity,
+            own,
+            ref,
+            math.nan,
+            math.nan,
+            math.nan,
+            math.nan,
+            Verdict.UNAVAILABLE,
+            f"{who} gives no {quantity}: {why or 'no reason given'}",
+            Cause.OWN_ABSENT if own is None else Cause.REFERENCE_ABSENT,
+        )
     delta = abs(own - ref)
     roundoff = ROUNDOFF_FACTOR * condition * EPS * scale if math.isfinite(condition) else 0.0
     floor = max(tol.abs, roundoff) / tol.rel if tol.rel > 0 else 0.0
@@ -105,46 +132,72 @@ def compare_quantity(quantity: str, own: complex | None, ref: complex | None, to
     if ok:
         if rel <= tol.rel:
             return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, "", Cause.AGREES)
-        note = (f"agrees to the accuracy the arithmetic allows (|Δ| = {delta:.3g} {quantity_unit(quantity)} is within "
-                f"1e3·κ·ε·‖x‖ = {roundoff:.3g} for condition κ = {condition:.3g}; 1e3 is the growth ngspice's "
-                "threshold pivoting allows)")
+        note = (
+            f"agrees to the accuracy the arithmetic allows (|Δ| = {delta:.3g} {quantity_unit(quantity)} is within "
+            f"1e3·κ·ε·‖x‖ = {roundoff:.3g} for condition κ = {condition:.3g}; 1e3 is the growth ngspice's "
+            "threshold pivoting allows)"
+        )
         return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, note, Cause.AGREES_TO_ROUNDOFF)
     cause, reason = _failure_reason(quantity, err, tol, condition, mag, phase)
     return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.FAIL, reason, cause)
 
 
-def _failure_reason(quantity: str, err: float, tol: Tolerance, condition: float, mag: float,
-                    phase: float) -> tuple[Cause, str]:
-    text = (f"{quantity} differs by {err:.3g} relative (tolerance {tol.rel:.3g}); magnitude {mag:+.3g} %, "
-            f"phase {phase:+.3g}°")
+def _failure_reason(
+    quantity: str, err: float, tol: Tolerance, condition: float, mag: float, phase: float
+) -> tuple[Cause, str]:
+    text = (
+        f"{quantity} differs by {err:.3g} relative (tolerance {tol.rel:.3g}); magnitude {mag:+.3g} %, "
+        f"phase {phase:+.3g}°"
+    )
     attainable = condition * EPS
     if attainable > tol.rel:
         return Cause.ILL_CONDITIONED, text + (
             f". The network is ill-conditioned (κ = {condition:.3g}, so κ·ε = {attainable:.2g} exceeds the "
             "tolerance): double precision cannot promise this agreement; loosen the tolerance or rescale "
-            "the network (very large and very small impedances side by side)")
+            "the network (very large and very small impedances side by side)"
+        )
     if attainable * 1e3 > err:
         return Cause.FITS_CONDITION, text + (
-            f". The size fits the matrix condition (κ = {condition:.3g}): likely roundoff, not a modelling error")
+            f". The size fits the matrix condition (κ = {condition:.3g}): likely roundoff, not a modelling error"
+        )
     return Cause.MODEL_DIFFERENCE, text + (
         f". Far above what the condition allows (κ·ε = {attainable:.2g}): the engines model the network "
-        "differently; inspect the netlist for an element either engine reads another way")
+        "differently; inspect the netlist for an element either engine reads another way"
+    )
 
 
-def compare_point(own: Equivalent, ref: EngineAnswer | None, tol: Tolerance, ref_note: str = "",
-                  ref_name: str = "SPICE") -> PointCheck:
+def compare_point(
+    own: Equivalent, ref: EngineAnswer | None, tol: Tolerance, ref_note: str = "", ref_name: str = "SPICE"
+) -> PointCheck:
     """All compared quantities at one frequency, and the point's verdict."""
     if ref is None:
         checks = tuple(
-            QuantityCheck(q, phasor_of(own, q), None, math.nan, math.nan, math.nan, math.nan, Verdict.UNAVAILABLE,
-                          f"{ref_name} gives no answer: {ref_note or 'not run'}", Cause.REFERENCE_NOT_RUN)
+            QuantityCheck(
+                q,
+                phasor_of(own, q),
+                None,
+                math.nan,
+                math.nan,
+                math.nan,
+                math.nan,
+                Verdict.UNAVAILABLE,
+                f"{ref_name} gives no answer: {ref_note or 'not run'}",
+                Cause.REFERENCE_NOT_RUN,
+            )
             for q in COMPARED
         )
-        return PointCheck(own.freq_hz, checks, Verdict.UNAVAILABLE, f"{ref_name}: {ref_note or 'not run'}",
-                          own.condition, Cause.REFERENCE_NOT_RUN)
+        return PointCheck(
+            own.freq_hz,
+            checks,
+            Verdict.UNAVAILABLE,
+            f"{ref_name}: {ref_note or 'not run'}",
+            own.condition,
+            Cause.REFERENCE_NOT_RUN,
+        )
     checks = tuple(
-        compare_quantity(q, phasor_of(own, q), ref.get(q), tol, own.condition, _scale(own, q),
-                         own.note, ref.note, ref_name)
+        compare_quantity(
+            q, phasor_of(own, q), ref.get(q), tol, own.condition, _scale(own, q), own.note, ref.note, ref_name
+        )
         for q in COMPARED
     )
     verdict = worst(c.verdict for c in checks)
@@ -153,7 +206,8 @@ def compare_point(own: Equivalent, ref: EngineAnswer | None, tol: Tolerance, ref
     return PointCheck(own.freq_hz, checks, verdict, explanation, own.condition, same[0].cause)
 
 
-def compare_sweep(own: Sequence[Equivalent], ref: Sequence[EngineAnswer | None], tol: Tolerance,
-                  ref_note: str = "") -> tuple[PointCheck, ...]:
+def compare_sweep(
+    own: Sequence[Equivalent], ref: Sequence[EngineAnswer | None], tol: Tolerance, ref_note: str = ""
+) -> tuple[PointCheck, ...]:
     """Point by point; ``ref`` is None at points where the reference gave no answer."""
     return tuple(compare_point(o, r, tol, ref_note) for o, r in zip(own, ref))

@@ -40,8 +40,9 @@ def closest(own: Sequence[Equivalent], freq_hz: float) -> Equivalent | None:
     return best if same_frequency(best.freq_hz, freq_hz) else None
 
 
-def check_expectations(case: Case, own_equivalents: Sequence[Equivalent],
-                       network: Network | None = None) -> list[ExpectationCheck]:
+def check_expectations(
+    case: Case, own_equivalents: Sequence[Equivalent], network: Network | None = None
+) -> list[ExpectationCheck]:
     """Every stated value of every [[expect]] table against the own solver, one record per value.
 
     ``network`` (the case's parsed network) lets a failing value be explained by a slip; when it is not
@@ -56,32 +57,82 @@ def check_expectations(case: Case, own_equivalents: Sequence[Equivalent],
     return checks
 
 
-def _check_one(case: Case, expectation: Expectation, quantity: str, stated: complex, eq: Equivalent | None,
-               port: Port, network: Network | None) -> ExpectationCheck:
+def _check_one(
+    case: Case,
+    expectation: Expectation,
+    quantity: str,
+    stated: complex,
+    eq: Equivalent | None,
+    port: Port,
+    network: Network | None,
+) -> ExpectationCheck:
     tol = expectation.tolerance
     at = format_eng(expectation.at_hz, 4, " Hz")
     label = f"{quantity_name(quantity)} at {at}"
     nan = math.nan
     if eq is None:
-        return ExpectationCheck(expectation.index, expectation.at_hz, quantity, stated, None, nan, nan, nan, nan,
-                                Verdict.UNAVAILABLE, None,
-                                f"{label}: crosscheck computed no point at this frequency; add it to the case's "
-                                "frequencies", expectation.how, Cause.NO_VALUE)
+        return ExpectationCheck(
+            expectation.index,
+            expectation.at_hz,
+            quantity,
+            stated,
+            None,
+            nan,
+            nan,
+            nan,
+            nan,
+            Verdict.UNAVAILABLE,
+            None,
+            f"{label}: crosscheck computed no point at this frequency; add it to the case's frequencies",
+            expectation.how,
+            Cause.NO_VALUE,
+        )
     obtained, why_none = quantity_value(eq, quantity)
     if obtained is None:
         verdict = Verdict.UNAVAILABLE if quantity in SERIES and eq.freq_hz == 0 else Verdict.FAIL
-        text = (f"{label}: the hand value {format_value(quantity, stated)} cannot be checked: {why_none}"
-                if verdict == Verdict.UNAVAILABLE else
-                f"{label}: stated {format_value(quantity, stated)}, but crosscheck finds none: {why_none}")
-        return ExpectationCheck(expectation.index, expectation.at_hz, quantity, stated, None, nan, nan, nan, nan,
-                                verdict, None, text, expectation.how, Cause.NO_VALUE)
+        text = (
+            f"{label}: the hand value {format_value(quantity, stated)} cannot be checked: {why_none}"
+            if verdict == Verdict.UNAVAILABLE
+            else f"{label}: stated {format_value(quantity, stated)}, but crosscheck finds none: {why_none}"
+        )
+        return ExpectationCheck(
+            expectation.index,
+            expectation.at_hz,
+            quantity,
+            stated,
+            None,
+            nan,
+            nan,
+            nan,
+            nan,
+            verdict,
+            None,
+            text,
+            expectation.how,
+            Cause.NO_VALUE,
+        )
     d = deviation(stated, obtained, tol)
     if d.within:
-        return ExpectationCheck(expectation.index, expectation.at_hz, quantity, stated, obtained, d.rel_err,
-                                d.mag_err_pct, d.mag_err_db, d.phase_err_deg, Verdict.PASS, None, "", expectation.how)
-    text = (f"{label}: stated {format_value(quantity, stated)}, crosscheck {format_value(quantity, obtained)}: "
-            f"off by {signed(d.mag_err_pct)} % ({signed(d.mag_err_db)} dB) in magnitude and "
-            f"{signed(d.phase_err_deg)}° in phase (tolerance {format_tolerance(tol)})")
+        return ExpectationCheck(
+            expectation.index,
+            expectation.at_hz,
+            quantity,
+            stated,
+            obtained,
+            d.rel_err,
+            d.mag_err_pct,
+            d.mag_err_db,
+            d.phase_err_deg,
+            Verdict.PASS,
+            None,
+            "",
+            expectation.how,
+        )
+    text = (
+        f"{label}: stated {format_value(quantity, stated)}, crosscheck {format_value(quantity, obtained)}: "
+        f"off by {signed(d.mag_err_pct)} % ({signed(d.mag_err_db)} dB) in magnitude and "
+        f"{signed(d.phase_err_deg)}° in phase (tolerance {format_tolerance(tol)})"
+    )
     if why_none:
         text += f". Note: {why_none}"
     slip_name = None
@@ -91,20 +142,33 @@ def _check_one(case: Case, expectation: Expectation, quantity: str, stated: comp
         text += f". Likely slip: {found.name}: {found.sentence}"
     else:
         text += ". None of the usual slips reproduces the stated value; recheck the working step by step"
-    return ExpectationCheck(expectation.index, expectation.at_hz, quantity, stated, obtained, d.rel_err,
-                            d.mag_err_pct, d.mag_err_db, d.phase_err_deg, Verdict.FAIL, slip_name, text,
-                            expectation.how, Cause.SLIP if found is not None else Cause.OUT_OF_TOLERANCE)
+    return ExpectationCheck(
+        expectation.index,
+        expectation.at_hz,
+        quantity,
+        stated,
+        obtained,
+        d.rel_err,
+        d.mag_err_pct,
+        d.mag_err_db,
+        d.phase_err_deg,
+        Verdict.FAIL,
+        slip_name,
+        text,
+        expectation.how,
+        Cause.SLIP if found is not None else Cause.OUT_OF_TOLERANCE,
+    )
 
 
-def _diagnose(case: Case, network: Network | None, port: Port, quantity: str, stated: complex, eq: Equivalent,
-              tol: Tolerance) -> Slip | None:
+def _diagnose(
+    case: Case, network: Network | None, port: Port, quantity: str, stated: complex, eq: Equivalent, tol: Tolerance
+) -> Slip | None:
     """The usual slip that reproduces the stated value, if one does (the network is read again if needed)."""
     if network is None:
         try:
-            network = read_netlist(case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative,
-                                   port=port)
+            network = read_netlist(
+                case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative, port=port
+            )
         except CrosscheckError:
             return None
     return diagnose(network, port, quantity, stated, eq, tol, case.sources)
-
-

@@ -67,22 +67,47 @@ def _in_band(f: float, band: tuple[float, float] | None) -> bool:
 def check_limit(limit: Limit, own_equivalents: Sequence[Equivalent]) -> LimitCheck:
     """One limit over its band: pass, fail (with the worst point and how far out), or unavailable (why)."""
     u = unit(limit.function, limit.quantity)
-    band_text = ("every computed frequency" if limit.band is None else
-                 f"{format_eng(limit.band[0], 4, ' Hz')} to {format_eng(limit.band[1], 4, ' Hz')}")
+    band_text = (
+        "every computed frequency"
+        if limit.band is None
+        else f"{format_eng(limit.band[0], 4, ' Hz')} to {format_eng(limit.band[1], 4, ' Hz')}"
+    )
     head = f"{_bounds(limit, u)} over {band_text}"
 
-    def result(verdict: Verdict, worst_f: float | None = None, worst_v: float | None = None,
-               m: float | None = None, why: str = "", values: Sequence[tuple[float, float]] = ()) -> LimitCheck:
+    def result(
+        verdict: Verdict,
+        worst_f: float | None = None,
+        worst_v: float | None = None,
+        m: float | None = None,
+        why: str = "",
+        values: Sequence[tuple[float, float]] = (),
+    ) -> LimitCheck:
         cause = {Verdict.PASS: Cause.LIMIT_HOLDS, Verdict.FAIL: Cause.LIMIT_BROKEN}.get(verdict, Cause.NO_VALUE)
-        return LimitCheck(limit.index, limit.text, limit.function, limit.quantity, limit.minimum, limit.maximum,
-                          limit.band, worst_f, worst_v, m, verdict, why, tuple(values), cause)
+        return LimitCheck(
+            limit.index,
+            limit.text,
+            limit.function,
+            limit.quantity,
+            limit.minimum,
+            limit.maximum,
+            limit.band,
+            worst_f,
+            worst_v,
+            m,
+            verdict,
+            why,
+            tuple(values),
+            cause,
+        )
 
     if limit.band is not None and limit.band[0] > limit.band[1]:
         return result(Verdict.UNAVAILABLE, why=f"{head}: the band's low edge is above its high edge; write [low, high]")
     points = [eq for eq in own_equivalents if _in_band(eq.freq_hz, limit.band)]
     if not points:
-        return result(Verdict.UNAVAILABLE, why=f"{head}: no computed frequency lies in the band; add frequencies "
-                                         "(or a sweep) that cover it")
+        return result(
+            Verdict.UNAVAILABLE,
+            why=f"{head}: no computed frequency lies in the band; add frequencies (or a sweep) that cover it",
+        )
     values: list[tuple[float, float]] = []
     missing: list[tuple[float, str]] = []
     for eq in points:
@@ -93,23 +118,40 @@ def check_limit(limit: Limit, own_equivalents: Sequence[Equivalent]) -> LimitChe
             values.append((eq.freq_hz, evaluate(limit.function, q)))
     if not values:
         f, why = missing[0]
-        return result(Verdict.UNAVAILABLE, why=f"{head}: {limit.quantity} does not exist at any frequency of the band "
-                                         f"(at {format_eng(f, 4, ' Hz')}: {why})")
+        return result(
+            Verdict.UNAVAILABLE,
+            why=f"{head}: {limit.quantity} does not exist at any frequency of the band "
+            f"(at {format_eng(f, 4, ' Hz')}: {why})",
+        )
     worst_f, worst_v = min(values, key=lambda fv: margin(fv[1], limit.minimum, limit.maximum))
     m = margin(worst_v, limit.minimum, limit.maximum)
     where = f"worst at {format_eng(worst_f, 4, ' Hz')}: {format_eng(worst_v, 5, ' ' + u)}"
     if m < 0 or math.isnan(m):
         outside = sum(1 for _, v in values if not margin(v, limit.minimum, limit.maximum) >= 0)
-        return result(Verdict.FAIL, worst_f, worst_v, m,
-                      f"{head}: not met at {outside} of {len(values)} frequencies; {where}, "
-                      f"{format_eng(-m, 4, ' ' + u)} outside the bound", values)
+        return result(
+            Verdict.FAIL,
+            worst_f,
+            worst_v,
+            m,
+            f"{head}: not met at {outside} of {len(values)} frequencies; {where}, "
+            f"{format_eng(-m, 4, ' ' + u)} outside the bound",
+            values,
+        )
     if missing:
         f, why = missing[0]
-        return result(Verdict.UNAVAILABLE, worst_f, worst_v, m,
-                      f"{head}: met where it exists ({where}, margin {format_eng(m, 4, ' ' + u)}), but "
-                      f"{limit.quantity} does not exist at {len(missing)} frequency(ies) of the band "
-                      f"(at {format_eng(f, 4, ' Hz')}: {why})", values)
-    return result(Verdict.PASS, worst_f, worst_v, m, f"{head}: met; {where}, margin {format_eng(m, 4, ' ' + u)}", values)
+        return result(
+            Verdict.UNAVAILABLE,
+            worst_f,
+            worst_v,
+            m,
+            f"{head}: met where it exists ({where}, margin {format_eng(m, 4, ' ' + u)}), but "
+            f"{limit.quantity} does not exist at {len(missing)} frequency(ies) of the band "
+            f"(at {format_eng(f, 4, ' Hz')}: {why})",
+            values,
+        )
+    return result(
+        Verdict.PASS, worst_f, worst_v, m, f"{head}: met; {where}, margin {format_eng(m, 4, ' ' + u)}", values
+    )
 
 
 def check_limits(case: Case, own_equivalents: Sequence[Equivalent]) -> list[LimitCheck]:

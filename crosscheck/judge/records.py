@@ -16,25 +16,25 @@ from crosscheck.vocabulary import Verdict
 class Cause(StrEnum):
     """Why a judgement came out as it did."""
 
-    AGREES = "agrees"                          # within tolerance on its own terms
+    AGREES = "agrees"  # within tolerance on its own terms
     AGREES_TO_ROUNDOFF = "agrees-to-roundoff"  # within what the matrix condition allows, not within rel alone
-    BOTH_ABSENT = "both-absent"                # neither engine has the quantity (a degenerate port)
-    OWN_ABSENT = "own-absent"                  # crosscheck gives no value
-    REFERENCE_ABSENT = "reference-absent"      # the reference gives no value at this point
-    REFERENCE_NOT_RUN = "reference-not-run"    # the reference did not answer for the case
-    ILL_CONDITIONED = "ill-conditioned"        # κ·ε exceeds the tolerance: double precision cannot promise it
-    FITS_CONDITION = "fits-condition"          # the difference is the size the matrix condition allows
-    MODEL_DIFFERENCE = "model-difference"      # far above the condition: the engines model the network differently
-    OUT_OF_TOLERANCE = "out-of-tolerance"      # a hand value or a baseline value outside its tolerance
-    SLIP = "slip"                              # a hand value that a named usual slip reproduces
-    NO_VALUE = "no-value"                      # the quantity does not exist here (expectations, limits, drift)
+    BOTH_ABSENT = "both-absent"  # neither engine has the quantity (a degenerate port)
+    OWN_ABSENT = "own-absent"  # crosscheck gives no value
+    REFERENCE_ABSENT = "reference-absent"  # the reference gives no value at this point
+    REFERENCE_NOT_RUN = "reference-not-run"  # the reference did not answer for the case
+    ILL_CONDITIONED = "ill-conditioned"  # κ·ε exceeds the tolerance: double precision cannot promise it
+    FITS_CONDITION = "fits-condition"  # the difference is the size the matrix condition allows
+    MODEL_DIFFERENCE = "model-difference"  # far above the condition: the engines model the network differently
+    OUT_OF_TOLERANCE = "out-of-tolerance"  # a hand value or a baseline value outside its tolerance
+    SLIP = "slip"  # a hand value that a named usual slip reproduces
+    NO_VALUE = "no-value"  # the quantity does not exist here (expectations, limits, drift)
     LIMIT_HOLDS = "limit-holds"
     LIMIT_BROKEN = "limit-broken"
     NOT_IN_BASELINE = "not-in-baseline"
     # What accounts for a generated case's failure or missing value (the fuzzer's reading):
-    NGSPICE_ROUNDOFF = "ngspice-roundoff"        # within ngspice's own attainable accuracy (threshold pivoting)
+    NGSPICE_ROUNDOFF = "ngspice-roundoff"  # within ngspice's own attainable accuracy (threshold pivoting)
     NGSPICE_PIVOT_ORDER = "ngspice-pivot-order"  # agrees when ngspice runs the frequency alone
-    EXPECTED_FOR_CASE = "expected-for-case"      # the generator's caveat for the case says why
+    EXPECTED_FOR_CASE = "expected-for-case"  # the generator's caveat for the case says why
 
 
 #: Causes that say a failure is the size the arithmetic allows, not a modelling difference.
@@ -48,8 +48,8 @@ class QuantityCheck:
     quantity: str
     own: complex | None
     ref: complex | None
-    err: float          # judged error (see ``compare``); nan when not compared
-    rel_err: float      # plain |Δ| / |q_ref|, for display
+    err: float  # judged error (see ``compare``); nan when not compared
+    rel_err: float  # plain |Δ| / |q_ref|, for display
     mag_err_pct: float
     phase_err_deg: float
     verdict: Verdict
@@ -73,19 +73,19 @@ class PointCheck:
 class ExpectationCheck:
     """One hand-calculated value against crosscheck's own solver at one frequency."""
 
-    index: int               # 1-based position of the [[expect]] table in the case file
+    index: int  # 1-based position of the [[expect]] table in the case file
     at_hz: float
-    quantity: str            # vth, zth, in, yn, series_r, series_l, series_c
+    quantity: str  # vth, zth, in, yn, series_r, series_l, series_c
     expected: complex
     obtained: complex | None
-    rel_err: float           # |obtained − expected| / |obtained|
-    mag_err_pct: float       # (|expected| − |obtained|) / |obtained| · 100
-    mag_err_db: float        # 20·log10(|expected| / |obtained|)
-    phase_err_deg: float     # ∠expected − ∠obtained, wrapped to (−180, 180]
-    verdict: Verdict         # pass, fail, unavailable
-    slip: str | None         # the usual hand-calculation slip that explains the number, if one does
+    rel_err: float  # |obtained − expected| / |obtained|
+    mag_err_pct: float  # (|expected| − |obtained|) / |obtained| · 100
+    mag_err_db: float  # 20·log10(|expected| / |obtained|)
+    phase_err_deg: float  # ∠expected − ∠obtained, wrapped to (−180, 180]
+    verdict: Verdict  # pass, fail, unavailable
+    slip: str | None  # the usual hand-calculation slip that explains the number, if one does
     explanation: str
-    how: str = ""            # how the hand value was obtained, as the case file says
+    how: str = ""  # how the hand value was obtained, as the case file says
     cause: Cause = Cause.AGREES
 
 
@@ -94,7 +94,7 @@ class LimitCheck:
     """One design limit over its band: the worst point and the margin left."""
 
     index: int
-    text: str                # as written, e.g. "abs(zth)"
+    text: str  # as written, e.g. "abs(zth)"
     function: str
     quantity: str
     minimum: float | None
@@ -102,8 +102,8 @@ class LimitCheck:
     band: tuple[float, float] | None
     worst_freq_hz: float | None
     worst_value: float | None
-    margin: float | None     # distance inside (+) or outside (−) the nearest bound, in the quantity's unit
-    verdict: Verdict         # pass, fail, unavailable
+    margin: float | None  # distance inside (+) or outside (−) the nearest bound, in the quantity's unit
+    verdict: Verdict  # pass, fail, unavailable
     explanation: str
     values: tuple[tuple[float, float], ...] = ()  # (freq_hz, value) over the band, for plots
     cause: Cause = Cause.LIMIT_HOLDS
@@ -118,6 +118,6 @@ class DriftCheck:
     baseline: complex | None
     obtained: complex | None
     rel_err: float
-    verdict: Verdict         # pass, drift, unavailable
+    verdict: Verdict  # pass, drift, unavailable
     explanation: str
     cause: Cause = Cause.AGREES

@@ -46,7 +46,11 @@ class CaseResult:
         if self.error:
             return self.error
         parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck] = [
-            *self.points, *self.expectations, *self.limits, *self.drift]
+            *self.points,
+            *self.expectations,
+            *self.limits,
+            *self.drift,
+        ]
         notes = [p.explanation for p in parts if p.verdict == self.verdict and p.explanation]
         return notes[0] if notes else ""
 
@@ -56,14 +60,28 @@ def case_verdict(result: CaseResult) -> Verdict:
     ``error`` whenever an engine crashed on the case."""
     if result.error:
         return Verdict.ERROR
-    return worst([*(p.verdict for p in result.points), *(e.verdict for e in result.expectations),
-                  *(lim.verdict for lim in result.limits), *(d.verdict for d in result.drift)])
+    return worst(
+        [
+            *(p.verdict for p in result.points),
+            *(e.verdict for e in result.expectations),
+            *(lim.verdict for lim in result.limits),
+            *(d.verdict for d in result.drift),
+        ]
+    )
 
 
 def error_result(name: str, message: str, case: Case | None = None) -> CaseResult:
     """A case that could not be run: its input is invalid, or its worker was lost."""
     if case is None:
-        return CaseResult(name, name, ("?", "?"), (), SOLVER_VS_SPICE, error=message,
-                          verdict=Verdict.ERROR)
-    return CaseResult(case.name, case.title, case.port, case.freqs_hz, case.tolerance, case.sources,
-                      error=message, verdict=Verdict.ERROR, case=case)
+        return CaseResult(name, name, ("?", "?"), (), SOLVER_VS_SPICE, error=message, verdict=Verdict.ERROR)
+    return CaseResult(
+        case.name,
+        case.title,
+        case.port,
+        case.freqs_hz,
+        case.tolerance,
+        case.sources,
+        error=message,
+        verdict=Verdict.ERROR,
+        case=case,
+    )

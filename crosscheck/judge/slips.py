@@ -39,8 +39,8 @@ class Slip:
     name: str
     sentence: str
     value: complex
-    score: float                 # stated against the slip's value, in tolerances (<= 1)
-    also: tuple[str, ...] = ()   # other slips that reproduce the value as well
+    score: float  # stated against the slip's value, in tolerances (<= 1)
+    also: tuple[str, ...] = ()  # other slips that reproduce the value as well
 
 
 @dataclass(frozen=True)
@@ -74,8 +74,9 @@ def capacitors_conjugated(network: Network, freq_hz: float) -> Network | None:
     if freq_hz <= 0 or not network.by_kind("C"):
         return None
     w2 = (2.0 * math.pi * freq_hz) ** 2
-    return network.with_elements(replace(e, kind="L", value=1.0 / (w2 * e.value)) if e.kind == "C" else e
-                                 for e in network.elements)
+    return network.with_elements(
+        replace(e, kind="L", value=1.0 / (w2 * e.value)) if e.kind == "C" else e for e in network.elements
+    )
 
 
 def sources_zeroed_wrong_way(network: Network) -> Network | None:
@@ -105,48 +106,85 @@ def _from_network(name: str, eq: Equivalent | None, quantity: str, sentence: Cal
     return _Candidate(name, value, sentence)
 
 
-def _candidates(network: Network | None, port: Port, quantity: str, true_eq: Equivalent,
-                sources: str) -> Iterator[_Candidate]:
+def _candidates(
+    network: Network | None, port: Port, quantity: str, true_eq: Equivalent, sources: str
+) -> Iterator[_Candidate]:
     """Every hypothesis in order of preference (used only to break exact ties)."""
     yield from _network_candidates(network, port, quantity, true_eq)
     yield from _value_candidates(quantity, true_eq, sources)
 
 
-def _network_candidates(network: Network | None, port: Port, quantity: str,
-                        true_eq: Equivalent) -> Iterator[_Candidate]:
+def _network_candidates(
+    network: Network | None, port: Port, quantity: str, true_eq: Equivalent
+) -> Iterator[_Candidate]:
     """Slips in the working: the network solved again as the slip would have it."""
     f = true_eq.freq_hz
     if network is not None:
         zeroed = dependent_sources_zeroed(network)
         if zeroed is not None:
-            yield _from_network("dependent sources zeroed", _recompute(zeroed, port, f), quantity, lambda v: (
-                f"the dependent sources were set to zero, which gives {v}; controlled sources stay active for "
-                "both V_th and Z_th (only independent sources are zeroed, and only for Z_th)"))
+            yield _from_network(
+                "dependent sources zeroed",
+                _recompute(zeroed, port, f),
+                quantity,
+                lambda v: (
+                    f"the dependent sources were set to zero, which gives {v}; controlled sources stay active for "
+                    "both V_th and Z_th (only independent sources are zeroed, and only for Z_th)"
+                ),
+            )
     if quantity in ("zth", "yn") and true_eq.vth not in (None, 0) and true_eq.zth is not None:
         z_on = true_eq.vth + true_eq.zth * 1.0  # V(a) − V(b) with the sources on and a 1 A test current
-        yield _Candidate("sources not zeroed", z_on if quantity == "zth" else (1 / z_on if z_on else None),
-                         lambda v: (f"the independent sources were left on while the port was driven with a "
-                                    f"1 A test current, which gives {v}; zero them (V short, I open) before "
-                                    "finding Z_th"))
+        yield _Candidate(
+            "sources not zeroed",
+            z_on if quantity == "zth" else (1 / z_on if z_on else None),
+            lambda v: (
+                f"the independent sources were left on while the port was driven with a "
+                f"1 A test current, which gives {v}; zero them (V short, I open) before "
+                "finding Z_th"
+            ),
+        )
     if network is not None and quantity not in ("vth", "in"):
         wrong = sources_zeroed_wrong_way(network)
         if wrong is not None:
-            yield _from_network("sources zeroed the wrong way", _recompute(wrong, port, f), quantity, lambda v: (
-                f"the independent sources were zeroed the wrong way round (voltage sources opened, current "
-                f"sources shorted), which gives {v}; a zeroed voltage source is a short, a zeroed current source "
-                "an open"))
+            yield _from_network(
+                "sources zeroed the wrong way",
+                _recompute(wrong, port, f),
+                quantity,
+                lambda v: (
+                    f"the independent sources were zeroed the wrong way round (voltage sources opened, current "
+                    f"sources shorted), which gives {v}; a zeroed voltage source is a short, a zeroed current source "
+                    "an open"
+                ),
+            )
     if network is not None and f > 0:
-        yield _from_network("f used for ω", _recompute(network, port, f / (2 * math.pi)), quantity, lambda v: (
-            f"the reactances were worked with ω = f (X_L = f·L, X_C = 1/(f·C), 2π too small), which gives {v}; "
-            "use ω = 2πf"))
-        yield _from_network("2π applied twice", _recompute(network, port, 2 * math.pi * f), quantity, lambda v: (
-            f"the reactances were worked with ω = 2π·(2πf), a frequency already in rad/s multiplied by 2π again, "
-            f"which gives {v}"))
+        yield _from_network(
+            "f used for ω",
+            _recompute(network, port, f / (2 * math.pi)),
+            quantity,
+            lambda v: (
+                f"the reactances were worked with ω = f (X_L = f·L, X_C = 1/(f·C), 2π too small), which gives {v}; "
+                "use ω = 2πf"
+            ),
+        )
+        yield _from_network(
+            "2π applied twice",
+            _recompute(network, port, 2 * math.pi * f),
+            quantity,
+            lambda v: (
+                f"the reactances were worked with ω = 2π·(2πf), a frequency already in rad/s multiplied by 2π again, "
+                f"which gives {v}"
+            ),
+        )
         flipped = capacitors_conjugated(network, f)
         if flipped is not None:
-            yield _from_network("capacitive reactance sign", _recompute(flipped, port, f), quantity, lambda v: (
-                f"the capacitors were given the inductive sign (+j/(ωC) instead of −j/(ωC) = 1/(jωC)), which "
-                f"gives {v}"))
+            yield _from_network(
+                "capacitive reactance sign",
+                _recompute(flipped, port, f),
+                quantity,
+                lambda v: (
+                    f"the capacitors were given the inductive sign (+j/(ωC) instead of −j/(ωC) = 1/(jωC)), which "
+                    f"gives {v}"
+                ),
+            )
 
 
 def _value_candidates(quantity: str, true_eq: Equivalent, sources: str) -> Iterator[_Candidate]:
@@ -157,10 +195,16 @@ def _value_candidates(quantity: str, true_eq: Equivalent, sources: str) -> Itera
         return
     t = true_value
     if quantity in ("vth", "in"):
-        low = ("an RMS value where the case's sources are peak" if sources == "peak" else
-               "divided by √2 once too often (the case's sources are already RMS)")
-        high = ("a peak value where the case's sources are RMS" if sources == "rms" else
-                "multiplied by √2 once too often (the case's sources are already peak)")
+        low = (
+            "an RMS value where the case's sources are peak"
+            if sources == "peak"
+            else "divided by √2 once too often (the case's sources are already RMS)"
+        )
+        high = (
+            "a peak value where the case's sources are RMS"
+            if sources == "rms"
+            else "multiplied by √2 once too often (the case's sources are already peak)"
+        )
         yield _Candidate("RMS vs peak", t / SQRT2, lambda v: f"the value is 1/√2 of the right one ({v}): {low}")
         yield _Candidate("RMS vs peak", t * SQRT2, lambda v: f"the value is √2 times the right one ({v}): {high}")
     theta = math.degrees(cmath.phase(t))
@@ -168,28 +212,53 @@ def _value_candidates(quantity: str, true_eq: Equivalent, sources: str) -> Itera
     for turn in (0.0, 360.0 if theta < 0 else -360.0):
         angle = theta + turn
         wrapped = "" if turn == 0 else f" (carried unwrapped; wrapped it is {theta:.2f}°)"
-        yield _Candidate("degrees read as radians", cmath.rect(abs(t), math.radians(math.radians(angle))),
-                         lambda v, angle=angle, wrapped=wrapped: (  # type: ignore[misc]
-                             f"the stated angle is the true angle {angle:.2f}°{wrapped} expressed in radians "
-                             f"({math.radians(angle):.4g}) and written as degrees: {v}; convert with 180/π "
-                             "(or set the calculator to degrees)"))
+        yield _Candidate(
+            "degrees read as radians",
+            cmath.rect(abs(t), math.radians(math.radians(angle))),
+            lambda v, angle=angle, wrapped=wrapped: (  # type: ignore[misc]
+                f"the stated angle is the true angle {angle:.2f}°{wrapped} expressed in radians "
+                f"({math.radians(angle):.4g}) and written as degrees: {v}; convert with 180/π "
+                "(or set the calculator to degrees)"
+            ),
+        )
     if t.real < 0:
         atan = math.degrees(math.atan(t.imag / t.real))
-        yield _Candidate("angle off by 180° (atan for atan2)", cmath.rect(abs(t), math.radians(atan)),
-                         lambda v, atan=atan: (  # type: ignore[misc]
-                             f"the angle was taken as atan(im/re) = {atan:.2f}°, which loses the quadrant when the "
-                             f"real part is negative; atan2 gives {theta:.2f}°"))
+        yield _Candidate(
+            "angle off by 180° (atan for atan2)",
+            cmath.rect(abs(t), math.radians(atan)),
+            lambda v, atan=atan: (  # type: ignore[misc]
+                f"the angle was taken as atan(im/re) = {atan:.2f}°, which loses the quadrant when the "
+                f"real part is negative; atan2 gives {theta:.2f}°"
+            ),
+        )
     if quantity in ("vth", "in"):
-        yield _Candidate("port polarity reversed", -t, lambda v: (
-            f"{q} has the opposite sign ({v}): the port was read as V(b) − V(a), or a source or winding dot "
-            "reversed; Z_th does not change with the port's polarity"))
-    yield _Candidate("conjugate taken", t.conjugate(), lambda v: (
-        f"the value is the complex conjugate of the right one ({v}): a sign of j lost, for example "
-        "1/(a + jb) written as (a + jb)/(a² + b²)"))
+        yield _Candidate(
+            "port polarity reversed",
+            -t,
+            lambda v: (
+                f"{q} has the opposite sign ({v}): the port was read as V(b) − V(a), or a source or winding dot "
+                "reversed; Z_th does not change with the port's polarity"
+            ),
+        )
+    yield _Candidate(
+        "conjugate taken",
+        t.conjugate(),
+        lambda v: (
+            f"the value is the complex conjugate of the right one ({v}): a sign of j lost, for example "
+            "1/(a + jb) written as (a + jb)/(a² + b²)"
+        ),
+    )
 
 
-def diagnose(network: Network | None, port: Port, quantity: str, stated: complex, true_eq: Equivalent,
-             tolerance: Tolerance, sources: str = "peak") -> Slip | None:
+def diagnose(
+    network: Network | None,
+    port: Port,
+    quantity: str,
+    stated: complex,
+    true_eq: Equivalent,
+    tolerance: Tolerance,
+    sources: str = "peak",
+) -> Slip | None:
     """The slip whose value matches ``stated`` within ``tolerance`` (the closest; exact ties go to the
     first in the list), with any others that match named in ``also``; None when no slip explains it.
 

@@ -17,11 +17,11 @@ from crosscheck.vocabulary import PHASORS, phasor_of, quantity_name, quantity_un
 class Deviation:
     """How a stated value differs from a reference value, and how many tolerances that is."""
 
-    rel_err: float        # |stated − reference| / |reference|
-    mag_err_pct: float    # (|stated| − |reference|) / |reference| · 100
-    mag_err_db: float     # 20·log10(|stated| / |reference|)
+    rel_err: float  # |stated − reference| / |reference|
+    mag_err_pct: float  # (|stated| − |reference|) / |reference| · 100
+    mag_err_db: float  # 20·log10(|stated| / |reference|)
     phase_err_deg: float  # ∠stated − ∠reference, wrapped to (−180, 180]
-    score: float          # <= 1 means within tolerance
+    score: float  # <= 1 means within tolerance
 
     @property
     def within(self) -> bool:
@@ -73,13 +73,25 @@ def quantity_value(eq: Equivalent, quantity: str) -> tuple[complex | None, str]:
     if eq.freq_hz == 0:
         return None, "at DC a series L or C has no meaning (Z_th is a resistance)"
     if quantity == "series_l":
-        note = "" if x >= 0 else (f"Z_th is capacitive here (X = {format_eng(x, 4, ' Ω')}), so its series form is "
-                                  "R + C; as an inductance it is negative")
+        note = (
+            ""
+            if x >= 0
+            else (
+                f"Z_th is capacitive here (X = {format_eng(x, 4, ' Ω')}), so its series form is "
+                "R + C; as an inductance it is negative"
+            )
+        )
         return complex(x / eq.omega), note
     if x == 0:
         return None, "Z_th is purely resistive here: there is no series C"
-    note = "" if x < 0 else (f"Z_th is inductive here (X = {format_eng(x, 4, ' Ω')}), so its series form is R + L; "
-                             "as a capacitance it is negative")
+    note = (
+        ""
+        if x < 0
+        else (
+            f"Z_th is inductive here (X = {format_eng(x, 4, ' Ω')}), so its series form is R + L; "
+            "as a capacitance it is negative"
+        )
+    )
     return complex(-1.0 / (eq.omega * x)), note
 
 

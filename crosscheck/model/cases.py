@@ -153,8 +153,12 @@ def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str
     folder = path.parent.resolve()
     resolved = (folder / target).resolve()
     if not allow_outside and (target.is_absolute() or not resolved.is_relative_to(folder)):
-        raise _err(path, "netlist", f"{raw!r} lies outside the case file's folder; keep netlists beside their "
-                                    "case files, or allow it explicitly (--allow-outside-paths)")
+        raise _err(
+            path,
+            "netlist",
+            f"{raw!r} lies outside the case file's folder; keep netlists beside their "
+            "case files, or allow it explicitly (--allow-outside-paths)",
+        )
     try:
         return resolved.read_bytes().decode("utf-8"), str(path.parent / target)
     except FileNotFoundError:
@@ -166,7 +170,7 @@ def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str
 def _port(path: Path, data: dict[str, Any]) -> tuple[str, str]:
     port = data.get("port")
     if not (isinstance(port, list) and len(port) == 2 and all(isinstance(n, (str, int)) for n in port)):
-        raise _err(path, "port", f"must be two node names, like port = [\"out\", \"0\"] (got {port!r})")
+        raise _err(path, "port", f'must be two node names, like port = ["out", "0"] (got {port!r})')
     return str(port[0]), str(port[1])
 
 
@@ -176,12 +180,12 @@ def _frequencies(path: Path, data: dict[str, Any]) -> list[float]:
         raise _err(path, "frequencies", "give exactly one of frequencies = [...] or sweep = {...}")
     if has_sweep:
         if not isinstance(data["sweep"], dict):
-            raise _err(path, "sweep", "must be a table like { start = \"10\", stop = \"100k\", per_decade = 10 }")
+            raise _err(path, "sweep", 'must be a table like { start = "10", stop = "100k", per_decade = 10 }')
         freqs = sweep_frequencies(path, data["sweep"])
     else:
         raw = data["frequencies"]
         if not isinstance(raw, list) or not raw:
-            raise _err(path, "frequencies", "must be a non-empty list like [\"50\", \"1k\"]")
+            raise _err(path, "frequencies", 'must be a non-empty list like ["50", "1k"]')
         _check_count(path, "frequencies", len(raw))
         freqs = [_number(path, f"frequencies[{i}]", f) for i, f in enumerate(raw)]
     try:
@@ -197,7 +201,7 @@ def _expectations(path: Path, data: dict[str, Any], freqs: list[float]) -> list[
         if not isinstance(item, dict):
             raise _err(path, key, "each [[expect]] must be a table")
         if "at" not in item:
-            raise _err(path, key, "needs at = \"<frequency>\"")
+            raise _err(path, key, 'needs at = "<frequency>"')
         at = _number(path, f"{key}.at", item["at"])
         values: dict[str, complex] = {}
         for q in PHASORS:
@@ -226,8 +230,12 @@ def parse_limit_expression(path: Path, key: str, text: str) -> tuple[str, str]:
     for fn in LIMIT_FUNCTIONS:
         if t.startswith(fn + "(") and t.endswith(")") and t[len(fn) + 1 : -1] in PHASORS:
             return fn, t[len(fn) + 1 : -1]
-    raise _err(path, key, f"cannot read {text!r}; write one of {', '.join(f + '(zth)' for f in LIMIT_FUNCTIONS)} "
-                          f"with a quantity from {', '.join(PHASORS)}")
+    raise _err(
+        path,
+        key,
+        f"cannot read {text!r}; write one of {', '.join(f + '(zth)' for f in LIMIT_FUNCTIONS)} "
+        f"with a quantity from {', '.join(PHASORS)}",
+    )
 
 
 def _limits(path: Path, data: dict[str, Any]) -> list[Limit]:
@@ -235,7 +243,7 @@ def _limits(path: Path, data: dict[str, Any]) -> list[Limit]:
     for i, item in enumerate(data.get("limit", []), start=1):
         key = f"limit[{i}]"
         if not isinstance(item, dict) or "quantity" not in item:
-            raise _err(path, key, "each [[limit]] needs quantity = \"abs(zth)\" and a min and/or max")
+            raise _err(path, key, 'each [[limit]] needs quantity = "abs(zth)" and a min and/or max')
         fn, q = parse_limit_expression(path, f"{key}.quantity", str(item["quantity"]))
         lo = _number(path, f"{key}.min", item["min"]) if "min" in item else None
         hi = _number(path, f"{key}.max", item["max"]) if "max" in item else None
@@ -254,8 +262,20 @@ def _limits(path: Path, data: dict[str, Any]) -> list[Limit]:
     return out
 
 
-_TOP_KEYS = {"title", "netlist", "port", "frequencies", "sweep", "sources", "tolerance", "expect", "limit",
-             "allow_negative", "tags", "about"}
+_TOP_KEYS = {
+    "title",
+    "netlist",
+    "port",
+    "frequencies",
+    "sweep",
+    "sources",
+    "tolerance",
+    "expect",
+    "limit",
+    "allow_negative",
+    "tags",
+    "about",
+}
 
 
 def load_case(path: str | Path, allow_outside: bool = False) -> Case:
@@ -277,7 +297,7 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
     expectations = _expectations(path, data, freqs)
     sources = str(data.get("sources", "peak")).lower()
     if sources not in ("peak", "rms"):
-        raise _err(path, "sources", f"must be \"peak\" or \"rms\" (got {sources!r})")
+        raise _err(path, "sources", f'must be "peak" or "rms" (got {sources!r})')
     tolerance = _tolerance(path, "tolerance", data.get("tolerance", {}), SOLVER_VS_SPICE)
     return Case(
         path=path,

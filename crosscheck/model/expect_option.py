@@ -19,12 +19,15 @@ class ExpectOptionError(CrosscheckError, ValueError):
     """An ``--expect`` option on the command line cannot be read; the message shows the accepted form."""
 
 
-_EXPECT_FORM = ("write QUANTITY=VALUE or QUANTITY@FREQ=VALUE, e.g. vth=57.34∠-55°, vth@1k=57.34@-55 or "
-                "\"zth=4.7 - j6.7\"; quantities: " + ", ".join(PHASORS + SERIES))
+_EXPECT_FORM = (
+    "write QUANTITY=VALUE or QUANTITY@FREQ=VALUE, e.g. vth=57.34∠-55°, vth@1k=57.34@-55 or "
+    '"zth=4.7 - j6.7"; quantities: ' + ", ".join(PHASORS + SERIES)
+)
 
 
-def expectations_from_options(texts: Sequence[str], freqs_hz: Sequence[float],
-                              tolerance: Tolerance) -> tuple[Expectation, ...]:
+def expectations_from_options(
+    texts: Sequence[str], freqs_hz: Sequence[float], tolerance: Tolerance
+) -> tuple[Expectation, ...]:
     """``--expect`` options as expectations, one per frequency. Without ``@FREQ`` the value applies at the
     only ``--freq`` given; with several frequencies each value must say which one it is for."""
     by_freq: dict[float, dict[str, complex]] = {}
@@ -41,8 +44,10 @@ def expectations_from_options(texts: Sequence[str], freqs_hz: Sequence[float],
             elif len(freqs_hz) == 1:
                 at = float(freqs_hz[0])
             else:
-                raise ExpectOptionError(f"--expect {text!r} does not say at which of the {len(freqs_hz)} frequencies "
-                                        f"it holds; write {quantity}@FREQ=VALUE, or give a single --freq")
+                raise ExpectOptionError(
+                    f"--expect {text!r} does not say at which of the {len(freqs_hz)} frequencies "
+                    f"it holds; write {quantity}@FREQ=VALUE, or give a single --freq"
+                )
             value = parse_phasor(right) if quantity in PHASORS else complex(parse_number(right.strip()))
         except ExpectOptionError:
             raise
@@ -53,8 +58,12 @@ def expectations_from_options(texts: Sequence[str], freqs_hz: Sequence[float],
         slot = next((f for f in by_freq if same_frequency(f, at)), at)
         values = by_freq.setdefault(slot, {})
         if quantity in values:
-            raise ExpectOptionError(f"--expect {text!r}: {quantity} is already stated at {format_eng(at, 4, ' Hz')}; "
-                                    "give each quantity once per frequency")
+            raise ExpectOptionError(
+                f"--expect {text!r}: {quantity} is already stated at {format_eng(at, 4, ' Hz')}; "
+                "give each quantity once per frequency"
+            )
         values[quantity] = value
-    return tuple(Expectation(at, values, tolerance, "--expect on the command line", i)
-                 for i, (at, values) in enumerate(by_freq.items(), start=1))
+    return tuple(
+        Expectation(at, values, tolerance, "--expect on the command line", i)
+        for i, (at, values) in enumerate(by_freq.items(), start=1)
+    )

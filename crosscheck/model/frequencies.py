@@ -22,8 +22,9 @@ def checked_frequency(value: object, *, where: str) -> float:
     except (TypeError, ValueError):
         raise FrequencyError(f"{where}: {value!r} is not a number; give frequencies in hertz as numbers") from None
     if not math.isfinite(f):
-        raise FrequencyError(f"{where}: {f!r} Hz is not a finite number; give frequencies in hertz as finite "
-                             "numbers (0 is DC)")
+        raise FrequencyError(
+            f"{where}: {f!r} Hz is not a finite number; give frequencies in hertz as finite numbers (0 is DC)"
+        )
     if f < 0:
         raise FrequencyError(f"{where}: {f:g} Hz is negative; give frequencies in hertz >= 0 (0 is DC)")
     return f

@@ -44,7 +44,7 @@ class UnionFind:
 
     def open_pairs(self, nodes: list[str]) -> list[tuple[str, str]]:
         """Every pair (a, b), a before b in ``nodes``, that an edge could join without closing a loop."""
-        return [(a, b) for i, a in enumerate(nodes) for b in nodes[i + 1:] if self.find(a) != self.find(b)]
+        return [(a, b) for i, a in enumerate(nodes) for b in nodes[i + 1 :] if self.find(a) != self.find(b)]
 
 
 def connected_parts(a: np.ndarray, b: np.ndarray, size: int) -> tuple[int, np.ndarray]:

@@ -37,11 +37,19 @@ from crosscheck.model.params import assignments, evaluate
 from crosscheck.model.subcircuits import Instance, Subckt, check_local_references, flatten
 from crosscheck.model.values import parse_number
 
-__all__ = ["read_netlist", "read_netlist_with_notes", "read_netlist_file", "read_netlist_file_with_notes",
-           "read_netlist_text", "MAX_ELEMENTS", "MAX_LINE_CHARS", "MAX_SUBCKT_DEPTH"]
+__all__ = [
+    "read_netlist",
+    "read_netlist_with_notes",
+    "read_netlist_file",
+    "read_netlist_file_with_notes",
+    "read_netlist_text",
+    "MAX_ELEMENTS",
+    "MAX_LINE_CHARS",
+    "MAX_SUBCKT_DEPTH",
+]
 
 #: Limits for untrusted input: beyond these the reader refuses instead of using unbounded time or memory.
-MAX_ELEMENTS = 200_000          # elements (and subcircuit instances) after flattening
+MAX_ELEMENTS = 200_000  # elements (and subcircuit instances) after flattening
 MAX_LINE_CHARS = 100_000
 MAX_SUBCKT_DEPTH = 50
 MAX_TEXT_CHARS = 64 * 2**20
@@ -73,14 +81,16 @@ class _Card:
 # --------------------------------------------------------------------------- public API
 
 
-def read_netlist(text: str, file: str = "<string>", *, allow_negative: bool = False,
-                 port: Port | None = None) -> Network:
+def read_netlist(
+    text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
+) -> Network:
     """Read a netlist into a validated Network (see ``read_netlist_with_notes`` for what is ignored)."""
     return read_netlist_with_notes(text, file, allow_negative=allow_negative, port=port)[0]
 
 
-def read_netlist_with_notes(text: str, file: str = "<string>", *, allow_negative: bool = False,
-                            port: Port | None = None) -> tuple[Network, list[str]]:
+def read_netlist_with_notes(
+    text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
+) -> tuple[Network, list[str]]:
     """Read a netlist; also return one note per card or field that was accepted but ignored.
 
     ``port`` is passed to ``validate``: a part of the network with no ground is accepted
@@ -89,14 +99,14 @@ def read_netlist_with_notes(text: str, file: str = "<string>", *, allow_negative
     return _Reader(file).read(text, allow_negative, port)
 
 
-def read_netlist_file(path: str | PathLike, *, allow_negative: bool = False,
-                      port: Port | None = None) -> Network:
+def read_netlist_file(path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None) -> Network:
     """Read a netlist file (UTF-8 text; binary data and NUL bytes are refused)."""
     return read_netlist_file_with_notes(path, allow_negative=allow_negative, port=port)[0]
 
 
-def read_netlist_file_with_notes(path: str | PathLike, *, allow_negative: bool = False,
-                                 port: Port | None = None) -> tuple[Network, list[str]]:
+def read_netlist_file_with_notes(
+    path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None
+) -> tuple[Network, list[str]]:
     """``read_netlist_with_notes`` for a file, refused before parsing if it is not UTF-8 text."""
     return read_netlist_with_notes(read_netlist_text(path), str(path), allow_negative=allow_negative, port=port)
 
@@ -108,21 +118,26 @@ def read_netlist_text(path: str | PathLike) -> str:
         with open(path, "rb") as handle:
             data = handle.read(MAX_TEXT_CHARS + 1)
     except OSError as exc:
-        raise NetlistError(f"cannot read the netlist: {exc.strerror or exc}; check the path",
-                           Location(file)) from None
+        raise NetlistError(f"cannot read the netlist: {exc.strerror or exc}; check the path", Location(file)) from None
     if len(data) > MAX_TEXT_CHARS:
-        raise NetlistError(f"the file is larger than {MAX_TEXT_CHARS} bytes; a netlist that size is refused",
-                           Location(file, 1))
+        raise NetlistError(
+            f"the file is larger than {MAX_TEXT_CHARS} bytes; a netlist that size is refused", Location(file, 1)
+        )
     nul = data.find(b"\x00")
     if nul >= 0:
-        raise NetlistError("the file contains NUL bytes: it is binary data, not a netlist; "
-                           "give the SPICE text file", Location(file, data.count(b"\n", 0, nul) + 1))
+        raise NetlistError(
+            "the file contains NUL bytes: it is binary data, not a netlist; give the SPICE text file",
+            Location(file, data.count(b"\n", 0, nul) + 1),
+        )
     try:
         return data.decode("utf-8")
     except UnicodeDecodeError as exc:
         line = data.count(b"\n", 0, exc.start) + 1
-        raise NetlistError(f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x}); "
-                           "save it as UTF-8 (a binary file is not a netlist)", Location(file, line)) from None
+        raise NetlistError(
+            f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x}); "
+            "save it as UTF-8 (a binary file is not a netlist)",
+            Location(file, line),
+        ) from None
 
 
 # --------------------------------------------------------------------------- lines, cards, fields
@@ -135,7 +150,7 @@ def _show(text: str, limit: int = 60) -> str:
 def _strip_comment(line: str) -> str:
     line = line.split(";", 1)[0]
     dollar = _DOLLAR_COMMENT.search(line)
-    return line[:dollar.start()] if dollar else line
+    return line[: dollar.start()] if dollar else line
 
 
 class _Reader:
@@ -165,12 +180,18 @@ class _Reader:
         last = 1
         for number, raw in enumerate(lines, start=1):
             if len(raw) > MAX_LINE_CHARS:
-                raise self.err(f"line of {len(raw)} characters is longer than the limit ({MAX_LINE_CHARS}); "
-                               "split it with + continuation lines", number)
+                raise self.err(
+                    f"line of {len(raw)} characters is longer than the limit ({MAX_LINE_CHARS}); "
+                    "split it with + continuation lines",
+                    number,
+                )
             bad = CONTROL_CHAR.search(raw)
             if bad:
-                raise self.err(f"control character {bad.group()!r} in the text: binary data is not a netlist; "
-                               "give the SPICE text file", number)
+                raise self.err(
+                    f"control character {bad.group()!r} in the text: binary data is not a netlist; "
+                    "give the SPICE text file",
+                    number,
+                )
             if number == 1:
                 continue
             stripped = _strip_comment(raw).strip()
@@ -179,8 +200,11 @@ class _Reader:
             last = number
             if stripped.startswith("+"):
                 if not cards:
-                    raise self.err("a + continuation line with no card before it (line 1 is always the title); "
-                                   "join it to a card or remove the +", number)
+                    raise self.err(
+                        "a + continuation line with no card before it (line 1 is always the title); "
+                        "join it to a card or remove the +",
+                        number,
+                    )
                 card = cards[-1]
                 card.text += " "
                 card.starts.append((len(card.text), number))
@@ -193,8 +217,11 @@ class _Reader:
             cards.append(_Card(stripped, number, [(0, number)]))
         title = lines[0].lstrip("\ufeff").strip()
         if re.match(r"^[rlcvi][a-z_]*\d\w*(\s+\S+){2}\s+([0-9.{]|dc|ac)", title, re.IGNORECASE):
-            self.note(f"the first line {_show(title)} is read as the title, as SPICE does; "
-                      "if it is an element, add a title line above it", 1)
+            self.note(
+                f"the first line {_show(title)} is read as the title, as SPICE does; "
+                "if it is an element, add a title line above it",
+                1,
+            )
         return title, cards, last
 
     def fields(self, card: _Card) -> list[_Tok]:
@@ -247,26 +274,36 @@ class _Reader:
             if not word.startswith("."):
                 self.count += 1
                 if self.count > MAX_ELEMENTS:
-                    raise self.err(f"more than {MAX_ELEMENTS} element cards; a netlist that large is refused",
-                                   card.line)
+                    raise self.err(
+                        f"more than {MAX_ELEMENTS} element cards; a netlist that large is refused", card.line
+                    )
                 (current.cards if current else top).append((card, self.fields(card)))
             elif word == ".param":
                 if current is not None:
-                    raise self.err(f".param inside subcircuit {current.name!r} is not supported; "
-                                   "move it above the .subckt (parameters are global)", card.line)
+                    raise self.err(
+                        f".param inside subcircuit {current.name!r} is not supported; "
+                        "move it above the .subckt (parameters are global)",
+                        card.line,
+                    )
                 self.param(card, len(first))
             elif word == ".subckt":
                 if current is not None:
-                    raise self.err(f".subckt inside subcircuit {current.name!r} (line {current.line}); "
-                                   "define each subcircuit at the top level", card.line)
+                    raise self.err(
+                        f".subckt inside subcircuit {current.name!r} (line {current.line}); "
+                        "define each subcircuit at the top level",
+                        card.line,
+                    )
                 current = self.subckt_header(card, self.fields(card))
             elif word == ".ends":
                 if current is None:
                     raise self.err(".ends with no .subckt before it; remove it or add the .subckt card", card.line)
                 toks = self.fields(card)
                 if len(toks) > 1 and toks[1].text.lower() != current.name:
-                    raise self.err(f".ends {toks[1].text} closes subcircuit {current.name!r} "
-                                   f"(line {current.line}); make the names match", card.line)
+                    raise self.err(
+                        f".ends {toks[1].text} closes subcircuit {current.name!r} "
+                        f"(line {current.line}); make the names match",
+                        card.line,
+                    )
                 self.subckts[current.name] = current
                 current = None
             elif word in IGNORED_CARDS:
@@ -274,11 +311,16 @@ class _Reader:
             elif word in REFUSED_CARDS:
                 raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
             else:
-                raise self.err(f"unknown card {_show(first)}; {SUBSET} with .param, .subckt/.ends and "
-                               f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}); remove it", card.line)
+                raise self.err(
+                    f"unknown card {_show(first)}; {SUBSET} with .param, .subckt/.ends and "
+                    f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}); remove it",
+                    card.line,
+                )
         if current is not None:
-            raise self.err(f"subcircuit {current.name!r} is never closed; add '.ends {current.name}' "
-                           "after its last card", current.line)
+            raise self.err(
+                f"subcircuit {current.name!r} is never closed; add '.ends {current.name}' after its last card",
+                current.line,
+            )
         for sub in self.subckts.values():
             sub.protos = [self.element(card, toks) for card, toks in sub.cards]
             check_local_references(sub)
@@ -298,8 +340,11 @@ class _Reader:
         for name, expr, offset in found:
             line = card.line_at(skip + offset)
             if name in self.params:
-                raise self.err(f"parameter {name!r} is defined twice (first at line {self.param_lines[name]}); "
-                               "keep one definition", line)
+                raise self.err(
+                    f"parameter {name!r} is defined twice (first at line {self.param_lines[name]}); "
+                    "keep one definition",
+                    line,
+                )
             try:
                 self.params[name] = evaluate(expr, self.params)
             except ValueSyntaxError as exc:
@@ -314,13 +359,18 @@ class _Reader:
         ports = tuple(self.name(t, f"{name}: node") for t in toks[2:])
         for i, p in enumerate(ports):
             if p == GROUND:
-                raise self.err(f"ground ({toks[2 + i].text}) cannot be a terminal of subcircuit {name!r}; "
-                               "ground is global: use it inside the subcircuit directly", toks[2 + i].line)
+                raise self.err(
+                    f"ground ({toks[2 + i].text}) cannot be a terminal of subcircuit {name!r}; "
+                    "ground is global: use it inside the subcircuit directly",
+                    toks[2 + i].line,
+                )
             if p in ports[:i]:
                 raise self.err(f"terminal {p!r} is listed twice in subcircuit {name!r}", toks[2 + i].line)
         if name in self.subckts:
-            raise self.err(f"subcircuit {name!r} is defined twice (first at line {self.subckts[name].line}); "
-                           "rename one of them", card.line)
+            raise self.err(
+                f"subcircuit {name!r} is defined twice (first at line {self.subckts[name].line}); rename one of them",
+                card.line,
+            )
         return Subckt(name, ports, card.line, [])
 
     # ---- element cards
@@ -328,8 +378,11 @@ class _Reader:
     def refuse_subckt_params(self, toks: list[_Tok]) -> None:
         for t in toks[1:]:
             if t.value is not None or t.text.lower() == "params:":
-                raise self.err(f"{toks[0].text}: subcircuit parameters ({_show(t.text)}) are not supported; write "
-                               "the values inside the subcircuit or define them with .param at the top level", t.line)
+                raise self.err(
+                    f"{toks[0].text}: subcircuit parameters ({_show(t.text)}) are not supported; write "
+                    "the values inside the subcircuit or define them with .param at the top level",
+                    t.line,
+                )
 
     def name(self, tok: _Tok, what: str) -> str:
         if tok.value is not None or not NAME.match(tok.text):
@@ -338,8 +391,11 @@ class _Reader:
 
     def value(self, tok: _Tok, element: str, what: str) -> float:
         if tok.value is not None:
-            raise self.err(f"{element}: expected the {what}, got the parameter {tok.text}=...; "
-                           f"write it as {USAGE.get(element[0], 'a plain value')}", tok.line)
+            raise self.err(
+                f"{element}: expected the {what}, got the parameter {tok.text}=...; "
+                f"write it as {USAGE.get(element[0], 'a plain value')}",
+                tok.line,
+            )
         text = tok.text
         try:
             if text.startswith("{"):
@@ -354,20 +410,27 @@ class _Reader:
             raise self.err(f"the card {_show(card.text)} has no fields; remove it", card.line)
         letter = toks[0].text[0].lower()
         if letter in DEVICES:
-            raise self.err(f"{toks[0].text} is {DEVICES[letter]}, outside the supported subset; {SUBSET}: "
-                           "replace it by its small-signal linear model (R, C, E/G sources) and remove any "
-                           ".model card", card.line)
+            raise self.err(
+                f"{toks[0].text} is {DEVICES[letter]}, outside the supported subset; {SUBSET}: "
+                "replace it by its small-signal linear model (R, C, E/G sources) and remove any "
+                ".model card",
+                card.line,
+            )
         if letter not in USAGE:
-            raise self.err(f"unknown element {_show(toks[0].text)}: the first letter names the kind, and "
-                           f"{SUBSET}", card.line)
+            raise self.err(
+                f"unknown element {_show(toks[0].text)}: the first letter names the kind, and {SUBSET}", card.line
+            )
         name = self.name(toks[0], "element name")
         where = Location(self.file, card.line)
         usage = USAGE[letter]
         if letter in "efgh":
             for i, t in enumerate(toks):
                 if (i == 3 or t.value is not None) and t.text.lower() in BEHAVIOURAL or t.text.startswith("("):
-                    raise self.err(f"{name}: the {_show(t.text.upper())} form is behavioural or polynomial, outside "
-                                   f"the linear subset; write a linear source: {usage}", t.line)
+                    raise self.err(
+                        f"{name}: the {_show(t.text.upper())} form is behavioural or polynomial, outside "
+                        f"the linear subset; write a linear source: {usage}",
+                        t.line,
+                    )
         if letter == "x":
             self.refuse_subckt_params(toks)
             if len(toks) < 2:
@@ -386,8 +449,11 @@ class _Reader:
                     raise self.err(f"{name}: the value is given twice; write {usage}", t.line)
                 value_tok = t.value
             elif key == "ic" and letter in "lc":
-                raise self.err(f"{name}: an initial condition (ic=) only affects transient analysis and "
-                               "crosscheck's model is small-signal AC; remove it", t.line)
+                raise self.err(
+                    f"{name}: an initial condition (ic=) only affects transient analysis and "
+                    "crosscheck's model is small-signal AC; remove it",
+                    t.line,
+                )
             else:
                 raise self.err(f"{name}: the parameter {t.text}= is not supported; write {usage}", t.line)
         expected = {"e": 6, "g": 6, "f": 5, "h": 5, "k": 4}.get(letter, 3 if value_tok else 4)
@@ -395,14 +461,17 @@ class _Reader:
             raise self.err(f"{name}: too few fields; write {usage}", card.line)
         if len(positional) > expected:
             extra = positional[expected]
-            raise self.err(f"{name}: unexpected field {_show(extra.text)} (model names and extra parameters "
-                           f"are not supported); write {usage}", extra.line)
+            raise self.err(
+                f"{name}: unexpected field {_show(extra.text)} (model names and extra parameters "
+                f"are not supported); write {usage}",
+                extra.line,
+            )
         value_tok = value_tok or positional[-1]
         value = self.value(value_tok, name, usage.rsplit(" ", 1)[1])
         if letter == "k":
             coupled = (self.name(positional[1], f"{name}: inductor"), self.name(positional[2], f"{name}: inductor"))
             return make_element(name, "K", (), value, coupled=coupled, where=where)
-        nodes = tuple(self.name(t, f"{name}: node") for t in positional[1:(5 if letter in "eg" else 3)])
+        nodes = tuple(self.name(t, f"{name}: node") for t in positional[1 : (5 if letter in "eg" else 3)])
         control = self.name(positional[3], f"{name}: controlling source") if letter in "fh" else None
         return make_element(name, None, nodes, value, control=control, where=where)
 
@@ -438,12 +507,16 @@ class _Reader:
                     if is_value(k):
                         phase, k = self.value(rest[k], name, "AC phase"), k + 1
             elif word in TRANSIENT and k + 1 < len(rest) and rest[k + 1].text.startswith("("):
-                self.note(f"{name}: transient function {t.text.upper()}(...) ignored: it has no effect on AC "
-                          "analysis", t.line)
+                self.note(
+                    f"{name}: transient function {t.text.upper()}(...) ignored: it has no effect on AC analysis", t.line
+                )
                 k += 2
             elif word in TRANSIENT:
-                raise self.err(f"{name}: write the transient function's arguments in parentheses, as "
-                               f"{t.text.upper()}(...); crosscheck ignores it for AC analysis", t.line)
+                raise self.err(
+                    f"{name}: write the transient function's arguments in parentheses, as "
+                    f"{t.text.upper()}(...); crosscheck ignores it for AC analysis",
+                    t.line,
+                )
             elif word.startswith("distof"):
                 raise self.err(f"{name}: {t.text} (distortion analysis) is not supported; remove it", t.line)
             else:

@@ -17,46 +17,72 @@ NAME_CHARS = "letters, digits and _ . : # + - [ ] < > ! /"
 CONTROL_CHAR = re.compile(r"[\x00-\x08\x0b\x0e-\x1f\x7f]")
 
 #: Cards read and ignored, with the note the reader gives.
-IGNORED_CARDS = {".ac": FREQS, ".op": "the operating point does not change a linear network",
-                 **dict.fromkeys((".options", ".option"), "crosscheck sets the simulator's options itself"),
-                 **dict.fromkeys((".print", ".plot", ".save", ".probe"), "crosscheck chooses what to report")}
-_SCRIPT = ("ngspice control blocks are scripts (they can run shell commands and write files) and crosscheck never "
-           "runs them; delete everything from .control to .endc")
-_OTHER_FILES = ("crosscheck reads one self-contained file and never opens files named inside it; paste the "
-                "subcircuits you need into this netlist")
+IGNORED_CARDS = {
+    ".ac": FREQS,
+    ".op": "the operating point does not change a linear network",
+    **dict.fromkeys((".options", ".option"), "crosscheck sets the simulator's options itself"),
+    **dict.fromkeys((".print", ".plot", ".save", ".probe"), "crosscheck chooses what to report"),
+}
+_SCRIPT = (
+    "ngspice control blocks are scripts (they can run shell commands and write files) and crosscheck never "
+    "runs them; delete everything from .control to .endc"
+)
+_OTHER_FILES = (
+    "crosscheck reads one self-contained file and never opens files named inside it; paste the "
+    "subcircuits you need into this netlist"
+)
 #: Cards refused, with the reason and the fix.
 REFUSED_CARDS = {
-    **dict.fromkeys((".control", ".endc"), _SCRIPT), **dict.fromkeys((".include", ".inc", ".lib"), _OTHER_FILES),
+    **dict.fromkeys((".control", ".endc"), _SCRIPT),
+    **dict.fromkeys((".include", ".inc", ".lib"), _OTHER_FILES),
     ".model": "device models belong to nonlinear devices (diodes, transistors, switches); "
-              f"{SUBSET}: replace the device by its small-signal linear model and remove the .model card",
+    f"{SUBSET}: replace the device by its small-signal linear model and remove the .model card",
     ".func": "user-defined functions are not supported; write the arithmetic out in {...} or with .param",
     ".global": "global nodes are not supported; pass the node through the subcircuit's terminals "
-               "(ground, 0, is always global)",
+    "(ground, 0, is always global)",
     **dict.fromkeys((".meas", ".measure"), "measurements are made by crosscheck itself; remove the card"),
     ".ic": "initial conditions only affect transient analysis; remove the card",
     ".nodeset": "node sets only steer the operating-point search, which a linear network does not need; "
-                "remove the card",
+    "remove the card",
     ".temp": "temperature is outside the linear model (components are taken at their stated values); remove the card",
-    **{card: f"{card[1:]} analysis is outside crosscheck's small-signal AC model; remove the {card} card: {FREQS}"
-       for card in (".tran", ".dc", ".noise", ".four", ".disto", ".sens", ".tf", ".pz", ".sp", ".pss")},
+    **{
+        card: f"{card[1:]} analysis is outside crosscheck's small-signal AC model; remove the {card} card: {FREQS}"
+        for card in (".tran", ".dc", ".noise", ".four", ".disto", ".sens", ".tf", ".pz", ".sp", ".pss")
+    },
 }
 
 #: Element letters of devices outside the subset, by what they are.
 DEVICES = {
-    "d": "a diode", "q": "a bipolar transistor", "m": "a MOSFET", "j": "a JFET", "z": "a MESFET",
-    "s": "a voltage-controlled switch", "w": "a current-controlled switch", "t": "a transmission line",
-    "o": "a lossy transmission line", "u": "a distributed RC line", "y": "a transmission line",
-    "p": "a coupled multiconductor line", "n": "a compiled device model", "b": "a behavioural source",
+    "d": "a diode",
+    "q": "a bipolar transistor",
+    "m": "a MOSFET",
+    "j": "a JFET",
+    "z": "a MESFET",
+    "s": "a voltage-controlled switch",
+    "w": "a current-controlled switch",
+    "t": "a transmission line",
+    "o": "a lossy transmission line",
+    "u": "a distributed RC line",
+    "y": "a transmission line",
+    "p": "a coupled multiconductor line",
+    "n": "a compiled device model",
+    "b": "a behavioural source",
     "a": "an XSPICE code model",
 }
 TRANSIENT = frozenset({"sin", "pulse", "pwl", "exp", "sffm", "am", "trnoise", "trrandom", "pat"})
 BEHAVIOURAL = frozenset({"poly", "value", "table", "laplace", "freq", "vol", "cur"})
 USAGE = {  # the card's form; its last word names the value
-    "r": "Rname n+ n- resistance", "l": "Lname n+ n- inductance", "c": "Cname n+ n- capacitance",
-    "v": "Vname n+ n- [DC v] [AC [mag [phase]]]", "i": "Iname n+ n- [DC v] [AC [mag [phase]]]",
-    "e": "Ename n+ n- nc+ nc- gain", "g": "Gname n+ n- nc+ nc- transconductance",
-    "f": "Fname n+ n- Vcontrol gain", "h": "Hname n+ n- Vcontrol transresistance",
-    "k": "Kname Lname1 Lname2 coupling", "x": "Xname node1 node2 ... SUBCKTNAME",
+    "r": "Rname n+ n- resistance",
+    "l": "Lname n+ n- inductance",
+    "c": "Cname n+ n- capacitance",
+    "v": "Vname n+ n- [DC v] [AC [mag [phase]]]",
+    "i": "Iname n+ n- [DC v] [AC [mag [phase]]]",
+    "e": "Ename n+ n- nc+ nc- gain",
+    "g": "Gname n+ n- nc+ nc- transconductance",
+    "f": "Fname n+ n- Vcontrol gain",
+    "h": "Hname n+ n- Vcontrol transresistance",
+    "k": "Kname Lname1 Lname2 coupling",
+    "x": "Xname node1 node2 ... SUBCKTNAME",
 }
 #: The key=value spellings of an R, L or C value.
 VALUE_KEYS = {"r": ("r", "resistance"), "l": ("l", "inductance"), "c": ("c", "capacitance")}

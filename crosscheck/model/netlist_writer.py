@@ -20,11 +20,15 @@ def format_element(e: Element) -> str:
         names.append(("controlling source", e.control or ""))
     for label, name in names:
         if not NAME.match(name) or name != name.lower():
-            raise NetworkError(f"{e.name!r}: {label} {name!r} cannot be written to a netlist; "
-                               f"use lower-case {NAME_CHARS}", e.where)
+            raise NetworkError(
+                f"{e.name!r}: {label} {name!r} cannot be written to a netlist; use lower-case {NAME_CHARS}", e.where
+            )
     if e.name[0] != e.kind.lower():
-        raise NetworkError(f"{e.name!r}: a {e.kind} element's name must start with {e.kind.lower()!r}, "
-                           "because SPICE takes the kind from the first letter", e.where)
+        raise NetworkError(
+            f"{e.name!r}: a {e.kind} element's name must start with {e.kind.lower()!r}, "
+            "because SPICE takes the kind from the first letter",
+            e.where,
+        )
     head = " ".join((e.name, *e.nodes))
     if e.kind in "VI":
         return f"{head} DC 0 AC {e.ac_mag!r} {e.ac_phase_deg!r}"
@@ -39,7 +43,8 @@ def format_element(e: Element) -> str:
 def write_netlist(network: Network) -> str:
     """A clean netlist: the title, one card per element, ``.end``."""
     if "\n" in network.title or "\r" in network.title or CONTROL_CHAR.search(network.title):
-        raise NetworkError(f"the title {network.title!r} contains a line break or control character; "
-                           "use a one-line title")
+        raise NetworkError(
+            f"the title {network.title!r} contains a line break or control character; use a one-line title"
+        )
     cards = [network.title, *(format_element(e) for e in network.elements), ".end"]
     return "\n".join(cards) + "\n"

@@ -74,8 +74,9 @@ class Element:
     @property
     def phasor(self) -> complex:
         """The AC phasor of an independent source, as written (peak or RMS is the case's convention)."""
-        return self.ac_mag * complex(math.cos(math.radians(self.ac_phase_deg)),
-                                     math.sin(math.radians(self.ac_phase_deg)))
+        return self.ac_mag * complex(
+            math.cos(math.radians(self.ac_phase_deg)), math.sin(math.radians(self.ac_phase_deg))
+        )
 
     @property
     def is_short(self) -> bool:
@@ -148,8 +149,9 @@ class Network:
         # One dictionary look-up per node occurrence: a node not seen before takes the next index.
         table: defaultdict[str, int] = defaultdict(itertools.count().__next__)
         table[GROUND] = -1
-        ids = np.fromiter(map(table.__getitem__, itertools.chain.from_iterable(per_element)), np.intp,
-                          int(counts.sum()))
+        ids = np.fromiter(
+            map(table.__getitem__, itertools.chain.from_iterable(per_element)), np.intp, int(counts.sum())
+        )
         del table[GROUND]
         table.default_factory = None  # from here on a plain mapping: a node it lacks raises KeyError
         index: dict[str, int] = table
@@ -226,14 +228,21 @@ class Network:
 
     def zero_sources(self) -> Network:
         """The same network with every independent source set to zero (dependent ones stay)."""
-        return self.with_elements(
-            replace(e, ac_mag=0.0) if e.kind in SOURCE_KINDS else e for e in self.elements
-        )
+        return self.with_elements(replace(e, ac_mag=0.0) if e.kind in SOURCE_KINDS else e for e in self.elements)
 
 
-def make_element(name: str, kind: str | None = None, nodes: Iterable[str] = (), value: float = 0.0,
-                 *, ac_mag: float = 0.0, ac_phase_deg: float = 0.0, control: str | None = None,
-                 coupled: tuple[str, str] | None = None, where: Location | None = None) -> Element:
+def make_element(
+    name: str,
+    kind: str | None = None,
+    nodes: Iterable[str] = (),
+    value: float = 0.0,
+    *,
+    ac_mag: float = 0.0,
+    ac_phase_deg: float = 0.0,
+    control: str | None = None,
+    coupled: tuple[str, str] | None = None,
+    where: Location | None = None,
+) -> Element:
     """Build an element with names canonicalised (lower case, ``gnd`` -> ``0``)."""
     name = name.strip().lower()
     kind = (kind or name[:1]).upper()
@@ -318,9 +327,11 @@ def _elements_look_clean(network: Network) -> bool:
     is_ = {k: kind == ord(k) for k in "LCRKVEHI"}
     if any(elements[i].ac_mag < 0 for i in np.flatnonzero(is_["V"] | is_["I"]).tolist()):
         return False
-    refused = (((is_["L"] | is_["C"]) & (value <= 0))
-               | (is_["K"] & ~((value > 0) & (value <= 1)))
-               | ((is_["V"] | is_["E"] | is_["H"]) & (arrays.a == arrays.b)))
+    refused = (
+        ((is_["L"] | is_["C"]) & (value <= 0))
+        | (is_["K"] & ~((value > 0) & (value <= 1)))
+        | ((is_["V"] | is_["E"] | is_["H"]) & (arrays.a == arrays.b))
+    )
     if not network.allow_negative:
         refused |= is_["R"] & (value < 0)
     return not refused.any()
@@ -342,16 +353,25 @@ def _check_each_element(network: Network) -> None:
                 raise _fail(e, f"{label} is {number}; give a finite number")
         if e.kind in "LC" and e.value <= 0:
             unit = "H" if e.kind == "L" else "F"
-            raise _fail(e, f"{'inductance' if e.kind == 'L' else 'capacitance'} must be positive (got {e.value} {unit}); "
-                           "remove the element or give it a positive value")
+            raise _fail(
+                e,
+                f"{'inductance' if e.kind == 'L' else 'capacitance'} must be positive (got {e.value} {unit}); "
+                "remove the element or give it a positive value",
+            )
         if e.kind == "R" and e.value < 0 and not network.allow_negative:
-            raise _fail(e, f"negative resistance ({e.value} Ω) is refused; allow active models explicitly "
-                           "(--allow-negative) if it is intended")
+            raise _fail(
+                e,
+                f"negative resistance ({e.value} Ω) is refused; allow active models explicitly "
+                "(--allow-negative) if it is intended",
+            )
         if e.kind == "K" and not (0 < e.value <= 1):
             raise _fail(e, f"coupling coefficient must be in (0, 1] (got {e.value}); k > 1 is not physical")
         if e.kind in "VEH" and e.nodes[0] == e.nodes[1]:
-            raise _fail(e, f"both terminals are on node {e.nodes[0]!r}: a voltage source shorted on itself; "
-                           "connect it between two different nodes")
+            raise _fail(
+                e,
+                f"both terminals are on node {e.nodes[0]!r}: a voltage source shorted on itself; "
+                "connect it between two different nodes",
+            )
         if e.kind in "VI" and e.ac_mag < 0:
             raise _fail(e, f"AC magnitude must not be negative (got {e.ac_mag}); add 180° to the phase instead")
 
@@ -367,8 +387,11 @@ def _check_references(network: Network) -> None:
             ctl = by_name.get(e.control or "")
             if ctl is None or ctl.kind != "V":
                 found = f" ({ctl.name} is a {ctl.kind} element)" if ctl is not None else ""
-                raise _fail(e, f"controlling source {e.control!r} is not a voltage source in this network{found}; "
-                               "name an independent V element (add a 0 V source in series to sense a current)")
+                raise _fail(
+                    e,
+                    f"controlling source {e.control!r} is not a voltage source in this network{found}; "
+                    "name an independent V element (add a 0 V source in series to sense a current)",
+                )
         if e.kind == "K":
             assert e.coupled is not None
             for lname in e.coupled:
@@ -399,8 +422,11 @@ def _check_voltage_loops(network: Network) -> None:
         if e.kind in "VEH" or e.is_short:
             a, b = e.terminals
             if not uf.union(a, b):
-                raise _fail(e, "closes a loop of voltage sources and ideal shorts (R = 0); "
-                               "the loop's voltages over-determine the network: remove one or add series resistance")
+                raise _fail(
+                    e,
+                    "closes a loop of voltage sources and ideal shorts (R = 0); "
+                    "the loop's voltages over-determine the network: remove one or add series resistance",
+                )
 
 
 def _check_connectivity(network: Network, port: Port | None) -> None:
@@ -426,8 +452,9 @@ def _check_connectivity(network: Network, port: Port | None) -> None:
         names = ", ".join(members[:8]) + (" …" if len(members) > 8 else "")
         holds_port = port is not None and port.a in members and port.b in members
         part = conducting[network.node_index[members[0]]]
-        touches_current_source = every[network.node_index[members[0]]] == every[-1] or bool(np.any(
-            current_output & ((conducting[arrays.a] == part) != (conducting[arrays.b] == part))))
+        touches_current_source = every[network.node_index[members[0]]] == every[-1] or bool(
+            np.any(current_output & ((conducting[arrays.a] == part) != (conducting[arrays.b] == part)))
+        )
         if touches_current_source:
             raise NetworkError(
                 f"node(s) {names} are reached only through current sources: their voltage is undefined "

@@ -34,8 +34,12 @@ _TOKEN = re.compile(
 
 _ASSIGN = re.compile(r"([a-z_][a-z0-9_]*)\s*=(?!=)", re.IGNORECASE)
 _BINARY: dict[type[ast.operator], Callable[[float, float], float]] = {
-    ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
-    ast.Div: operator.truediv, ast.Pow: operator.pow}
+    ast.Add: operator.add,
+    ast.Sub: operator.sub,
+    ast.Mult: operator.mul,
+    ast.Div: operator.truediv,
+    ast.Pow: operator.pow,
+}
 _UNARY: dict[type[ast.unaryop], Callable[[float], float]] = {ast.USub: operator.neg, ast.UAdd: operator.pos}
 
 _ALLOWED = "numbers, parameter names, + - * / ** (or ^) and parentheses"
@@ -51,8 +55,10 @@ def evaluate(text: str, env: Mapping[str, float]) -> float:
     if not expr:
         raise ValueSyntaxError("empty expression; write a number or arithmetic such as {2*rload}")
     if len(expr) > MAX_EXPRESSION_CHARS:
-        raise ValueSyntaxError(f"expression of {len(expr)} characters is longer than the limit "
-                               f"({MAX_EXPRESSION_CHARS}); define parts of it with .param")
+        raise ValueSyntaxError(
+            f"expression of {len(expr)} characters is longer than the limit "
+            f"({MAX_EXPRESSION_CHARS}); define parts of it with .param"
+        )
     source, names = _to_python(expr, text)
     try:
         tree = ast.parse(source, mode="eval")
@@ -67,8 +73,10 @@ def evaluate(text: str, env: Mapping[str, float]) -> float:
     except OverflowError:
         raise ValueSyntaxError(f"expression {_show(text)} overflows a double; check the exponents") from None
     if isinstance(value, complex) or not math.isfinite(value):
-        raise ValueSyntaxError(f"expression {_show(text)} evaluates to {value}, not a finite real number; "
-                               "check the parameter values (a negative number to a fractional power is complex)")
+        raise ValueSyntaxError(
+            f"expression {_show(text)} evaluates to {value}, not a finite real number; "
+            "check the parameter values (a negative number to a fractional power is complex)"
+        )
     return float(value)
 
 
@@ -79,12 +87,13 @@ def assignments(text: str) -> list[tuple[str, str, int]]:
     [('r', '4.7k', 1), ('g', '2*r', 11)]
     """
     matches = list(_ASSIGN.finditer(text))
-    if not matches or text[:matches[0].start()].strip():
-        raise ValueSyntaxError(f"expected name=value assignments, got {_show(text.strip())}; "
-                               "write .param rload=4.7k gain={2*rload}")
+    if not matches or text[: matches[0].start()].strip():
+        raise ValueSyntaxError(
+            f"expected name=value assignments, got {_show(text.strip())}; write .param rload=4.7k gain={{2*rload}}"
+        )
     out = []
     for m, nxt in zip(matches, [*matches[1:], None]):
-        expr = text[m.end():nxt.start() if nxt else len(text)].strip()
+        expr = text[m.end() : nxt.start() if nxt else len(text)].strip()
         if len(expr) >= 2 and (expr[0], expr[-1]) in (("{", "}"), ("'", "'"), ('"', '"')):
             expr = expr[1:-1]
         out.append((m.group(1).lower(), expr, m.start()))
@@ -108,8 +117,7 @@ def _to_python(expr: str, original: str) -> tuple[str, dict[str, str]]:
         elif m.group("op") is not None:
             out.append("**" if m.group("op") == "^" else m.group("op"))
         elif m.group("bad") is not None:
-            raise ValueSyntaxError(f"unexpected {m.group('bad')!r} in the expression {_show(original)}; "
-                                   f"use {_ALLOWED}")
+            raise ValueSyntaxError(f"unexpected {m.group('bad')!r} in the expression {_show(original)}; use {_ALLOWED}")
     return " ".join(out), {safe: name for name, safe in names.items()}
 
 
@@ -120,8 +128,10 @@ def _walk(node: ast.AST, names: dict[str, str], env: Mapping[str, float], text: 
         name = names[node.id]
         if name not in env:
             known = ", ".join(sorted(env)[:12]) or "none"
-            raise ValueSyntaxError(f"unknown parameter {name!r} in {_show(text)} (defined so far: {known}); "
-                                   "define it with .param before it is used")
+            raise ValueSyntaxError(
+                f"unknown parameter {name!r} in {_show(text)} (defined so far: {known}); "
+                "define it with .param before it is used"
+            )
         return env[name]
     if isinstance(node, ast.BinOp) and type(node.op) in _BINARY:
         return _BINARY[type(node.op)](_walk(node.left, names, env, text), _walk(node.right, names, env, text))

@@ -42,13 +42,17 @@ def check_local_references(sub: Subckt) -> None:
         if isinstance(p, Element):
             for ref in (p.control,) + (p.coupled or ()):
                 if ref is not None and ref not in own:
-                    raise NetlistError(f"{p.name} in subcircuit {sub.name!r} refers to {ref!r}, which is not "
-                                       "defined inside the subcircuit; elements in a subcircuit can only refer "
-                                       "to elements of the same subcircuit", p.where)
+                    raise NetlistError(
+                        f"{p.name} in subcircuit {sub.name!r} refers to {ref!r}, which is not "
+                        "defined inside the subcircuit; elements in a subcircuit can only refer "
+                        "to elements of the same subcircuit",
+                        p.where,
+                    )
 
 
-def flatten(protos: list[Element | Instance], subckts: dict[str, Subckt], max_elements: int,
-            max_depth: int) -> list[Element]:
+def flatten(
+    protos: list[Element | Instance], subckts: dict[str, Subckt], max_elements: int, max_depth: int
+) -> list[Element]:
     """The top level's elements with every instance replaced by its subcircuit's elements, renamed.
 
     Refuses more than ``max_elements`` elements and instances in all, subcircuits nested deeper than
@@ -67,8 +71,7 @@ class _Flattener:
         self.count = 0
         self.out: list[Element] = []
 
-    def walk(self, protos: list[Element | Instance], path: str, ports: dict[str, str],
-             stack: tuple[str, ...]) -> None:
+    def walk(self, protos: list[Element | Instance], path: str, ports: dict[str, str], stack: tuple[str, ...]) -> None:
         def scoped_node(n: str) -> str:
             return n if not path or n == GROUND else ports.get(n, f"{path}.{n}")
 
@@ -78,13 +81,20 @@ class _Flattener:
         for p in protos:
             self.count += 1
             if self.count > self.max_elements:
-                raise NetlistError(f"more than {self.max_elements} elements and subcircuit instances after "
-                                   "flattening the subcircuits; a network that large is refused", p.where)
+                raise NetlistError(
+                    f"more than {self.max_elements} elements and subcircuit instances after "
+                    "flattening the subcircuits; a network that large is refused",
+                    p.where,
+                )
             if isinstance(p, Element):
                 if path:
-                    p = replace(p, name=scoped(p.name), nodes=tuple(scoped_node(n) for n in p.nodes),
-                                control=scoped(p.control) if p.control else None,
-                                coupled=(scoped(p.coupled[0]), scoped(p.coupled[1])) if p.coupled else None)
+                    p = replace(
+                        p,
+                        name=scoped(p.name),
+                        nodes=tuple(scoped_node(n) for n in p.nodes),
+                        control=scoped(p.control) if p.control else None,
+                        coupled=(scoped(p.coupled[0]), scoped(p.coupled[1])) if p.coupled else None,
+                    )
                 self.out.append(p)
                 continue
             sub = self.definition(p, stack)
@@ -98,17 +108,25 @@ class _Flattener:
         sub = self.subckts.get(p.subckt)
         if sub is None:
             known = ", ".join(sorted(self.subckts)) or "none"
-            raise NetlistError(f"{p.name}: unknown subcircuit {p.subckt!r} (defined: {known}); "
-                               "define it with .subckt ... .ends in this file", p.where)
+            raise NetlistError(
+                f"{p.name}: unknown subcircuit {p.subckt!r} (defined: {known}); "
+                "define it with .subckt ... .ends in this file",
+                p.where,
+            )
         if p.subckt in stack:
-            chain = " -> ".join((*stack[stack.index(p.subckt):], p.subckt))
-            raise NetlistError(f"{p.name}: subcircuit {p.subckt!r} contains itself ({chain}); "
-                               "a subcircuit cannot instantiate itself, directly or indirectly", p.where)
+            chain = " -> ".join((*stack[stack.index(p.subckt) :], p.subckt))
+            raise NetlistError(
+                f"{p.name}: subcircuit {p.subckt!r} contains itself ({chain}); "
+                "a subcircuit cannot instantiate itself, directly or indirectly",
+                p.where,
+            )
         if len(stack) >= self.max_depth:
-            raise NetlistError(f"{p.name}: subcircuits nested deeper than {self.max_depth} levels are "
-                               "refused", p.where)
+            raise NetlistError(f"{p.name}: subcircuits nested deeper than {self.max_depth} levels are refused", p.where)
         if len(p.nodes) != len(sub.ports):
-            raise NetlistError(f"{p.name} connects {len(p.nodes)} node(s) but subcircuit {sub.name!r} "
-                               f"(line {sub.line}) has {len(sub.ports)} terminal(s) "
-                               f"({' '.join(sub.ports) or 'none'}); give one node per terminal", p.where)
+            raise NetlistError(
+                f"{p.name} connects {len(p.nodes)} node(s) but subcircuit {sub.name!r} "
+                f"(line {sub.line}) has {len(sub.ports)} terminal(s) "
+                f"({' '.join(sub.ports) or 'none'}); give one node per terminal",
+                p.where,
+            )
         return sub

@@ -34,9 +34,7 @@ _SCALES: tuple[tuple[str, int], ...] = (
     ("f", -15),
 )
 
-_NUMBER = re.compile(
-    r"""^\s*(?P<num>[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)(?P<suffix>[a-zA-Zµ]*)\s*$"""
-)
+_NUMBER = re.compile(r"""^\s*(?P<num>[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)(?P<suffix>[a-zA-Zµ]*)\s*$""")
 
 _FORMS = "plain numbers like 4.7k, 2.2meg, 10u, 15pF or 1e-9"
 
@@ -112,7 +110,9 @@ def parse_phasor(text: str | complex | float) -> complex:
     for part in parts:
         part = part.strip()
         m = _IMAG.match(part)
-        if m is not None and (m.group("after") is not None or m.group("before") is not None or part.lstrip("+-").strip() in ("j", "i")):
+        if m is not None and (
+            m.group("after") is not None or m.group("before") is not None or part.lstrip("+-").strip() in ("j", "i")
+        ):
             if seen_imag:
                 raise ValueSyntaxError(f"cannot read {text!r}: two imaginary parts; write {_PHASOR_FORMS}")
             seen_imag = True
@@ -145,8 +145,18 @@ def _part(piece: str, whole: str) -> float:
 
 
 # Mega is "Meg", as SPICE writes it: a plain "M" reads back as milli, 1e9 too small.
-_PREFIXES = ((1e12, "T"), (1e9, "G"), (1e6, "Meg"), (1e3, "k"), (1.0, ""), (1e-3, "m"),
-             (1e-6, "u"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"))
+_PREFIXES = (
+    (1e12, "T"),
+    (1e9, "G"),
+    (1e6, "Meg"),
+    (1e3, "k"),
+    (1.0, ""),
+    (1e-3, "m"),
+    (1e-6, "u"),
+    (1e-9, "n"),
+    (1e-12, "p"),
+    (1e-15, "f"),
+)
 
 
 def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
@@ -157,7 +167,7 @@ def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
     if unit.startswith(" ") and x is not None and math.isfinite(x) and x != 0:
         bare = format_eng(x, sig)
         head = bare.rstrip("TGMegkmunpf")
-        return f"{head} {bare[len(head):]}{unit.strip()}" if "e" not in head[-4:] else f"{bare} {unit.strip()}"
+        return f"{head} {bare[len(head) :]}{unit.strip()}" if "e" not in head[-4:] else f"{bare} {unit.strip()}"
     if x is None or not math.isfinite(x):
         return f"{x}{unit}"
     if x == 0:

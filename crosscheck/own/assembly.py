@@ -75,8 +75,14 @@ class Assembled:
     size: int
 
 
-def assemble(network: Network, node_index: Mapping[str, int], branch_index: Mapping[str, int],
-             branch_elements: np.ndarray, ties: Sequence[str], stamps: Stamps = STAMPS) -> Assembled:
+def assemble(
+    network: Network,
+    node_index: Mapping[str, int],
+    branch_index: Mapping[str, int],
+    branch_elements: np.ndarray,
+    ties: Sequence[str],
+    stamps: Stamps = STAMPS,
+) -> Assembled:
     """Stamp every element (and the ties of floating parts to ground) into A0 and A1.
 
     ``branch_elements``: the mask of elements that carry a branch current, in element order; their
@@ -96,8 +102,9 @@ def assemble(network: Network, node_index: Mapping[str, int], branch_index: Mapp
     rows, cols, constant, per_omega = _joined(blocks)
     per_omega = stamps.per_omega(per_omega)
     # Sum duplicates once, keeping A0 and A1 on one shared pattern.
-    combined = sp.coo_matrix((np.asarray(constant) + 1j * np.asarray(per_omega), (rows, cols)),
-                             shape=(noted.size, noted.size)).tocsc()
+    combined = sp.coo_matrix(
+        (np.asarray(constant) + 1j * np.asarray(per_omega), (rows, cols)), shape=(noted.size, noted.size)
+    ).tocsc()
     combined.sum_duplicates()
     combined.sort_indices()
     return Assembled(combined, combined.data.real.copy(), combined.data.imag.copy(), noted.size)
@@ -110,8 +117,7 @@ class _Noted:
     arrays at the end (``_noted_entries``); the other entries are noted one by one.
     """
 
-    def __init__(self, node_index: Mapping[str, int], branch_index: Mapping[str, int], size: int,
-                 stamps: Stamps):
+    def __init__(self, node_index: Mapping[str, int], branch_index: Mapping[str, int], size: int, stamps: Stamps):
         self.node = node_index.get
         self.branch_index = branch_index
         self.size = size
@@ -190,8 +196,9 @@ class _Noted:
             self.put(k, self.branch_index[e.control], -e.value)  # type: ignore[index]
 
 
-def _bulk_entries(network: Network, node_index: Mapping[str, int],
-                  branch_elements: np.ndarray) -> tuple[list[Entries], list[Element]]:
+def _bulk_entries(
+    network: Network, node_index: Mapping[str, int], branch_elements: np.ndarray
+) -> tuple[list[Entries], list[Element]]:
     """Blocks of entries for every R, C, L and V element (ideal shorts included), and the other elements.
 
     Read from the network's element columns (``Network.element_arrays``, built once per network), so
@@ -220,28 +227,42 @@ def _bulk_entries(network: Network, node_index: Mapping[str, int],
 
 def _admittance_entries(a: np.ndarray, b: np.ndarray, y0: np.ndarray, y1: np.ndarray) -> Entries:
     """An admittance y between a and b: +y at (a, a) and (b, b), −y at (a, b) and (b, a)."""
-    return (np.concatenate([a, b, a, b]), np.concatenate([a, b, b, a]),
-            np.concatenate([y0, y0, -y0, -y0]), np.concatenate([y1, y1, -y1, -y1]))
+    return (
+        np.concatenate([a, b, a, b]),
+        np.concatenate([a, b, b, a]),
+        np.concatenate([y0, y0, -y0, -y0]),
+        np.concatenate([y1, y1, -y1, -y1]),
+    )
 
 
 def _incidence_entries(k: np.ndarray, a: np.ndarray, b: np.ndarray) -> Entries:
     """Branch k from a to b: its current leaves a and enters b (KCL rows), its row reads V(a) − V(b)."""
     one = np.ones(len(k))
-    return (np.concatenate([a, b, k, k]), np.concatenate([k, k, a, b]),
-            np.concatenate([one, -one, one, -one]), np.zeros(4 * len(k)))
+    return (
+        np.concatenate([a, b, k, k]),
+        np.concatenate([k, k, a, b]),
+        np.concatenate([one, -one, one, -one]),
+        np.zeros(4 * len(k)),
+    )
 
 
 def _noted_entries(two_terminal: list, incidence: list) -> Entries:
     """The admittances and incidences noted one element at a time, as entry arrays."""
     adm = np.array(two_terminal, dtype=float).reshape(-1, 4)
     inc = np.array(incidence, dtype=np.intp).reshape(-1, 3)
-    return _joined([_admittance_entries(adm[:, 0].astype(np.intp), adm[:, 1].astype(np.intp), adm[:, 2], adm[:, 3]),
-                    _incidence_entries(inc[:, 0], inc[:, 1], inc[:, 2])])
+    return _joined(
+        [
+            _admittance_entries(adm[:, 0].astype(np.intp), adm[:, 1].astype(np.intp), adm[:, 2], adm[:, 3]),
+            _incidence_entries(inc[:, 0], inc[:, 1], inc[:, 2]),
+        ]
+    )
 
 
 def _joined(parts: Sequence[tuple]) -> Entries:
     """Entry blocks (arrays or lists) as one block, with every entry in a ground row or column dropped."""
-    r, c, v0, v1 = (np.concatenate([np.asarray(p[i], dtype=dtype) for p in parts])
-                    for i, dtype in enumerate((np.intp, np.intp, float, float)))
+    r, c, v0, v1 = (
+        np.concatenate([np.asarray(p[i], dtype=dtype) for p in parts])
+        for i, dtype in enumerate((np.intp, np.intp, float, float))
+    )
     keep = (r >= 0) & (c >= 0)
     return r[keep], c[keep], v0[keep], v1[keep]

@@ -39,8 +39,9 @@ def condition_estimate(a: sp.spmatrix, lu: sparse_backends.Factor, norm_1: float
     return norm_1 * inverse_norm(lu, y[:, 0], y[:, 1])[0]
 
 
-def inverse_norm(lu: sparse_backends.Factor, y: np.ndarray, ramp: np.ndarray,
-                  start: int | None = None) -> tuple[float, int]:
+def inverse_norm(
+    lu: sparse_backends.Factor, y: np.ndarray, ramp: np.ndarray, start: int | None = None
+) -> tuple[float, int]:
     """Higham's iteration on ‖A⁻¹‖₁, and the column j where it ended; NaN for a solve that is not finite.
 
     ``y`` = A⁻¹·x for the start vector x: e/n (``start`` None, as in ZLACN2) or the unit vector e_start

@@ -31,15 +31,20 @@ def likely_singularity(network: Network, freq_hz: float, ties: Sequence[str] = (
     loop = _voltage_loop(network, at_dc)
     if loop:
         kinds = "voltage sources and inductors (short at DC)" if at_dc else "voltage sources"
-        return (f"{', '.join(loop)} close a loop of {kinds}; add series resistance "
-                "or leave out DC", tuple(loop))
+        return (f"{', '.join(loop)} close a loop of {kinds}; add series resistance or leave out DC", tuple(loop))
     floating = _nodes_without_path(network, at_dc, ties)
     if floating:
         via = "only capacitors (open at DC) or current sources" if at_dc else "only current sources"
-        return (f"node(s) {', '.join(floating[:8])} reach ground through {via}; add a resistive path "
-                "(for example a large resistor to ground) or leave out DC", tuple(floating))
-    return ("no structural cause found: likely a lossless resonance exactly at this frequency, or dependent "
-            "source gains that cancel; add a little loss or move the frequency", ())
+        return (
+            f"node(s) {', '.join(floating[:8])} reach ground through {via}; add a resistive path "
+            "(for example a large resistor to ground) or leave out DC",
+            tuple(floating),
+        )
+    return (
+        "no structural cause found: likely a lossless resonance exactly at this frequency, or dependent "
+        "source gains that cancel; add a little loss or move the frequency",
+        (),
+    )
 
 
 def _voltage_loop(network: Network, at_dc: bool) -> list[str]:
@@ -48,9 +53,12 @@ def _voltage_loop(network: Network, at_dc: bool) -> list[str]:
         if e.kind in "VEH" or e.is_short or (at_dc and e.kind == "L"):
             if not uf.union(*e.terminals):
                 # Report the closing element and the others on the same nodes' path (all voltage-defined).
-                return [x.name for x in network.elements
-                        if (x.kind in "VEH" or x.is_short or (at_dc and x.kind == "L"))
-                        and uf.find(x.terminals[0]) == uf.find(e.terminals[0])]
+                return [
+                    x.name
+                    for x in network.elements
+                    if (x.kind in "VEH" or x.is_short or (at_dc and x.kind == "L"))
+                    and uf.find(x.terminals[0]) == uf.find(e.terminals[0])
+                ]
     return []
 
 
@@ -81,8 +89,14 @@ def nodes_in_null_space(matrix: sp.spmatrix | np.ndarray, node_names: Sequence[s
     return tuple(name for name, x in zip(node_names, at_nodes) if x >= 0.1 * at_nodes.max())
 
 
-def singular_error(network: Network, freq_hz: float, detail: str, matrix: sp.spmatrix | None = None,
-                   node_names: tuple[str, ...] = (), ties: Sequence[str] = ()) -> SingularNetworkError:
+def singular_error(
+    network: Network,
+    freq_hz: float,
+    detail: str,
+    matrix: sp.spmatrix | None = None,
+    node_names: tuple[str, ...] = (),
+    ties: Sequence[str] = (),
+) -> SingularNetworkError:
     """Name the likely cause of a singular matrix from the structure at this frequency.
 
     With no structural cause, the nodes are read from the matrix's null space when it is given.
@@ -93,5 +107,6 @@ def singular_error(network: Network, freq_hz: float, detail: str, matrix: sp.spm
         if nodes:
             cause += f"; the undetermined voltages are at node(s) {', '.join(nodes[:8])}"
     where = f" at {freq_hz:g} Hz" if freq_hz else " at DC (0 Hz)"
-    return SingularNetworkError(f"the network's equations are singular{where}: {cause} ({detail})",
-                                nodes=nodes, freq_hz=freq_hz)
+    return SingularNetworkError(
+        f"the network's equations are singular{where}: {cause} ({detail})", nodes=nodes, freq_hz=freq_hz
+    )

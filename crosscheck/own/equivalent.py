@@ -83,8 +83,9 @@ class Equivalent:
         return ElementForm(g, "L", -1.0 / (self.omega * b))
 
 
-def thevenin(network: Network, port: Port, freqs_hz: Sequence[float] | float, *,
-             stamps: Stamps = STAMPS) -> list[Equivalent]:
+def thevenin(
+    network: Network, port: Port, freqs_hz: Sequence[float] | float, *, stamps: Stamps = STAMPS
+) -> list[Equivalent]:
     """Equivalents at ``port`` for each frequency (Hz; 0 is DC), one factorization per frequency.
 
     ``stamps``: how elements and the test current enter the matrix; the correct ones unless a caller
@@ -105,8 +106,9 @@ def thevenin(network: Network, port: Port, freqs_hz: Sequence[float] | float, *,
     return _from_open_port(system, port, freqs, xs, conds)
 
 
-def _one_frequency(system: MnaSystem, network: Network, port: Port, f: float, ties: list[str],
-                   stamps: Stamps) -> Equivalent:
+def _one_frequency(
+    system: MnaSystem, network: Network, port: Port, f: float, ties: list[str], stamps: Stamps
+) -> Equivalent:
     """Open-port route for one frequency; if that is singular, the shorted-port (Norton) route."""
     rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
     try:
@@ -120,29 +122,52 @@ def _port_voltage(system: MnaSystem, x: np.ndarray, port: Port) -> np.ndarray:
     return np.asarray(system.voltage(x, port.a)) - np.asarray(system.voltage(x, port.b))
 
 
-def _from_open_port(system: MnaSystem, port: Port, freqs: Sequence[float] | np.ndarray, xs: np.ndarray,
-                    conds: Sequence[float] | np.ndarray) -> list[Equivalent]:
+def _from_open_port(
+    system: MnaSystem,
+    port: Port,
+    freqs: Sequence[float] | np.ndarray,
+    xs: np.ndarray,
+    conds: Sequence[float] | np.ndarray,
+) -> list[Equivalent]:
     """One equivalent per frequency from the (F, n, 2) solutions: open circuit, then the 1 A test injection."""
     volts = _port_voltage(system, np.moveaxis(xs, 1, 0), port)  # (F, 2), for the whole sweep at once
     # Scales over the whole solution, branch currents included: when a voltage source pins the port,
     # every node voltage of the test solution is 0 while the 1 A test current flows in branches.
     # Column by column: numpy reduces the middle axis of a (F, n, 2) array about ten times more slowly.
     scales = np.stack([np.abs(xs[:, :, c]).max(axis=1, initial=0.0) for c in range(xs.shape[2])], axis=1)  # (F, 2)
-    return [_equivalent(float(f), complex(volts[i, 0]), complex(volts[i, 1]), float(conds[i]),
-                        float(scales[i, 0]), float(scales[i, 1])) for i, f in enumerate(freqs)]
+    return [
+        _equivalent(
+            float(f),
+            complex(volts[i, 0]),
+            complex(volts[i, 1]),
+            float(conds[i]),
+            float(scales[i, 0]),
+            float(scales[i, 1]),
+        )
+        for i, f in enumerate(freqs)
+    ]
 
 
 def _equivalent(f: float, vth: complex, zth: complex, condition: float, v_scale: float, z_scale: float) -> Equivalent:
     """The equivalent from the open-circuit voltage and the test injection's port voltage (Z_th)."""
     if abs(zth) <= _ZERO_ROUNDOFF * max(z_scale, abs(zth)) or zth == 0:
-        return Equivalent(f, vth, 0j, None, None, condition,
-                          "Z_th = 0: an ideal voltage source sits at the port, so there is no Norton form",
-                          v_scale, z_scale)
+        return Equivalent(
+            f,
+            vth,
+            0j,
+            None,
+            None,
+            condition,
+            "Z_th = 0: an ideal voltage source sits at the port, so there is no Norton form",
+            v_scale,
+            z_scale,
+        )
     return Equivalent(f, vth, zth, vth / zth, 1.0 / zth, condition, "", v_scale, z_scale)
 
 
-def _from_shorted_port(network: Network, port: Port, f: float, ties: list[str],
-                       open_error: SingularNetworkError, stamps: Stamps) -> Equivalent:
+def _from_shorted_port(
+    network: Network, port: Port, f: float, ties: list[str], open_error: SingularNetworkError, stamps: Stamps
+) -> Equivalent:
     """Short the port with a 0 V branch: its current is I_N; a 1 V test on it gives Y_N."""
     short = make_element("vport:short", "V", port)
     shorted = network.with_elements(network.elements + (short,))
@@ -160,7 +185,15 @@ def _from_shorted_port(network: Network, port: Port, f: float, ties: list[str],
     scale = float(np.max(np.abs(x[:, 1]), initial=0.0))
     v_scale = float(np.max(np.abs(x[:, 0]), initial=0.0))
     if abs(yn) <= _ZERO_ROUNDOFF * max(scale, abs(yn)) or yn == 0:
-        return Equivalent(f, None, None, in_, 0j, fac.condition,
-                          "Y_N = 0: the port sees an ideal current source, so there is no Thevenin form",
-                          v_scale, math.inf)
+        return Equivalent(
+            f,
+            None,
+            None,
+            in_,
+            0j,
+            fac.condition,
+            "Y_N = 0: the port sees an ideal current source, so there is no Thevenin form",
+            v_scale,
+            math.inf,
+        )
     return Equivalent(f, in_ / yn, 1.0 / yn, in_, yn, fac.condition, "", v_scale, 1.0 / abs(yn))

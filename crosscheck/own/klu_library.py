@@ -37,12 +37,24 @@ _KLU_SINGULAR = 1
 
 def _common_fields(with_allocators: bool) -> list[tuple[str, type]]:
     allocators = [(f"{n}_memory", _P) for n in ("malloc", "realloc", "free", "calloc")] if with_allocators else []
-    return ([(n, _D) for n in ("tol", "memgrow", "initmem_amd", "initmem", "maxwork")]
-            + [("btf", _I), ("ordering", _I), ("scale", _I)] + allocators
-            + [("user_order", _P), ("user_data", _P), ("halt_if_singular", _I), ("status", _I), ("nrealloc", _I),
-               ("structural_rank", _I), ("numerical_rank", _I), ("singular_col", _I), ("noffdiag", _I)]
-            + [(n, _D) for n in ("flops", "rcond", "condest", "rgrowth", "work")]
-            + [("memusage", ctypes.c_size_t), ("mempeak", ctypes.c_size_t)])
+    return (
+        [(n, _D) for n in ("tol", "memgrow", "initmem_amd", "initmem", "maxwork")]
+        + [("btf", _I), ("ordering", _I), ("scale", _I)]
+        + allocators
+        + [
+            ("user_order", _P),
+            ("user_data", _P),
+            ("halt_if_singular", _I),
+            ("status", _I),
+            ("nrealloc", _I),
+            ("structural_rank", _I),
+            ("numerical_rank", _I),
+            ("singular_col", _I),
+            ("noffdiag", _I),
+        ]
+        + [(n, _D) for n in ("flops", "rcond", "condest", "rgrowth", "work")]
+        + [("memusage", ctypes.c_size_t), ("mempeak", ctypes.c_size_t)]
+    )
 
 
 class _CommonOld(ctypes.Structure):  # SuiteSparse 4.x: allocator pointers in the struct
@@ -55,9 +67,18 @@ class _CommonNew(ctypes.Structure):  # later releases: allocators live in SuiteS
 
 def _reads_defaults(common: ctypes.Structure) -> bool:
     """klu_defaults documents these values; a struct of the right layout reads them all back."""
-    return (common.tol == 0.001 and common.memgrow == 1.2 and common.initmem == 10.0 and common.btf == 1
-            and common.scale == 2 and common.halt_if_singular == 1 and common.status == 0
-            and common.structural_rank == -1 and common.numerical_rank == -1 and common.noffdiag == -1)
+    return (
+        common.tol == 0.001
+        and common.memgrow == 1.2
+        and common.initmem == 10.0
+        and common.btf == 1
+        and common.scale == 2
+        and common.halt_if_singular == 1
+        and common.status == 0
+        and common.structural_rank == -1
+        and common.numerical_rank == -1
+        and common.noffdiag == -1
+    )
 
 
 def library_paths() -> list[str]:
@@ -132,9 +153,11 @@ class KluError(CrosscheckError, ArithmeticError):
         self.singular = singular
 
 
-_STATUS = {-2: "out of memory: the factors do not fit; try a smaller network or CROSSCHECK_SPARSE=superlu",
-           -3: "invalid input: a bug in crosscheck's matrix assembly; please report it with the netlist",
-           -4: "integer overflow: the network is too large for KLU's 32-bit indices; try CROSSCHECK_SPARSE=superlu"}
+_STATUS = {
+    -2: "out of memory: the factors do not fit; try a smaller network or CROSSCHECK_SPARSE=superlu",
+    -3: "invalid input: a bug in crosscheck's matrix assembly; please report it with the netlist",
+    -4: "integer overflow: the network is too large for KLU's 32-bit indices; try CROSSCHECK_SPARSE=superlu",
+}
 
 
 def _error(call: str, common: ctypes.Structure) -> KluError:
@@ -177,8 +200,9 @@ class Symbolic:
         """
         values = np.ascontiguousarray(values, dtype=complex)
         common = self._library.new_common()
-        handle = self._library.lib.klu_z_factor(*self.pattern_pointers, values.ctypes.data, self._handle,
-                                                ctypes.byref(common))
+        handle = self._library.lib.klu_z_factor(
+            *self.pattern_pointers, values.ctypes.data, self._handle, ctypes.byref(common)
+        )
         if not handle:
             raise _error("klu_z_factor", common)
         return Numeric(self, handle, common)

@@ -12,11 +12,17 @@ import scipy.sparse as sp
 from crosscheck.own import sparse_backends
 
 #: Normwise backward error above which a sparse solve is refined (~32ε; LU with partial pivoting gives ~ε).
-REFINE_ABOVE = 2.0 ** -47
+REFINE_ABOVE = 2.0**-47
 
 
-def refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, norm_inf: float, x: np.ndarray | None = None,
-             checked: tuple[np.ndarray, float] | None = None) -> np.ndarray:
+def refined(
+    a: sp.spmatrix,
+    lu: sparse_backends.Factor,
+    b: np.ndarray,
+    norm_inf: float,
+    x: np.ndarray | None = None,
+    checked: tuple[np.ndarray, float] | None = None,
+) -> np.ndarray:
     """A⁻¹·b, improved by up to two steps of iterative refinement while the backward error exceeds REFINE_ABOVE.
 
     The normwise backward error ‖r‖∞/(‖A‖∞·‖x‖∞ + ‖b‖∞) of each column (Rigal and Gaches 1967) is ~ε
@@ -42,8 +48,9 @@ def refined(a: sp.spmatrix, lu: sparse_backends.Factor, b: np.ndarray, norm_inf:
     return x
 
 
-def backward_error(a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray,
-                    b_sizes: np.ndarray | None = None) -> tuple[np.ndarray, float]:
+def backward_error(
+    a: sp.spmatrix, norm_a: float, b: np.ndarray, x: np.ndarray, b_sizes: np.ndarray | None = None
+) -> tuple[np.ndarray, float]:
     """The residual b − A·x and the largest normwise backward error of its columns (0/0 counts as 0)."""
     residual = b - a @ np.ascontiguousarray(x)  # scipy would copy a column-major block itself, more slowly
     scale = norm_a * column_sizes(x) + (column_sizes(b) if b_sizes is None else b_sizes)

@@ -29,8 +29,18 @@ from crosscheck.own.condition import condition_estimate, inverse_norm, ramp
 from crosscheck.own.diagnose import singular_error
 from crosscheck.own.refinement import REFINE_ABOVE, backward_error, column_sizes, refined
 
-__all__ = ["DENSE_LIMIT", "REFINE_ABOVE", "SINGULAR_CONDITION", "SWEEP_CHUNK", "THREADS_FROM", "THREADS_VAR",
-           "Factorization", "MnaSystem", "Stamps", "default_threads"]
+__all__ = [
+    "DENSE_LIMIT",
+    "REFINE_ABOVE",
+    "SINGULAR_CONDITION",
+    "SWEEP_CHUNK",
+    "THREADS_FROM",
+    "THREADS_VAR",
+    "Factorization",
+    "MnaSystem",
+    "Stamps",
+    "default_threads",
+]
 
 #: Below this many unknowns a sweep is solved as one batched dense problem (faster than sparse LU).
 DENSE_LIMIT = 80
@@ -99,8 +109,9 @@ class MnaSystem:
 
     def matrix(self, freq_hz: float) -> sp.csc_matrix:
         """A(ω) = A0 + jω·A1 on the shared pattern (its index arrays are shared, not copied)."""
-        return sp.csc_matrix((self._values(freq_hz), self._pattern.indices, self._pattern.indptr),
-                             shape=self._pattern.shape)
+        return sp.csc_matrix(
+            (self._values(freq_hz), self._pattern.indices, self._pattern.indptr), shape=self._pattern.shape
+        )
 
     def _values(self, freq_hz: float, out: np.ndarray | None = None) -> np.ndarray:
         """The stored entries of A(ω) = A0 + jω·A1, into ``out`` when given (a sweep refills one buffer)."""
@@ -166,11 +177,11 @@ class MnaSystem:
             self._check_condition(freq_hz, condition, a)
         else:
             condition = math.nan
-        return Factorization(freq_hz, lambda b: refined(a, lu, np.asarray(b, dtype=complex), norm_inf),
-                             condition)
+        return Factorization(freq_hz, lambda b: refined(a, lu, np.asarray(b, dtype=complex), norm_inf), condition)
 
-    def solve_many(self, freqs_hz: Sequence[float] | np.ndarray, rhs: np.ndarray,
-                   estimate_condition: bool = True) -> tuple[np.ndarray, np.ndarray]:
+    def solve_many(
+        self, freqs_hz: Sequence[float] | np.ndarray, rhs: np.ndarray, estimate_condition: bool = True
+    ) -> tuple[np.ndarray, np.ndarray]:
         """Solve A(ω)·X = rhs for every frequency: (F, n, k) solutions and (F,) conditions (NaN if not estimated).
 
         Small systems go through one batched dense solve. Large ones through sparse LU: the ordering
@@ -187,7 +198,7 @@ class MnaSystem:
         if self.size < THREADS_FROM:  # never threaded: one chain, no fresh pivot search at each run's start
             chunks = [freqs] if len(freqs) else []
         else:
-            chunks = [freqs[i:i + SWEEP_CHUNK] for i in range(0, len(freqs), SWEEP_CHUNK)]
+            chunks = [freqs[i : i + SWEEP_CHUNK] for i in range(0, len(freqs), SWEEP_CHUNK)]
         threads = 1
         if len(chunks) > 1:  # only from THREADS_FROM unknowns
             threads = min(len(chunks), self.sweep_threads or default_threads())
@@ -215,8 +226,10 @@ class MnaSystem:
         conds = np.full(len(freqs), math.nan)
         # A(ω) on the shared pattern, its values refilled in place at each frequency (the factorization
         # copies them): it serves one frequency at a time.
-        a = sp.csc_matrix((np.empty(len(self._a0), dtype=complex), self._pattern.indices, self._pattern.indptr),
-                          shape=self._pattern.shape)
+        a = sp.csc_matrix(
+            (np.empty(len(self._a0), dtype=complex), self._pattern.indices, self._pattern.indptr),
+            shape=self._pattern.shape,
+        )
         lu = None  # the last frequency's factor: the next refactors on its pivot order when that stays accurate
         peak = None
         rhs_sizes = column_sizes(rhs)
@@ -274,7 +287,9 @@ class MnaSystem:
         assert self._entry_columns is not None, "made with the analysis (_ensure_analysis)"
         return sweep_kernel.Run(symbolic, self._a0, self._a1, self._entry_columns, k, REFINE_ABOVE, SINGULAR_CONDITION)
 
-    def _solve_dense(self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool) -> tuple[np.ndarray, np.ndarray]:
+    def _solve_dense(
+        self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool
+    ) -> tuple[np.ndarray, np.ndarray]:
         """The whole sweep as one batched dense solve, with the exact 1-norm condition of each matrix."""
         mats = self.dense_matrices(freqs)
         if not estimate_condition:
@@ -307,8 +322,9 @@ class MnaSystem:
         norm_inf = float(np.bincount(a.indices, size, minlength=self.size).max(initial=0.0))
         return norm_1, norm_inf
 
-    def _factor(self, freq_hz: float, a: sp.csc_matrix, reuse: sparse_backends.Factor | None = None
-                ) -> sparse_backends.Factor:
+    def _factor(
+        self, freq_hz: float, a: sp.csc_matrix, reuse: sparse_backends.Factor | None = None
+    ) -> sparse_backends.Factor:
         """The numeric LU of ``a`` = A(ω) on the symbolic analysis made once for this network.
 
         ``reuse``: an earlier frequency's factor whose pivot order may be kept (the result says so in its
@@ -358,8 +374,10 @@ def default_threads() -> int:
     if not text:
         return os.cpu_count() or 1
     if not text.isdigit() or int(text) < 1:
-        raise ValueError(f"{THREADS_VAR}={text!r} is not a whole number of threads >= 1; "
-                         "set it to 1 for no threads, or unset it for one per core")
+        raise ValueError(
+            f"{THREADS_VAR}={text!r} is not a whole number of threads >= 1; "
+            "set it to 1 for no threads, or unset it for one per core"
+        )
     return int(text)
 
 

@@ -91,11 +91,14 @@ def default_backend() -> str:
 
 def _check_name(name: str) -> None:
     if name not in BACKENDS:
-        raise ValueError(f"sparse back end {name!r} is unknown; choose one of {', '.join(BACKENDS)} "
-                         f"(or unset {ENV_VAR})")
+        raise ValueError(
+            f"sparse back end {name!r} is unknown; choose one of {', '.join(BACKENDS)} (or unset {ENV_VAR})"
+        )
     if name not in available():
-        raise ValueError(f"sparse back end {name!r} needs a KLU library, and none loads here; install Debian's "
-                         "libklu1 (apt-get install libklu1) or pip install 'crosscheck[fast]', or choose superlu")
+        raise ValueError(
+            f"sparse back end {name!r} needs a KLU library, and none loads here; install Debian's "
+            "libklu1 (apt-get install libklu1) or pip install 'crosscheck[fast]', or choose superlu"
+        )
 
 
 def analyse(pattern: sp.csc_matrix, backend: str | None = None) -> Analysis:
@@ -146,7 +149,9 @@ class _KluFactor:
     def __init__(self, numeric) -> None:
         self.numeric = numeric
         self.reused = False  # True once refactored on an earlier matrix's pivot order
-        self.solve = numeric.solve  # Factor.solve with no call in between (the Python loop calls it ~3 times a frequency)
+        self.solve = (
+            numeric.solve
+        )  # Factor.solve with no call in between (the Python loop calls it ~3 times a frequency)
 
 
 class _KluAnalysis:
@@ -155,8 +160,10 @@ class _KluAnalysis:
     def __init__(self, pattern: sp.csc_matrix) -> None:
         library = klu_library.load()
         if library is None:
-            raise ValueError("sparse back end 'klu' needs a KLU library; install Debian's libklu1 "
-                             "or pip install 'crosscheck[fast]', or choose superlu")
+            raise ValueError(
+                "sparse back end 'klu' needs a KLU library; install Debian's libklu1 "
+                "or pip install 'crosscheck[fast]', or choose superlu"
+            )
         self.symbolic = klu_library.Symbolic(library, pattern.indptr, pattern.indices)
 
     def factor(self, values: np.ndarray, reuse: Factor | None = None) -> Factor:

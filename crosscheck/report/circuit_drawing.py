@@ -55,8 +55,9 @@ def equivalent_svg(eq: Equivalent, port: tuple[str, str], sources: str = "peak")
     drawing.config(unit=2.6, fontsize=12, margin=0.6)
     at = "at DC" if eq.freq_hz == 0 else f"at {format_eng(eq.freq_hz, 4, ' Hz')}"
     if eq.vth is not None:
-        source = drawing.add(elm.SourceV().up().label(
-            f"V_th = {format_polar(eq.vth, 4, ' V')}\n{sources} {at}", loc="top"))
+        source = drawing.add(
+            elm.SourceV().up().label(f"V_th = {format_polar(eq.vth, 4, ' V')}\n{sources} {at}", loc="top")
+        )
         parts = _series_elements(eq)
         for kind, label in parts:
             element = {"R": elm.Resistor, "L": elm.Inductor2, "C": elm.Capacitor}[kind]()
@@ -64,8 +65,9 @@ def equivalent_svg(eq: Equivalent, port: tuple[str, str], sources: str = "peak")
         if not parts:
             drawing.add(elm.Line().right().label("Z_th = 0"))
     else:
-        source = drawing.add(elm.SourceI().up().label(
-            f"I_N = {format_polar(eq.in_ or 0j, 4, ' A')}\n{sources} {at}", loc="top"))
+        source = drawing.add(
+            elm.SourceI().up().label(f"I_N = {format_polar(eq.in_ or 0j, 4, ' A')}\n{sources} {at}", loc="top")
+        )
         drawing.add(elm.Line().right().label("Y_N = 0: no Thevenin form"))
     drawing.add(elm.Dot(open=True).label(f"a ({port[0]})", loc="right"))
     drawing.add(elm.Gap().down().toy(source.start).label(["+", "port", "−"]))

@@ -32,8 +32,9 @@ def own_point(eq: Equivalent) -> dict[str, Any]:
     }
 
 
-def equivalents_document(network: Network, port: Port, points: Sequence[Equivalent], sources: str,
-                         source_file: str | None = None) -> dict[str, Any]:
+def equivalents_document(
+    network: Network, port: Port, points: Sequence[Equivalent], sources: str, source_file: str | None = None
+) -> dict[str, Any]:
 
     return {
         "crosscheck_version": __version__,

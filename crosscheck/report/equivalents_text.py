@@ -54,17 +54,27 @@ def equivalents_blocks(console: Console, title: str, port: tuple[str, str], poin
     """The same numbers as the table, one block per frequency, for narrow terminals and pipes."""
     console.print(f"[bold]{title}[/]\nport {port[0]} → {port[1]}")
     for eq in points:
-        console.print(f"\n[bold]f = {format_eng(eq.freq_hz, 6, ' Hz')}[/]   [dim](matrix condition {eq.condition:.1g})[/]")
+        console.print(
+            f"\n[bold]f = {format_eng(eq.freq_hz, 6, ' Hz')}[/]   [dim](matrix condition {eq.condition:.1g})[/]"
+        )
         series = eq.series_form()
         parallel = eq.parallel_form()
         console.print(f"  V_th  {_cell(eq.vth, ' V', polar=True)}")
         console.print(f"  Z_th  {_cell(eq.zth, ' Ω', polar=False)}" + (f"  =  {_form(series, True)}" if series else ""))
         console.print(f"  I_N   {_cell(eq.in_, ' A', polar=True)}")
-        console.print(f"  Y_N   {_cell(eq.yn, ' S', polar=False)}" + (f"  =  {_form(parallel, False)}" if parallel else ""))
+        console.print(
+            f"  Y_N   {_cell(eq.yn, ' S', polar=False)}" + (f"  =  {_form(parallel, False)}" if parallel else "")
+        )
 
 
-def print_equivalents(console: Console, title: str, port: tuple[str, str], points: Sequence[Equivalent],
-                      source_note: str, caution: bool = True) -> None:
+def print_equivalents(
+    console: Console,
+    title: str,
+    port: tuple[str, str],
+    points: Sequence[Equivalent],
+    source_note: str,
+    caution: bool = True,
+) -> None:
     if console.width >= 110:
         console.print(equivalents_table(title, port, points, wide=console.width >= 140))
     else:

@@ -23,9 +23,33 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.vocabulary import QUANTITIES, Verdict, quantity_unit
 
-COLUMNS = ["case", "title", "port", "check", "freq_hz", "quantity", "own_re", "own_im", "spice_re", "spice_im",
-           "expected_re", "expected_im", "limit_min", "limit_max", "band_lo_hz", "band_hi_hz", "margin",
-           "err", "rel_err", "mag_err_pct", "phase_err_deg", "tolerance", "condition", "verdict", "explanation"]
+COLUMNS = [
+    "case",
+    "title",
+    "port",
+    "check",
+    "freq_hz",
+    "quantity",
+    "own_re",
+    "own_im",
+    "spice_re",
+    "spice_im",
+    "expected_re",
+    "expected_im",
+    "limit_min",
+    "limit_max",
+    "band_lo_hz",
+    "band_hi_hz",
+    "margin",
+    "err",
+    "rel_err",
+    "mag_err_pct",
+    "phase_err_deg",
+    "tolerance",
+    "condition",
+    "verdict",
+    "explanation",
+]
 
 #: What each ``check`` value in the frame and in a Finding means.
 CHECKS = {
@@ -64,33 +88,79 @@ def _spice_rows(r: CaseResult) -> list[dict]:
     rows = []
     for p in r.points:
         for q in p.quantities:
-            rows.append(dict(check="spice", freq_hz=p.freq_hz, quantity=q.quantity, own_re=_re(q.own),
-                             own_im=_im(q.own), spice_re=_re(q.ref), spice_im=_im(q.ref), err=q.err,
-                             rel_err=q.rel_err, mag_err_pct=q.mag_err_pct, phase_err_deg=q.phase_err_deg,
-                             tolerance=r.tolerance.rel, condition=p.condition, verdict=q.verdict,
-                             explanation=q.explanation))
+            rows.append(
+                dict(
+                    check="spice",
+                    freq_hz=p.freq_hz,
+                    quantity=q.quantity,
+                    own_re=_re(q.own),
+                    own_im=_im(q.own),
+                    spice_re=_re(q.ref),
+                    spice_im=_im(q.ref),
+                    err=q.err,
+                    rel_err=q.rel_err,
+                    mag_err_pct=q.mag_err_pct,
+                    phase_err_deg=q.phase_err_deg,
+                    tolerance=r.tolerance.rel,
+                    condition=p.condition,
+                    verdict=q.verdict,
+                    explanation=q.explanation,
+                )
+            )
     return rows
 
 
 def _expect_row(e: ExpectationCheck) -> dict:
-    return dict(check="expect", freq_hz=e.at_hz, quantity=e.quantity, own_re=_re(e.obtained), own_im=_im(e.obtained),
-                expected_re=e.expected.real, expected_im=e.expected.imag, rel_err=e.rel_err,
-                mag_err_pct=e.mag_err_pct, phase_err_deg=e.phase_err_deg, verdict=e.verdict,
-                explanation=e.explanation, tolerance=math.nan)
+    return dict(
+        check="expect",
+        freq_hz=e.at_hz,
+        quantity=e.quantity,
+        own_re=_re(e.obtained),
+        own_im=_im(e.obtained),
+        expected_re=e.expected.real,
+        expected_im=e.expected.imag,
+        rel_err=e.rel_err,
+        mag_err_pct=e.mag_err_pct,
+        phase_err_deg=e.phase_err_deg,
+        verdict=e.verdict,
+        explanation=e.explanation,
+        tolerance=math.nan,
+    )
 
 
 def _limit_row(c: LimitCheck) -> dict:
     lo, hi = c.band if c.band is not None else (math.nan, math.nan)
-    return dict(check="limit", freq_hz=_nan(c.worst_freq_hz), quantity=c.text, own_re=_nan(c.worst_value),
-                limit_min=_nan(c.minimum), limit_max=_nan(c.maximum), band_lo_hz=lo, band_hi_hz=hi,
-                margin=_nan(c.margin), verdict=c.verdict, explanation=c.explanation, tolerance=math.nan)
+    return dict(
+        check="limit",
+        freq_hz=_nan(c.worst_freq_hz),
+        quantity=c.text,
+        own_re=_nan(c.worst_value),
+        limit_min=_nan(c.minimum),
+        limit_max=_nan(c.maximum),
+        band_lo_hz=lo,
+        band_hi_hz=hi,
+        margin=_nan(c.margin),
+        verdict=c.verdict,
+        explanation=c.explanation,
+        tolerance=math.nan,
+    )
 
 
 def _drift_row(d: DriftCheck) -> dict:
     # The baseline file states its own tolerance; the record does not carry it, so the column stays empty.
-    return dict(check="drift", freq_hz=d.freq_hz, quantity=d.quantity, own_re=_re(d.obtained), own_im=_im(d.obtained),
-                expected_re=_re(d.baseline), expected_im=_im(d.baseline), rel_err=d.rel_err,
-                verdict=d.verdict, explanation=d.explanation, tolerance=math.nan)
+    return dict(
+        check="drift",
+        freq_hz=d.freq_hz,
+        quantity=d.quantity,
+        own_re=_re(d.obtained),
+        own_im=_im(d.obtained),
+        expected_re=_re(d.baseline),
+        expected_im=_im(d.baseline),
+        rel_err=d.rel_err,
+        verdict=d.verdict,
+        explanation=d.explanation,
+        tolerance=math.nan,
+    )
 
 
 def _nan(x: float | None) -> float:
@@ -103,8 +173,7 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
     for r in results:
         head = dict(case=r.name, title=r.title, port=f"{r.port[0]},{r.port[1]}", tolerance=r.tolerance.rel)
         if r.error:
-            rows.append(head | dict(check="input", freq_hz=math.nan, quantity="", verdict="error",
-                                    explanation=r.error))
+            rows.append(head | dict(check="input", freq_hz=math.nan, quantity="", verdict="error", explanation=r.error))
         body = _spice_rows(r) + [_expect_row(e) for e in r.expectations] + [_limit_row(c) for c in r.limits]
         body += [_drift_row(d) for d in r.drift]
         rows.extend(head | row for row in body)
@@ -118,12 +187,12 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
 class Finding:
     """One judged item of a case in words: ``obtained`` is always crosscheck's own value (or the case's)."""
 
-    check: str          # a key of CHECKS
-    label: str          # "zth vs SPICE", "expect[1] vth", "limit[2] abs(zth)", "drift vth"
+    check: str  # a key of CHECKS
+    label: str  # "zth vs SPICE", "expect[1] vth", "limit[2] abs(zth)", "drift vth"
     freq_hz: float | None
     obtained: str
     expected: str
-    error: str          # how far off, against what tolerance or bound
+    error: str  # how far off, against what tolerance or bound
     verdict: str
     why: str
 
@@ -141,9 +210,18 @@ def _spice_findings(r: CaseResult) -> list[Finding]:
     for p in r.points:
         for q in p.quantities:
             error = "—" if math.isnan(q.err) else f"{q.err:.3g} (tolerance {r.tolerance.rel:.3g})"
-            out.append(Finding("spice", f"{q.quantity} vs SPICE", p.freq_hz, _polar(q.own, quantity_unit(q.quantity)),
-                               f"{_polar(q.ref, quantity_unit(q.quantity))} (ngspice)", error, q.verdict,
-                               q.explanation or p.explanation))
+            out.append(
+                Finding(
+                    "spice",
+                    f"{q.quantity} vs SPICE",
+                    p.freq_hz,
+                    _polar(q.own, quantity_unit(q.quantity)),
+                    f"{_polar(q.ref, quantity_unit(q.quantity))} (ngspice)",
+                    error,
+                    q.verdict,
+                    q.explanation or p.explanation,
+                )
+            )
     return out
 
 
@@ -156,15 +234,17 @@ def _expect_finding(e: ExpectationCheck) -> Finding:
         obtained, expected = _polar(e.obtained, unit), _polar(e.expected, unit)
     error = f"{_pct(e.mag_err_pct)} % in magnitude, {_pct(e.phase_err_deg)}° in phase"
     why = e.explanation + (f" (likely slip: {e.slip})" if e.slip and e.slip not in e.explanation else "")
-    return Finding("expect", f"expect[{e.index}] {e.quantity}", e.at_hz, obtained, f"{expected} (by hand)", error,
-                   e.verdict, why)
+    return Finding(
+        "expect", f"expect[{e.index}] {e.quantity}", e.at_hz, obtained, f"{expected} (by hand)", error, e.verdict, why
+    )
 
 
 def limit_bounds(c: LimitCheck) -> str:
     """'≥ 1 kΩ and ≤ 2 kΩ' in the limit's unit."""
     unit = " " + limit_unit(c)
-    parts = ([f"≥ {format_eng(c.minimum, 4, unit)}"] if c.minimum is not None else []) + \
-            ([f"≤ {format_eng(c.maximum, 4, unit)}"] if c.maximum is not None else [])
+    parts = ([f"≥ {format_eng(c.minimum, 4, unit)}"] if c.minimum is not None else []) + (
+        [f"≤ {format_eng(c.maximum, 4, unit)}"] if c.maximum is not None else []
+    )
     return " and ".join(parts)
 
 
@@ -178,15 +258,31 @@ def _limit_finding(c: LimitCheck) -> Finding:
     unit = " " + limit_unit(c)
     obtained = "none" if c.worst_value is None else format_eng(c.worst_value, 6, unit)
     error = "—" if c.margin is None else f"margin {format_eng(c.margin, 4, unit)}"
-    return Finding("limit", f"limit[{c.index}] {c.text}", c.worst_freq_hz, obtained,
-                   f"{limit_bounds(c)} {band_text(c.band)}", error, c.verdict, c.explanation)
+    return Finding(
+        "limit",
+        f"limit[{c.index}] {c.text}",
+        c.worst_freq_hz,
+        obtained,
+        f"{limit_bounds(c)} {band_text(c.band)}",
+        error,
+        c.verdict,
+        c.explanation,
+    )
 
 
 def _drift_finding(d: DriftCheck) -> Finding:
     unit = _unit(d.quantity)
     error = "—" if math.isnan(d.rel_err) else f"{d.rel_err:.3g} relative"
-    return Finding("drift", f"drift {d.quantity}", d.freq_hz, _polar(d.obtained, unit),
-                   f"{_polar(d.baseline, unit)} (baseline)", error, d.verdict, d.explanation)
+    return Finding(
+        "drift",
+        f"drift {d.quantity}",
+        d.freq_hz,
+        _polar(d.obtained, unit),
+        f"{_polar(d.baseline, unit)} (baseline)",
+        error,
+        d.verdict,
+        d.explanation,
+    )
 
 
 def findings(result: CaseResult, include_pass: bool = False) -> list[Finding]:
@@ -219,8 +315,18 @@ def case_reason(result: CaseResult) -> str:
 def finding_table(found: Sequence[Finding], limit: int = 8) -> list[str]:
     """Findings as aligned plain-text lines (what, at, obtained, expected, off by), at most ``limit`` rows."""
     header = ("check", "at", "obtained (crosscheck)", "expected", "off by", "verdict")
-    rows = [(f.label, "—" if f.freq_hz is None else format_eng(f.freq_hz, 4, " Hz"), f.obtained, f.expected,
-             f.error, f.verdict) for f in found[:limit] if f.check != "input"]
+    rows = [
+        (
+            f.label,
+            "—" if f.freq_hz is None else format_eng(f.freq_hz, 4, " Hz"),
+            f.obtained,
+            f.expected,
+            f.error,
+            f.verdict,
+        )
+        for f in found[:limit]
+        if f.check != "input"
+    ]
     if not rows:
         return []
     widths = [max(len(row[i]) for row in [header, *rows]) for i in range(len(header))]

@@ -26,34 +26,51 @@ def _e(x: float | None) -> str:
 
 def print_summary(console: Console, s: FuzzSummary) -> None:
     k = s.options.knobs
-    what = (f"{len(s.options.case_seeds)} chosen case seed(s)" if s.options.case_seeds
-            else f"{s.cases_run} case(s), seed {s.options.seed}")
-    console.print(f"[bold]crosscheck fuzz[/]: {what}; family {k.family}, nodes {k.min_nodes}..{k.max_nodes}, "
-                  f"kinds {k.kinds}; tolerance rel {s.options.tolerance.rel:g}")
+    what = (
+        f"{len(s.options.case_seeds)} chosen case seed(s)"
+        if s.options.case_seeds
+        else f"{s.cases_run} case(s), seed {s.options.seed}"
+    )
+    console.print(
+        f"[bold]crosscheck fuzz[/]: {what}; family {k.family}, nodes {k.min_nodes}..{k.max_nodes}, "
+        f"kinds {k.kinds}; tolerance rel {s.options.tolerance.rel:g}"
+    )
     for f in s.faults:
         console.print(f"[bold red]FAULT INJECTED[/]: {f}: {escape(FAULTS[f])}. The own solver was broken on purpose.")
     if s.stopped_early:
         console.print(f"Stopped after {s.cases_run} case(s): the failure limit was reached.")
     c, x = s.counts, s.explained
     line = Text.assemble(
-        ("pass ", ""), (str(c["pass"]), "green"), ("  ·  fail ", ""), (str(c["fail"]), "bold red" if c["fail"] else ""),
+        ("pass ", ""),
+        (str(c["pass"]), "green"),
+        ("  ·  fail ", ""),
+        (str(c["fail"]), "bold red" if c["fail"] else ""),
         (f" ({x['fail']} explained: roundoff or an ngspice limitation)", "dim"),
-        ("  ·  unavailable ", ""), (str(c["unavailable"]), "yellow" if c["unavailable"] else ""),
+        ("  ·  unavailable ", ""),
+        (str(c["unavailable"]), "yellow" if c["unavailable"] else ""),
         (f" ({x['unavailable']} expected by the case's caveat)", "dim"),
-        ("  ·  error ", ""), (str(c["error"]), "bold magenta" if c["error"] else ""))
+        ("  ·  error ", ""),
+        (str(c["error"]), "bold magenta" if c["error"] else ""),
+    )
     console.print(line)
     shrinking = f"; shrinking {s.shrink_s:.1f} s" if s.shrink_s else ""
-    console.print(f"{s.rate:.1f} cases/s through both engines ({s.workers} ngspice worker(s); "
-                  f"{s.elapsed_s:.1f} s, own solver {s.own_s:.1f} s of it){shrinking}"
-                  f"{'; ' + s.ngspice_version if s.ngspice_version else ''}")
+    console.print(
+        f"{s.rate:.1f} cases/s through both engines ({s.workers} ngspice worker(s); "
+        f"{s.elapsed_s:.1f} s, own solver {s.own_s:.1f} s of it){shrinking}"
+        f"{'; ' + s.ngspice_version if s.ngspice_version else ''}"
+    )
     table = Table(title="judged error |Δ| / max(|ref|, roundoff floor) per compared value", title_justify="left")
     for h in ("quantity", "compared", "p50", "p90", "p99", "p99.9", "max", "worst at (case seed, f)"):
         table.add_column(h, justify="left" if h in ("quantity", "worst at (case seed, f)") else "right")
     for q in COMPARED:
         p = s.percentiles(q)
         worst = s.worst.get(q)
-        table.add_row(q, str(len(s.errors[q])), *(_e(p.get(n)) for n in ("p50", "p90", "p99", "p99.9", "max")),
-                      f"{worst[1]}, {worst[2]:g} Hz" if worst else "—")
+        table.add_row(
+            q,
+            str(len(s.errors[q])),
+            *(_e(p.get(n)) for n in ("p50", "p90", "p99", "p99.9", "max")),
+            f"{worst[1]}, {worst[2]:g} Hz" if worst else "—",
+        )
     console.print(table)
     if s.problems:
         t = Table(title=f"unexplained: {len(s.problems)} case(s)", title_justify="left")
@@ -66,9 +83,11 @@ def print_summary(console: Console, s: FuzzSummary) -> None:
         console.print(f"Rerun one alone: {regenerate_command(s.problems[0].case.seed, k)}")
     for r in s.reproducers:
         files = f" → {r.files[1]}" if r.files else ""
-        console.print(f"shrunk {r.seed}: {r.shrunk.original_size[0]} elements, {r.shrunk.original_size[1]} nodes, "
-                      f"{r.shrunk.original_size[2]} freq → {r.shrunk.size[0]}, {r.shrunk.size[1]}, {r.shrunk.size[2]} "
-                      f"(still {r.outcome.status}){files}")
+        console.print(
+            f"shrunk {r.seed}: {r.shrunk.original_size[0]} elements, {r.shrunk.original_size[1]} nodes, "
+            f"{r.shrunk.original_size[2]} freq → {r.shrunk.size[0]}, {r.shrunk.size[1]}, {r.shrunk.size[2]} "
+            f"(still {r.outcome.status}){files}"
+        )
     if s.explained_cases:
         console.print(f"[dim]Explained ({len(s.explained_cases)}; first {min(_SHOWN, len(s.explained_cases))}):[/]")
         for o in s.explained_cases[:_SHOWN]:
@@ -86,16 +105,23 @@ class _Rate(ProgressColumn):
 def fuzz_progress(total: int, console: Console | None = None) -> Iterator:
     """A progress bar with rate and time left on stderr; yields the ``on_progress`` callback for ``run_fuzz``."""
     console = console or Console(stderr=True)
-    progress = Progress(TextColumn("fuzz"), BarColumn(), MofNCompleteColumn(), _Rate(), TimeRemainingColumn(),
-                        TextColumn("{task.fields[problems]}"), console=console, transient=True,
-                        disable=not console.is_terminal)
+    progress = Progress(
+        TextColumn("fuzz"),
+        BarColumn(),
+        MofNCompleteColumn(),
+        _Rate(),
+        TimeRemainingColumn(),
+        TextColumn("{task.fields[problems]}"),
+        console=console,
+        transient=True,
+        disable=not console.is_terminal,
+    )
     with progress:
         task = progress.add_task("cases", total=total, problems="")
         seen = [0]
 
         def advance(done: int, _total: int, outcome) -> None:
             seen[0] += outcome.problem
-            progress.update(task, completed=done,
-                            problems=f"[bold red]{seen[0]} unexplained[/]" if seen[0] else "")
+            progress.update(task, completed=done, problems=f"[bold red]{seen[0]} unexplained[/]" if seen[0] else "")
 
         yield advance

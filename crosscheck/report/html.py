@@ -75,9 +75,11 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: Seque
     """Cells are given already escaped (they may hold markup such as a verdict badge)."""
     head = "".join(f"<th>{_e(h)}</th>" for h in headers)
     body = "".join(
-        "<tr>" + "".join(f'<td class="num">{c}</td>' if i in numeric else f"<td>{c}</td>"
-                         for i, c in enumerate(row)) + "</tr>"
-        for row in rows)
+        "<tr>"
+        + "".join(f'<td class="num">{c}</td>' if i in numeric else f"<td>{c}</td>" for i, c in enumerate(row))
+        + "</tr>"
+        for row in rows
+    )
     return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
 
@@ -86,8 +88,17 @@ def _summary(results: Sequence[CaseResult]) -> str:
     for i, r in enumerate(results, start=1):
         worst = worst_spice_error(r)
         why = case_reason(r) if r.verdict != "pass" else ""
-        rows.append([f'<a href="#case-{i}">{_e(r.name)}</a>', _e(r.title), _e(f"{r.port[0]} → {r.port[1]}"),
-                     str(len(r.freqs_hz)), _num(worst), _badge(r.verdict), _e(why[:400])])
+        rows.append(
+            [
+                f'<a href="#case-{i}">{_e(r.name)}</a>',
+                _e(r.title),
+                _e(f"{r.port[0]} → {r.port[1]}"),
+                str(len(r.freqs_hz)),
+                _num(worst),
+                _badge(r.verdict),
+                _e(why[:400]),
+            ]
+        )
     return _table(("case", "title", "port", "points", "worst err", "verdict", "why"), rows, numeric=(3, 4))
 
 
@@ -96,13 +107,29 @@ def _points_table(r: CaseResult) -> str:
         rows = []
         for p in r.points:
             for j, q in enumerate(p.quantities):
-                rows.append([_e(format_eng(p.freq_hz, 6, " Hz")) if j == 0 else "", _e(q.quantity),
-                             _z(q.own, quantity_unit(q.quantity)), _z(q.ref, quantity_unit(q.quantity)), _num(q.err),
-                             _badge(q.verdict), _e(q.explanation)])
-        return _table(("f", "qty", "crosscheck", "ngspice", "err", "verdict", "explanation"), rows,
-                      numeric=(0, 4))
-    rows = [[_e(format_eng(eq.freq_hz, 6, " Hz")), _z(eq.vth, "V"), _z(eq.zth, "Ω"), _z(eq.in_, "A"),
-             f"{eq.condition:.1g}", _e(eq.note)] for eq in (r.own or [])]
+                rows.append(
+                    [
+                        _e(format_eng(p.freq_hz, 6, " Hz")) if j == 0 else "",
+                        _e(q.quantity),
+                        _z(q.own, quantity_unit(q.quantity)),
+                        _z(q.ref, quantity_unit(q.quantity)),
+                        _num(q.err),
+                        _badge(q.verdict),
+                        _e(q.explanation),
+                    ]
+                )
+        return _table(("f", "qty", "crosscheck", "ngspice", "err", "verdict", "explanation"), rows, numeric=(0, 4))
+    rows = [
+        [
+            _e(format_eng(eq.freq_hz, 6, " Hz")),
+            _z(eq.vth, "V"),
+            _z(eq.zth, "Ω"),
+            _z(eq.in_, "A"),
+            f"{eq.condition:.1g}",
+            _e(eq.note),
+        ]
+        for eq in (r.own or [])
+    ]
     return _table(("f", "V_th", "Z_th", "I_N", "cond", "note"), rows, numeric=(0, 4))
 
 
@@ -110,11 +137,21 @@ def _judgements_table(r: CaseResult) -> str:
     found = [f for f in findings(r, include_pass=True) if f.check in ("expect", "limit", "drift")]
     if not found:
         return ""
-    rows = [[_e(f.label), "—" if f.freq_hz is None else _e(format_eng(f.freq_hz, 4, " Hz")), _e(f.obtained),
-             _e(f.expected), _e(f.error), _badge(f.verdict), _e(f.why)] for f in found]
-    return ("<h4>Hand calculations, design limits and baseline</h4>"
-            + _table(("check", "at", "obtained (crosscheck)", "expected", "off by", "verdict", "why"), rows,
-                     numeric=(1,)))
+    rows = [
+        [
+            _e(f.label),
+            "—" if f.freq_hz is None else _e(format_eng(f.freq_hz, 4, " Hz")),
+            _e(f.obtained),
+            _e(f.expected),
+            _e(f.error),
+            _badge(f.verdict),
+            _e(f.why),
+        ]
+        for f in found
+    ]
+    return "<h4>Hand calculations, design limits and baseline</h4>" + _table(
+        ("check", "at", "obtained (crosscheck)", "expected", "off by", "verdict", "why"), rows, numeric=(1,)
+    )
 
 
 def _figures(r: CaseResult) -> str:
@@ -123,32 +160,43 @@ def _figures(r: CaseResult) -> str:
     if eq is not None:
         svg = equivalent_svg(eq, r.port, r.sources)
         at = "DC" if eq.freq_hz == 0 else format_eng(eq.freq_hz, 4, " Hz")
-        parts.append(f'<figure class="circuit"><img src="{_data_uri("image/svg+xml", svg.encode("utf-8"))}" '
-                     f'alt="equivalent circuit at {_attr(at)}"><figcaption>Equivalent at {_e(at)} (crosscheck\'s '
-                     "solver): the source in series with Z_th drawn as R with L or C. Valid at this frequency "
-                     "only.</figcaption></figure>")
+        parts.append(
+            f'<figure class="circuit"><img src="{_data_uri("image/svg+xml", svg.encode("utf-8"))}" '
+            f'alt="equivalent circuit at {_attr(at)}"><figcaption>Equivalent at {_e(at)} (crosscheck\'s '
+            "solver): the source in series with Z_th drawn as R with L or C. Valid at this frequency "
+            "only.</figcaption></figure>"
+        )
     png = case_figure_png(r) if is_swept(r) else None
     if png is not None:
-        parts.append(f'<figure class="sweep"><img class="plot" src="{_data_uri("image/png", png)}" '
-                     f'alt="Z_th and V_th against frequency from both engines, and the error"><figcaption>'
-                     "crosscheck as lines, ngspice as circles; hand values as stars; design limits shade the "
-                     "forbidden side of each bound over its band; the error panel shows the judged relative "
-                     "error against the tolerance (dashed). DC points, if any, are in the table only."
-                     "</figcaption></figure>")
+        parts.append(
+            f'<figure class="sweep"><img class="plot" src="{_data_uri("image/png", png)}" '
+            f'alt="Z_th and V_th against frequency from both engines, and the error"><figcaption>'
+            "crosscheck as lines, ngspice as circles; hand values as stars; design limits shade the "
+            "forbidden side of each bound over its band; the error panel shows the judged relative "
+            "error against the tolerance (dashed). DC points, if any, are in the table only."
+            "</figcaption></figure>"
+        )
     return f'<div class="figures">{"".join(parts)}</div>' if parts else ""
 
 
 def _case_section(i: int, r: CaseResult) -> str:
     tol = r.tolerance
-    meta = [f"file {_e(r.name)}", f"port {_e(r.port[0])} → {_e(r.port[1])}", f"sources {_e(r.sources)}",
-            f"tolerance rel {tol.rel:.3g}" + (f", abs {tol.abs:.3g}" if tol.abs else "")
-            + (f", phase {tol.phase_deg:g}°" if tol.phase_deg is not None else "")]
+    meta = [
+        f"file {_e(r.name)}",
+        f"port {_e(r.port[0])} → {_e(r.port[1])}",
+        f"sources {_e(r.sources)}",
+        f"tolerance rel {tol.rel:.3g}"
+        + (f", abs {tol.abs:.3g}" if tol.abs else "")
+        + (f", phase {tol.phase_deg:g}°" if tol.phase_deg is not None else ""),
+    ]
     if r.spice is not None:
         meta.append(f"ngspice run: {_e(r.spice.strategy)}")
     elif r.spice_note:
         meta.append(f"ngspice: {_e(r.spice_note)}")
-    out = [f'<section class="case" id="case-{i}"><h3>{_e(r.title)} {_badge(r.verdict)}</h3>',
-           f'<p class="meta">{" · ".join(meta)}</p>']
+    out = [
+        f'<section class="case" id="case-{i}"><h3>{_e(r.title)} {_badge(r.verdict)}</h3>',
+        f'<p class="meta">{" · ".join(meta)}</p>',
+    ]
     if r.error:
         out.append(f'<p class="error">{_e(r.error)}</p>')
     elif r.verdict != "pass":
@@ -157,8 +205,9 @@ def _case_section(i: int, r: CaseResult) -> str:
     out.append(_judgements_table(r))
     if r.points or r.own:
         state = " open" if r.verdict != "pass" else ""
-        out.append(f"<details{state}><summary>Points ({len(r.freqs_hz)} frequencies)</summary>"
-                   f"{_points_table(r)}</details>")
+        out.append(
+            f"<details{state}><summary>Points ({len(r.freqs_hz)} frequencies)</summary>{_points_table(r)}</details>"
+        )
     out.append("</section>")
     return "".join(out)
 
@@ -169,12 +218,16 @@ def html_report(results: Sequence[CaseResult], title: str = "crosscheck report")
     counts = Counter(r.verdict for r in results)
     overall = overall_verdict([r.verdict for r in results])
     version = ngspice_version(results)
-    head = (f'<p class="status">{_badge(overall)} {len(results)} case(s): {_e(count_words(counts))}</p>'
-            + f'<p class="meta">{_e(version or "ngspice not run")} · crosscheck {_e(__version__)}</p>')
+    head = (
+        f'<p class="status">{_badge(overall)} {len(results)} case(s): {_e(count_words(counts))}</p>'
+        + f'<p class="meta">{_e(version or "ngspice not run")} · crosscheck {_e(__version__)}</p>'
+    )
     body = "".join(_case_section(i, r) for i, r in enumerate(results, start=1))
-    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
-            f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>"
-            f"<header><h1>{_e(title)}</h1>{head}</header>"
-            f"<h2>Summary</h2>{_summary(results)}<h2>Cases</h2>{body}"
-            f"<footer><h2>Caution</h2><p class=\"caution\">{_e(CAUTION)}</p></footer>"
-            "</body></html>\n")
+    return (
+        '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+        f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>"
+        f"<header><h1>{_e(title)}</h1>{head}</header>"
+        f"<h2>Summary</h2>{_summary(results)}<h2>Cases</h2>{body}"
+        f'<footer><h2>Caution</h2><p class="caution">{_e(CAUTION)}</p></footer>'
+        "</body></html>\n"
+    )

@@ -69,21 +69,36 @@ def _summary(result: CaseResult) -> str:
     span = ""
     if result.freqs_hz:
         span = f"{format_eng(min(result.freqs_hz), 4, ' Hz')} … {format_eng(max(result.freqs_hz), 4, ' Hz')}"
-    parts = [f"file: {result.name}", f"title: {result.title}", f"port: {result.port[0]} -> {result.port[1]}",
-             f"frequencies: {len(result.freqs_hz)} ({span})" if span else "frequencies: none",
-             f"verdict: {result.verdict}",
-             "worst solver-vs-SPICE error: " + ("not compared" if worst is None else f"{worst:.3g} "
-                                                 f"(tolerance {result.tolerance.rel:.3g})")]
-    parts += [f"{len(group)} {kind} check(s)" for kind, group in
-              (("hand-value", result.expectations), ("design-limit", result.limits), ("baseline", result.drift))
-              if group]
+    parts = [
+        f"file: {result.name}",
+        f"title: {result.title}",
+        f"port: {result.port[0]} -> {result.port[1]}",
+        f"frequencies: {len(result.freqs_hz)} ({span})" if span else "frequencies: none",
+        f"verdict: {result.verdict}",
+        "worst solver-vs-SPICE error: "
+        + ("not compared" if worst is None else f"{worst:.3g} (tolerance {result.tolerance.rel:.3g})"),
+    ]
+    parts += [
+        f"{len(group)} {kind} check(s)"
+        for kind, group in (
+            ("hand-value", result.expectations),
+            ("design-limit", result.limits),
+            ("baseline", result.drift),
+        )
+        if group
+    ]
     return "\n".join(parts)
 
 
 def _testcase(parent: ET.Element, result: CaseResult) -> str:
     folder = folder_of(result)
-    case = ET.SubElement(parent, "testcase", classname=_classname(folder), name=_case_name(result),
-                         time=f"{result.elapsed_own_s + result.elapsed_spice_s:.3f}")
+    case = ET.SubElement(
+        parent,
+        "testcase",
+        classname=_classname(folder),
+        name=_case_name(result),
+        time=f"{result.elapsed_own_s + result.elapsed_spice_s:.3f}",
+    )
     kind = _element_for(result.verdict)
     if kind is not None:
         reason = _clean(case_reason(result) or result.verdict)
@@ -96,8 +111,7 @@ def _testcase(parent: ET.Element, result: CaseResult) -> str:
     return kind or "pass"
 
 
-def junit_tree(results: Sequence[CaseResult], timestamp: str | None = None,
-               hostname: str | None = None) -> ET.Element:
+def junit_tree(results: Sequence[CaseResult], timestamp: str | None = None, hostname: str | None = None) -> ET.Element:
     """The ``<testsuites>`` element; ``timestamp`` (ISO 8601, no zone) and ``hostname`` default to now and here."""
 
     stamp = timestamp or _dt.datetime.now().replace(microsecond=0).isoformat()
@@ -109,11 +123,14 @@ def junit_tree(results: Sequence[CaseResult], timestamp: str | None = None,
     total: Counter = Counter()
     total_time = 0.0
     for index, (folder, members) in enumerate(groups.items()):
-        suite = ET.SubElement(top, "testsuite", name=folder, package=_classname(folder), id=str(index),
-                              timestamp=stamp, hostname=host)
+        suite = ET.SubElement(
+            top, "testsuite", name=folder, package=_classname(folder), id=str(index), timestamp=stamp, hostname=host
+        )
         props = ET.SubElement(suite, "properties")
-        for name, value in (("ngspice_version", ngspice_version(members) or "not run"),
-                            ("crosscheck_version", __version__)):
+        for name, value in (
+            ("ngspice_version", ngspice_version(members) or "not run"),
+            ("crosscheck_version", __version__),
+        ):
             ET.SubElement(props, "property", name=name, value=_clean(value))
         counts = Counter(_testcase(suite, r) for r in members)
         seconds = sum(r.elapsed_own_s + r.elapsed_spice_s for r in members)

@@ -54,18 +54,24 @@ def _problem_details(problems: Sequence[CaseResult]) -> list[str]:
     for r in problems[:MAX_ROWS]:
         table = finding_table(findings(r), limit=12)
         lines += [f"**{_cell(r.title, 120)}** ({_code(r.name)}, port {r.port[0]} → {r.port[1]}): {r.verdict}", ""]
-        lines += (["```text", *table, "```", ""] if table else [f"> {_cell(case_reason(r), 1000)}", ""])
+        lines += ["```text", *table, "```", ""] if table else [f"> {_cell(case_reason(r), 1000)}", ""]
     lines += ["</details>", ""]
     return lines
 
 
 def _passing_details(passing: Sequence[CaseResult]) -> list[str]:
-    lines = [f"<details><summary>{len(passing)} passing case(s)</summary>", "",
-             "| case | title | port | points | worst solver-vs-SPICE error |", "|---|---|---|---|---|"]
+    lines = [
+        f"<details><summary>{len(passing)} passing case(s)</summary>",
+        "",
+        "| case | title | port | points | worst solver-vs-SPICE error |",
+        "|---|---|---|---|---|",
+    ]
     for r in passing[:MAX_ROWS]:
         worst = worst_spice_error(r)
-        lines.append(f"| {_code(r.name)} | {_cell(r.title, 80)} | {r.port[0]} → {r.port[1]} | {len(r.freqs_hz)} "
-                     f"| {'not compared' if worst is None else f'{worst:.1e}'} |")
+        lines.append(
+            f"| {_code(r.name)} | {_cell(r.title, 80)} | {r.port[0]} → {r.port[1]} | {len(r.freqs_hz)} "
+            f"| {'not compared' if worst is None else f'{worst:.1e}'} |"
+        )
     if len(passing) > MAX_ROWS:
         lines.append(f"\n… and {len(passing) - MAX_ROWS} more passing.")
     lines += ["", "</details>", ""]
@@ -84,10 +90,17 @@ def markdown_report(results: Sequence[CaseResult]) -> str:
     if problems:
         lines += _problems_table(problems) + [""] + _problem_details(problems)
     else:
-        lines += ["Every case passed: both engines agree within tolerance, and every hand value and design "
-                  "limit checked holds.", ""]
+        lines += [
+            "Every case passed: both engines agree within tolerance, and every hand value and design "
+            "limit checked holds.",
+            "",
+        ]
     if passing:
         lines += _passing_details(passing)
-    lines += [f"ngspice: {ngspice_version(results) or 'not run'} · crosscheck {__version__}", "",
-              f"> **Caution.** {CAUTION}", ""]
+    lines += [
+        f"ngspice: {ngspice_version(results) or 'not run'} · crosscheck {__version__}",
+        "",
+        f"> **Caution.** {CAUTION}",
+        "",
+    ]
     return "\n".join(lines)

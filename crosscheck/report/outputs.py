@@ -10,8 +10,16 @@ from crosscheck.judge.result import CaseResult
 
 #: Report formats of `verify`, and the one an --output file's extension picks when --format is not given.
 VERIFY_FORMATS = ("text", "json", "junit", "csv", "html", "markdown")
-FORMAT_BY_EXTENSION = {".json": "json", ".xml": "junit", ".csv": "csv", ".html": "html", ".htm": "html",
-                       ".md": "markdown", ".markdown": "markdown", ".txt": "text"}
+FORMAT_BY_EXTENSION = {
+    ".json": "json",
+    ".xml": "junit",
+    ".csv": "csv",
+    ".html": "html",
+    ".htm": "html",
+    ".md": "markdown",
+    ".markdown": "markdown",
+    ".txt": "text",
+}
 
 
 def verify_format(given: str | None, output: Path | None) -> str:

@@ -27,8 +27,14 @@ _OWN: dict[str, Any] = dict(color="#1f5fa8", lw=1.6, label="crosscheck")
 _SPICE: dict[str, Any] = dict(color="#d9822b", marker="o", ms=4.5, ls="none", mfc="none", mew=1.2, label="ngspice")
 _VERDICT_COLOUR = {"pass": "#2e7d32", "fail": "#c62828", "unavailable": "#9e9e9e", "drift": "#6a1b9a"}
 _ERR_COLOURS = {"vth": "#1f5fa8", "zth": "#d9822b", "in": "#2e7d32"}
-_PANELS = {("abs", "zth"): "zmag", ("abs", "vth"): "vmag", ("phase", "zth"): "zph", ("phase", "vth"): "vph",
-           ("db", "zth"): "zmag", ("db", "vth"): "vmag"}
+_PANELS = {
+    ("abs", "zth"): "zmag",
+    ("abs", "vth"): "vmag",
+    ("phase", "zth"): "zph",
+    ("phase", "vth"): "vph",
+    ("db", "zth"): "zmag",
+    ("db", "vth"): "vmag",
+}
 
 
 def is_swept(result: CaseResult) -> bool:
@@ -60,8 +66,7 @@ def _limit_bounds(check: LimitCheck) -> tuple[float | None, float | None]:
     return check.minimum, check.maximum
 
 
-def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float | None,
-                 upper: float | None) -> None:
+def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float | None, upper: float | None) -> None:
     """The forbidden side of each bound, shaded over the limit's band; the bound itself as a dashed line."""
     colour = _VERDICT_COLOUR.get(check.verdict, "#c62828")
     log = ax.get_yscale() == "log"
@@ -79,8 +84,7 @@ def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float
     for bound, edge in ((upper, top), (lower, bottom)):
         if bound is None:
             continue
-        ax.fill_between([lo_hz, hi_hz], [bound, bound], [edge, edge], color=colour, alpha=0.15, lw=0,
-                        label=label)
+        ax.fill_between([lo_hz, hi_hz], [bound, bound], [edge, edge], color=colour, alpha=0.15, lw=0, label=label)
         ax.hlines(bound, lo_hz, hi_hz, colors=colour, linestyles="--", lw=1.2)
         label = None
     ax.set_ylim(bottom, top)
@@ -92,8 +96,16 @@ def _expectation_points(axes: dict, result: CaseResult) -> None:
             continue
         prefix = "z" if e.quantity == "zth" else "v"
         colour = _VERDICT_COLOUR.get(e.verdict, "#c62828")
-        style = dict(marker="*", ms=12, ls="none", color=colour, mec="black", mew=0.6, zorder=5,
-                     label=f"expect[{e.index}] by hand ({e.verdict})")
+        style = dict(
+            marker="*",
+            ms=12,
+            ls="none",
+            color=colour,
+            mec="black",
+            mew=0.6,
+            zorder=5,
+            label=f"expect[{e.index}] by hand ({e.verdict})",
+        )
         axes[prefix + "mag"].plot([e.at_hz], [abs(e.expected)], **style)
         axes[prefix + "ph"].plot([e.at_hz], [math.degrees(np.angle(e.expected))], **style)
 
@@ -108,17 +120,18 @@ def _error_panel(ax, result: CaseResult, freqs: np.ndarray, keep: np.ndarray) ->
     ax.set_yscale("log")
     drew_floor = False
     for quantity, colour in _ERR_COLOURS.items():
-        errs = np.array([next((q.err for q in p.quantities if q.quantity == quantity), math.nan)
-                         for p in result.points])[keep]
+        errs = np.array(
+            [next((q.err for q in p.quantities if q.quantity == quantity), math.nan) for p in result.points]
+        )[keep]
         if np.all(np.isnan(errs)):
             continue
         drew_floor |= bool(np.any(errs == 0))
         ax.plot(freqs, np.where(errs == 0, ERROR_FLOOR, errs), marker=".", color=colour, lw=1, label=quantity)
-    ax.axhline(result.tolerance.rel, color="#c62828", ls="--", lw=1.2,
-               label=f"tolerance {result.tolerance.rel:.3g}")
+    ax.axhline(result.tolerance.rel, color="#c62828", ls="--", lw=1.2, label=f"tolerance {result.tolerance.rel:.3g}")
     if drew_floor:
-        ax.text(0.01, 0.02, f"exact agreement drawn at {ERROR_FLOOR:g}", transform=ax.transAxes, fontsize=8,
-                color="#555555")
+        ax.text(
+            0.01, 0.02, f"exact agreement drawn at {ERROR_FLOOR:g}", transform=ax.transAxes, fontsize=8, color="#555555"
+        )
     ax.legend(fontsize=8, loc="best", ncol=4)
 
 
@@ -137,11 +150,16 @@ def _other_limits_panel(ax, result: CaseResult, checks: list[LimitCheck]) -> Non
     ax.legend(fontsize=8, loc="best")
 
 
-def _draw_routes(axes: dict[str, Any], freqs: np.ndarray, own: dict[str, np.ndarray],
-                 ref: dict[str, np.ndarray | None], sources: str) -> None:
+def _draw_routes(
+    axes: dict[str, Any], freqs: np.ndarray, own: dict[str, np.ndarray], ref: dict[str, np.ndarray | None], sources: str
+) -> None:
     """|Z_th|, |V_th| and their phases against frequency: crosscheck as lines, ngspice as circles."""
-    titles = {"zmag": ("|Z_th|", "Ω"), "vmag": ("|V_th|", f"V {sources}"), "zph": ("phase of Z_th", "°"),
-              "vph": ("phase of V_th", "°")}
+    titles = {
+        "zmag": ("|Z_th|", "Ω"),
+        "vmag": ("|V_th|", f"V {sources}"),
+        "zph": ("phase of Z_th", "°"),
+        "vph": ("phase of V_th", "°"),
+    }
     for key, ax in axes.items():
         quantity = "zth" if key.startswith("z") else "vth"
         transform = np.abs if key.endswith("mag") else (lambda z: np.angle(z, deg=True))
@@ -176,8 +194,12 @@ def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
     fig = Figure(figsize=(10, 9.5))
     FigureCanvasAgg(fig)
     grid = fig.add_gridspec(3, 2)
-    axes = {"zmag": fig.add_subplot(grid[0, 0]), "vmag": fig.add_subplot(grid[0, 1]),
-            "zph": fig.add_subplot(grid[1, 0]), "vph": fig.add_subplot(grid[1, 1])}
+    axes = {
+        "zmag": fig.add_subplot(grid[0, 0]),
+        "vmag": fig.add_subplot(grid[0, 1]),
+        "zph": fig.add_subplot(grid[1, 0]),
+        "vph": fig.add_subplot(grid[1, 1]),
+    }
     other = [c for c in result.limits if (c.function, c.quantity) not in _PANELS]
     error_ax = fig.add_subplot(grid[2, 0] if other else grid[2, :])
     _draw_routes(axes, freqs, own, ref, result.sources)

@@ -15,15 +15,17 @@ from crosscheck.report.results_json import case_document, checks_document, resul
 from crosscheck.report.results_text import print_checks, print_results
 
 
-def reduction_document(result: CaseResult, compared: bool, sources: str, source_file: str,
-                       expectations: bool) -> dict[str, Any]:
+def reduction_document(
+    result: CaseResult, compared: bool, sources: str, source_file: str, expectations: bool
+) -> dict[str, Any]:
     """The JSON document: the own equivalents alone, or both routes' points with their verdicts."""
     if compared:
         doc = results_document([result])
         doc.update({"port": list(result.port), "points": case_document(result)["points"], "verdict": result.verdict})
     else:
-        doc = equivalents_document(Network(result.title, ()), Port(*result.port), result.own or (), sources,
-                                   source_file=source_file)
+        doc = equivalents_document(
+            Network(result.title, ()), Port(*result.port), result.own or (), sources, source_file=source_file
+        )
     if expectations:
         doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
     return doc
@@ -32,8 +34,9 @@ def reduction_document(result: CaseResult, compared: bool, sources: str, source_
 def print_reduction(console: Console, result: CaseResult, compared: bool, sources: str, expectations: bool) -> None:
     """The equivalents as text, then the comparison (both routes) or the hand calculations (own route)."""
     source_note = f"Sources as written in the netlist, taken as {sources.upper()} phasors."
-    print_equivalents(console, result.title, result.port, result.own or (), source_note,
-                      caution=not compared and not expectations)
+    print_equivalents(
+        console, result.title, result.port, result.own or (), source_note, caution=not compared and not expectations
+    )
     if compared:
         print_results(console, [result], detail=True)
     elif expectations:

@@ -20,10 +20,15 @@ def _num(x: float) -> Any:
 
 
 def _spice_point(point: Any) -> dict[str, Any]:
-    return {"vth": phasor(point.vth), "zth": phasor(point.zth), "in": phasor(point.isc),
-            "yn": phasor(None if point.zth in (None, 0) else 1 / point.zth),
-            "freq_hz_reported": point.freq_hz, "route_mismatch": _num(point.route_mismatch),
-            "notes": list(point.notes) or None}
+    return {
+        "vth": phasor(point.vth),
+        "zth": phasor(point.zth),
+        "in": phasor(point.isc),
+        "yn": phasor(None if point.zth in (None, 0) else 1 / point.zth),
+        "freq_hz_reported": point.freq_hz,
+        "route_mismatch": _num(point.route_mismatch),
+        "notes": list(point.notes) or None,
+    }
 
 
 def points_document(result: CaseResult) -> list[dict[str, Any]]:
@@ -37,10 +42,17 @@ def points_document(result: CaseResult) -> list[dict[str, Any]]:
                 doc["spice_note"] = result.spice_note or "ngspice was not run"
         if result.points:
             check = result.points[i]
-            doc["errors"] = {q.quantity: {"err": _num(q.err), "rel_err": _num(q.rel_err),
-                                          "mag_err_pct": _num(q.mag_err_pct), "phase_err_deg": _num(q.phase_err_deg),
-                                          "verdict": q.verdict, "explanation": q.explanation or None}
-                             for q in check.quantities}
+            doc["errors"] = {
+                q.quantity: {
+                    "err": _num(q.err),
+                    "rel_err": _num(q.rel_err),
+                    "mag_err_pct": _num(q.mag_err_pct),
+                    "phase_err_deg": _num(q.phase_err_deg),
+                    "verdict": q.verdict,
+                    "explanation": q.explanation or None,
+                }
+                for q in check.quantities
+            }
             doc["verdict"] = check.verdict
             doc["explanation"] = check.explanation or None
         out.append(doc)
@@ -48,33 +60,61 @@ def points_document(result: CaseResult) -> list[dict[str, Any]]:
 
 
 def expectation_document(e: Any) -> dict[str, Any]:
-    return {"index": e.index, "at_hz": e.at_hz, "quantity": e.quantity, "expected": phasor(e.expected),
-            "obtained": phasor(e.obtained), "rel_err": _num(e.rel_err), "mag_err_pct": _num(e.mag_err_pct),
-            "mag_err_db": _num(e.mag_err_db), "phase_err_deg": _num(e.phase_err_deg), "verdict": e.verdict,
-            "slip": e.slip, "explanation": e.explanation or None, "how": e.how or None}
+    return {
+        "index": e.index,
+        "at_hz": e.at_hz,
+        "quantity": e.quantity,
+        "expected": phasor(e.expected),
+        "obtained": phasor(e.obtained),
+        "rel_err": _num(e.rel_err),
+        "mag_err_pct": _num(e.mag_err_pct),
+        "mag_err_db": _num(e.mag_err_db),
+        "phase_err_deg": _num(e.phase_err_deg),
+        "verdict": e.verdict,
+        "slip": e.slip,
+        "explanation": e.explanation or None,
+        "how": e.how or None,
+    }
 
 
 def limit_document(lim: Any) -> dict[str, Any]:
-    return {"index": lim.index, "text": lim.text, "function": lim.function, "quantity": lim.quantity,
-            "min": _num(lim.minimum), "max": _num(lim.maximum),
-            "band_hz": list(lim.band) if lim.band is not None else None,
-            "worst_freq_hz": _num(lim.worst_freq_hz), "worst_value": _num(lim.worst_value),
-            "margin": _num(lim.margin), "verdict": lim.verdict, "explanation": lim.explanation or None,
-            "values": [[f, _num(v)] for f, v in lim.values]}
+    return {
+        "index": lim.index,
+        "text": lim.text,
+        "function": lim.function,
+        "quantity": lim.quantity,
+        "min": _num(lim.minimum),
+        "max": _num(lim.maximum),
+        "band_hz": list(lim.band) if lim.band is not None else None,
+        "worst_freq_hz": _num(lim.worst_freq_hz),
+        "worst_value": _num(lim.worst_value),
+        "margin": _num(lim.margin),
+        "verdict": lim.verdict,
+        "explanation": lim.explanation or None,
+        "values": [[f, _num(v)] for f, v in lim.values],
+    }
 
 
 def drift_document(d: Any) -> dict[str, Any]:
-    return {"freq_hz": d.freq_hz, "quantity": d.quantity, "baseline": phasor(d.baseline),
-            "obtained": phasor(d.obtained), "rel_err": _num(d.rel_err), "verdict": d.verdict,
-            "explanation": d.explanation or None}
+    return {
+        "freq_hz": d.freq_hz,
+        "quantity": d.quantity,
+        "baseline": phasor(d.baseline),
+        "obtained": phasor(d.obtained),
+        "rel_err": _num(d.rel_err),
+        "verdict": d.verdict,
+        "explanation": d.explanation or None,
+    }
 
 
 def checks_document(result: CaseResult) -> dict[str, Any]:
     """Hand-calculated expectations, design limits and baseline drift of one case."""
-    return {"expectations": [expectation_document(e) for e in result.expectations],
-            "limits": [limit_document(lim) for lim in result.limits],
-            "drift": [drift_document(d) for d in result.drift],
-            "baseline_note": getattr(result, "baseline_note", "") or None}
+    return {
+        "expectations": [expectation_document(e) for e in result.expectations],
+        "limits": [limit_document(lim) for lim in result.limits],
+        "drift": [drift_document(d) for d in result.drift],
+        "baseline_note": getattr(result, "baseline_note", "") or None,
+    }
 
 
 def case_document(result: CaseResult) -> dict[str, Any]:
@@ -83,8 +123,11 @@ def case_document(result: CaseResult) -> dict[str, Any]:
         "title": result.title,
         "port": list(result.port),
         "sources": result.sources,
-        "tolerance": {"rel": result.tolerance.rel, "abs": result.tolerance.abs,
-                      "phase_deg": result.tolerance.phase_deg},
+        "tolerance": {
+            "rel": result.tolerance.rel,
+            "abs": result.tolerance.abs,
+            "phase_deg": result.tolerance.phase_deg,
+        },
         "verdict": result.verdict,
         "error": result.error,
         "points": points_document(result),

@@ -32,21 +32,30 @@ def _err(x: float) -> str:
     return "—" if x is None or math.isnan(x) else f"{x:.2e}"
 
 
-
-
 def comparison_table(result: CaseResult) -> Table:
-    table = Table(title=f"{result.title}  [dim]({result.name}, port {result.port[0]} → {result.port[1]})[/]",
-                  title_justify="left")
+    table = Table(
+        title=f"{result.title}  [dim]({result.name}, port {result.port[0]} → {result.port[1]})[/]", title_justify="left"
+    )
     for h in ("f", "qty", "crosscheck", "ngspice", "err", "verdict"):
         # On a narrow terminal (80 columns, a CI log) the long phasors fold; the frequency, quantity, error
         # and verdict always show whole (rich otherwise squeezed the frequency column to nothing).
         folds = h in ("crosscheck", "ngspice")
-        table.add_column(h, justify="right" if h in ("f", "err") else "left", no_wrap=not folds,
-                         overflow="fold" if folds else "ellipsis")
+        table.add_column(
+            h,
+            justify="right" if h in ("f", "err") else "left",
+            no_wrap=not folds,
+            overflow="fold" if folds else "ellipsis",
+        )
     for p in result.points:
         for i, q in enumerate(p.quantities):
-            table.add_row(format_eng(p.freq_hz, 4, " Hz") if i == 0 else "", q.quantity, _z(q.own, " " + quantity_unit(q.quantity)),
-                          _z(q.ref, " " + quantity_unit(q.quantity)), _err(q.err), _v(q.verdict))
+            table.add_row(
+                format_eng(p.freq_hz, 4, " Hz") if i == 0 else "",
+                q.quantity,
+                _z(q.own, " " + quantity_unit(q.quantity)),
+                _z(q.ref, " " + quantity_unit(q.quantity)),
+                _err(q.err),
+                _v(q.verdict),
+            )
     return table
 
 
@@ -56,8 +65,14 @@ def summary_table(results: Sequence[CaseResult]) -> Table:
         table.add_column(h, overflow="fold")
     for r in results:
         errs = [q.err for p in r.points for q in p.quantities if not math.isnan(q.err)]
-        table.add_row(r.name, f"{r.port[0]} → {r.port[1]}", str(len(r.freqs_hz)),
-                      f"{max(errs):.1e}" if errs else "—", _v(r.verdict), "" if r.verdict == "pass" else r.explanation[:300])
+        table.add_row(
+            r.name,
+            f"{r.port[0]} → {r.port[1]}",
+            str(len(r.freqs_hz)),
+            f"{max(errs):.1e}" if errs else "—",
+            _v(r.verdict),
+            "" if r.verdict == "pass" else r.explanation[:300],
+        )
     return table
 
 
@@ -71,13 +86,22 @@ def expectation_table(result: CaseResult, detail: bool, wide: bool = True) -> Ta
     table = Table(title=f"hand calculations  [dim]({escape(result.name)})[/]", title_justify="left")
     headers = ("at", "stated", "crosscheck", "Δ mag", "Δ phase", "verdict") + (("slip",) if wide else ())
     for h in headers:
-        table.add_column(h, justify="right" if h in ("Δ mag", "Δ phase") else "left",
-                         no_wrap=h in ("Δ mag", "Δ phase", "verdict") or (wide and h != "slip"))
+        table.add_column(
+            h,
+            justify="right" if h in ("Δ mag", "Δ phase") else "left",
+            no_wrap=h in ("Δ mag", "Δ phase", "verdict") or (wide and h != "slip"),
+        )
     for e in rows:
         mag = "—" if math.isnan(e.mag_err_pct) else f"{e.mag_err_pct:+.3g} %"
         phase = "—" if math.isnan(e.phase_err_deg) else f"{e.phase_err_deg:+.3g}°"
-        cells = [f"{format_eng(e.at_hz, 4, ' Hz')} {e.quantity}", format_value(e.quantity, e.expected),
-                 format_value(e.quantity, e.obtained), mag, phase, _v(e.verdict)]
+        cells = [
+            f"{format_eng(e.at_hz, 4, ' Hz')} {e.quantity}",
+            format_value(e.quantity, e.expected),
+            format_value(e.quantity, e.obtained),
+            mag,
+            phase,
+            _v(e.verdict),
+        ]
         table.add_row(*cells, *((escape(e.slip or ""),) if wide else ()))
     return table
 
@@ -93,14 +117,27 @@ def limit_table(result: CaseResult, detail: bool) -> Table | None:
         table.add_column(h, justify="right" if h in ("#", "worst at", "worst value", "margin") else "left")
     for lim in rows:
         u = " " + unit(lim.function, lim.quantity)
-        bounds = " ≤ ".join(x for x in (None if lim.minimum is None else format_eng(lim.minimum, 4, u), lim.text,
-                                        None if lim.maximum is None else format_eng(lim.maximum, 4, u)) if x)
-        band = ("all" if lim.band is None else
-                f"{format_eng(lim.band[0], 4, ' Hz')} – {format_eng(lim.band[1], 4, ' Hz')}")
-        table.add_row(str(lim.index), escape(bounds), band,
-                      "—" if lim.worst_freq_hz is None else format_eng(lim.worst_freq_hz, 4, " Hz"),
-                      "—" if lim.worst_value is None else format_eng(lim.worst_value, 5, u),
-                      "—" if lim.margin is None else format_eng(lim.margin, 4, u), _v(lim.verdict))
+        bounds = " ≤ ".join(
+            x
+            for x in (
+                None if lim.minimum is None else format_eng(lim.minimum, 4, u),
+                lim.text,
+                None if lim.maximum is None else format_eng(lim.maximum, 4, u),
+            )
+            if x
+        )
+        band = (
+            "all" if lim.band is None else f"{format_eng(lim.band[0], 4, ' Hz')} – {format_eng(lim.band[1], 4, ' Hz')}"
+        )
+        table.add_row(
+            str(lim.index),
+            escape(bounds),
+            band,
+            "—" if lim.worst_freq_hz is None else format_eng(lim.worst_freq_hz, 4, " Hz"),
+            "—" if lim.worst_value is None else format_eng(lim.worst_value, 5, u),
+            "—" if lim.margin is None else format_eng(lim.margin, 4, u),
+            _v(lim.verdict),
+        )
     return table
 
 
@@ -113,16 +150,24 @@ def drift_table(result: CaseResult, detail: bool) -> Table | None:
     for h in ("f", "qty", "baseline", "now", "rel change", "verdict"):
         table.add_column(h, justify="right" if h in ("f", "rel change") else "left")
     for d in rows:
-        table.add_row(format_eng(d.freq_hz, 6, " Hz"), d.quantity, _z(d.baseline, " " + quantity_unit(d.quantity)),
-                      _z(d.obtained, " " + quantity_unit(d.quantity)), _err(d.rel_err), _v(d.verdict))
+        table.add_row(
+            format_eng(d.freq_hz, 6, " Hz"),
+            d.quantity,
+            _z(d.baseline, " " + quantity_unit(d.quantity)),
+            _z(d.obtained, " " + quantity_unit(d.quantity)),
+            _err(d.rel_err),
+            _v(d.verdict),
+        )
     return table
 
 
 def print_checks(console: Console, result: CaseResult, detail: bool) -> None:
     """Expectation, limit and drift tables of one case, each failing row's explanation under its table."""
-    for table, records in ((expectation_table(result, detail, wide=console.width >= 110), result.expectations),
-                           (limit_table(result, detail), result.limits),
-                           (drift_table(result, detail), result.drift)):
+    for table, records in (
+        (expectation_table(result, detail, wide=console.width >= 110), result.expectations),
+        (limit_table(result, detail), result.limits),
+        (drift_table(result, detail), result.drift),
+    ):
         if table is None:
             continue
         console.print(table)

@@ -58,8 +58,9 @@ def worker_pool(timeout_s: float = 60.0, solve: CaseSolver = ENGINE_SOLVE) -> Sp
         return pool
 
 
-def check_case(item: Case, engine: str = "both", timeout_s: float = 60.0,
-               solve: CaseSolver = ENGINE_SOLVE) -> CaseResult:
+def check_case(
+    item: Case, engine: str = "both", timeout_s: float = 60.0, solve: CaseSolver = ENGINE_SOLVE
+) -> CaseResult:
     """The whole check of one case in this process: the task that executors run.
 
     ngspice runs in this process's ``worker_pool``; a baseline, if any, is applied by the caller.
@@ -78,10 +79,18 @@ def _travel_light(result: CaseResult) -> CaseResult:
     return result
 
 
-def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Executor | None = None, *,
-              engine: str = "both", workers: int | None = None, timeout_s: float = 60.0,
-              baseline: Baseline | None = None, solve: CaseSolver = ENGINE_SOLVE,
-              on_done: Callable[[CaseResult], None] | None = None, window: int = DEFAULT_WINDOW) -> list[CaseResult]:
+def run_batch(
+    cases: Sequence[Case | tuple[str, CrosscheckError]],
+    executor: Executor | None = None,
+    *,
+    engine: str = "both",
+    workers: int | None = None,
+    timeout_s: float = 60.0,
+    baseline: Baseline | None = None,
+    solve: CaseSolver = ENGINE_SOLVE,
+    on_done: Callable[[CaseResult], None] | None = None,
+    window: int = DEFAULT_WINDOW,
+) -> list[CaseResult]:
     """Check every case; results in the order given.
 
     ``executor``: any ``concurrent.futures.Executor`` whose workers can import crosscheck (a
@@ -100,8 +109,9 @@ def run_batch(cases: Sequence[Case | tuple[str, CrosscheckError]], executor: Exe
             return run_cases(cases, engine=engine, pool=pool, on_done=on_done, baseline=baseline)
 
     results: list[CaseResult] = []
-    for item, future in windowed(executor, check_case, cases, (engine, timeout_s, solve), window,
-                                 skip=lambda x: isinstance(x, tuple)):
+    for item, future in windowed(
+        executor, check_case, cases, (engine, timeout_s, solve), window, skip=lambda x: isinstance(x, tuple)
+    ):
         if future is None:  # a case file that could not be read
             result = run_cases([item], engine="own")[0]
         else:
@@ -123,16 +133,25 @@ def _outcome(item: Case, future: Future) -> CaseResult:
     except CrosscheckError as exc:
         return _error(item, str(exc))
     except Exception as exc:  # the executor lost the worker (a crash, a kill, a lost connection)
-        return _error(item, f"the worker running this case was lost ({type(exc).__name__}: {exc}); "
-                            "the other cases went on. Run this case alone to see whether it is the cause")
+        return _error(
+            item,
+            f"the worker running this case was lost ({type(exc).__name__}: {exc}); "
+            "the other cases went on. Run this case alone to see whether it is the cause",
+        )
 
 
 def _error(item: Case, message: str) -> CaseResult:
     return error_result(item.name, message, item)
 
 
-def windowed(executor: Executor, fn: Callable, items: Iterable, args: tuple, window: int,
-             skip: Callable[[Any], bool] = lambda item: False) -> Generator[tuple[Any, Future | None], None, None]:
+def windowed(
+    executor: Executor,
+    fn: Callable,
+    items: Iterable,
+    args: tuple,
+    window: int,
+    skip: Callable[[Any], bool] = lambda item: False,
+) -> Generator[tuple[Any, Future | None], None, None]:
     """Submit ``fn(item, *args)`` for each item, at most ``window`` ahead of the one yielded; in order.
 
     Items for which ``skip`` is true get no task (yielded with None).
@@ -185,13 +204,17 @@ def cluster_executor(address: str, timeout_s: float = 30.0) -> Iterator[Executor
     try:
         from distributed import Client
     except ImportError:
-        raise CrosscheckError("--cluster needs Dask's distributed package, which is not installed; install it "
-                              "with: pip install 'crosscheck[cluster]'") from None
+        raise CrosscheckError(
+            "--cluster needs Dask's distributed package, which is not installed; install it "
+            "with: pip install 'crosscheck[cluster]'"
+        ) from None
     try:
         client = Client(address, timeout=timeout_s, set_as_default=False)
     except (OSError, TimeoutError) as exc:
-        raise CrosscheckError(f"no Dask scheduler answered at {address!r} within {timeout_s:g} s ({exc}); "
-                              "check the address (tcp://host:port) and that the scheduler is running") from None
+        raise CrosscheckError(
+            f"no Dask scheduler answered at {address!r} within {timeout_s:g} s ({exc}); "
+            "check the address (tcp://host:port) and that the scheduler is running"
+        ) from None
     try:
         yield client.get_executor(pure=False)
     finally:

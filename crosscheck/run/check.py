@@ -36,14 +36,17 @@ def load_network(case: Case) -> tuple[Network, Port]:
     nodes), so nothing is checked twice here.
     """
     port = Port(*case.port)
-    network = read_netlist(case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative,
-                           port=port)
+    network = read_netlist(case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative, port=port)
     return network, port
 
 
-def run_cases(cases: Sequence[Case | tuple[str, CrosscheckError]], engine: str = "both", pool: SpicePool | None = None,
-              on_done: Callable[[CaseResult], None] | None = None,
-              baseline: Baseline | None = None) -> list[CaseResult]:
+def run_cases(
+    cases: Sequence[Case | tuple[str, CrosscheckError]],
+    engine: str = "both",
+    pool: SpicePool | None = None,
+    on_done: Callable[[CaseResult], None] | None = None,
+    baseline: Baseline | None = None,
+) -> list[CaseResult]:
     """Own solver now, ngspice in the pool in parallel; results in the order given.
 
     An item may be ``(name, error)`` for a case file that could not be read: it becomes an
@@ -65,8 +68,15 @@ def run_cases(cases: Sequence[Case | tuple[str, CrosscheckError]], engine: str =
         except CrosscheckError as exc:
             staged.append((error_result(item.name, str(exc), item), None, None))
             continue
-        head = CaseResult(item.name, item.title if item.title else network.title, (port.a, port.b),
-                          item.freqs_hz, item.tolerance, item.sources, case=item)
+        head = CaseResult(
+            item.name,
+            item.title if item.title else network.title,
+            (port.a, port.b),
+            item.freqs_hz,
+            item.tolerance,
+            item.sources,
+            case=item,
+        )
         future = pool.submit(network, port, item.freqs_hz) if pool is not None and engine != "own" else None
         staged.append((head, network, future))
 
@@ -79,8 +89,9 @@ def run_cases(cases: Sequence[Case | tuple[str, CrosscheckError]], engine: str =
     return out
 
 
-def _finish(head: CaseResult, network: Network, future: Future | None, engine: str,
-            baseline: Baseline | None) -> CaseResult:
+def _finish(
+    head: CaseResult, network: Network, future: Future | None, engine: str, baseline: Baseline | None
+) -> CaseResult:
     """Both routes' answers for one case, then its judgement."""
     started = time.perf_counter()
     own, error = None, None
@@ -101,15 +112,36 @@ def _finish(head: CaseResult, network: Network, future: Future | None, engine: s
             error = error or f"ngspice: {exc}"
     elif engine in ("spice", "both"):
         spice_note = "ngspice was not run"
-    result = replace(head, own=own, spice=spice, spice_note=spice_note, error=error, elapsed_own_s=elapsed_own,
-                     elapsed_spice_s=spice.elapsed_s if spice is not None else 0.0)
+    result = replace(
+        head,
+        own=own,
+        spice=spice,
+        spice_note=spice_note,
+        error=error,
+        elapsed_own_s=elapsed_own,
+        elapsed_spice_s=spice.elapsed_s if spice is not None else 0.0,
+    )
     return judged(result, network, compare=engine != "own", baseline=baseline)
 
 
-def case_from_netlist(path: str, text: str, port: tuple[str, str], freqs: Iterable[float],
-                      tolerance: Tolerance = SOLVER_VS_SPICE, allow_negative: bool = False,
-                      sources: str = "peak") -> Case:
+def case_from_netlist(
+    path: str,
+    text: str,
+    port: tuple[str, str],
+    freqs: Iterable[float],
+    tolerance: Tolerance = SOLVER_VS_SPICE,
+    allow_negative: bool = False,
+    sources: str = "peak",
+) -> Case:
     """A case for a bare netlist named on the command line with its port and frequencies."""
-    return Case(path=Path(path), title="", netlist_text=text, netlist_file=path, port=port,
-                freqs_hz=frequency_list(freqs, where=f"{path}: frequencies"), sources=sources, tolerance=tolerance,
-                allow_negative=allow_negative)
+    return Case(
+        path=Path(path),
+        title="",
+        netlist_text=text,
+        netlist_file=path,
+        port=port,
+        freqs_hz=frequency_list(freqs, where=f"{path}: frequencies"),
+        sources=sources,
+        tolerance=tolerance,
+        allow_negative=allow_negative,
+    )

@@ -54,8 +54,8 @@ class Probe:
     """What to read from a run's plot: a node-voltage difference or a branch current (ngspice vector names)."""
 
     run: Run
-    plus: str | None = None     # vector of V(a); None when a is ground
-    minus: str | None = None    # vector of V(b); None when b is ground
+    plus: str | None = None  # vector of V(a); None when a is ground
+    minus: str | None = None  # vector of V(b); None when b is ground
     current: str | None = None  # branch-current vector, for the short run
 
     @property
@@ -70,7 +70,7 @@ class Deck:
     text: str
     runs: tuple[Run, ...]
     probes: Mapping[str, Probe]
-    freqs: tuple[float, ...]                     # distinct frequencies the analysis cards ask for
+    freqs: tuple[float, ...]  # distinct frequencies the analysis cards ask for
     cards: tuple[str, ...]
     names: Mapping[str, str] = field(repr=False)  # deck name (node or element) -> model name
 
@@ -136,8 +136,9 @@ def build_deck(network: Network, port: Port, freqs: Sequence[float], run: Run, *
     return build_combined_deck(network, port, freqs, (run,), grids=grids)
 
 
-def build_combined_deck(network: Network, port: Port, freqs: Sequence[float], runs: Sequence[Run] = RUNS,
-                        *, grids: bool = True) -> Deck:
+def build_combined_deck(
+    network: Network, port: Port, freqs: Sequence[float], runs: Sequence[Run] = RUNS, *, grids: bool = True
+) -> Deck:
     """One deck holding a disjoint copy of the network per run; the copies share only ground.
 
     One load and one analysis then give all the runs. With a single run this is the plain deck.
@@ -157,8 +158,15 @@ def build_combined_deck(network: Network, port: Port, freqs: Sequence[float], ru
     nodes = network.nodes
     reference = floating_reference(network, port)
     for copy, run in enumerate(runs):
-        body, probe, copy_names = _copy(network, port, run, nodes, reference, node_offset=copy * len(nodes),
-                                        element_offset=copy * len(network.elements))
+        body, probe, copy_names = _copy(
+            network,
+            port,
+            run,
+            nodes,
+            reference,
+            node_offset=copy * len(nodes),
+            element_offset=copy * len(network.elements),
+        )
         lines += body
         probes[run] = probe
         names.update(copy_names)
@@ -178,11 +186,19 @@ def build_combined_deck(network: Network, port: Port, freqs: Sequence[float], ru
 
 
 def _save_name(vector: str) -> str:
-    return f"i({vector[:-len('#branch')]})" if vector.endswith("#branch") else f"v({vector})"
+    return f"i({vector[: -len('#branch')]})" if vector.endswith("#branch") else f"v({vector})"
 
 
-def _copy(network: Network, port: Port, run: Run, nodes: Sequence[str], reference: str | None, *,
-          node_offset: int, element_offset: int) -> tuple[list[str], Probe, dict[str, str]]:
+def _copy(
+    network: Network,
+    port: Port,
+    run: Run,
+    nodes: Sequence[str],
+    reference: str | None,
+    *,
+    node_offset: int,
+    element_offset: int,
+) -> tuple[list[str], Probe, dict[str, str]]:
     """Element lines of one copy of the network, renamed, with the extra source its run needs."""
     node_of: dict[str, str] = {GROUND: GROUND}
     for i, n in enumerate(nodes, start=1):

@@ -85,15 +85,16 @@ class SpiceResult:
 
     points: tuple[SpicePoint, ...]
     ngspice_version: str
-    strategy: str                   # "combined" or "separate": what produced the numbers
-    elapsed_s: float                # time spent in ngspice and reading its vectors
+    strategy: str  # "combined" or "separate": what produced the numbers
+    elapsed_s: float  # time spent in ngspice and reading its vectors
     notes: tuple[str, ...] = ()
     decks: tuple[str, ...] = field(default=(), repr=False)  # every deck text that was run, to reproduce by hand
 
     def _array(self, name: str) -> np.ndarray:
         nan = complex(math.nan, math.nan)
-        return np.array([nan if getattr(p, name) is None else getattr(p, name) for p in self.points],
-                        dtype=np.complex128)
+        return np.array(
+            [nan if getattr(p, name) is None else getattr(p, name) for p in self.points], dtype=np.complex128
+        )
 
     @property
     def freqs(self) -> np.ndarray:
@@ -139,8 +140,14 @@ def _library_path(library: str | None = None) -> str:
 
     Debian's ``libngspice0`` alone provides only ``libngspice.so.0``; ``-dev`` adds ``libngspice.so``.
     """
-    candidates = [library] if library else (
-        [os.environ["NGSPICE_LIBRARY_PATH"]] if os.environ.get("NGSPICE_LIBRARY_PATH") else list(_LIBRARY_CANDIDATES)
+    candidates = (
+        [library]
+        if library
+        else (
+            [os.environ["NGSPICE_LIBRARY_PATH"]]
+            if os.environ.get("NGSPICE_LIBRARY_PATH")
+            else list(_LIBRARY_CANDIDATES)
+        )
     )
     reasons = []
     for path in candidates:
@@ -151,8 +158,7 @@ def _library_path(library: str | None = None) -> str:
             continue
         return path
     raise EngineUnavailableError(
-        f"ngspice's shared library could not be loaded ({'; '.join(reasons)}); "
-        f"install it with: {INSTALL_COMMAND}"
+        f"ngspice's shared library could not be loaded ({'; '.join(reasons)}); install it with: {INSTALL_COMMAND}"
     )
 
 
@@ -211,8 +217,9 @@ class Engine:
         try:
             self._ng = cls.new_instance()
         except OSError as exc:
-            raise EngineUnavailableError(f"ngspice's shared library {path!r} could not be started ({exc}); "
-                                         f"install it with: {INSTALL_COMMAND}") from None
+            raise EngineUnavailableError(
+                f"ngspice's shared library {path!r} could not be started ({exc}); install it with: {INSTALL_COMMAND}"
+            ) from None
         banner = [text for _, text in self._ng.lines]
         self.version = _version_text(banner, self._ng.ngspice_version)
         self._ng.lines.clear()
@@ -279,8 +286,9 @@ def _version_text(banner: Sequence[str], number: int | None) -> str:
 # --------------------------------------------------------------------------- solving one case
 
 
-def solve(engine: Engine, network: Network, port: Port, freqs: Iterable[float],
-          strategy: Strategy = DEFAULT_STRATEGY) -> SpiceResult:
+def solve(
+    engine: Engine, network: Network, port: Port, freqs: Iterable[float], strategy: Strategy = DEFAULT_STRATEGY
+) -> SpiceResult:
     """The equivalent at ``freqs`` from ``engine``, in this process (workers call this; callers use a pool).
 
     Frequencies keep their order and repeats. 0 Hz is an AC analysis at ω = 0 (L short, C open, any
@@ -296,9 +304,11 @@ def solve(engine: Engine, network: Network, port: Port, freqs: Iterable[float],
     degenerate = port_is_voltage_defined(network, port)
     runs = tuple(r for r in RUNS if not (r == "short" and degenerate))
     if degenerate:
-        notes.append("I_N unavailable from ngspice: voltage-defined branches (V, E, H or ideal shorts) join the "
-                     "port's nodes, so shorting the port would close a loop of them and that run cannot be made "
-                     "(with V sources and shorts alone Z_th = 0 and there is no Norton form at all)")
+        notes.append(
+            "I_N unavailable from ngspice: voltage-defined branches (V, E, H or ideal shorts) join the "
+            "port's nodes, so shorting the port would close a loop of them and that run cannot be made "
+            "(with V sources and shorts alone Z_th = 0 and there is no Norton form at all)"
+        )
     # 0 Hz runs on its own: a node reached only through capacitors has no DC path, which makes the
     # 0 Hz matrix singular and would otherwise stop the whole sweep.
     groups = [g for g in (sorted({f for f in requested if f > 0}), [0.0] if 0.0 in requested else []) if g]
@@ -320,14 +330,26 @@ def solve(engine: Engine, network: Network, port: Port, freqs: Iterable[float],
             derived = True
             isc = vth / zth
             point_notes.append("I_N here is V_th / Z_th from ngspice's open-circuit and test runs")
-        points.append(SpicePoint(freq_hz=freq_hz, requested_hz=f, vth=vth, zth=zth, isc=isc,
-                                 route_mismatch=None if derived else route_mismatch(vth, zth, isc),
-                                 notes=tuple(point_notes)))
+        points.append(
+            SpicePoint(
+                freq_hz=freq_hz,
+                requested_hz=f,
+                vth=vth,
+                zth=zth,
+                isc=isc,
+                route_mismatch=None if derived else route_mismatch(vth, zth, isc),
+                notes=tuple(point_notes),
+            )
+        )
     notes += case.notes
-    return SpiceResult(points=tuple(points), ngspice_version=engine.version,
-                       strategy="combined" if used == {"combined"} else "separate",
-                       elapsed_s=time.perf_counter() - started, notes=tuple(dict.fromkeys(notes)),
-                       decks=tuple(case.decks))
+    return SpiceResult(
+        points=tuple(points),
+        ngspice_version=engine.version,
+        strategy="combined" if used == {"combined"} else "separate",
+        elapsed_s=time.perf_counter() - started,
+        notes=tuple(dict.fromkeys(notes)),
+        decks=tuple(case.decks),
+    )
 
 
 def route_mismatch(vth: complex | None, zth: complex | None, isc: complex | None) -> float | None:
@@ -407,22 +429,26 @@ class _Case:
                 raise _RunFailed(f"plot {name} lacks the vectors {', '.join(missing)}", [], deck.text)
             for row, got in enumerate(freq.real.tolist()):
                 i = bisect.bisect_left(wanted, got)
-                match = [f for f in wanted[max(i - 1, 0):i + 1] if same_frequency(f, got)]
+                match = [f for f in wanted[max(i - 1, 0) : i + 1] if same_frequency(f, got)]
                 if len(match) != 1 or match[0] in rows:
-                    raise _RunFailed(f"plot {name} has a row at {got!r} Hz that was not asked for once", [],
-                                     deck.text)
+                    raise _RunFailed(f"plot {name} has a row at {got!r} Hz that was not asked for once", [], deck.text)
                 rows[match[0]] = (vectors, row, got)
         lost = [f for f in deck.freqs if f not in rows]
         if lost:
-            raise _RunFailed(f"ngspice returned no row for {', '.join(map(repr, lost[:5]))} Hz"
-                             f"{' …' if len(lost) > 5 else ''} (plots: {', '.join(plots) or 'none'})", [], deck.text)
+            raise _RunFailed(
+                f"ngspice returned no row for {', '.join(map(repr, lost[:5]))} Hz"
+                f"{' …' if len(lost) > 5 else ''} (plots: {', '.join(plots) or 'none'})",
+                [],
+                deck.text,
+            )
         for run, probe in deck.probes.items():
             for f, (vectors, row, got) in rows.items():
                 if probe.current is not None:
                     value = vectors[probe.current][row]
                 else:
                     value = (vectors[probe.plus][row] if probe.plus else 0j) - (
-                        vectors[probe.minus][row] if probe.minus else 0j)
+                        vectors[probe.minus][row] if probe.minus else 0j
+                    )
                 self.values[(run, f)] = (got, complex(value))
 
 

@@ -52,8 +52,7 @@ class CaseSolver:
             sys.path.insert(0, self.path)
         function = getattr(importlib.import_module(self.module), self.name)
         if not callable(function):
-            raise TypeError(f"{self.module}.{self.name} is not callable; name a function with engine.solve's "
-                            "signature")
+            raise TypeError(f"{self.module}.{self.name} is not callable; name a function with engine.solve's signature")
         return function
 
 
@@ -127,8 +126,13 @@ def worker_main(conn: Any, settings: Settings) -> None:
             return
 
 
-def _one_case(solve_case: Callable[..., SpiceResult], engine: Engine | None, startup_error: CrosscheckError | None,
-              task: Task, settings: Settings) -> tuple[tuple[str, Any], bool]:
+def _one_case(
+    solve_case: Callable[..., SpiceResult],
+    engine: Engine | None,
+    startup_error: CrosscheckError | None,
+    task: Task,
+    settings: Settings,
+) -> tuple[tuple[str, Any], bool]:
     """One case's outcome, ("ok", result) or ("error", error), and whether the worker retires after it."""
     try:
         if engine is None:
@@ -138,9 +142,13 @@ def _one_case(solve_case: Callable[..., SpiceResult], engine: Engine | None, sta
     except CrosscheckError as exc:
         return ("error", exc), engine is not None and isinstance(exc, ReferenceEngineError)
     except MemoryError:
-        return ("error", ReferenceEngineError(
-            f"the ngspice worker ran out of memory (limit {describe_bytes(settings.memory_bytes)}) on this case; "
-            "raise memory_bytes if the network is genuinely that large")), True
+        return (
+            "error",
+            ReferenceEngineError(
+                f"the ngspice worker ran out of memory (limit {describe_bytes(settings.memory_bytes)}) on this case; "
+                "raise memory_bytes if the network is genuinely that large"
+            ),
+        ), True
     except Exception as exc:  # a bug or an engine fault: report it as this case's error, then retire
         return ("error", ReferenceEngineError(f"the ngspice worker failed: {type(exc).__name__}: {exc}")), True
 

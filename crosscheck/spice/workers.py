@@ -98,9 +98,13 @@ class _Worker:
             with open(self._log_path, "wb") as log:
                 self.process = subprocess.Popen(
                     [sys.executable, "-c", _CHILD_COMMAND, str(theirs.fileno())],
-                    cwd=work, env=_worker_environment(self.directory, settings.library),
-                    stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=log,
-                    pass_fds=(theirs.fileno(),), close_fds=True,
+                    cwd=work,
+                    env=_worker_environment(self.directory, settings.library),
+                    stdin=subprocess.DEVNULL,
+                    stdout=subprocess.DEVNULL,
+                    stderr=log,
+                    pass_fds=(theirs.fileno(),),
+                    close_fds=True,
                 )
         finally:
             theirs.close()
@@ -134,10 +138,12 @@ class _Worker:
             return "still running"
         if code < 0:
             sig = signal.Signals(-code).name if -code in signal.valid_signals() else str(-code)
-            why = {"SIGXCPU": "it reached its CPU-time limit",
-                   "SIGKILL": "killed: a crash, an out-of-memory kill or an outside signal",
-                   "SIGSEGV": "ngspice crashed",
-                   "SIGABRT": "ngspice aborted"}.get(sig, "ended by a signal")
+            why = {
+                "SIGXCPU": "it reached its CPU-time limit",
+                "SIGKILL": "killed: a crash, an out-of-memory kill or an outside signal",
+                "SIGSEGV": "ngspice crashed",
+                "SIGABRT": "ngspice aborted",
+            }.get(sig, "ended by a signal")
             text = f"{sig}: {why}"
         else:
             text = f"exit status {code}"
@@ -201,11 +207,19 @@ class SpicePool:
     ``engine.solve`` unless a test names one of its own.
     """
 
-    def __init__(self, workers: int | None = None, *, timeout_s: float = DEFAULT_TIMEOUT_S,
-                 memory_bytes: int | None = DEFAULT_MEMORY_BYTES, cpu_s: float | None = None,
-                 strategy: Strategy = DEFAULT_STRATEGY, library: str | None = None,
-                 cases_per_worker: int = 1000, start_timeout_s: float = _START_TIMEOUT_S,
-                 solve: CaseSolver = ENGINE_SOLVE):
+    def __init__(
+        self,
+        workers: int | None = None,
+        *,
+        timeout_s: float = DEFAULT_TIMEOUT_S,
+        memory_bytes: int | None = DEFAULT_MEMORY_BYTES,
+        cpu_s: float | None = None,
+        strategy: Strategy = DEFAULT_STRATEGY,
+        library: str | None = None,
+        cases_per_worker: int = 1000,
+        start_timeout_s: float = _START_TIMEOUT_S,
+        solve: CaseSolver = ENGINE_SOLVE,
+    ):
         count = (os.cpu_count() or 1) if workers is None else int(workers)
         if count < 1:
             raise ValueError(f"workers must be at least 1 (got {workers!r})")
@@ -218,14 +232,20 @@ class SpicePool:
         self._memory_bytes = memory_bytes
         # Every worker's settings but its directory (``_settings_for`` adds that).
         self._settings: Callable[[str], Settings] = lambda directory: Settings(
-            directory, library or os.environ.get("NGSPICE_LIBRARY_PATH") or None, memory_bytes, self._cpu_s,
-            int(cases_per_worker), solve)
+            directory,
+            library or os.environ.get("NGSPICE_LIBRARY_PATH") or None,
+            memory_bytes,
+            self._cpu_s,
+            int(cases_per_worker),
+            solve,
+        )
         self._start_timeout_s = start_timeout_s
         self._queue: queue.SimpleQueue = queue.SimpleQueue()
         self._closed = False
         self._lock = threading.Lock()
-        self._threads = [threading.Thread(target=self._serve, name=f"crosscheck-spice-{i}", daemon=True)
-                         for i in range(count)]
+        self._threads = [
+            threading.Thread(target=self._serve, name=f"crosscheck-spice-{i}", daemon=True) for i in range(count)
+        ]
         for t in self._threads:
             t.start()
 
@@ -235,8 +255,15 @@ class SpicePool:
     def __exit__(self, *exc_info: object) -> None:
         self.close()
 
-    def submit(self, network: Network, port: Port, freqs: Iterable[float], *, timeout_s: float | None = None,
-               strategy: Strategy | None = None) -> Future[SpiceResult]:
+    def submit(
+        self,
+        network: Network,
+        port: Port,
+        freqs: Iterable[float],
+        *,
+        timeout_s: float | None = None,
+        strategy: Strategy | None = None,
+    ) -> Future[SpiceResult]:
         """Queue one case; its future holds the ``SpiceResult`` or the error of that case alone."""
         future: Future = Future()
         with self._lock:
@@ -319,8 +346,10 @@ class SpicePool:
         return self._settings(directory)
 
     def _lost(self, lost: _WorkerLost, task: Task) -> ReferenceEngineError:
-        limits = (f"limits: {self.timeout_s:g} s wall clock, {self._cpu_s:g} s CPU, "
-                  f"{describe_bytes(self._memory_bytes)} memory")
+        limits = (
+            f"limits: {self.timeout_s:g} s wall clock, {self._cpu_s:g} s CPU, "
+            f"{describe_bytes(self._memory_bytes)} memory"
+        )
         return ReferenceEngineError(
             f"{lost}; the worker was stopped and replaced, and the other cases go on "
             f"(network {task.network.title!r}, {len(task.network.elements)} elements, {limits}). "
@@ -343,8 +372,9 @@ def shared_pool() -> SpicePool:
         return _SHARED
 
 
-def spice_equivalent(network: Network, port: Port, freqs: Iterable[float], timeout_s: float = 60.0,
-                     strategy: Strategy = DEFAULT_STRATEGY) -> SpiceResult:
+def spice_equivalent(
+    network: Network, port: Port, freqs: Iterable[float], timeout_s: float = 60.0, strategy: Strategy = DEFAULT_STRATEGY
+) -> SpiceResult:
     """ngspice's equivalent of ``network`` at ``port``, computed in an isolated worker process.
 
     For one-off calls (it uses ``shared_pool``); a batch should use a ``SpicePool`` directly.
