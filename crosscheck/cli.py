@@ -5,23 +5,25 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from contextlib import nullcontext
 from dataclasses import replace
 from pathlib import Path
 
 from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
+from crosscheck.cli_parser import parser
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
-from crosscheck.model.cases import find_case_files, load_case
+from crosscheck.judge.result import CaseResult
+from crosscheck.model.cases import Case, find_case_files, load_case
 from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
-from crosscheck.report.outputs import VERIFY_FORMATS, render_report, verify_format
-from crosscheck.version import __version__
+from crosscheck.report.outputs import render_report, verify_format
 from crosscheck.vocabulary import same_frequency
 
 # Exit codes (documented in the README).
@@ -32,177 +34,9 @@ EXIT_ERROR = 3  # invalid input (netlist, case file) or an engine crashed on a c
 EXIT_UNAVAILABLE = 4  # nothing failed, but an engine could not produce some quantity
 EXIT_DRIFT = 5  # nothing failed, but a result moved from the stored baseline (verify --baseline)
 
-CLUSTER_HELP = (
-    "run every case as a task on the Dask cluster whose scheduler is at ADDRESS (tcp://host:port); "
-    "its workers need crosscheck and ngspice installed (pip install 'crosscheck[cluster]')"
-)
-
-
-def _parser() -> argparse.ArgumentParser:
-
-    top = argparse.ArgumentParser(
-        prog="crosscheck",
-        description="Thevenin and Norton equivalents of linear AC networks, from crosscheck's own "
-        "solver and checked against ngspice.",
-        epilog="Exit codes: 0 pass, 1 fail, 2 usage, 3 error (invalid input), 4 unavailable, "
-        "5 drift from the baseline.",
-    )
-    top.add_argument("--version", action="version", version=f"crosscheck {__version__}")
-    sub = top.add_subparsers(dest="command", required=True, metavar="COMMAND")
-
-    reduce = sub.add_parser("reduce", help="equivalents of one netlist at a port and frequencies")
-    reduce.add_argument("netlist", type=Path, help="SPICE netlist file (R L C V I E F G H K, .subckt, .param)")
-    reduce.add_argument("--port", nargs=2, metavar=("A", "B"), required=True, help="port nodes: V_th = V(A) - V(B)")
-    reduce.add_argument(
-        "--freq",
-        nargs="+",
-        required=True,
-        metavar="F",
-        help="frequencies in Hz, engineering notation allowed (50 1k 10.7meg; 0 is DC)",
-    )
-    reduce.add_argument("--format", choices=("text", "json"), default="text")
-    reduce.add_argument(
-        "--engine",
-        choices=("own", "spice", "both"),
-        default="both",
-        help="own: crosscheck's solver only; spice: compare with ngspice too (same as both)",
-    )
-    reduce.add_argument(
-        "--expect",
-        action="append",
-        default=[],
-        metavar="QTY[@F]=VALUE",
-        help='a hand-calculated value to check, e.g. vth=57.34∠-55° or "zth=4.7 - j6.7" '
-        "(vth zth in yn series_r series_l series_c); @F names the frequency when several "
-        "--freq are given; repeat for more values",
-    )
-    reduce.add_argument(
-        "--expect-rel",
-        type=float,
-        default=None,
-        metavar="REL",
-        help="magnitude tolerance of --expect values (default 0.01: three significant figures)",
-    )
-    reduce.add_argument(
-        "--expect-phase",
-        type=_phase_option,
-        default=None,
-        metavar="DEG",
-        help="phase tolerance of --expect values in degrees (default 0.5); 'none' judges the "
-        "complex relative error against --expect-rel instead",
-    )
-    _common_options(reduce)
-
-    verify = sub.add_parser("verify", help="check case files (and netlists) with both engines")
-    verify.add_argument(
-        "paths",
-        nargs="+",
-        type=Path,
-        metavar="PATH",
-        help="case files (*.toml), folders searched for them, or netlists (with --port and --freq)",
-    )
-    verify.add_argument("--port", nargs=2, metavar=("A", "B"), help="port for netlists named directly")
-    verify.add_argument("--freq", nargs="+", metavar="F", help="frequencies for netlists named directly")
-    verify.add_argument(
-        "--format",
-        choices=VERIFY_FORMATS,
-        default=None,
-        help="report format (default: from the --output file's extension — .json, .xml (junit), "
-        ".csv, .html, .md — else text)",
-    )
-    verify.add_argument(
-        "--output",
-        type=Path,
-        action="append",
-        help="write the report to this file instead of standard output; repeat it for several "
-        "formats from one run (each file's extension names its format)",
-    )
-    verify.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
-    verify.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
-    verify.add_argument("--timeout", type=float, default=60.0, help="seconds ngspice may take per case (default 60)")
-    verify.add_argument(
-        "--allow-outside-paths", action="store_true", help="let case files name netlists outside their own folder"
-    )
-    verify.add_argument("--detail", action="store_true", help="show every point of every case")
-    verify.add_argument(
-        "--baseline",
-        type=Path,
-        metavar="FILE",
-        help="compare the own solver's equivalents with this stored baseline; a change beyond "
-        "numerical noise is 'drift' (exit code 5)",
-    )
-    verify.add_argument(
-        "--update-baseline",
-        action="store_true",
-        help="write this run's equivalents to --baseline FILE and list what changed",
-    )
-    _common_options(verify)
-    _fuzz_parser(sub)
-    return top
-
-
-def _fuzz_parser(sub) -> None:
-    from crosscheck.fuzz.generate import (  # start-up time: loaded only by the commands that use it
-        ALL_KINDS,
-        FAMILIES,
-        MIXED,
-    )
-
-    fuzz = sub.add_parser("fuzz", help="random networks through both engines; shrinks what disagrees")
-    fuzz.add_argument("--count", type=int, default=100, metavar="N", help="how many networks (default 100)")
-    fuzz.add_argument("--seed", type=int, default=0, metavar="S", help="run seed; case i gets seed S*1000003+i")
-    fuzz.add_argument(
-        "--case-seed",
-        type=int,
-        nargs="+",
-        metavar="SEED",
-        help="run only these case seeds (printed with every failure) instead of --count/--seed",
-    )
-    fuzz.add_argument(
-        "--nodes",
-        type=int,
-        nargs=2,
-        default=(2, 8),
-        metavar=("MIN", "MAX"),
-        help="non-ground nodes per network (default 2 8)",
-    )
-    fuzz.add_argument(
-        "--family",
-        choices=(MIXED, *FAMILIES),
-        default=MIXED,
-        help="topology family; mixed (default) draws one per case",
-    )
-    fuzz.add_argument(
-        "--kinds",
-        default=ALL_KINDS,
-        metavar="LETTERS",
-        help=f"element kinds to draw from (default {ALL_KINDS}; F and H bring 0 V sensing sources)",
-    )
-    fuzz.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
-    fuzz.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
-    fuzz.add_argument(
-        "--out",
-        type=Path,
-        metavar="DIR",
-        help="write summary.json and, per failure, the shrunk netlist, case file and numbers here",
-    )
-    fuzz.add_argument("--format", choices=("text", "json"), default="text", help="summary on standard output")
-    fuzz.add_argument("--no-shrink", action="store_true", help="report failures without shrinking them")
-
-
-def _common_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--allow-negative", action="store_true", help="accept negative resistances (active device models)")
-    p.add_argument(
-        "--sources",
-        choices=("peak", "rms"),
-        default="peak",
-        help="how the netlist's AC magnitudes are meant (labels the output; default peak)",
-    )
-    p.add_argument("--rel", type=float, default=None, help="relative tolerance, solver vs SPICE (default 1e-6)")
-
 
 def main(argv: Sequence[str] | None = None) -> int:
-    args = _parser().parse_args(argv)
+    args = parser().parse_args(argv)
     try:
         if args.command == "reduce":
             return _reduce(args)
@@ -224,28 +58,15 @@ def _frequencies(texts: Sequence[str]) -> list[float]:
     return list(checked_frequencies((parse_number(t) for t in texts), where="--freq"))
 
 
-def _tolerance(args: argparse.Namespace):
-
+def _tolerance(args: argparse.Namespace) -> Tolerance:
+    """--rel as the solver-vs-SPICE tolerance (the default when not given)."""
     if args.rel is None:
         return SOLVER_VS_SPICE
     return Tolerance(rel=args.rel, abs=SOLVER_VS_SPICE.abs)
 
 
-def _phase_option(text: str) -> float | str:
-    """--expect-phase: degrees in [0, 180], or 'none' to judge by the complex relative error."""
-    if text.strip().lower() == "none":
-        return "none"
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number of degrees; write e.g. 0.5, or none") from None
-    if not 0 <= value <= 180:
-        raise argparse.ArgumentTypeError(f"{text!r} must be between 0 and 180 degrees")
-    return value
-
-
-def _expect_tolerance(args: argparse.Namespace):
-
+def _expect_tolerance(args: argparse.Namespace) -> Tolerance:
+    """--expect-rel and --expect-phase as the hand values' tolerance (three significant figures by default)."""
     rel = HAND_CALCULATION.rel if args.expect_rel is None else args.expect_rel
     phase = {None: HAND_CALCULATION.phase_deg, "none": None}.get(args.expect_phase, args.expect_phase)
     try:
@@ -254,8 +75,8 @@ def _expect_tolerance(args: argparse.Namespace):
         raise _UsageError(f"--expect-rel: {exc}") from None
 
 
-class _UsageError(Exception):
-    pass
+class _UsageError(CrosscheckError, ValueError):
+    """A command-line value that cannot be used; reported as a usage error (exit 2)."""
 
 
 def exit_code(verdicts: Sequence[str]) -> int:
@@ -340,12 +161,8 @@ def _read_text(path: Path) -> str:
 
 
 def _verify(args: argparse.Namespace) -> int:
-    from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
-
-    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
+    """Case files (and netlists named with --port and --freq) through both routes; reports; the exit code."""
     from crosscheck.run.batch import run_batch  # start-up time: loaded only by the commands that use it
-    from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
 
     if args.update_baseline and args.baseline is None:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)", file=sys.stderr)
@@ -358,29 +175,50 @@ def _verify(args: argparse.Namespace) -> int:
         )
         return EXIT_USAGE
     baseline = _baseline(args)
-    items: list = []
+    items = _verify_items(args)
+    progress, advance = _progress_bar(len(items))
+    with progress, _executor(args.cluster) as executor:
+        results = run_batch(
+            items, executor, workers=args.workers, timeout_s=args.timeout, on_done=advance, baseline=baseline
+        )
+    _write_reports(args, results)
+    if args.update_baseline:
+        _update_baseline(args, results)
+    return exit_code([r.verdict for r in results])
+
+
+def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, CrosscheckError]]:
+    """Every case file found under the paths, read; a file that cannot be read stays as (path, error)."""
+    from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
+
+    items: list[Case | tuple[str, CrosscheckError]] = []
     for path in find_case_files(list(args.paths)):
         try:
             if path.suffix.lower() == ".toml":
                 items.append(load_case(path, allow_outside=args.allow_outside_paths))
-            else:
-                if not args.port or not args.freq:
-                    raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
-                items.append(
-                    case_from_netlist(
-                        str(path),
-                        _read_text(path),
-                        tuple(args.port),
-                        _frequencies(args.freq),
-                        _tolerance(args),
-                        args.allow_negative,
-                        args.sources,
-                    )
+                continue
+            if not args.port or not args.freq:
+                raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
+            items.append(
+                case_from_netlist(
+                    str(path),
+                    _read_text(path),
+                    tuple(args.port),
+                    _frequencies(args.freq),
+                    _tolerance(args),
+                    args.allow_negative,
+                    args.sources,
                 )
+            )
         except CrosscheckError as exc:
             items.append((str(path), exc))
     if not items:
         raise CrosscheckError(f"no case files (*.toml) found under {', '.join(map(str, args.paths))}")
+    return items
+
+
+def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
+    """A progress bar on standard error (only on a terminal), and the callback that advances it."""
     err_console = Console(stderr=True)
     progress = Progress(
         TextColumn("checking"),
@@ -392,16 +230,14 @@ def _verify(args: argparse.Namespace) -> int:
         transient=True,
         disable=not err_console.is_terminal,
     )
-    with progress, _executor(args.cluster) as executor:
-        task = progress.add_task("cases", total=len(items), rate="")
-        results = run_batch(
-            items,
-            executor,
-            workers=args.workers,
-            timeout_s=args.timeout,
-            on_done=lambda r: progress.advance(task),
-            baseline=baseline,
-        )
+    task = progress.add_task("cases", total=total, rate="")
+    return progress, lambda _result: progress.advance(task)
+
+
+def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> None:
+    """Each --output in the format its extension names (standard output without one), then the summary."""
+    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
+
     outputs = args.output or [None]
     for output in outputs:
         fmt = verify_format(args.format, output)
@@ -415,9 +251,6 @@ def _verify(args: argparse.Namespace) -> int:
         # The reports went to files: the terminal still gets the summary and where to look.
         print_results(Console(), results, detail=False)
         print(f"report{'s' if len(outputs) > 1 else ''} written to {', '.join(map(str, outputs))}")
-    if args.update_baseline:
-        _update_baseline(args, results)
-    return exit_code([r.verdict for r in results])
 
 
 def _baseline(args: argparse.Namespace):
@@ -449,8 +282,6 @@ def _emit(text: str, output: Path | None) -> None:
 
 def _fuzz(args: argparse.Namespace) -> int:
     """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
-    from rich.console import Console
-
     from crosscheck.fuzz.generate import Knobs  # start-up time: loaded only by the commands that use it
     from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: loaded only by the commands that use it
     from crosscheck.fuzz.reproducer import summary_document  # start-up time: loaded only by the commands that use it

@@ -25,6 +25,16 @@ def _e(x: float | None) -> str:
 
 
 def print_summary(console: Console, s: FuzzSummary) -> None:
+    """The run on the terminal: what ran, the tallies, the error percentiles, then every problem."""
+    _print_header(console, s)
+    console.print(_error_table(s))
+    _print_problems(console, s)
+    verdict = "no unexplained disagreement" if not s.problems else f"{len(s.problems)} unexplained"
+    console.print(f"[bold]{verdict}[/]" + (" (with a fault injected)" if s.faults else ""))
+
+
+def _print_header(console: Console, s: FuzzSummary) -> None:
+    """What ran, any fault injected on purpose, the tallies and the rate."""
     k = s.options.knobs
     what = (
         f"{len(s.options.case_seeds)} chosen case seed(s)"
@@ -59,6 +69,10 @@ def print_summary(console: Console, s: FuzzSummary) -> None:
         f"{s.elapsed_s:.1f} s, own solver {s.own_s:.1f} s of it){shrinking}"
         f"{'; ' + s.ngspice_version if s.ngspice_version else ''}"
     )
+
+
+def _error_table(s: FuzzSummary) -> Table:
+    """Percentiles of the judged error per compared quantity, and where the worst one was."""
     table = Table(title="judged error |Δ| / max(|ref|, roundoff floor) per compared value", title_justify="left")
     for h in ("quantity", "compared", "p50", "p90", "p99", "p99.9", "max", "worst at (case seed, f)"):
         table.add_column(h, justify="left" if h in ("quantity", "worst at (case seed, f)") else "right")
@@ -71,7 +85,11 @@ def print_summary(console: Console, s: FuzzSummary) -> None:
             *(_e(p.get(n)) for n in ("p50", "p90", "p99", "p99.9", "max")),
             f"{worst[1]}, {worst[2]:g} Hz" if worst else "—",
         )
-    console.print(table)
+    return table
+
+
+def _print_problems(console: Console, s: FuzzSummary) -> None:
+    """Unexplained cases with how to rerun them, the shrunk reproducers, and the explained cases in brief."""
     if s.problems:
         t = Table(title=f"unexplained: {len(s.problems)} case(s)", title_justify="left")
         for h in ("case seed", "family", "status", "why"):
@@ -80,7 +98,7 @@ def print_summary(console: Console, s: FuzzSummary) -> None:
             t.add_row(str(o.case.seed), o.case.family, o.status, escape(o.reason[:400]))
         console.print(t)
         console.print("Seeds of the failures: " + " ".join(str(o.case.seed) for o in s.problems))
-        console.print(f"Rerun one alone: {regenerate_command(s.problems[0].case.seed, k)}")
+        console.print(f"Rerun one alone: {regenerate_command(s.problems[0].case.seed, s.options.knobs)}")
     for r in s.reproducers:
         files = f" → {r.files[1]}" if r.files else ""
         console.print(
@@ -92,8 +110,6 @@ def print_summary(console: Console, s: FuzzSummary) -> None:
         console.print(f"[dim]Explained ({len(s.explained_cases)}; first {min(_SHOWN, len(s.explained_cases))}):[/]")
         for o in s.explained_cases[:_SHOWN]:
             console.print(f"[dim]  {o.case.seed} {o.status}: {escape(o.reason[:240])}[/]")
-    verdict = "no unexplained disagreement" if not s.problems else f"{len(s.problems)} unexplained"
-    console.print(f"[bold]{verdict}[/]" + (" (with a fault injected)" if s.faults else ""))
 
 
 class _Rate(ProgressColumn):
