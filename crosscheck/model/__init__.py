@@ -1,1 +1,7 @@
-"""The network model and what builds it: values, the network and its validation, the netlist reader and writer, parameters, case files, tolerances."""
+"""Floor 1, the model: user text turned into the immutable network and the case to run.
+
+For the rest of the project: ``network`` (Network, Element, Port, validate), ``netlist`` (read_netlist,
+read_netlist_text), ``netlist_writer`` (write_netlist), ``cases`` (Case, load_case, find_case_files),
+``tolerance`` (Tolerance and the defaults), ``frequencies``, ``values``, ``graph`` (UnionFind) and
+``expect_option``. Imports only ``errors``, ``vocabulary`` and ``version``.
+"""

@@ -1,1 +1,5 @@
-"""The own route: phasor MNA assembly, sparse back ends, the compiled sweep loop, singular diagnosis, Thevenin and Norton equivalents."""
+"""Floor 2, the own route: phasor MNA and the equivalents it gives.
+
+For the rest of the project: ``equivalent`` (thevenin, Equivalent, ElementForm), ``solver`` (MnaSystem),
+``assembly`` (Stamps: the element stamps, a seam for deliberate faults). Imports only floors 0 and 1.
+"""
