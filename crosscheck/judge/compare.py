@@ -90,6 +90,33 @@ def compare_quantity(
     ref_name: str = "SPICE",
 ) -> QuantityCheck:
     """One quantity at one frequency: judged error, display errors, verdict and the reason."""
+    if own is None or ref is None:
+        return _absent(quantity, own, ref, own_note, ref_note, ref_name)
+    delta = abs(own - ref)
+    roundoff = ROUNDOFF_FACTOR * condition * EPS * scale if math.isfinite(condition) else 0.0
+    floor = max(tol.abs, roundoff) / tol.rel if tol.rel > 0 else 0.0
+    denominator = max(abs(ref), floor)
+    err = 0.0 if delta == 0 else (delta / denominator if denominator > 0 else math.inf)
+    rel = 0.0 if delta == 0 else (delta / abs(ref) if ref != 0 else math.inf)
+    mag = magnitude_error_pct(own, ref)
+    phase = phase_difference_deg(own, ref)
+    ok = err <= tol.rel and (tol.phase_deg is None or abs(phase) <= tol.phase_deg or abs(ref) <= tol.abs)
+    if ok:
+        if rel <= tol.rel:
+            return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, "", Cause.AGREES)
+        note = _roundoff_note(quantity, delta, roundoff, condition)
+        return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, note, Cause.AGREES_TO_ROUNDOFF)
+    cause, reason = _failure_reason(quantity, err, tol, condition, mag, phase)
+    return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.FAIL, reason, cause)
+
+
+def _absent(
+    quantity: str, own: complex | None, ref: complex | None, own_note: str, ref_note: str, ref_name: str
+) -> QuantityCheck:
+    """A quantity one engine or both do not give: agreement when neither has it, else unavailable, with why.
+
+    When only crosscheck lacks it and the reference gives no note, crosscheck's own note says why.
+    """
     if own is None and ref is None:
         why = own_note or ref_note or "no value from either engine"
         return QuantityCheck(
@@ -104,42 +131,30 @@ def compare_quantity(
             f"both engines agree that {quantity} does not exist here: {why}",
             Cause.BOTH_ABSENT,
         )
-    if own is None or ref is None:
-        who, why = ("crosscheck", own_note) if own is None else (ref_name, ref_note)
-        if own is None and ref is not None and ref_note == "" and own_note:
-            why = own_note
-        return QuantityCheck(
-            quantity,
-            own,
-            ref,
-            math.nan,
-            math.nan,
-            math.nan,
-            math.nan,
-            Verdict.UNAVAILABLE,
-            f"{who} gives no {quantity}: {why or 'no reason given'}",
-            Cause.OWN_ABSENT if own is None else Cause.REFERENCE_ABSENT,
-        )
-    delta = abs(own - ref)
-    roundoff = ROUNDOFF_FACTOR * condition * EPS * scale if math.isfinite(condition) else 0.0
-    floor = max(tol.abs, roundoff) / tol.rel if tol.rel > 0 else 0.0
-    denominator = max(abs(ref), floor)
-    err = 0.0 if delta == 0 else (delta / denominator if denominator > 0 else math.inf)
-    rel = 0.0 if delta == 0 else (delta / abs(ref) if ref != 0 else math.inf)
-    mag = magnitude_error_pct(own, ref)
-    phase = phase_difference_deg(own, ref)
-    ok = err <= tol.rel and (tol.phase_deg is None or abs(phase) <= tol.phase_deg or abs(ref) <= tol.abs)
-    if ok:
-        if rel <= tol.rel:
-            return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, "", Cause.AGREES)
-        note = (
-            f"agrees to the accuracy the arithmetic allows (|Δ| = {delta:.3g} {quantity_unit(quantity)} is within "
-            f"1e3·κ·ε·‖x‖ = {roundoff:.3g} for condition κ = {condition:.3g}; 1e3 is the growth ngspice's "
-            "threshold pivoting allows)"
-        )
-        return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.PASS, note, Cause.AGREES_TO_ROUNDOFF)
-    cause, reason = _failure_reason(quantity, err, tol, condition, mag, phase)
-    return QuantityCheck(quantity, own, ref, err, rel, mag, phase, Verdict.FAIL, reason, cause)
+    who, why = ("crosscheck", own_note) if own is None else (ref_name, ref_note)
+    if own is None and ref is not None and ref_note == "" and own_note:
+        why = own_note
+    return QuantityCheck(
+        quantity,
+        own,
+        ref,
+        math.nan,
+        math.nan,
+        math.nan,
+        math.nan,
+        Verdict.UNAVAILABLE,
+        f"{who} gives no {quantity}: {why or 'no reason given'}",
+        Cause.OWN_ABSENT if own is None else Cause.REFERENCE_ABSENT,
+    )
+
+
+def _roundoff_note(quantity: str, delta: float, roundoff: float, condition: float) -> str:
+    """Why a difference beyond tol.rel still passes: it is within what the matrix condition allows."""
+    return (
+        f"agrees to the accuracy the arithmetic allows (|Δ| = {delta:.3g} {quantity_unit(quantity)} is within "
+        f"1e3·κ·ε·‖x‖ = {roundoff:.3g} for condition κ = {condition:.3g}; 1e3 is the growth ngspice's "
+        "threshold pivoting allows)"
+    )
 
 
 def _failure_reason(

@@ -16,7 +16,7 @@ from collections.abc import Sequence
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.records import Cause, ExpectationCheck
 from crosscheck.judge.slips import Slip, diagnose
-from crosscheck.judge.stated import deviation, format_value, quantity_value, signed
+from crosscheck.judge.stated import Deviation, deviation, format_value, quantity_value, signed
 from crosscheck.model.cases import Case, Expectation
 from crosscheck.model.expect_option import SERIES
 from crosscheck.model.netlist import read_netlist
@@ -66,82 +66,99 @@ def _check_one(
     port: Port,
     network: Network | None,
 ) -> ExpectationCheck:
-    tol = expectation.tolerance
-    at = format_eng(expectation.at_hz, 4, " Hz")
-    label = f"{quantity_name(quantity)} at {at}"
-    nan = math.nan
+    """One stated value against the own solver's point: no point, no value, within tolerance, or a failure."""
+    label = f"{quantity_name(quantity)} at {format_eng(expectation.at_hz, 4, ' Hz')}"
     if eq is None:
-        return ExpectationCheck(
-            expectation.index,
-            expectation.at_hz,
-            quantity,
-            stated,
-            None,
-            nan,
-            nan,
-            nan,
-            nan,
-            Verdict.UNAVAILABLE,
-            None,
-            f"{label}: crosscheck computed no point at this frequency; add it to the case's frequencies",
-            expectation.how,
-            Cause.NO_VALUE,
-        )
+        text = f"{label}: crosscheck computed no point at this frequency; add it to the case's frequencies"
+        return _without_value(expectation, quantity, stated, Verdict.UNAVAILABLE, text)
     obtained, why_none = quantity_value(eq, quantity)
     if obtained is None:
-        verdict = Verdict.UNAVAILABLE if quantity in SERIES and eq.freq_hz == 0 else Verdict.FAIL
-        text = (
-            f"{label}: the hand value {format_value(quantity, stated)} cannot be checked: {why_none}"
-            if verdict == Verdict.UNAVAILABLE
-            else f"{label}: stated {format_value(quantity, stated)}, but crosscheck finds none: {why_none}"
-        )
-        return ExpectationCheck(
-            expectation.index,
-            expectation.at_hz,
-            quantity,
-            stated,
-            None,
-            nan,
-            nan,
-            nan,
-            nan,
-            verdict,
-            None,
-            text,
-            expectation.how,
-            Cause.NO_VALUE,
-        )
-    d = deviation(stated, obtained, tol)
+        return _value_missing(expectation, quantity, stated, eq, label, why_none)
+    d = deviation(stated, obtained, expectation.tolerance)
     if d.within:
-        return ExpectationCheck(
-            expectation.index,
-            expectation.at_hz,
-            quantity,
-            stated,
-            obtained,
-            d.rel_err,
-            d.mag_err_pct,
-            d.mag_err_db,
-            d.phase_err_deg,
-            Verdict.PASS,
-            None,
-            "",
-            expectation.how,
-        )
+        return _with_value(expectation, quantity, stated, obtained, d, Verdict.PASS)
+    found = _diagnose(case, network, port, quantity, stated, eq, expectation.tolerance)
+    text = _failure_text(label, quantity, stated, obtained, d, expectation.tolerance, why_none) + _slip_text(found)
+    slip_name = found.name if found is not None else None
+    cause = Cause.SLIP if found is not None else Cause.OUT_OF_TOLERANCE
+    return _with_value(expectation, quantity, stated, obtained, d, Verdict.FAIL, slip_name, text, cause)
+
+
+def _value_missing(
+    expectation: Expectation, quantity: str, stated: complex, eq: Equivalent, label: str, why_none: str
+) -> ExpectationCheck:
+    """The quantity does not exist at this point: a failure, except a series form at DC, which cannot be checked.
+
+    At 0 Hz a series L or C has no meaning, so the hand value there is not wrong, only uncheckable;
+    anywhere else a stated value where the solver finds none is a real disagreement.
+    """
+    if quantity in SERIES and eq.freq_hz == 0:
+        text = f"{label}: the hand value {format_value(quantity, stated)} cannot be checked: {why_none}"
+        return _without_value(expectation, quantity, stated, Verdict.UNAVAILABLE, text)
+    text = f"{label}: stated {format_value(quantity, stated)}, but crosscheck finds none: {why_none}"
+    return _without_value(expectation, quantity, stated, Verdict.FAIL, text)
+
+
+def _failure_text(
+    label: str,
+    quantity: str,
+    stated: complex,
+    obtained: complex,
+    d: Deviation,
+    tol: Tolerance,
+    why_none: str,
+) -> str:
+    """How far the stated value is off (%, dB, degrees) against the tolerance, with the solver's note if any."""
     text = (
         f"{label}: stated {format_value(quantity, stated)}, crosscheck {format_value(quantity, obtained)}: "
         f"off by {signed(d.mag_err_pct)} % ({signed(d.mag_err_db)} dB) in magnitude and "
         f"{signed(d.phase_err_deg)}° in phase (tolerance {format_tolerance(tol)})"
     )
-    if why_none:
-        text += f". Note: {why_none}"
-    slip_name = None
-    found = _diagnose(case, network, port, quantity, stated, eq, tol)
+    return text + (f". Note: {why_none}" if why_none else "")
+
+
+def _slip_text(found: Slip | None) -> str:
+    """The end of a failure's text: the slip that reproduces the stated value, or where to look instead."""
     if found is not None:
-        slip_name = found.name
-        text += f". Likely slip: {found.name}: {found.sentence}"
-    else:
-        text += ". None of the usual slips reproduces the stated value; recheck the working step by step"
+        return f". Likely slip: {found.name}: {found.sentence}"
+    return ". None of the usual slips reproduces the stated value; recheck the working step by step"
+
+
+def _without_value(
+    expectation: Expectation, quantity: str, stated: complex, verdict: Verdict, text: str
+) -> ExpectationCheck:
+    """The record of a value that could not be compared: no obtained value, every error NaN."""
+    nan = math.nan
+    return ExpectationCheck(
+        expectation.index,
+        expectation.at_hz,
+        quantity,
+        stated,
+        None,
+        nan,
+        nan,
+        nan,
+        nan,
+        verdict,
+        None,
+        text,
+        expectation.how,
+        Cause.NO_VALUE,
+    )
+
+
+def _with_value(
+    expectation: Expectation,
+    quantity: str,
+    stated: complex,
+    obtained: complex,
+    d: Deviation,
+    verdict: Verdict,
+    slip: str | None = None,
+    text: str = "",
+    cause: Cause = Cause.AGREES,
+) -> ExpectationCheck:
+    """The record of a compared value, with its errors; a pass has no text and the default cause."""
     return ExpectationCheck(
         expectation.index,
         expectation.at_hz,
@@ -152,11 +169,11 @@ def _check_one(
         d.mag_err_pct,
         d.mag_err_db,
         d.phase_err_deg,
-        Verdict.FAIL,
-        slip_name,
+        verdict,
+        slip,
         text,
         expectation.how,
-        Cause.SLIP if found is not None else Cause.OUT_OF_TOLERANCE,
+        cause,
     )
 
 

@@ -67,47 +67,41 @@ def _in_band(f: float, band: tuple[float, float] | None) -> bool:
 def check_limit(limit: Limit, own_equivalents: Sequence[Equivalent]) -> LimitCheck:
     """One limit over its band: pass, fail (with the worst point and how far out), or unavailable (why)."""
     u = unit(limit.function, limit.quantity)
-    band_text = (
-        "every computed frequency"
-        if limit.band is None
-        else f"{format_eng(limit.band[0], 4, ' Hz')} to {format_eng(limit.band[1], 4, ' Hz')}"
-    )
-    head = f"{_bounds(limit, u)} over {band_text}"
-
-    def result(
-        verdict: Verdict,
-        worst_f: float | None = None,
-        worst_v: float | None = None,
-        m: float | None = None,
-        why: str = "",
-        values: Sequence[tuple[float, float]] = (),
-    ) -> LimitCheck:
-        cause = {Verdict.PASS: Cause.LIMIT_HOLDS, Verdict.FAIL: Cause.LIMIT_BROKEN}.get(verdict, Cause.NO_VALUE)
-        return LimitCheck(
-            limit.index,
-            limit.text,
-            limit.function,
-            limit.quantity,
-            limit.minimum,
-            limit.maximum,
-            limit.band,
-            worst_f,
-            worst_v,
-            m,
-            verdict,
-            why,
-            tuple(values),
-            cause,
-        )
-
+    head = f"{_bounds(limit, u)} over {_band_text(limit.band)}"
     if limit.band is not None and limit.band[0] > limit.band[1]:
-        return result(Verdict.UNAVAILABLE, why=f"{head}: the band's low edge is above its high edge; write [low, high]")
+        return _record(
+            limit, Verdict.UNAVAILABLE, why=f"{head}: the band's low edge is above its high edge; write [low, high]"
+        )
     points = [eq for eq in own_equivalents if _in_band(eq.freq_hz, limit.band)]
     if not points:
-        return result(
+        return _record(
+            limit,
             Verdict.UNAVAILABLE,
             why=f"{head}: no computed frequency lies in the band; add frequencies (or a sweep) that cover it",
         )
+    values, missing = _evaluate_points(limit, points)
+    if not values:
+        f, why = missing[0]
+        return _record(
+            limit,
+            Verdict.UNAVAILABLE,
+            why=f"{head}: {limit.quantity} does not exist at any frequency of the band "
+            f"(at {format_eng(f, 4, ' Hz')}: {why})",
+        )
+    return _judge_values(limit, head, u, values, missing)
+
+
+def _band_text(band: tuple[float, float] | None) -> str:
+    """The band as the explanation names it."""
+    if band is None:
+        return "every computed frequency"
+    return f"{format_eng(band[0], 4, ' Hz')} to {format_eng(band[1], 4, ' Hz')}"
+
+
+def _evaluate_points(
+    limit: Limit, points: Sequence[Equivalent]
+) -> tuple[list[tuple[float, float]], list[tuple[float, str]]]:
+    """``function(quantity)`` at each point of the band, and the points where the quantity does not exist (why)."""
     values: list[tuple[float, float]] = []
     missing: list[tuple[float, str]] = []
     for eq in points:
@@ -116,41 +110,64 @@ def check_limit(limit: Limit, own_equivalents: Sequence[Equivalent]) -> LimitChe
             missing.append((eq.freq_hz, eq.note or f"no {limit.quantity} at this port"))
         else:
             values.append((eq.freq_hz, evaluate(limit.function, q)))
-    if not values:
-        f, why = missing[0]
-        return result(
-            Verdict.UNAVAILABLE,
-            why=f"{head}: {limit.quantity} does not exist at any frequency of the band "
-            f"(at {format_eng(f, 4, ' Hz')}: {why})",
-        )
+    return values, missing
+
+
+def _judge_values(
+    limit: Limit, head: str, u: str, values: list[tuple[float, float]], missing: list[tuple[float, str]]
+) -> LimitCheck:
+    """The verdict from the point with the least margin: broken, met only where the quantity exists, or met.
+
+    A NaN margin counts as broken, so a value that cannot be compared never passes.
+    """
     worst_f, worst_v = min(values, key=lambda fv: margin(fv[1], limit.minimum, limit.maximum))
     m = margin(worst_v, limit.minimum, limit.maximum)
     where = f"worst at {format_eng(worst_f, 4, ' Hz')}: {format_eng(worst_v, 5, ' ' + u)}"
     if m < 0 or math.isnan(m):
         outside = sum(1 for _, v in values if not margin(v, limit.minimum, limit.maximum) >= 0)
-        return result(
-            Verdict.FAIL,
-            worst_f,
-            worst_v,
-            m,
+        why = (
             f"{head}: not met at {outside} of {len(values)} frequencies; {where}, "
-            f"{format_eng(-m, 4, ' ' + u)} outside the bound",
-            values,
+            f"{format_eng(-m, 4, ' ' + u)} outside the bound"
         )
+        return _record(limit, Verdict.FAIL, worst_f, worst_v, m, why, values)
     if missing:
-        f, why = missing[0]
-        return result(
-            Verdict.UNAVAILABLE,
-            worst_f,
-            worst_v,
-            m,
+        f, reason = missing[0]
+        why = (
             f"{head}: met where it exists ({where}, margin {format_eng(m, 4, ' ' + u)}), but "
             f"{limit.quantity} does not exist at {len(missing)} frequency(ies) of the band "
-            f"(at {format_eng(f, 4, ' Hz')}: {why})",
-            values,
+            f"(at {format_eng(f, 4, ' Hz')}: {reason})"
         )
-    return result(
-        Verdict.PASS, worst_f, worst_v, m, f"{head}: met; {where}, margin {format_eng(m, 4, ' ' + u)}", values
+        return _record(limit, Verdict.UNAVAILABLE, worst_f, worst_v, m, why, values)
+    why = f"{head}: met; {where}, margin {format_eng(m, 4, ' ' + u)}"
+    return _record(limit, Verdict.PASS, worst_f, worst_v, m, why, values)
+
+
+def _record(
+    limit: Limit,
+    verdict: Verdict,
+    worst_f: float | None = None,
+    worst_v: float | None = None,
+    m: float | None = None,
+    why: str = "",
+    values: Sequence[tuple[float, float]] = (),
+) -> LimitCheck:
+    """The limit's record; the cause follows from the verdict (an unavailable limit has no value to judge)."""
+    cause = {Verdict.PASS: Cause.LIMIT_HOLDS, Verdict.FAIL: Cause.LIMIT_BROKEN}.get(verdict, Cause.NO_VALUE)
+    return LimitCheck(
+        limit.index,
+        limit.text,
+        limit.function,
+        limit.quantity,
+        limit.minimum,
+        limit.maximum,
+        limit.band,
+        worst_f,
+        worst_v,
+        m,
+        verdict,
+        why,
+        tuple(values),
+        cause,
     )
 
 

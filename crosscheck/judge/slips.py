@@ -110,14 +110,13 @@ def _candidates(
     network: Network | None, port: Port, quantity: str, true_eq: Equivalent, sources: str
 ) -> Iterator[_Candidate]:
     """Every hypothesis in order of preference (used only to break exact ties)."""
-    yield from _network_candidates(network, port, quantity, true_eq)
+    yield from _source_candidates(network, port, quantity, true_eq)
+    yield from _reactance_candidates(network, port, quantity, true_eq.freq_hz)
     yield from _value_candidates(quantity, true_eq, sources)
 
 
-def _network_candidates(
-    network: Network | None, port: Port, quantity: str, true_eq: Equivalent
-) -> Iterator[_Candidate]:
-    """Slips in the working: the network solved again as the slip would have it."""
+def _source_candidates(network: Network | None, port: Port, quantity: str, true_eq: Equivalent) -> Iterator[_Candidate]:
+    """Slips in the working with the sources: dependent ones zeroed, independent ones left on or zeroed wrongly."""
     f = true_eq.freq_hz
     if network is not None:
         zeroed = dependent_sources_zeroed(network)
@@ -155,58 +154,75 @@ def _network_candidates(
                     "an open"
                 ),
             )
-    if network is not None and f > 0:
+
+
+def _reactance_candidates(network: Network | None, port: Port, quantity: str, f: float) -> Iterator[_Candidate]:
+    """Slips in the working of the reactances: the wrong ω (2π too few or too many), or the capacitors' sign.
+
+    None at DC, where there is no reactance to get wrong.
+    """
+    if network is None or not f > 0:
+        return
+    yield _from_network(
+        "f used for ω",
+        _recompute(network, port, f / (2 * math.pi)),
+        quantity,
+        lambda v: (
+            f"the reactances were worked with ω = f (X_L = f·L, X_C = 1/(f·C), 2π too small), which gives {v}; "
+            "use ω = 2πf"
+        ),
+    )
+    yield _from_network(
+        "2π applied twice",
+        _recompute(network, port, 2 * math.pi * f),
+        quantity,
+        lambda v: (
+            f"the reactances were worked with ω = 2π·(2πf), a frequency already in rad/s multiplied by 2π again, "
+            f"which gives {v}"
+        ),
+    )
+    flipped = capacitors_conjugated(network, f)
+    if flipped is not None:
         yield _from_network(
-            "f used for ω",
-            _recompute(network, port, f / (2 * math.pi)),
+            "capacitive reactance sign",
+            _recompute(flipped, port, f),
             quantity,
             lambda v: (
-                f"the reactances were worked with ω = f (X_L = f·L, X_C = 1/(f·C), 2π too small), which gives {v}; "
-                "use ω = 2πf"
+                f"the capacitors were given the inductive sign (+j/(ωC) instead of −j/(ωC) = 1/(jωC)), which gives {v}"
             ),
         )
-        yield _from_network(
-            "2π applied twice",
-            _recompute(network, port, 2 * math.pi * f),
-            quantity,
-            lambda v: (
-                f"the reactances were worked with ω = 2π·(2πf), a frequency already in rad/s multiplied by 2π again, "
-                f"which gives {v}"
-            ),
-        )
-        flipped = capacitors_conjugated(network, f)
-        if flipped is not None:
-            yield _from_network(
-                "capacitive reactance sign",
-                _recompute(flipped, port, f),
-                quantity,
-                lambda v: (
-                    f"the capacitors were given the inductive sign (+j/(ωC) instead of −j/(ωC) = 1/(jωC)), which "
-                    f"gives {v}"
-                ),
-            )
 
 
 def _value_candidates(quantity: str, true_eq: Equivalent, sources: str) -> Iterator[_Candidate]:
-    """Slips in writing the answer down: the right value transformed as the slip would."""
-    q = quantity_name(quantity)
+    """Slips in writing the answer down: the right value transformed as the slip would (phasors only)."""
     true_value = quantity_value(true_eq, quantity)[0]
     if true_value is None or quantity not in PHASORS:
         return
-    t = true_value
-    if quantity in ("vth", "in"):
-        low = (
-            "an RMS value where the case's sources are peak"
-            if sources == "peak"
-            else "divided by √2 once too often (the case's sources are already RMS)"
-        )
-        high = (
-            "a peak value where the case's sources are RMS"
-            if sources == "rms"
-            else "multiplied by √2 once too often (the case's sources are already peak)"
-        )
-        yield _Candidate("RMS vs peak", t / SQRT2, lambda v: f"the value is 1/√2 of the right one ({v}): {low}")
-        yield _Candidate("RMS vs peak", t * SQRT2, lambda v: f"the value is √2 times the right one ({v}): {high}")
+    yield from _magnitude_candidates(quantity, true_value, sources)
+    yield from _angle_candidates(true_value)
+    yield from _sign_candidates(quantity, true_value)
+
+
+def _magnitude_candidates(quantity: str, t: complex, sources: str) -> Iterator[_Candidate]:
+    """RMS against peak: a source-driven value (V_th, I_N) √2 too small or too large, worded by the case's sources."""
+    if quantity not in ("vth", "in"):
+        return
+    low = (
+        "an RMS value where the case's sources are peak"
+        if sources == "peak"
+        else "divided by √2 once too often (the case's sources are already RMS)"
+    )
+    high = (
+        "a peak value where the case's sources are RMS"
+        if sources == "rms"
+        else "multiplied by √2 once too often (the case's sources are already peak)"
+    )
+    yield _Candidate("RMS vs peak", t / SQRT2, lambda v: f"the value is 1/√2 of the right one ({v}): {low}")
+    yield _Candidate("RMS vs peak", t * SQRT2, lambda v: f"the value is √2 times the right one ({v}): {high}")
+
+
+def _angle_candidates(t: complex) -> Iterator[_Candidate]:
+    """Slips in the angle: degrees read as radians (also from the unwrapped angle), and atan for atan2."""
     theta = math.degrees(cmath.phase(t))
     # The angle as worked may have been carried unwrapped, one turn the other side of ±180°.
     for turn in (0.0, 360.0 if theta < 0 else -360.0):
@@ -231,7 +247,12 @@ def _value_candidates(quantity: str, true_eq: Equivalent, sources: str) -> Itera
                 f"real part is negative; atan2 gives {theta:.2f}°"
             ),
         )
+
+
+def _sign_candidates(quantity: str, t: complex) -> Iterator[_Candidate]:
+    """Sign slips: the port's polarity reversed (V_th, I_N only; Z_th does not change with it), a conjugate."""
     if quantity in ("vth", "in"):
+        q = quantity_name(quantity)
         yield _Candidate(
             "port polarity reversed",
             -t,
