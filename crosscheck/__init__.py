@@ -24,8 +24,9 @@ from crosscheck.errors import (
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.cases import Case, load_case
 from crosscheck.model.netlist import read_netlist, read_netlist_file
-from crosscheck.model.network import Element, Network, Port, make_element, validate
+from crosscheck.model.network import Element, Network, Port, make_element
 from crosscheck.model.tolerance import Tolerance
+from crosscheck.model.validation import validate
 from crosscheck.model.values import format_eng, format_polar, format_rect, parse_number, parse_phasor
 from crosscheck.own.equivalent import ElementForm, Equivalent, thevenin
 from crosscheck.version import __version__ as __version__

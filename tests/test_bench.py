@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 
 from crosscheck.fuzz.large import FAMILIES, build
-from crosscheck.model.network import validate
+from crosscheck.model.validation import validate
 
 BENCH = Path(__file__).resolve().parent.parent / "benchmarks" / "bench.py"
 _spec = importlib.util.spec_from_file_location("bench", BENCH)

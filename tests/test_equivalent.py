@@ -15,7 +15,8 @@ import pytest
 
 from crosscheck.own.equivalent import ElementForm, thevenin
 from crosscheck.errors import NetworkError, PortError, SingularNetworkError
-from crosscheck.model.network import Element, Network, Port, make_element, validate
+from crosscheck.model.network import Element, Network, Port, make_element
+from crosscheck.model.validation import validate
 
 REL = 1e-12
 

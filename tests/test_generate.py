@@ -15,7 +15,8 @@ from crosscheck.own.equivalent import thevenin
 from crosscheck.fuzz.generate import FAMILIES, SEED_STRIDE, TRAITS, GeneratedCase, Knobs, case_seed, generate_case, generate_cases, well_posed
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.netlist_writer import write_netlist
-from crosscheck.model.network import GROUND, validate
+from crosscheck.model.network import GROUND
+from crosscheck.model.validation import validate
 from crosscheck.fuzz.strategies import family_network_and_port, frequencies, generated_cases, ports
 
 PER_FAMILY = 80

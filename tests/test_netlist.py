@@ -13,7 +13,8 @@ from hypothesis import strategies as st
 from crosscheck.errors import Location, NetlistError, NetworkError, ValueSyntaxError
 from crosscheck.model.netlist import MAX_SUBCKT_DEPTH, read_netlist, read_netlist_file, read_netlist_file_with_notes, read_netlist_with_notes
 from crosscheck.model.netlist_writer import format_element, write_netlist
-from crosscheck.model.network import Element, Network, Port, make_element, validate
+from crosscheck.model.network import Element, Network, Port, make_element
+from crosscheck.model.validation import validate
 from crosscheck.model.params import evaluate
 
 DATA = Path(__file__).parent / "data" / "netlists"

@@ -16,7 +16,8 @@ import pytest
 from crosscheck.fuzz.large import build
 from crosscheck.errors import NetworkError, PortError
 from crosscheck.model.netlist import read_netlist
-from crosscheck.model.network import GROUND, Element, Network, Port, _check_each_element, _elements_look_clean, check_port, floating_reference, make_element, validate
+from crosscheck.model.network import GROUND, Element, Network, Port, check_port, floating_reference, make_element
+from crosscheck.model.validation import _check_each_element, _elements_look_clean, validate
 from crosscheck.own.assembly import Stamps
 from crosscheck.own.solver import MnaSystem
 

@@ -16,7 +16,8 @@ import numpy as np
 import pytest
 
 from crosscheck.own.equivalent import Equivalent, thevenin
-from crosscheck.model.network import Element, Network, Port, make_element, validate
+from crosscheck.model.network import Element, Network, Port, make_element
+from crosscheck.model.validation import validate
 from crosscheck.own.solver import MnaSystem
 
 #: f for ω = 1 rad/s.

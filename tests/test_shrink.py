@@ -7,7 +7,8 @@ import pytest
 from crosscheck.own.equivalent import thevenin
 from crosscheck.fuzz.faults import faulty_route
 from crosscheck.fuzz.generate import Knobs, generate_cases, well_posed
-from crosscheck.model.network import Network, Port, make_element, validate
+from crosscheck.model.network import Network, Port, make_element
+from crosscheck.model.validation import validate
 from crosscheck.fuzz.shrink import shrink, size_of
 
 #: Relative difference that counts as "the fault shows": far above roundoff (~1e-12 on these networks).

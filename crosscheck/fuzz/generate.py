@@ -39,7 +39,8 @@ from crosscheck.fuzz.knobs import ALL_KINDS, FAMILIES, MIXED, TRAITS, Knobs, Kno
 from crosscheck.fuzz.skeletons import SKELETONS
 from crosscheck.fuzz.traits import CAVEATS, ILL_CONDITIONED, awkward_traits, high_gains, no_dc_port, tank, wide_values
 from crosscheck.model.graph import UnionFind
-from crosscheck.model.network import GROUND, Network, Port, validate
+from crosscheck.model.network import GROUND, Network, Port
+from crosscheck.model.validation import validate
 
 __all__ = [
     "ALL_KINDS",

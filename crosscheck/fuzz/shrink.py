@@ -19,7 +19,8 @@ from collections.abc import Callable, Iterator
 from dataclasses import dataclass, replace
 
 from crosscheck.errors import CrosscheckError
-from crosscheck.model.network import GROUND, Element, Network, Port, validate
+from crosscheck.model.network import GROUND, Element, Network, Port
+from crosscheck.model.validation import validate
 
 StillFails = Callable[[Network, Port, tuple[float, ...]], bool]
 

@@ -27,7 +27,8 @@ from hypothesis.errors import InvalidArgument
 from crosscheck.fuzz.generate import generate_case
 from crosscheck.fuzz.knobs import ALL_KINDS, CENTRES, F_CENTRE, FAMILIES, GAIN_CENTRES, MIXED, SOURCE_CENTRES, Knobs
 from crosscheck.model.graph import UnionFind
-from crosscheck.model.network import GROUND, Element, Network, Port, make_element, validate
+from crosscheck.model.network import GROUND, Element, Network, Port, make_element
+from crosscheck.model.validation import validate
 
 __all__ = [
     "CENTRES",

@@ -8,34 +8,22 @@ names them (R2 in X1 becomes ``r.x1.r2``, node n3 becomes ``x1.n3``).
 Analysis and output cards (``.ac .op .options .print .plot .save .probe``) are
 ignored with a note; everything that could read other files, run scripts or
 needs a nonlinear or transient model is refused with the file and line
-(the cards and devices are listed in ``model.netlist_subset``).
+(the cards and devices are listed in ``model.netlist_subset``; each kind of element card is read
+by ``model.netlist_cards``).
 """
 
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
 from os import PathLike
-from typing import NamedTuple
 
 from crosscheck.errors import Location, NetlistError, ValueSyntaxError
-from crosscheck.model.netlist_subset import (
-    BEHAVIOURAL,
-    CONTROL_CHAR,
-    DEVICES,
-    IGNORED_CARDS,
-    NAME,
-    NAME_CHARS,
-    REFUSED_CARDS,
-    SUBSET,
-    TRANSIENT,
-    USAGE,
-    VALUE_KEYS,
-)
-from crosscheck.model.network import GROUND, Element, Network, Port, make_element, validate
+from crosscheck.model.netlist_cards import Card, CardReader, Tok, show
+from crosscheck.model.netlist_subset import CONTROL_CHAR, IGNORED_CARDS, REFUSED_CARDS, SUBSET
+from crosscheck.model.network import GROUND, Network, Port
 from crosscheck.model.params import assignments, evaluate
-from crosscheck.model.subcircuits import Instance, Subckt, check_local_references, flatten
-from crosscheck.model.values import parse_number
+from crosscheck.model.subcircuits import Subckt, check_local_references, flatten
+from crosscheck.model.validation import validate
 
 __all__ = [
     "read_netlist",
@@ -57,25 +45,6 @@ MAX_TEXT_CHARS = 64 * 2**20
 _DOLLAR_COMMENT = re.compile(r"(?:^|\s)\$(?:\s|$)")
 _FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}=]+|=)|(?P<open>[({])|(?P<close>[)}]))")
 _PLAIN = re.compile(r"^[^,(){}=]*$")
-_NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{)")
-
-
-class _Tok(NamedTuple):
-    """One field of a card; ``value`` is set for ``key=value`` fields (``text`` is then the key)."""
-
-    text: str
-    line: int
-    value: _Tok | None = None
-
-
-@dataclass
-class _Card:
-    text: str
-    line: int
-    starts: list[tuple[int, int]]  # (offset in text, physical line) of each joined line
-
-    def line_at(self, offset: int) -> int:
-        return max(line for start, line in self.starts if start <= offset)
 
 
 # --------------------------------------------------------------------------- public API
@@ -143,40 +112,30 @@ def read_netlist_text(path: str | PathLike) -> str:
 # --------------------------------------------------------------------------- lines, cards, fields
 
 
-def _show(text: str, limit: int = 60) -> str:
-    return repr(text if len(text) <= limit else text[:limit] + "…")
-
-
 def _strip_comment(line: str) -> str:
     line = line.split(";", 1)[0]
     dollar = _DOLLAR_COMMENT.search(line)
     return line[: dollar.start()] if dollar else line
 
 
-class _Reader:
+class _Reader(CardReader):
+    """The file-level reader: lines to cards, cards to fields, ``.param`` and ``.subckt`` blocks."""
+
     def __init__(self, file: str):
-        self.file = file
-        self.notes: list[tuple[int, str]] = []
-        self.params: dict[str, float] = {}
+        super().__init__(file)
         self.param_lines: dict[str, int] = {}
         self.subckts: dict[str, Subckt] = {}
         self.count = 0
 
-    def err(self, message: str, line: int | None) -> NetlistError:
-        return NetlistError(message, Location(self.file, line))
-
-    def note(self, message: str, line: int) -> None:
-        self.notes.append((line, f"{Location(self.file, line)}: {message}"))
-
     # ---- text to cards
 
-    def cards(self, text: str) -> tuple[str, list[_Card], int]:
+    def cards(self, text: str) -> tuple[str, list[Card], int]:
         if len(text) > MAX_TEXT_CHARS:
             raise self.err(f"the netlist is longer than {MAX_TEXT_CHARS} characters; it is refused", 1)
         lines = text.lstrip("\ufeff").replace("\r\n", "\n").replace("\r", "\n").split("\n")
         if not text.strip():
             raise self.err("the netlist is empty; a netlist is a title line followed by element cards", 1)
-        cards: list[_Card] = []
+        cards: list[Card] = []
         last = 1
         for number, raw in enumerate(lines, start=1):
             if len(raw) > MAX_LINE_CHARS:
@@ -214,21 +173,21 @@ class _Reader:
                 if any(_strip_comment(rest).strip() for rest in lines[number:]):
                     self.note("text after .end ignored", number)
                 break
-            cards.append(_Card(stripped, number, [(0, number)]))
+            cards.append(Card(stripped, number, [(0, number)]))
         title = lines[0].lstrip("\ufeff").strip()
         if re.match(r"^[rlcvi][a-z_]*\d\w*(\s+\S+){2}\s+([0-9.{]|dc|ac)", title, re.IGNORECASE):
             self.note(
-                f"the first line {_show(title)} is read as the title, as SPICE does; "
+                f"the first line {show(title)} is read as the title, as SPICE does; "
                 "if it is an element, add a title line above it",
                 1,
             )
         return title, cards, last
 
-    def fields(self, card: _Card) -> list[_Tok]:
+    def fields(self, card: Card) -> list[Tok]:
         """Split a card at blanks, commas and '='; a (...) or {...} group is one field; key=value pairs merge."""
         text, out, pos = card.text, [], 0
         if len(card.starts) == 1 and _PLAIN.match(text):  # the common card: blank-separated words
-            return [_Tok(word, card.line) for word in text.split()]
+            return [Tok(word, card.line) for word in text.split()]
         line = card.line_at
         while (m := _FIELD.match(text, pos)) is not None:
             opener, closer = m.group("open"), m.group("close")
@@ -243,17 +202,17 @@ class _Reader:
                     pos += 1
                 if depth:
                     raise self.err(f"unbalanced {opener!r}: no matching {close!r} on this card", line(start))
-            out.append(_Tok(text[start:pos], line(start)))
+            out.append(Tok(text[start:pos], line(start)))
         if "=" not in text:
             return out
-        merged: list[_Tok] = []
+        merged: list[Tok] = []
         k = 0
         while k < len(out):
             if k + 1 < len(out) and out[k + 1].text == "=":
                 key = out[k]
                 if k + 2 >= len(out) or out[k + 2].text == "=" or not re.match(r"^[a-z_]\w*:?$", key.text, re.I):
-                    raise self.err(f"malformed key=value field near {_show(key.text)}", key.line)
-                merged.append(_Tok(key.text, key.line, out[k + 2]))
+                    raise self.err(f"malformed key=value field near {show(key.text)}", key.line)
+                merged.append(Tok(key.text, key.line, out[k + 2]))
                 k += 3
             elif out[k].text == "=":
                 raise self.err("'=' with no name before it", out[k].line)
@@ -266,61 +225,71 @@ class _Reader:
 
     def read(self, text: str, allow_negative: bool, port: Port | None) -> tuple[Network, list[str]]:
         title, cards, last = self.cards(text)
-        top: list[tuple[_Card, list[_Tok]]] = []
+        top: list[tuple[Card, list[Tok]]] = []
         current: Subckt | None = None
         for card in cards:
             first = card.text.split(None, 1)[0]
-            word = first.lower()
-            if not word.startswith("."):
-                self.count += 1
-                if self.count > MAX_ELEMENTS:
-                    raise self.err(
-                        f"more than {MAX_ELEMENTS} element cards; a netlist that large is refused", card.line
-                    )
-                (current.cards if current else top).append((card, self.fields(card)))
-            elif word == ".param":
-                if current is not None:
-                    raise self.err(
-                        f".param inside subcircuit {current.name!r} is not supported; "
-                        "move it above the .subckt (parameters are global)",
-                        card.line,
-                    )
-                self.param(card, len(first))
-            elif word == ".subckt":
-                if current is not None:
-                    raise self.err(
-                        f".subckt inside subcircuit {current.name!r} (line {current.line}); "
-                        "define each subcircuit at the top level",
-                        card.line,
-                    )
-                current = self.subckt_header(card, self.fields(card))
-            elif word == ".ends":
-                if current is None:
-                    raise self.err(".ends with no .subckt before it; remove it or add the .subckt card", card.line)
-                toks = self.fields(card)
-                if len(toks) > 1 and toks[1].text.lower() != current.name:
-                    raise self.err(
-                        f".ends {toks[1].text} closes subcircuit {current.name!r} "
-                        f"(line {current.line}); make the names match",
-                        card.line,
-                    )
-                self.subckts[current.name] = current
-                current = None
-            elif word in IGNORED_CARDS:
-                self.note(f"{first} card ignored: {IGNORED_CARDS[word]}", card.line)
-            elif word in REFUSED_CARDS:
-                raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
-            else:
-                raise self.err(
-                    f"unknown card {_show(first)}; {SUBSET} with .param, .subckt/.ends and "
-                    f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}); remove it",
-                    card.line,
-                )
+            if first.startswith("."):
+                current = self.dot_card(card, first, current)
+                continue
+            self.count += 1
+            if self.count > MAX_ELEMENTS:
+                raise self.err(f"more than {MAX_ELEMENTS} element cards; a netlist that large is refused", card.line)
+            (current.cards if current else top).append((card, self.fields(card)))
         if current is not None:
             raise self.err(
                 f"subcircuit {current.name!r} is never closed; add '.ends {current.name}' after its last card",
                 current.line,
             )
+        return self.network(title, top, last, allow_negative, port)
+
+    def dot_card(self, card: Card, first: str, current: Subckt | None) -> Subckt | None:
+        """A card starting with '.': read, ignored with a note, or refused; returns the open subcircuit."""
+        word = first.lower()
+        if word == ".param":
+            if current is not None:
+                raise self.err(
+                    f".param inside subcircuit {current.name!r} is not supported; "
+                    "move it above the .subckt (parameters are global)",
+                    card.line,
+                )
+            self.param(card, len(first))
+        elif word == ".subckt":
+            if current is not None:
+                raise self.err(
+                    f".subckt inside subcircuit {current.name!r} (line {current.line}); "
+                    "define each subcircuit at the top level",
+                    card.line,
+                )
+            current = self.subckt_header(card, self.fields(card))
+        elif word == ".ends":
+            if current is None:
+                raise self.err(".ends with no .subckt before it; remove it or add the .subckt card", card.line)
+            toks = self.fields(card)
+            if len(toks) > 1 and toks[1].text.lower() != current.name:
+                raise self.err(
+                    f".ends {toks[1].text} closes subcircuit {current.name!r} "
+                    f"(line {current.line}); make the names match",
+                    card.line,
+                )
+            self.subckts[current.name] = current
+            current = None
+        elif word in IGNORED_CARDS:
+            self.note(f"{first} card ignored: {IGNORED_CARDS[word]}", card.line)
+        elif word in REFUSED_CARDS:
+            raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
+        else:
+            raise self.err(
+                f"unknown card {show(first)}; {SUBSET} with .param, .subckt/.ends and "
+                f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}); remove it",
+                card.line,
+            )
+        return current
+
+    def network(
+        self, title: str, top: list[tuple[Card, list[Tok]]], last: int, allow_negative: bool, port: Port | None
+    ) -> tuple[Network, list[str]]:
+        """Every card read: the subcircuits' elements, the flattened network validated, and the notes."""
         for sub in self.subckts.values():
             sub.protos = [self.element(card, toks) for card, toks in sub.cards]
             check_local_references(sub)
@@ -332,7 +301,7 @@ class _Reader:
         validate(network, port)
         return network, [text for _, text in sorted(self.notes, key=lambda note: note[0])]
 
-    def param(self, card: _Card, skip: int) -> None:
+    def param(self, card: Card, skip: int) -> None:
         try:
             found = assignments(card.text[skip:])
         except ValueSyntaxError as exc:
@@ -351,7 +320,7 @@ class _Reader:
                 raise self.err(f".param {name}: {exc}", line) from None
             self.param_lines[name] = line
 
-    def subckt_header(self, card: _Card, toks: list[_Tok]) -> Subckt:
+    def subckt_header(self, card: Card, toks: list[Tok]) -> Subckt:
         if len(toks) < 2:
             raise self.err(".subckt needs a name: .subckt NAME node1 node2 ...", card.line)
         self.refuse_subckt_params(toks)
@@ -372,153 +341,3 @@ class _Reader:
                 card.line,
             )
         return Subckt(name, ports, card.line, [])
-
-    # ---- element cards
-
-    def refuse_subckt_params(self, toks: list[_Tok]) -> None:
-        for t in toks[1:]:
-            if t.value is not None or t.text.lower() == "params:":
-                raise self.err(
-                    f"{toks[0].text}: subcircuit parameters ({_show(t.text)}) are not supported; write "
-                    "the values inside the subcircuit or define them with .param at the top level",
-                    t.line,
-                )
-
-    def name(self, tok: _Tok, what: str) -> str:
-        if tok.value is not None or not NAME.match(tok.text):
-            raise self.err(f"{what} {_show(tok.text)} is not a valid name; use {NAME_CHARS}", tok.line)
-        return tok.text.lower()
-
-    def value(self, tok: _Tok, element: str, what: str) -> float:
-        if tok.value is not None:
-            raise self.err(
-                f"{element}: expected the {what}, got the parameter {tok.text}=...; "
-                f"write it as {USAGE.get(element[0], 'a plain value')}",
-                tok.line,
-            )
-        text = tok.text
-        try:
-            if text.startswith("{"):
-                return evaluate(text[1:-1], self.params)
-            return parse_number(text)
-        except ValueSyntaxError as exc:
-            hint = f" (to use the parameter, write {{{text}}})" if text.lower() in self.params else ""
-            raise self.err(f"{element}: {what}: {exc}{hint}", tok.line) from None
-
-    def element(self, card: _Card, toks: list[_Tok]) -> Element | Instance:
-        if not toks:
-            raise self.err(f"the card {_show(card.text)} has no fields; remove it", card.line)
-        letter = toks[0].text[0].lower()
-        if letter in DEVICES:
-            raise self.err(
-                f"{toks[0].text} is {DEVICES[letter]}, outside the supported subset; {SUBSET}: "
-                "replace it by its small-signal linear model (R, C, E/G sources) and remove any "
-                ".model card",
-                card.line,
-            )
-        if letter not in USAGE:
-            raise self.err(
-                f"unknown element {_show(toks[0].text)}: the first letter names the kind, and {SUBSET}", card.line
-            )
-        name = self.name(toks[0], "element name")
-        where = Location(self.file, card.line)
-        usage = USAGE[letter]
-        if letter in "efgh":
-            for i, t in enumerate(toks):
-                if (i == 3 or t.value is not None) and t.text.lower() in BEHAVIOURAL or t.text.startswith("("):
-                    raise self.err(
-                        f"{name}: the {_show(t.text.upper())} form is behavioural or polynomial, outside "
-                        f"the linear subset; write a linear source: {usage}",
-                        t.line,
-                    )
-        if letter == "x":
-            self.refuse_subckt_params(toks)
-            if len(toks) < 2:
-                raise self.err(f"{name}: too few fields; write {usage}", card.line)
-            nodes = tuple(self.name(t, f"{name}: node") for t in toks[1:-1])
-            return Instance(name, nodes, self.name(toks[-1], f"{name}: subcircuit"), where)
-        if letter in "vi":
-            return self.source(name, card, toks, where)
-        positional = [t for t in toks if t.value is None]
-        keyed = [t for t in toks if t.value is not None]
-        value_tok = None
-        for t in keyed:
-            key = t.text.lower()
-            if letter in VALUE_KEYS and key in VALUE_KEYS[letter]:
-                if value_tok is not None or len(positional) >= 4:
-                    raise self.err(f"{name}: the value is given twice; write {usage}", t.line)
-                value_tok = t.value
-            elif key == "ic" and letter in "lc":
-                raise self.err(
-                    f"{name}: an initial condition (ic=) only affects transient analysis and "
-                    "crosscheck's model is small-signal AC; remove it",
-                    t.line,
-                )
-            else:
-                raise self.err(f"{name}: the parameter {t.text}= is not supported; write {usage}", t.line)
-        expected = {"e": 6, "g": 6, "f": 5, "h": 5, "k": 4}.get(letter, 3 if value_tok else 4)
-        if len(positional) < expected:
-            raise self.err(f"{name}: too few fields; write {usage}", card.line)
-        if len(positional) > expected:
-            extra = positional[expected]
-            raise self.err(
-                f"{name}: unexpected field {_show(extra.text)} (model names and extra parameters "
-                f"are not supported); write {usage}",
-                extra.line,
-            )
-        value_tok = value_tok or positional[-1]
-        value = self.value(value_tok, name, usage.rsplit(" ", 1)[1])
-        if letter == "k":
-            coupled = (self.name(positional[1], f"{name}: inductor"), self.name(positional[2], f"{name}: inductor"))
-            return make_element(name, "K", (), value, coupled=coupled, where=where)
-        nodes = tuple(self.name(t, f"{name}: node") for t in positional[1 : (5 if letter in "eg" else 3)])
-        control = self.name(positional[3], f"{name}: controlling source") if letter in "fh" else None
-        return make_element(name, None, nodes, value, control=control, where=where)
-
-    def source(self, name: str, card: _Card, toks: list[_Tok], where: Location) -> Element:
-        usage = USAGE[name[0]]
-        if len(toks) < 3 or any(t.value is not None for t in toks[:3]):
-            raise self.err(f"{name}: too few fields; write {usage}", card.line)
-        nodes = [self.name(t, f"{name}: node") for t in toks[1:3]]
-        rest: list[_Tok] = []  # dc=v, ac=v and a leading bare value become the keyword forms DC v, AC v
-        for t in toks[3:]:
-            keyword = t.value is not None and t.text.lower() in ("dc", "ac")
-            rest += [_Tok(t.text, t.line), t.value] if keyword and t.value else [t]
-
-        def is_value(k: int) -> bool:
-            return k < len(rest) and rest[k].value is None and _NUMERIC.match(rest[k].text) is not None
-
-        if is_value(0):
-            rest.insert(0, _Tok("DC", rest[0].line))
-        mag, phase, seen, k = 0.0, 0.0, set(), 0
-        while k < len(rest):
-            t, word = rest[k], rest[k].text.lower()
-            if word in seen:
-                raise self.err(f"{name}: {word.upper()} is given twice; write {usage}", t.line)
-            if word == "dc" and is_value(k + 1):
-                self.value(rest[k + 1], name, "DC value")  # checked, then ignored: the model is small-signal AC
-                seen.add(word)
-                k += 2
-            elif word == "ac":
-                seen.add(word)
-                mag, k = 1.0, k + 1
-                if is_value(k):
-                    mag, k = self.value(rest[k], name, "AC magnitude"), k + 1
-                    if is_value(k):
-                        phase, k = self.value(rest[k], name, "AC phase"), k + 1
-            elif word in TRANSIENT and k + 1 < len(rest) and rest[k + 1].text.startswith("("):
-                self.note(
-                    f"{name}: transient function {t.text.upper()}(...) ignored: it has no effect on AC analysis", t.line
-                )
-                k += 2
-            elif word in TRANSIENT:
-                raise self.err(
-                    f"{name}: write the transient function's arguments in parentheses, as "
-                    f"{t.text.upper()}(...); crosscheck ignores it for AC analysis",
-                    t.line,
-                )
-            elif word.startswith("distof"):
-                raise self.err(f"{name}: {t.text} (distortion analysis) is not supported; remove it", t.line)
-            else:
-                raise self.err(f"{name}: unexpected field {_show(t.text)}; write {usage}", t.line)
-        return make_element(name, None, nodes, 0.0, ac_mag=mag, ac_phase_deg=phase, where=where)

@@ -37,7 +37,8 @@ from typing import Literal
 
 from crosscheck.model.frequencies import checked_frequencies, frequency_list
 from crosscheck.model.graph import UnionFind
-from crosscheck.model.network import GROUND, Network, Port, floating_reference, validate
+from crosscheck.model.network import GROUND, Network, Port, floating_reference
+from crosscheck.model.validation import validate
 
 Run = Literal["open", "short", "test"]
 RUNS: tuple[Run, ...] = ("open", "short", "test")

@@ -35,7 +35,8 @@ from typing import Literal
 import numpy as np
 
 from crosscheck.errors import EngineUnavailableError, ReferenceEngineError
-from crosscheck.model.network import Network, Port, validate
+from crosscheck.model.network import Network, Port
+from crosscheck.model.validation import validate
 from crosscheck.spice.deck import RUNS, Deck, Run, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
 from crosscheck.vocabulary import same_frequency
 
@@ -315,32 +316,7 @@ def solve(
     used = set()
     for group in groups:
         used.add(case.solve_group(group, runs, strategy))
-    values = case.values
-    points = []
-    for f in requested:
-        got = {run: values.get((run, f)) for run in RUNS}
-        point_notes = [why for run in RUNS if (why := case.reasons.get((run, f)))]
-        if degenerate:
-            point_notes.append(notes[0])
-        freq_hz = next((v[0] for v in got.values() if v is not None and v[0] is not None), f)
-        vth, isc, zth = (None if (v := got[r]) is None else v[1] for r in ("open", "short", "test"))
-        derived = False
-        if degenerate and isc is None and vth is not None and zth:
-            # No shorted run is possible; ngspice's own two other runs still give I_N = V_th / Z_th.
-            derived = True
-            isc = vth / zth
-            point_notes.append("I_N here is V_th / Z_th from ngspice's open-circuit and test runs")
-        points.append(
-            SpicePoint(
-                freq_hz=freq_hz,
-                requested_hz=f,
-                vth=vth,
-                zth=zth,
-                isc=isc,
-                route_mismatch=None if derived else route_mismatch(vth, zth, isc),
-                notes=tuple(point_notes),
-            )
-        )
+    points = [_point(case, f, notes[0] if degenerate else None) for f in requested]
     notes += case.notes
     return SpiceResult(
         points=tuple(points),
@@ -349,6 +325,33 @@ def solve(
         elapsed_s=time.perf_counter() - started,
         notes=tuple(dict.fromkeys(notes)),
         decks=tuple(case.decks),
+    )
+
+
+def _point(case: _Case, f: float, degenerate: str | None) -> SpicePoint:
+    """The point at requested frequency ``f`` from the runs' values; ``degenerate`` is the no-short-run note.
+
+    With no shorted run possible, I_N is V_th / Z_th from ngspice's own two other runs.
+    """
+    got = {run: case.values.get((run, f)) for run in RUNS}
+    point_notes = [why for run in RUNS if (why := case.reasons.get((run, f)))]
+    if degenerate:
+        point_notes.append(degenerate)
+    freq_hz = next((v[0] for v in got.values() if v is not None and v[0] is not None), f)
+    vth, isc, zth = (None if (v := got[r]) is None else v[1] for r in ("open", "short", "test"))
+    derived = False
+    if degenerate and isc is None and vth is not None and zth:
+        derived = True
+        isc = vth / zth
+        point_notes.append("I_N here is V_th / Z_th from ngspice's open-circuit and test runs")
+    return SpicePoint(
+        freq_hz=freq_hz,
+        requested_hz=f,
+        vth=vth,
+        zth=zth,
+        isc=isc,
+        route_mismatch=None if derived else route_mismatch(vth, zth, isc),
+        notes=tuple(point_notes),
     )
 
 

@@ -51,7 +51,8 @@ from multiprocessing.connection import Connection
 from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
-from crosscheck.model.network import Network, Port, validate
+from crosscheck.model.network import Network, Port
+from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
 from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver, Settings, Task, describe_bytes
