@@ -6,7 +6,7 @@ fails: one frequency instead of several; an element removed; an element contract
 merged, which removes a node); values, gains, source phasors and frequencies rounded to a power of
 ten or one significant figure. The passes repeat until none changes anything or the budget of
 checks is spent. Every accepted step removes something or only rounds, so the result is never larger
-than the original. Candidates that ``network.validate`` refuses are skipped without a check.
+than the original. Candidates that ``model.validation.validate`` refuses are skipped without a check.
 
 The caller supplies ``still_fails(network, port, freqs)``: for the fuzzer it runs both engines and
 asks whether the outcome is still the same kind of unexplained failure.

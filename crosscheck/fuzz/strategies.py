@@ -1,6 +1,6 @@
 """Hypothesis strategies for well-posed linear AC networks, for property tests (ours and users').
 
-Every network drawn here passes ``network.validate`` by construction, not by
+Every network drawn here passes ``model.validation.validate`` by construction, not by
 filtering: a spanning tree of R/L/C branches from ground gives every node a
 conducting path (so no cut set of current sources), voltage-defined branches
 (V, E, H) are placed with a union-find so they never close a loop, F and H sense
