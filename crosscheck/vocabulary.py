@@ -11,7 +11,7 @@ import math
 from collections.abc import Iterable
 from dataclasses import dataclass
 from enum import StrEnum
-from typing import Protocol
+from typing import Any, Protocol
 
 
 @dataclass(frozen=True)
@@ -104,6 +104,18 @@ def relative_error(value: complex, reference: complex, floor: float = 0.0) -> fl
         return 0.0
     denominator = max(abs(reference), floor)
     return delta / denominator if denominator > 0 else math.inf
+
+
+def phasor_json(z: complex | None) -> dict[str, Any] | None:
+    """A phasor in every JSON file crosscheck writes: ``{"re": …, "im": …}`` at full double precision, or
+    null. JSON has no inf or nan, so a non-finite part is written in words (``"inf"``, ``"nan"``)."""
+    if z is None:
+        return None
+    return {"re": _finite(z.real), "im": _finite(z.imag)}
+
+
+def _finite(x: float) -> float | str:
+    return x if math.isfinite(x) else repr(x)
 
 
 #: Two frequencies within this relative distance are the same frequency. A frequency travels as a

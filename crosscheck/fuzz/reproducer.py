@@ -14,11 +14,7 @@ from crosscheck.fuzz.judging import CaseOutcome
 from crosscheck.fuzz.summary import FuzzSummary, Reproducer
 from crosscheck.model.netlist_writer import write_netlist
 from crosscheck.model.network import Network
-from crosscheck.vocabulary import COMPARED
-
-
-def _cx(z: complex | None) -> dict | None:
-    return None if z is None else {"re": z.real, "im": z.imag}
+from crosscheck.vocabulary import COMPARED, phasor_json
 
 
 def _num(x: float) -> float | None:
@@ -37,10 +33,17 @@ def numbers_document(outcome: CaseOutcome) -> dict:
             {
                 "freq_hz": p.freq_hz,
                 "condition": _num(p.condition),
-                "own": None if o is None else {"vth": _cx(o.vth), "zth": _cx(o.zth), "in": _cx(o.in_), "note": o.note},
+                "own": None
+                if o is None
+                else {"vth": phasor_json(o.vth), "zth": phasor_json(o.zth), "in": phasor_json(o.in_), "note": o.note},
                 "ngspice": None
                 if s is None
-                else {"vth": _cx(s.vth), "zth": _cx(s.zth), "in": _cx(s.isc), "notes": list(s.notes)},
+                else {
+                    "vth": phasor_json(s.vth),
+                    "zth": phasor_json(s.zth),
+                    "in": phasor_json(s.isc),
+                    "notes": list(s.notes),
+                },
                 "checks": {
                     c.quantity: {
                         "err": _num(c.err),

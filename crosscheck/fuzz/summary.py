@@ -13,10 +13,11 @@ from crosscheck.fuzz.judging import CaseOutcome
 from crosscheck.fuzz.shrink import ShrinkResult
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
-from crosscheck.vocabulary import COMPARED
+from crosscheck.vocabulary import COMPARED, Verdict
 
 PERCENTILES = (50.0, 90.0, 99.0, 99.9)
-STATUSES = ("pass", "fail", "unavailable", "error")
+#: The statuses a fuzz case can end in (no drift: a fuzz case has no baseline).
+STATUSES = (Verdict.PASS, Verdict.FAIL, Verdict.UNAVAILABLE, Verdict.ERROR)
 
 
 @dataclass(frozen=True)

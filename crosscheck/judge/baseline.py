@@ -29,7 +29,15 @@ from crosscheck.model.tolerance import BASELINE, Tolerance
 from crosscheck.model.values import format_eng, format_rect
 from crosscheck.own.equivalent import Equivalent
 from crosscheck.version import __version__
-from crosscheck.vocabulary import COMPARED, Verdict, quantity_name, quantity_unit, same_frequency
+from crosscheck.vocabulary import (
+    COMPARED,
+    Verdict,
+    phasor_json,
+    quantity_name,
+    quantity_unit,
+    relative_error,
+    same_frequency,
+)
 
 FORMAT = "crosscheck baseline"
 FORMAT_VERSION = 1
@@ -124,16 +132,6 @@ def case_hashes(case: Any) -> tuple[str | None, str | None]:
 # --------------------------------------------------------------------------- reading and writing
 
 
-def _encode(z: complex | None) -> Any:
-    if z is None:
-        return None
-    return {"re": _finite(z.real), "im": _finite(z.imag)}
-
-
-def _finite(x: float) -> Any:
-    return x if math.isfinite(x) else repr(x)
-
-
 def _decode(path: Path, where: str, raw: Any) -> complex | None:
     if raw is None:
         return None
@@ -202,7 +200,7 @@ def baseline_document(baseline: Baseline, tolerance: Tolerance = BASELINE) -> di
                 "netlist_sha256": entry.netlist_sha256,
                 "port": list(entry.port),
                 "points": [
-                    {"freq_hz": p.freq_hz, **{q: _encode(p.values.get(q)) for q in STORED}} for p in entry.points
+                    {"freq_hz": p.freq_hz, **{q: phasor_json(p.values.get(q)) for q in STORED}} for p in entry.points
                 ],
             }
             for key, entry in sorted(baseline.cases.items())
@@ -252,7 +250,7 @@ def _judge(old: complex | None, new: complex | None, tol: Tolerance) -> tuple[fl
     if old is None or new is None:
         return (0.0, True) if old is None and new is None else (math.inf, False)
     delta = abs(new - old)
-    rel = 0.0 if delta == 0 else (delta / abs(old) if old != 0 else math.inf)
+    rel = relative_error(new, old)
     return rel, delta <= max(tol.rel * abs(old), tol.abs)
 
 

@@ -29,7 +29,7 @@ from crosscheck.judge.records import Cause, PointCheck, QuantityCheck
 from crosscheck.model.tolerance import Tolerance
 from crosscheck.own.equivalent import Equivalent
 from crosscheck.spice.engine import SpicePoint
-from crosscheck.vocabulary import COMPARED, Verdict, phasor_of, quantity_unit, worst
+from crosscheck.vocabulary import COMPARED, Verdict, phasor_of, quantity_unit, relative_error, worst
 
 EPS = float(np.finfo(float).eps)
 #: 1 / pivrel: ngspice's threshold pivoting may grow the error by this much beyond κ·ε·‖x‖.
@@ -95,9 +95,8 @@ def compare_quantity(
     delta = abs(own - ref)
     roundoff = ROUNDOFF_FACTOR * condition * EPS * scale if math.isfinite(condition) else 0.0
     floor = max(tol.abs, roundoff) / tol.rel if tol.rel > 0 else 0.0
-    denominator = max(abs(ref), floor)
-    err = 0.0 if delta == 0 else (delta / denominator if denominator > 0 else math.inf)
-    rel = 0.0 if delta == 0 else (delta / abs(ref) if ref != 0 else math.inf)
+    err = relative_error(own, ref, floor)
+    rel = relative_error(own, ref)
     mag = magnitude_error_pct(own, ref)
     phase = phase_difference_deg(own, ref)
     ok = err <= tol.rel and (tol.phase_deg is None or abs(phase) <= tol.phase_deg or abs(ref) <= tol.abs)

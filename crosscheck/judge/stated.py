@@ -10,7 +10,7 @@ from crosscheck.judge.compare import magnitude_error_pct, phase_difference_deg
 from crosscheck.model.tolerance import Tolerance
 from crosscheck.model.values import format_eng, format_polar, format_rect
 from crosscheck.own.equivalent import Equivalent
-from crosscheck.vocabulary import PHASORS, phasor_of, quantity_name, quantity_unit
+from crosscheck.vocabulary import PHASORS, phasor_of, quantity_name, quantity_unit, relative_error
 
 
 @dataclass(frozen=True)
@@ -38,7 +38,7 @@ def deviation(stated: complex, reference: complex, tol: Tolerance) -> Deviation:
     """The expectation's tolerance model: |Δ| <= tol.abs passes outright; otherwise magnitude (rel) and
     phase (phase_deg) separately when phase_deg is set, else the complex relative error against rel."""
     delta = abs(stated - reference)
-    rel = 0.0 if delta == 0 else (delta / abs(reference) if reference != 0 else math.inf)
+    rel = relative_error(stated, reference)
     mag_pct = 0.0 if delta == 0 else magnitude_error_pct(stated, reference)
     if reference == 0:
         mag_pct = 0.0 if stated == 0 else math.inf

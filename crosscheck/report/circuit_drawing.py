@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.own.equivalent import Equivalent
+from crosscheck.vocabulary import same_frequency
 
 
 def representative(result: CaseResult) -> Equivalent | None:
@@ -22,7 +23,7 @@ def representative(result: CaseResult) -> Equivalent | None:
     if not points:
         return None
     for e in result.expectations:
-        match = [eq for eq in points if math.isclose(eq.freq_hz, e.at_hz, rel_tol=1e-9)]
+        match = [eq for eq in points if same_frequency(eq.freq_hz, e.at_hz)]
         if match:
             return match[0]
     positive = [eq for eq in points if eq.freq_hz > 0]

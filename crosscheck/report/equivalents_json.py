@@ -8,8 +8,8 @@ from typing import Any
 from crosscheck.model.network import Network, Port
 from crosscheck.own.equivalent import ElementForm, Equivalent
 from crosscheck.report.caution import CAUTION
-from crosscheck.report.phasor_json import phasor
 from crosscheck.version import __version__
+from crosscheck.vocabulary import phasor_json as phasor
 
 
 def _form(form: ElementForm | None, resistive: str) -> dict[str, Any] | None:

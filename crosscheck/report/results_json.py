@@ -10,9 +10,9 @@ from typing import Any
 from crosscheck.judge.result import CaseResult
 from crosscheck.report.caution import CAUTION
 from crosscheck.report.equivalents_json import own_point
-from crosscheck.report.phasor_json import phasor
 from crosscheck.version import __version__
 from crosscheck.vocabulary import Verdict
+from crosscheck.vocabulary import phasor_json as phasor
 
 
 def _num(x: float) -> Any:
