@@ -4,7 +4,7 @@
     python benchmarks/bench.py --quick    # small sizes only: a smoke test that every figure is printed
 
 Not part of CI: timings belong to this machine at this moment (the load average is printed with them).
-Networks are built here from four topology families, at 100, 1,000, 10,000 and 100,000 non-ground nodes:
+Networks come from four topology families (``crosscheck.fuzz.large``), at 100 to 100,000 non-ground nodes:
 
 * ladder: series R, shunt C or L and a shunt R at every node (a cable or filter chain);
 * tree: each node hangs from a random one of the 50 before it, R up, C or L down (a distribution feeder);
@@ -39,6 +39,11 @@ from pathlib import Path
 import numpy as np
 
 from crosscheck.fuzz.large import FAMILIES, build
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))  # this script's own folder: its batch sections
+from throughput import report_dask, report_throughput  # noqa: E402  (after the line above, which finds it)
+from timing import section, timed  # noqa: E402
+
 from crosscheck.model.network import Network
 
 SIZES = (100, 1_000, 10_000, 100_000)
@@ -83,9 +88,9 @@ def _child(job: dict) -> dict:
 
         thevenin(*build(job["family"], 200), freqs)  # imports and first-call costs (sparse path), untimed
         repeat = _repeats(job["nodes"])
-        out["one_frequency_seconds"], eqs = _timed(lambda: thevenin(fresh(network), port, freqs[:1]), repeat)
+        out["one_frequency_seconds"], eqs = timed(lambda: thevenin(fresh(network), port, freqs[:1]), repeat)
         out["seconds"], eqs = (
-            _timed(lambda: thevenin(fresh(network), port, freqs), repeat)
+            timed(lambda: thevenin(fresh(network), port, freqs), repeat)
             if len(freqs) > 1
             else (out["one_frequency_seconds"], eqs)
         )
@@ -99,7 +104,7 @@ def _child(job: dict) -> dict:
         rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
         for estimate in (True, False):
             key = "solve_with_condition" if estimate else "solve_without_condition"
-            out[key], _ = _timed(lambda e=estimate: system.solve_many(freqs, rhs, estimate_condition=e), repeat)
+            out[key], _ = timed(lambda e=estimate: system.solve_many(freqs, rhs, estimate_condition=e), repeat)
     else:
         from crosscheck.spice.engine import Engine, solve
 
@@ -109,7 +114,7 @@ def _child(job: dict) -> dict:
         result = solve(engine, fresh(network), port, freqs)
         out["seconds"] = time.perf_counter() - started
         if out["seconds"] < 1.0:  # quick enough to repeat, as the own route is: keep the best
-            out["seconds"] = min(out["seconds"], _timed(lambda: solve(engine, fresh(network), port, freqs), 2)[0])
+            out["seconds"] = min(out["seconds"], timed(lambda: solve(engine, fresh(network), port, freqs), 2)[0])
         out["vth"] = [[p.vth.real, p.vth.imag] if p.vth is not None else None for p in result.points]
         out["zth"] = [[p.zth.real, p.zth.imag] if p.zth is not None else None for p in result.points]
         out["peak_mib"] = _peak_mib()
@@ -126,16 +131,6 @@ def fresh(network: Network) -> Network:
 def _repeats(nodes: int) -> int:
     """How many times to run a measurement and keep the fastest: more where one run is short and noisy."""
     return 5 if nodes <= 1_000 else 2 if nodes <= 10_000 else 1
-
-
-def _timed(fn: Callable[[], object], repeat: int) -> tuple[float, object]:
-    """The fastest of ``repeat`` runs of ``fn``, and its last result."""
-    best, value = math.inf, None
-    for _ in range(repeat):
-        started = time.perf_counter()
-        value = fn()
-        best = min(best, time.perf_counter() - started)
-    return best, value
 
 
 def _run_child(job: dict, limit_s: float | None) -> dict:
@@ -208,10 +203,6 @@ def fitted_exponent(nodes: Sequence[float], seconds: Sequence[float]) -> float:
         return math.nan
     x, y = np.array(pairs).T
     return float(np.polyfit(x, y, 1)[0])
-
-
-def section(title: str) -> None:
-    print(f"\n== {title} ==", flush=True)
 
 
 def run_routes(families: Sequence[str], sizes: Sequence[int], spice_limit_s: float, spice_ok: str | None) -> list[_Row]:
@@ -373,110 +364,6 @@ def _best(fn: Callable[[], object], repeat: int = 3) -> str:
         fn()
         best = min(best, time.perf_counter() - started)
     return _fmt_s(best)
-
-
-# --------------------------------------------------------------------------- batch throughput and Dask
-
-
-def _small_cases(count: int, seed: int = 11):
-    from crosscheck.fuzz.generate import case_seed, generate_case
-    from crosscheck.model.netlist_writer import write_netlist
-    from crosscheck.run.check import case_from_netlist
-
-    out = []
-    for i in range(count):
-        g = generate_case(case_seed(seed, i))
-        out.append(case_from_netlist(f"random-{i}.cir", write_netlist(g.network), (g.port.a, g.port.b), g.freqs_hz))
-    return out
-
-
-def report_throughput(count: int, spice_ok: str | None) -> dict:
-    """Cases per second through both engines and the comparison, warm pools; returns the local run's results."""
-    import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor
-
-    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
-    from crosscheck.run.batch import run_batch
-    from crosscheck.run.check import run_cases
-    from crosscheck.spice.workers import SpicePool
-
-    section(f"batch throughput ({count} small random cases, 2-8 nodes, both engines and the comparison)")
-    if spice_ok is not None:
-        print(f"verify local default: n/a ({spice_ok})\nverify process pool: n/a\nfuzz local: n/a")
-        return {}
-    cases = _small_cases(count)
-    warm = cases[:8]
-    with SpicePool(workers=2) as pool, ProcessPoolExecutor(2, mp_context=multiprocessing.get_context("spawn")) as ex:
-        run_cases(warm, pool=pool)
-        run_batch(warm, ex)
-        local_s, tasks_s = math.inf, math.inf
-        for _ in range(2):  # alternate the two, keep each one's best: the machine may be shared
-            seconds, local = _timed(lambda: run_cases(cases, pool=pool), 1)
-            local_s = min(local_s, seconds)
-            seconds, tasks = _timed(lambda: run_batch(cases, ex), 1)
-            tasks_s = min(tasks_s, seconds)
-        run_fuzz(FuzzOptions(count=8, seed=2, shrink=False), pool=pool)
-        fuzz = run_fuzz(FuzzOptions(count=count, seed=3, shrink=False), pool=pool)
-    print(f"verify, local default (own solver here, ngspice pool of 2): {count / local_s:.0f} cases/s")
-    same = [r.verdict for r in tasks] == [r.verdict for r in local]
-    print(
-        f"verify, process pool of 2 whole-case tasks: {count / tasks_s:.0f} cases/s (same verdicts: "
-        f"{'yes' if same else 'NO'})"
-    )
-    print(
-        f"fuzz, local (generate, both engines, judge): {fuzz.rate:.0f} cases/s "
-        f"({sum(fuzz.counts.values())} cases: {', '.join(f'{k} {v}' for k, v in fuzz.counts.items())})"
-    )
-    print("pools were started before timing; starting one costs ~0.5 s per ngspice worker")
-    return {"cases": cases, "local": local, "local_s": local_s}
-
-
-def report_dask(local: dict, count: int) -> None:
-    section("Dask local cluster (2 worker processes on 127.0.0.1) vs the local pool")
-    if not local:
-        print("same verdicts: n/a (ngspice unavailable)\noverhead per case: n/a")
-        return
-    try:
-        import logging
-
-        from distributed import Client, LocalCluster
-    except ImportError:
-        print(
-            "same verdicts: n/a (Dask's distributed is not installed: pip install 'crosscheck[cluster]')\n"
-            "overhead per case: n/a"
-        )
-        return
-    from crosscheck.run.batch import run_batch
-
-    cases = local["cases"]
-    started = time.perf_counter()
-    with (
-        LocalCluster(
-            n_workers=2,
-            threads_per_worker=1,
-            processes=True,
-            host="127.0.0.1",
-            dashboard_address=None,
-            silence_logs=logging.CRITICAL,
-        ) as cluster,
-        Client(cluster) as client,
-    ):
-        boot = time.perf_counter() - started
-        executor = client.get_executor(pure=False)
-        run_batch(cases[:8], executor)
-        remote_s, remote = _timed(lambda: run_batch(cases, executor), 1)
-        remote_s = min(remote_s, _timed(lambda: run_batch(cases, executor), 1)[0])
-    same = [r.verdict for r in remote] == [r.verdict for r in local["local"]]
-    numbers = all(
-        a.own == b.own and getattr(a.spice, "points", None) == getattr(b.spice, "points", None)
-        for a, b in zip(remote, local["local"])
-    )
-    overhead = (remote_s - local["local_s"]) / count
-    print(f"same verdicts: {'yes' if same else 'NO'} ({count} cases; same numbers: {'yes' if numbers else 'NO'})")
-    print(
-        f"cluster: {count / remote_s:.0f} cases/s, local pool: {count / local['local_s']:.0f} cases/s; "
-        f"overhead per case: {overhead * 1e3:+.2f} ms (cluster start {boot:.1f} s, not counted)"
-    )
 
 
 # --------------------------------------------------------------------------- main

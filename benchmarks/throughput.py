@@ -1,0 +1,112 @@
+"""The benchmark's batch sections: small cases through both engines, locally, in a process pool and on Dask.
+
+Run by ``bench.py`` (``make bench``); not a module of the package.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+
+from timing import section, timed
+
+
+def _small_cases(count: int, seed: int = 11):
+    from crosscheck.fuzz.generate import case_seed, generate_case
+    from crosscheck.model.netlist_writer import write_netlist
+    from crosscheck.run.check import case_from_netlist
+
+    out = []
+    for i in range(count):
+        g = generate_case(case_seed(seed, i))
+        out.append(case_from_netlist(f"random-{i}.cir", write_netlist(g.network), (g.port.a, g.port.b), g.freqs_hz))
+    return out
+
+
+def report_throughput(count: int, spice_ok: str | None) -> dict:
+    """Cases per second through both engines and the comparison, warm pools; returns the local run's results."""
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
+    from crosscheck.run.batch import run_batch
+    from crosscheck.run.check import run_cases
+    from crosscheck.spice.workers import SpicePool
+
+    section(f"batch throughput ({count} small random cases, 2-8 nodes, both engines and the comparison)")
+    if spice_ok is not None:
+        print(f"verify local default: n/a ({spice_ok})\nverify process pool: n/a\nfuzz local: n/a")
+        return {}
+    cases = _small_cases(count)
+    warm = cases[:8]
+    with SpicePool(workers=2) as pool, ProcessPoolExecutor(2, mp_context=multiprocessing.get_context("spawn")) as ex:
+        run_cases(warm, pool=pool)
+        run_batch(warm, ex)
+        local_s, tasks_s = math.inf, math.inf
+        for _ in range(2):  # alternate the two, keep each one's best: the machine may be shared
+            seconds, local = timed(lambda: run_cases(cases, pool=pool), 1)
+            local_s = min(local_s, seconds)
+            seconds, tasks = timed(lambda: run_batch(cases, ex), 1)
+            tasks_s = min(tasks_s, seconds)
+        run_fuzz(FuzzOptions(count=8, seed=2, shrink=False), pool=pool)
+        fuzz = run_fuzz(FuzzOptions(count=count, seed=3, shrink=False), pool=pool)
+    print(f"verify, local default (own solver here, ngspice pool of 2): {count / local_s:.0f} cases/s")
+    same = [r.verdict for r in tasks] == [r.verdict for r in local]
+    print(
+        f"verify, process pool of 2 whole-case tasks: {count / tasks_s:.0f} cases/s (same verdicts: "
+        f"{'yes' if same else 'NO'})"
+    )
+    print(
+        f"fuzz, local (generate, both engines, judge): {fuzz.rate:.0f} cases/s "
+        f"({sum(fuzz.counts.values())} cases: {', '.join(f'{k} {v}' for k, v in fuzz.counts.items())})"
+    )
+    print("pools were started before timing; starting one costs ~0.5 s per ngspice worker")
+    return {"cases": cases, "local": local, "local_s": local_s}
+
+
+def report_dask(local: dict, count: int) -> None:
+    section("Dask local cluster (2 worker processes on 127.0.0.1) vs the local pool")
+    if not local:
+        print("same verdicts: n/a (ngspice unavailable)\noverhead per case: n/a")
+        return
+    try:
+        import logging
+
+        from distributed import Client, LocalCluster
+    except ImportError:
+        print(
+            "same verdicts: n/a (Dask's distributed is not installed: pip install 'crosscheck[cluster]')\n"
+            "overhead per case: n/a"
+        )
+        return
+    from crosscheck.run.batch import run_batch
+
+    cases = local["cases"]
+    started = time.perf_counter()
+    with (
+        LocalCluster(
+            n_workers=2,
+            threads_per_worker=1,
+            processes=True,
+            host="127.0.0.1",
+            dashboard_address=None,
+            silence_logs=logging.CRITICAL,
+        ) as cluster,
+        Client(cluster) as client,
+    ):
+        boot = time.perf_counter() - started
+        executor = client.get_executor(pure=False)
+        run_batch(cases[:8], executor)
+        remote_s, remote = timed(lambda: run_batch(cases, executor), 1)
+        remote_s = min(remote_s, timed(lambda: run_batch(cases, executor), 1)[0])
+    same = [r.verdict for r in remote] == [r.verdict for r in local["local"]]
+    numbers = all(
+        a.own == b.own and getattr(a.spice, "points", None) == getattr(b.spice, "points", None)
+        for a, b in zip(remote, local["local"])
+    )
+    overhead = (remote_s - local["local_s"]) / count
+    print(f"same verdicts: {'yes' if same else 'NO'} ({count} cases; same numbers: {'yes' if numbers else 'NO'})")
+    print(
+        f"cluster: {count / remote_s:.0f} cases/s, local pool: {count / local['local_s']:.0f} cases/s; "
+        f"overhead per case: {overhead * 1e3:+.2f} ms (cluster start {boot:.1f} s, not counted)"
+    )
