@@ -30,6 +30,8 @@ from typing import Any
 
 import pytest
 
+from crosscheck.errors import CrosscheckError
+
 _CASE_KEYS = ("netlist", "port")
 _LOOKS_LIKE_KEY = {k: re.compile(rf"^\s*{k}\s*=", re.MULTILINE) for k in _CASE_KEYS}
 _MAX_PEEK_BYTES = 1 << 20  # a case file is a few kB; never read a large data file just to reject it
@@ -118,7 +120,7 @@ class CaseFile(pytest.File):
         yield CaseItem.from_parent(self, name=self.path.stem)
 
 
-class CaseProblem(Exception):
+class CaseProblem(CrosscheckError, AssertionError):
     """A case ran and did not pass; carries the result so ``repr_failure`` can show the numbers."""
 
     def __init__(self, result: Any):
@@ -135,7 +137,6 @@ class CaseItem(pytest.Item):
         self.result: Any = None
 
     def setup(self) -> None:
-        from crosscheck.errors import CrosscheckError  # start-up time: pytest loads this plugin in every session
         from crosscheck.model.cases import load_case  # start-up time: pytest loads this plugin in every session
         from crosscheck.run.check import load_network  # start-up time: pytest loads this plugin in every session
 

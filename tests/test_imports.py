@@ -58,3 +58,23 @@ def test_errors_derive_from_builtins():
         if isinstance(obj, type) and issubclass(obj, Exception) and obj is not crosscheck.CrosscheckError:
             assert issubclass(obj, crosscheck.CrosscheckError), name
             assert obj.__doc__, f"{name} needs a docstring saying cause and fix"
+
+
+def test_every_exception_class_in_the_package_derives_from_the_root():
+    """Every exception the package defines, public or private, is a CrosscheckError (and so catchable as one)."""
+    import importlib
+    import inspect
+    from pathlib import Path
+
+    root = Path(crosscheck.__file__).parent
+    strays = []
+    for path in sorted(root.rglob("*.py")):
+        if path.name == "__main__.py":
+            continue
+        name = ".".join(path.relative_to(root.parent).with_suffix("").parts).removesuffix(".__init__")
+        module = importlib.import_module(name)
+        for cls_name, cls in vars(module).items():
+            if inspect.isclass(cls) and issubclass(cls, BaseException) and cls.__module__ == name:
+                if not issubclass(cls, crosscheck.CrosscheckError):
+                    strays.append(f"{name}.{cls_name}")
+    assert not strays, f"derive these from CrosscheckError (and a built-in): {strays}"

@@ -36,6 +36,7 @@ from typing import Protocol
 import numpy as np
 import scipy.sparse as sp
 
+from crosscheck.errors import CrosscheckError
 from crosscheck.own import klu_library  # ctypes and numpy only: the library itself is loaded on first use
 from crosscheck.own.klu_library import KluError
 
@@ -46,7 +47,7 @@ ENV_VAR = "CROSSCHECK_SPARSE"
 SUPERLU_ORDERING = "MMD_AT_PLUS_A"
 
 
-class SingularFactorError(ArithmeticError):
+class SingularFactorError(CrosscheckError, ArithmeticError):
     """The numeric factorization met an exactly zero pivot; the solver turns this into SingularNetworkError."""
 
 

@@ -34,7 +34,7 @@ from typing import Literal
 
 import numpy as np
 
-from crosscheck.errors import EngineUnavailableError, ReferenceEngineError
+from crosscheck.errors import CrosscheckError, EngineUnavailableError, ReferenceEngineError
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import RUNS, Deck, Run, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
@@ -166,7 +166,7 @@ def _library_path(library: str | None = None) -> str:
 # --------------------------------------------------------------------------- the engine adapter
 
 
-class _RunFailed(Exception):
+class _RunFailed(CrosscheckError, RuntimeError):
     """One deck did not give its plots; ``lines`` are ngspice's own words."""
 
     def __init__(self, summary: str, lines: Sequence[str], deck: str):

@@ -65,8 +65,8 @@ _START_TIMEOUT_S = 60.0  # a worker's interpreter, numpy, PySpice and ngspice: ~
 # --------------------------------------------------------------------------- in the parent
 
 
-class _WorkerLost(Exception):
-    pass
+class _WorkerLost(CrosscheckError, RuntimeError):
+    """The worker process is gone or stuck; the pool turns this into the case's ReferenceEngineError."""
 
 
 #: What a worker runs. ``-c`` rather than ``-m crosscheck.spice.sandbox``, so that module is imported once, by name.
