@@ -251,3 +251,59 @@ def test_f_used_for_omega_in_a_series_form():
     checks = _diagnosed(text, ("a", "0"), F, {"series_r": complex(z.real), "series_c": complex(-1 / (w * z.imag))})
     _assert_named(checks["series_r"], "f used for ω")
     _assert_named(checks["series_c"], "f used for ω")
+
+
+# --------------------------------------------------------------------------- the Norton quantities
+#: Each hand value of I_N = V_th/Z_th and Y_N = 1/Z_th below is worked from the slipped hand V_th and Z_th
+#: (complex arithmetic on the element values, as above), so a slip that applies to the Norton form must be
+#: named for it too: a stated RMS fault current or a Norton admittance carries the same slips.
+
+
+def _norton_by_hand(omega: float, phase: float, factor: float = 1.0, cap_sign: float = -1.0) -> tuple[complex, complex]:
+    vth, zth = ladder_by_hand(omega, _source(10 * factor, phase), cap_sign)
+    return vth / zth, 1 / zth
+
+
+def test_norton_slips_in_the_working_are_named_for_in_and_yn():
+    """f for ω and the capacitor's sign, made in the working, are named on I_N and on Y_N alike."""
+    w = 2 * math.pi * F
+    netlist = LADDER.format(mag=10, phase=30)
+    for omega, cap_sign, name in ((F, -1.0, "f used for ω"), (w, +1.0, "capacitive reactance sign")):
+        i_n, y_n = _norton_by_hand(omega, 30, cap_sign=cap_sign)
+        checks = _diagnosed(netlist, ("a", "0"), F, {"in": i_n, "yn": y_n})
+        _assert_named(checks["in"], name)
+        _assert_named(checks["yn"], name)
+
+
+def test_two_pi_twice_and_sources_zeroed_the_wrong_way_on_yn():
+    """Y_N worked as 1/Z_th from a Z_th with 2π applied twice, or with the source opened, names the slip."""
+    w = 2 * math.pi * F
+    netlist = LADDER.format(mag=10, phase=30)
+    _, y_twice = _norton_by_hand(2 * math.pi * w, 30)
+    _assert_named(_diagnosed(netlist, ("a", "0"), F, {"yn": y_twice})["yn"], "2π applied twice")
+    y_wrong = 1 / _par(R2, 1j * w * L1 + 1 / (1j * w * C1))
+    _assert_named(_diagnosed(netlist, ("a", "0"), F, {"yn": y_wrong})["yn"], "sources zeroed the wrong way")
+
+
+@pytest.mark.parametrize("sources, factor", [("rms", math.sqrt(2)), ("peak", 1 / math.sqrt(2))])
+def test_rms_vs_peak_on_the_norton_current(sources, factor):
+    """A fault current stated as I_N with the source's RMS and peak confused is named RMS vs peak."""
+    i_n, _ = _norton_by_hand(2 * math.pi * F, 30, factor=factor)
+    checks = _diagnosed(LADDER.format(mag=10, phase=30), ("a", "0"), F, {"in": i_n}, sources=sources)
+    _assert_named(checks["in"], "RMS vs peak")
+
+
+def test_angle_slips_on_the_norton_current():
+    """I_N's angle in radians written as degrees, atan for atan2, and the port reversed are each named."""
+    w = 2 * math.pi * F
+    i_n, _ = _norton_by_hand(w, 150)
+    assert i_n.real < 0, "the atan slip needs a negative real part (I_N at 103.9° here)"
+    netlist = LADDER.format(mag=10, phase=150)
+    radians = _polar_text(i_n, math.atan2(i_n.imag, i_n.real))
+    _assert_named(_diagnosed(netlist, ("a", "0"), F, {"in": radians})["in"], "degrees read as radians")
+    atan = _polar_text(i_n, math.degrees(math.atan(i_n.imag / i_n.real)))
+    _assert_named(_diagnosed(netlist, ("a", "0"), F, {"in": atan})["in"], "angle off by 180° (atan for atan2)")
+    i_30, _ = _norton_by_hand(w, 30)
+    assert i_30.real > 0, "with a positive real part only the port's polarity explains −I_N"
+    reversed_port = _diagnosed(LADDER.format(mag=10, phase=30), ("a", "0"), F, {"in": -i_30})["in"]
+    _assert_named(reversed_port, "port polarity reversed")
