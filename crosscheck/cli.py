@@ -268,6 +268,8 @@ def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> b
         written = [str(o) for o in outputs if all(o is not f for f, _ in failed)]
         if written:
             print(f"report{'s' if len(written) > 1 else ''} written to {', '.join(written)}")
+    if any(output is None for output, _ in failed):
+        print_results(Console(stderr=True), results, detail=False)  # standard output failed: the summary on stderr
     for output, problem in failed:
         print(_write_failure(output, problem), file=sys.stderr)
     return not failed
@@ -277,12 +279,16 @@ def _write_failure(output: Path | None, exc: OSError) -> str:
     """What could not be written, why, and what to do (the path shown with control characters made visible)."""
     from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
 
-    where = "standard output" if output is None else f"the report {terminal_text(output)}"
-    reason = exc.strerror or str(exc) or type(exc).__name__
+    reason = terminal_text(exc.strerror or str(exc) or type(exc).__name__)
+    if output is None:
+        return (
+            f"crosscheck verify: error: could not write the report to standard output: {reason}. The summary "
+            "is above on stderr; write the report to a file with --output FILE and run again."
+        )
     return (
-        f"crosscheck verify: error: could not write {where}: {terminal_text(reason)}. The run's results are in "
-        "the summary above and in any other report written; give --output a file path in a folder that "
-        "exists or can be made and is writable (not a folder itself), then run again."
+        f"crosscheck verify: error: could not write the report {terminal_text(output)}: {reason}. The run's "
+        "results are in the summary above and in any other report written; give --output a file path in a "
+        "folder that exists or can be made and is writable (not a folder itself), then run again."
     )
 
 

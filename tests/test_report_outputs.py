@@ -88,3 +88,24 @@ def test_output_that_is_an_input_is_refused_before_any_work(case, tmp_path, caps
     assert f"--output {output} is" in err and "Give --output a different path" in err
     assert cli._RUNS == [], "refused before any case ran"
     assert {p: p.read_bytes() for p in before} == before, "no input was overwritten"
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="needs /dev/full (Linux)")
+def test_standard_output_that_cannot_be_written_keeps_the_summary_on_stderr(case):
+    """A report sent to a full standard output: exit 3, the summary and the reason on stderr, no traceback."""
+    import subprocess
+    import sys
+
+    code = (
+        "import sys; from crosscheck import cli; from crosscheck.run import batch; "
+        "from crosscheck.run.check import run_cases; "
+        "batch.run_batch = lambda items, executor, **kw: run_cases(items, engine='own'); "
+        f"sys.exit(cli.main(['verify', {str(case)!r}, '--format', 'markdown']))"
+    )
+    with open("/dev/full", "w") as full:
+        run = subprocess.run([sys.executable, "-c", code], stdout=full, stderr=subprocess.PIPE, text=True,
+                             timeout=120)
+    assert run.returncode == cli.EXIT_ERROR, run.stderr
+    assert "1 case(s): 1 pass" in run.stderr
+    assert "could not write the report to standard output: No space left on device" in run.stderr
+    assert "Traceback" not in run.stderr
