@@ -19,7 +19,7 @@ Exit code: crosscheck's own: 0 pass, 1 fail, 2 usage, 3 error (invalid input or 
 crash), 4 unavailable (an engine could not produce a quantity), 5 drift from the baseline.
 
 Environment: CROSSCHECK  the command to run (default: `crosscheck` on PATH, else
-                         `python3 -m crosscheck.cli`).
+                         `python3 -I -m crosscheck`, isolated: never the PR's own modules).
 TEXT
 }
 
@@ -49,7 +49,10 @@ if [ -n "${CROSSCHECK:-}" ]; then
 elif command -v crosscheck >/dev/null 2>&1; then
   cmd=(crosscheck)
 else
-  cmd=(python3 -m crosscheck.cli)
+  # -I (isolated mode): the working directory -- the pull request's tree -- is not put first on
+  # sys.path, and PYTHON* variables and the user's site folder are ignored, so a module the PR adds
+  # at its root (argparse.py, json.py, crosscheck/...) cannot stand in for the installed one.
+  cmd=(python3 -I -m crosscheck)
 fi
 
 mkdir -p "$out" || { echo "crosscheck-gate: cannot create $out" >&2; exit 2; }

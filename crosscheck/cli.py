@@ -3,10 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import io
 import json
 import sys
 from collections.abc import Callable, Sequence
-from contextlib import nullcontext
 from dataclasses import replace
 from pathlib import Path
 
@@ -176,15 +176,17 @@ def _verify(args: argparse.Namespace) -> int:
         return EXIT_USAGE
     baseline = _baseline(args)
     items = _verify_items(args)
+    if _refuse_outputs_that_are_inputs(args, items):
+        return EXIT_USAGE
     progress, advance = _progress_bar(len(items))
     with progress, _executor(args.cluster) as executor:
         results = run_batch(
             items, executor, workers=args.workers, timeout_s=args.timeout, on_done=advance, baseline=baseline
         )
-    _write_reports(args, results)
+    written = _write_reports(args, results)
     if args.update_baseline:
         _update_baseline(args, results)
-    return exit_code([r.verdict for r in results])
+    return exit_code([r.verdict for r in results]) if written else EXIT_ERROR
 
 
 def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, CrosscheckError]]:
@@ -234,23 +236,90 @@ def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
     return progress, lambda _result: progress.advance(task)
 
 
-def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> None:
-    """Each --output in the format its extension names (standard output without one), then the summary."""
+def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> bool:
+    """Each --output in the format its extension names (standard output without one), then the summary.
+
+    Each output is written on its own: one that fails (a missing folder that cannot be made, a
+    folder as the path, a full disk) does not stop the others, and the terminal summary still
+    prints, so no result is lost; the failures are then reported on stderr. Returns True when
+    every output was written.
+    """
     from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
 
     outputs = args.output or [None]
+    failed: list[tuple[Path | None, OSError]] = []
     for output in outputs:
         fmt = verify_format(args.format, output)
-        if fmt != "text":
-            _emit(render_report(fmt, results), output)
-        else:
-            with open(output, "w", encoding="utf-8") if output else nullcontext(None) as handle:
-                print_results(Console(file=handle, width=160 if handle else None), results, detail=args.detail)
+        try:
+            if fmt != "text":
+                _emit(render_report(fmt, results), output)
+            elif output is None:
+                print_results(Console(), results, detail=args.detail)
+            else:
+                buffer = io.StringIO()
+                print_results(Console(file=buffer, width=160), results, detail=args.detail)
+                _emit(buffer.getvalue(), output)
+        except OSError as exc:
+            failed.append((output, exc))
     args.format = verify_format(args.format, outputs[0])
     if args.output:
         # The reports went to files: the terminal still gets the summary and where to look.
         print_results(Console(), results, detail=False)
-        print(f"report{'s' if len(outputs) > 1 else ''} written to {', '.join(map(str, outputs))}")
+        written = [str(o) for o in outputs if all(o is not f for f, _ in failed)]
+        if written:
+            print(f"report{'s' if len(written) > 1 else ''} written to {', '.join(written)}")
+    if any(output is None for output, _ in failed):
+        print_results(Console(stderr=True), results, detail=False)  # standard output failed: the summary on stderr
+    for output, problem in failed:
+        print(_write_failure(output, problem), file=sys.stderr)
+    return not failed
+
+
+def _write_failure(output: Path | None, exc: OSError) -> str:
+    """What could not be written, why, and what to do (the path shown with control characters made visible)."""
+    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
+
+    reason = terminal_text(exc.strerror or str(exc) or type(exc).__name__)
+    if output is None:
+        return (
+            f"crosscheck verify: error: could not write the report to standard output: {reason}. The summary "
+            "is above on stderr; write the report to a file with --output FILE and run again."
+        )
+    return (
+        f"crosscheck verify: error: could not write the report {terminal_text(output)}: {reason}. The run's "
+        "results are in the summary above and in any other report written; give --output a file path in a "
+        "folder that exists or can be made and is writable (not a folder itself), then run again."
+    )
+
+
+def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Case | tuple[str, object]]) -> bool:
+    """Report (and return True for) any --output that is an input of this run: a case file, a netlist a case
+    names, or the --baseline file, compared as resolved paths (links followed), so a report never
+    overwrites what it was made from."""
+    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
+
+    inputs: dict[Path, str] = {}
+    for item in items:
+        if isinstance(item, Case):
+            inputs[_resolved(item.path)] = "a case file"
+            inputs.setdefault(_resolved(Path(item.netlist_file)), "a netlist a case names")
+        else:
+            inputs[_resolved(Path(item[0]))] = "a case file"
+    if args.baseline is not None:
+        inputs[_resolved(args.baseline)] = "the --baseline file"
+    clashes = [(o, inputs[_resolved(o)]) for o in args.output or () if _resolved(o) in inputs]
+    for output, what in clashes:
+        print(
+            f"crosscheck verify: error: --output {terminal_text(output)} is {what} of this run; writing the "
+            "report there would overwrite it. Give --output a different path.",
+            file=sys.stderr,
+        )
+    return bool(clashes)
+
+
+def _resolved(path: Path) -> Path:
+    """The absolute path with links followed (as far as it exists), for comparing two names of one file."""
+    return Path(path).expanduser().resolve(strict=False)
 
 
 def _baseline(args: argparse.Namespace):
@@ -273,8 +342,14 @@ def _update_baseline(args: argparse.Namespace, results) -> None:
 
 
 def _emit(text: str, output: Path | None) -> None:
+    """The report text to standard output, or to ``output`` (its missing folders made); an OSError is the caller's.
+
+    ``output`` comes from the command line, never from a case file, and ``_verify`` has already
+    refused one that names an input of the run.
+    """
     if output is None:
         sys.stdout.write(text)
+        sys.stdout.flush()
     else:
         output.parent.mkdir(parents=True, exist_ok=True)
         output.write_text(text, encoding="utf-8")

@@ -143,3 +143,30 @@ def test_ci_readme_documents_every_exit_code():
     documented = {int(m) for m in re.findall(r"^\| (\d) \|", text, flags=re.MULTILINE)}
     defined = {value for name, value in vars(cli).items() if name.startswith("EXIT_")}
     assert documented == defined
+
+
+HOSTILE_ARGPARSE = '''import os, pathlib
+pathlib.Path({marker!r}).write_text("the pull request's argparse.py ran")
+pathlib.Path("reports").mkdir(exist_ok=True)
+pathlib.Path("reports/crosscheck.md").write_text("### crosscheck: PASS\\n")
+os._exit(0)
+'''
+
+
+@pytest.mark.spice
+def test_gate_fallback_never_imports_modules_from_the_pull_requests_tree(tmp_path):
+    """With CROSSCHECK unset and no crosscheck script, a hostile argparse.py at the tree's root does not run."""
+    tree, marker = tmp_path / "pr", tmp_path / "hostile-ran"
+    _cases(tree / "cases", limit_max="10")  # a failing limit: the right verdict is FAIL, exit 1
+    (tree / "argparse.py").write_text(HOSTILE_ARGPARSE.format(marker=str(marker)))
+    bin_dir = tmp_path / "bin"  # `python3` is this interpreter (crosscheck installed); no `crosscheck` on PATH
+    bin_dir.mkdir()
+    (bin_dir / "python3").write_text(f'#!/bin/sh\nexec "{sys.executable}" "$@"\n')
+    (bin_dir / "python3").chmod(0o755)
+    env = {"PATH": f"{bin_dir}:/usr/bin:/bin", "HOME": str(tmp_path)}
+    run = subprocess.run(["bash", str(GATE), "--out", "reports", "cases"], cwd=tree, env=env,
+                         capture_output=True, text=True, timeout=300)
+    assert not marker.exists(), "the gate imported argparse.py from the pull request's tree"
+    assert run.returncode == 1, run.stderr
+    assert "crosscheck: FAIL" in run.stdout
+    assert (tree / "reports" / "crosscheck.md").read_text(encoding="utf-8").startswith("### crosscheck: FAIL")

@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.own.equivalent import Equivalent
+from crosscheck.report.untrusted import terminal_text
 from crosscheck.vocabulary import same_frequency
 
 
@@ -70,8 +71,9 @@ def equivalent_svg(eq: Equivalent, port: tuple[str, str], sources: str = "peak")
             elm.SourceI().up().label(f"I_N = {format_polar(eq.in_ or 0j, 4, ' A')}\n{sources} {at}", loc="top")
         )
         drawing.add(elm.Line().right().label("Y_N = 0: no Thevenin form"))
-    drawing.add(elm.Dot(open=True).label(f"a ({port[0]})", loc="right"))
+    # Node names are user text: control characters (which no SVG can hold) shown as text; schemdraw escapes the rest.
+    drawing.add(elm.Dot(open=True).label(f"a ({terminal_text(port[0])})", loc="right"))
     drawing.add(elm.Gap().down().toy(source.start).label(["+", "port", "−"]))
-    drawing.add(elm.Dot(open=True).label(f"b ({port[1]})", loc="right"))
+    drawing.add(elm.Dot(open=True).label(f"b ({terminal_text(port[1])})", loc="right"))
     drawing.add(elm.Line().left().tox(source.start))
     return drawing.get_imagedata("svg").decode("utf-8")

@@ -1,4 +1,8 @@
-"""A readable table of equivalents for the terminal, ready to paste into a design review."""
+"""A readable table of equivalents for the terminal, ready to paste into a design review.
+
+The title, node names and notes reach rich through ``untrusted.markup_text``: control characters
+shown as text, markup escaped.
+"""
 
 from __future__ import annotations
 
@@ -10,6 +14,7 @@ from rich.table import Table
 from crosscheck.model.values import format_eng, format_polar, format_rect
 from crosscheck.own.equivalent import ElementForm, Equivalent
 from crosscheck.report.caution import CAUTION
+from crosscheck.report.untrusted import markup_text
 
 
 def _form(form: ElementForm | None, series: bool) -> str:
@@ -32,7 +37,8 @@ def _cell(z: complex | None, unit: str, polar: bool) -> str:
 
 def equivalents_table(title: str, port: tuple[str, str], points: Sequence[Equivalent], wide: bool = False) -> Table:
     """One row per frequency; the parallel (Norton admittance) form only on wide terminals."""
-    table = Table(title=f"{title}\nport {port[0]} → {port[1]}", title_justify="left", show_lines=False)
+    where = f"{markup_text(title)}\nport {markup_text(port[0])} → {markup_text(port[1])}"
+    table = Table(title=where, title_justify="left", show_lines=False)
     headers = ["f", "V_th", "Z_th", "Z_th as R + L or C", "I_N"] + (["Y_N as G ‖ C or L"] if wide else []) + ["cond"]
     for header in headers:
         table.add_column(header, justify="right" if header in ("f", "cond") else "left", no_wrap=True)
@@ -52,7 +58,7 @@ def equivalents_table(title: str, port: tuple[str, str], points: Sequence[Equiva
 
 def equivalents_blocks(console: Console, title: str, port: tuple[str, str], points: Sequence[Equivalent]) -> None:
     """The same numbers as the table, one block per frequency, for narrow terminals and pipes."""
-    console.print(f"[bold]{title}[/]\nport {port[0]} → {port[1]}")
+    console.print(f"[bold]{markup_text(title)}[/]\nport {markup_text(port[0])} → {markup_text(port[1])}")
     for eq in points:
         console.print(
             f"\n[bold]f = {format_eng(eq.freq_hz, 6, ' Hz')}[/]   [dim](matrix condition {eq.condition:.1g})[/]"
@@ -81,7 +87,7 @@ def print_equivalents(
         equivalents_blocks(console, title, port, points)
     for eq in points:
         if eq.note:
-            console.print(f"[yellow]{format_eng(eq.freq_hz, 4, ' Hz')}: {eq.note}[/]")
+            console.print(f"[yellow]{format_eng(eq.freq_hz, 4, ' Hz')}: {markup_text(eq.note)}[/]")
     console.print(f"[dim]{source_note}[/]")
     if caution:
         console.print(f"[dim]Caution: {CAUTION}[/]")

@@ -1,4 +1,8 @@
-"""The fuzz run's summary on the terminal, and its progress bar (on stderr)."""
+"""The fuzz run's summary on the terminal, and its progress bar (on stderr).
+
+Reasons quote engine output and error messages: they reach rich through ``untrusted.markup_text``
+(imported as ``escape``), which shows control characters as text and escapes markup.
+"""
 
 from __future__ import annotations
 
@@ -6,7 +10,6 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 
 from rich.console import Console
-from rich.markup import escape
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, ProgressColumn, TextColumn, TimeRemainingColumn
 from rich.table import Table
 from rich.text import Text
@@ -14,6 +17,7 @@ from rich.text import Text
 from crosscheck.fuzz.faults import FAULTS
 from crosscheck.fuzz.reproducer import regenerate_command
 from crosscheck.fuzz.summary import FuzzSummary
+from crosscheck.report.untrusted import markup_text as escape
 from crosscheck.vocabulary import COMPARED
 
 #: How many explained cases the terminal lists (the JSON lists all).
@@ -67,7 +71,7 @@ def _print_header(console: Console, s: FuzzSummary) -> None:
     console.print(
         f"{s.rate:.1f} cases/s through both engines ({s.workers} ngspice worker(s); "
         f"{s.elapsed_s:.1f} s, own solver {s.own_s:.1f} s of it){shrinking}"
-        f"{'; ' + s.ngspice_version if s.ngspice_version else ''}"
+        f"{'; ' + escape(s.ngspice_version) if s.ngspice_version else ''}"
     )
 
 
@@ -100,7 +104,7 @@ def _print_problems(console: Console, s: FuzzSummary) -> None:
         console.print("Seeds of the failures: " + " ".join(str(o.case.seed) for o in s.problems))
         console.print(f"Rerun one alone: {regenerate_command(s.problems[0].case.seed, s.options.knobs)}")
     for r in s.reproducers:
-        files = f" → {r.files[1]}" if r.files else ""
+        files = f" → {escape(r.files[1])}" if r.files else ""
         console.print(
             f"shrunk {r.seed}: {r.shrunk.original_size[0]} elements, {r.shrunk.original_size[1]} nodes, "
             f"{r.shrunk.original_size[2]} freq → {r.shrunk.size[0]}, {r.shrunk.size[1]}, {r.shrunk.size[2]} "

@@ -4,6 +4,8 @@ A header line with the overall status word and the counts; a table of the cases 
 did not pass, with the reason; the rest (and the numbers behind each problem) folded
 into ``<details>`` blocks; the ngspice version; the caution. Code hosts cap a comment
 at about 65,000 characters, so long lists are cut with a note of how many were left out.
+Every string the report did not write itself goes through ``untrusted.markdown_text`` (a code
+span) or ``untrusted.markdown_fence`` (a fenced block), which say why that makes it inert.
 """
 
 from __future__ import annotations
@@ -22,6 +24,7 @@ from crosscheck.report.frame import (
     worst_spice_error,
 )
 from crosscheck.report.results_json import ngspice_version
+from crosscheck.report.untrusted import markdown_fence, markdown_text
 from crosscheck.version import __version__
 
 #: Status words for the header, by the run's overall verdict.
@@ -30,20 +33,20 @@ MAX_ROWS = 200
 MAX_REASON = 300
 
 
-def _cell(text: str, limit: int = MAX_REASON) -> str:
-    """Text safe inside a table cell: one line, pipes escaped, cut to ``limit`` characters."""
-    flat = " ".join(str(text).split()).replace("|", "\\|")
-    return flat if len(flat) <= limit else flat[: limit - 1] + "…"
+def _cell(text: object, limit: int = MAX_REASON) -> str:
+    """User text in a table cell: inert, one line, pipes escaped, cut to ``limit`` (``untrusted.markdown_text``)."""
+    return markdown_text(text, limit, in_table=True)
 
 
-def _code(text: str) -> str:
-    return f"`{text.replace('`', '')}`"
+def _line(text: object, limit: int = MAX_REASON) -> str:
+    """User text on a line of its own or in a sentence outside a table (``untrusted.markdown_text``)."""
+    return markdown_text(text, limit)
 
 
 def _problems_table(problems: Sequence[CaseResult]) -> list[str]:
     lines = ["| case | title | verdict | reason |", "|---|---|---|---|"]
     for r in problems[:MAX_ROWS]:
-        lines.append(f"| {_code(r.name)} | {_cell(r.title, 80)} | **{r.verdict}** | {_cell(case_reason(r))} |")
+        lines.append(f"| {_cell(r.name)} | {_cell(r.title, 80)} | **{r.verdict}** | {_cell(case_reason(r))} |")
     if len(problems) > MAX_ROWS:
         lines.append(f"\n… and {len(problems) - MAX_ROWS} more not passing; see the full report.")
     return lines
@@ -53,8 +56,9 @@ def _problem_details(problems: Sequence[CaseResult]) -> list[str]:
     lines = ["<details><summary>Numbers behind each problem</summary>", ""]
     for r in problems[:MAX_ROWS]:
         table = finding_table(findings(r), limit=12)
-        lines += [f"**{_cell(r.title, 120)}** ({_code(r.name)}, port {r.port[0]} → {r.port[1]}): {r.verdict}", ""]
-        lines += ["```text", *table, "```", ""] if table else [f"> {_cell(case_reason(r), 1000)}", ""]
+        port = f"{_line(r.port[0], 80)} → {_line(r.port[1], 80)}"
+        lines += [f"{_line(r.title, 120)} ({_line(r.name)}, port {port}): {r.verdict}", ""]
+        lines += [*markdown_fence(table), ""] if table else [f"> {_line(case_reason(r), 1000)}", ""]
     lines += ["</details>", ""]
     return lines
 
@@ -69,7 +73,8 @@ def _passing_details(passing: Sequence[CaseResult]) -> list[str]:
     for r in passing[:MAX_ROWS]:
         worst = worst_spice_error(r)
         lines.append(
-            f"| {_code(r.name)} | {_cell(r.title, 80)} | {r.port[0]} → {r.port[1]} | {len(r.freqs_hz)} "
+            f"| {_cell(r.name)} | {_cell(r.title, 80)} | {_cell(r.port[0], 80)} → {_cell(r.port[1], 80)} "
+            f"| {len(r.freqs_hz)} "
             f"| {'not compared' if worst is None else f'{worst:.1e}'} |"
         )
     if len(passing) > MAX_ROWS:
@@ -98,7 +103,7 @@ def markdown_report(results: Sequence[CaseResult]) -> str:
     if passing:
         lines += _passing_details(passing)
     lines += [
-        f"ngspice: {ngspice_version(results) or 'not run'} · crosscheck {__version__}",
+        f"ngspice: {_line(ngspice_version(results) or '') or 'not run'} · crosscheck {__version__}",
         "",
         f"> **Caution.** {CAUTION}",
         "",

@@ -1,4 +1,8 @@
-"""Terminal report of checked cases: a table per case's points, a summary line, the caution."""
+"""Terminal report of checked cases: a table per case's points, a summary line, the caution.
+
+Every user string (title, file and node names, explanations, errors) reaches rich through
+``untrusted.markup_text`` (imported as ``escape``): control characters shown as text, markup escaped.
+"""
 
 from __future__ import annotations
 
@@ -6,7 +10,6 @@ import math
 from collections.abc import Sequence
 
 from rich.console import Console
-from rich.markup import escape
 from rich.table import Table
 
 from crosscheck.judge.limits import unit
@@ -15,6 +18,7 @@ from crosscheck.judge.stated import format_value
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.report.caution import CAUTION
 from crosscheck.report.results_json import ngspice_version, summary
+from crosscheck.report.untrusted import markup_text as escape
 from crosscheck.vocabulary import quantity_unit
 
 STYLE = {"pass": "green", "fail": "bold red", "error": "bold magenta", "unavailable": "yellow", "drift": "bold yellow"}
@@ -34,7 +38,9 @@ def _err(x: float) -> str:
 
 def comparison_table(result: CaseResult) -> Table:
     table = Table(
-        title=f"{result.title}  [dim]({result.name}, port {result.port[0]} → {result.port[1]})[/]", title_justify="left"
+        title=f"{escape(result.title)}  [dim]({escape(result.name)}, port {escape(result.port[0])} → "
+        f"{escape(result.port[1])})[/]",
+        title_justify="left",
     )
     for h in ("f", "qty", "crosscheck", "ngspice", "err", "verdict"):
         # On a narrow terminal (80 columns, a CI log) the long phasors fold; the frequency, quantity, error
@@ -66,12 +72,12 @@ def summary_table(results: Sequence[CaseResult]) -> Table:
     for r in results:
         errs = [q.err for p in r.points for q in p.quantities if not math.isnan(q.err)]
         table.add_row(
-            r.name,
-            f"{r.port[0]} → {r.port[1]}",
+            escape(r.name),
+            escape(f"{r.port[0]} → {r.port[1]}"),
             str(len(r.freqs_hz)),
             f"{max(errs):.1e}" if errs else "—",
             _v(r.verdict),
-            "" if r.verdict == "pass" else r.explanation[:300],
+            "" if r.verdict == "pass" else escape(r.explanation[:300]),
         )
     return table
 
@@ -183,7 +189,7 @@ def summary_line(results: Sequence[CaseResult]) -> str:
     s = summary(results)
     parts = ", ".join(f"{s[v]} {v}" for v in ("pass", "fail", "error", "unavailable", "drift") if v != "drift" or s[v])
     version = ngspice_version(results)
-    return f"{s['cases']} case(s): {parts}" + (f"  ({version})" if version else "")
+    return f"{s['cases']} case(s): {parts}" + (f"  ({escape(version)})" if version else "")
 
 
 def print_results(console: Console, results: Sequence[CaseResult], detail: bool) -> None:
@@ -193,9 +199,9 @@ def print_results(console: Console, results: Sequence[CaseResult], detail: bool)
                 console.print(comparison_table(r))
             for p in r.points:
                 if p.explanation and p.verdict != "pass":
-                    console.print(f"[{STYLE[p.verdict]}]{format_eng(p.freq_hz, 4, ' Hz')}: {p.explanation}[/]")
+                    console.print(f"[{STYLE[p.verdict]}]{format_eng(p.freq_hz, 4, ' Hz')}: {escape(p.explanation)}[/]")
             if r.error:
-                console.print(f"[bold magenta]error: {r.error}[/]")
+                console.print(f"[bold magenta]error: {escape(r.error)}[/]")
             print_checks(console, r, detail=True)
     else:
         console.print(summary_table(results))
