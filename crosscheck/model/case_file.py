@@ -49,6 +49,11 @@ def read_table(path: Path, allow_outside: bool) -> dict[str, Any]:
                 f"{path}: the case file is a symbolic link to {str(path.resolve())[:200]!r}, outside its folder; "
                 "keep case files inside the folder checked, or allow it explicitly (--allow-outside-paths)"
             )
+    if path.is_dir():  # what ``find_case_files`` returns for a subfolder it could not list
+        raise CaseFileError(
+            f"{path}: a folder that could not be searched for case files (permission denied or gone); "
+            "make it readable, or move it out of the folder checked"
+        )
     try:
         data = read_regular(path, MAX_CASE_BYTES)
     except InputFileError as exc:

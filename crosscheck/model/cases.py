@@ -93,10 +93,13 @@ def _number(path: Path, key: str, raw: Any) -> float:
     return value
 
 
-def _frequency(path: Path, key: str, raw: Any) -> float:
-    """One frequency in hertz: a number from 0 (DC) up to ``MAX_FREQUENCY_HZ``."""
+def _frequency(path: Path, key: str, raw: Any, negative_later: bool = False) -> float:
+    """One frequency in hertz: a number from 0 (DC) up to ``MAX_FREQUENCY_HZ``.
+
+    ``negative_later``: leave a negative value to ``frequency_list``, which refuses it in its own words.
+    """
     value = _number(path, key, raw)
-    if not 0 <= value <= MAX_FREQUENCY_HZ:
+    if not (0 <= value or negative_later) or value > MAX_FREQUENCY_HZ:
         raise _err(
             path, key, f"{value:g} Hz is outside 0 .. {MAX_FREQUENCY_HZ:g} Hz; give a frequency in hertz in that range"
         )
@@ -217,7 +220,7 @@ def _frequencies(path: Path, data: dict[str, Any]) -> list[float]:
         if not isinstance(raw, list) or not raw:
             raise _err(path, "frequencies", 'must be a non-empty list like ["50", "1k"]')
         _check_count(path, "frequencies", len(raw))
-        freqs = [_frequency(path, f"frequencies[{i}]", f) for i, f in enumerate(raw)]
+        freqs = [_frequency(path, f"frequencies[{i}]", f, negative_later=True) for i, f in enumerate(raw)]
     try:
         return list(frequency_list(freqs, where=f"{path}: key 'frequencies'"))
     except FrequencyError as exc:
