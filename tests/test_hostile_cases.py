@@ -345,3 +345,34 @@ def test_continuation_lines_keep_their_line_numbers(tmp_path):
     assert len(good.elements) == 2
     with pytest.raises(CrosscheckError, match=r":2003:"):
         read_netlist("t\nV1 a 0 AC 1\nR1 a 0\n" + body + "+ bogus=(\n")
+
+
+def test_an_unexpected_exception_in_a_batch_baseline_step_is_that_case_error(tmp_path, monkeypatch):
+    """On an executor, a non-crosscheck exception while applying the baseline ends only that case."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    from crosscheck.run import batch
+
+    calls = []
+
+    def broken(result, baseline):
+        calls.append(1)
+        if len(calls) == 1:
+            raise ZeroDivisionError("boom")
+        return result
+
+    monkeypatch.setattr(batch, "with_baseline", broken)
+    with ThreadPoolExecutor(1) as executor:
+        first, second = batch.run_batch(_two_cases(tmp_path), executor, engine="own", baseline=object())
+    assert first.verdict == Verdict.ERROR and "ZeroDivisionError" in first.error and "bug" in first.error
+    assert second.verdict == Verdict.PASS
+
+
+def test_overlong_names_are_refused_in_netlists_and_ports(tmp_path):
+    """A 300-character node name is refused with its line, and so is a 300-character port name in a case file."""
+    with pytest.raises(CrosscheckError, match=r":3: .*300 characters"):
+        read_netlist("t\nV1 in 0 AC 1\nR1 in " + "n" * 300 + " 1k\n")
+    _refused(tmp_path, NETLIST_CASE_LONG_PORT, "'port'")
+
+
+NETLIST_CASE_LONG_PORT = GOOD.replace('port = ["out", "0"]', 'port = ["' + "o" * 300 + '", "0"]') + 'frequencies = ["1k"]\n'

@@ -24,6 +24,7 @@ from crosscheck.model.case_file import err as _err
 from crosscheck.model.files import InputFileError, check_path_text, read_regular
 from crosscheck.model.frequencies import FrequencyError, frequency_list
 from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
+from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
 from crosscheck.vocabulary import PHASORS, QUANTITIES
@@ -201,7 +202,9 @@ def _port(path: Path, data: dict[str, Any]) -> tuple[str, str]:
     if not (
         isinstance(port, list)
         and len(port) == 2
-        and all(isinstance(n, (str, int)) and not isinstance(n, bool) and 0 < len(str(n)) <= 200 for n in port)
+        and all(
+            isinstance(n, (str, int)) and not isinstance(n, bool) and 0 < len(str(n)) <= MAX_NAME_CHARS for n in port
+        )
     ):
         raise _err(path, "port", f'must be two node names, like port = ["out", "0"] (got {str(port)[:80]})')
     return str(port[0]), str(port[1])

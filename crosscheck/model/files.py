@@ -21,7 +21,7 @@ from crosscheck.errors import CrosscheckError
 
 #: The longest file name (one path component) and the longest path text accepted from untrusted input.
 MAX_NAME_CHARS = 255
-MAX_PATH_CHARS = 1024
+MAX_PATH_CHARS = 4096
 
 
 class InputFileError(CrosscheckError, ValueError):

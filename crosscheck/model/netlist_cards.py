@@ -20,6 +20,9 @@ from crosscheck.model.params import evaluate
 from crosscheck.model.subcircuits import Instance
 from crosscheck.model.values import parse_number
 
+#: The longest element, node or subcircuit name accepted (a case file's port names share the limit).
+MAX_NAME_CHARS = 200
+
 _NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{)")
 
 
@@ -92,6 +95,11 @@ class CardReader:
                 )
 
     def name(self, tok: Tok, what: str) -> str:
+        if len(tok.text) > MAX_NAME_CHARS:
+            raise self.err(
+                f"{what} {show(tok.text)} has {len(tok.text)} characters; names have at most {MAX_NAME_CHARS}",
+                tok.line,
+            )
         if tok.value is not None or not NAME.match(tok.text):
             raise self.err(f"{what} {show(tok.text)} is not a valid name; use {NAME_CHARS}", tok.line)
         return tok.text.lower()
