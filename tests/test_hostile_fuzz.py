@@ -90,6 +90,7 @@ def _check(kind_and_content, capsys) -> None:
         code = main(["verify", str(cases), "--workers", "1", "--output", str(report)])
         captured = capsys.readouterr()
         assert "Traceback" not in captured.out + captured.err
+        assert "RuntimeWarning" not in captured.err
         assert code in {0, 1, 3, 4, 5}
         document = json.loads(report.read_text(encoding="utf-8"))
         verdicts = {Path(c["case"]).name: c["verdict"] for c in document["cases"]}
@@ -111,7 +112,7 @@ def _own_engine_only(monkeypatch) -> None:
 @settings(max_examples=30, derandomize=True, database=None, deadline=None, suppress_health_check=_FIXTURES)
 @given(kind_and_content=_case_texts)
 def test_hostile_inputs_never_raise_and_leave_the_good_case_passing(kind_and_content, capsys, monkeypatch):
-    """30 seeded hostile case files or netlists (own engine): main returns an exit code, no traceback, good passes."""
+    """30 seeded hostile case files or netlists (own engine): main returns an exit code, no traceback or numpy warning, good passes."""
     _own_engine_only(monkeypatch)
     _check(kind_and_content, capsys)
 

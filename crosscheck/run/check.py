@@ -68,26 +68,14 @@ def run_cases(
             staged.append((error_result(name, str(exc)), None, None))
             continue
         try:
-            network, port = load_network(item)
+            staged.append(_stage(item, engine, pool))
+        except EngineUnavailableError:
+            raise
         except CrosscheckError as exc:
             staged.append((error_result(item.name, str(exc), item), None, None))
-            continue
         except Exception as exc:  # a bug met on this input: this case's error, never the run's end
-            staged.append(
-                (error_result(item.name, unexpected(item.name, "reading the netlist", exc), item), None, None)
-            )
-            continue
-        head = CaseResult(
-            item.name,
-            item.title if item.title else network.title,
-            (port.a, port.b),
-            item.freqs_hz,
-            item.tolerance,
-            item.sources,
-            case=item,
-        )
-        future = pool.submit(network, port, item.freqs_hz) if pool is not None and engine != "own" else None
-        staged.append((head, network, future))
+            message = unexpected(item.name, "reading the netlist", exc)
+            staged.append((error_result(item.name, message, item), None, None))
 
     out: list[CaseResult] = []
     for head, parsed, future in staged:
@@ -99,6 +87,22 @@ def run_cases(
             on_done(result)
         out.append(result)
     return out
+
+
+def _stage(item: Case, engine: str, pool: SpicePool | None) -> tuple[CaseResult, Network, Future | None]:
+    """The case's network read, its result's head, and its ngspice task submitted (when asked for)."""
+    network, port = load_network(item)
+    head = CaseResult(
+        item.name,
+        item.title if item.title else network.title,
+        (port.a, port.b),
+        item.freqs_hz,
+        item.tolerance,
+        item.sources,
+        case=item,
+    )
+    future = pool.submit(network, port, item.freqs_hz) if pool is not None and engine != "own" else None
+    return head, network, future
 
 
 def unexpected(name: str, stage: str, exc: Exception) -> str:
