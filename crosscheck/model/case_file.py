@@ -27,8 +27,9 @@ MAX_VALUES = 200_000
 MAX_STRING_CHARS = 1_000
 #: ``about``, ``how``, ``why`` (free text) are at most this long; ``netlist`` only by the file size.
 MAX_TEXT_CHARS = 100_000
-#: ``[[expect]]`` and ``[[limit]]`` entries in one case file.
-MAX_ENTRIES = 1_000
+#: ``[[expect]]`` and ``[[limit]]`` entries in one case file: judging costs limits × points, so 500 limits
+#: over the most points (``cases.MAX_POINTS``) take a few seconds, not minutes.
+MAX_ENTRIES = 500
 #: The highest frequency a case may ask for, in hertz: far above any linear AC network's use, and
 #: low enough that 2·π·f times any element value stays far from overflowing a double.
 MAX_FREQUENCY_HZ = 1e15
