@@ -3,13 +3,15 @@
 A case file names its netlist (a file inside its own folder tree, or inline
 text), the port, the frequencies or a sweep, the source convention, the
 solver-vs-SPICE tolerance, hand-calculated expectations and design limits.
-Errors name the file and the key at fault.
+Errors name the file and the key at fault. ``model.case_file`` reads the file and checks its
+structure (size, kind of file, nesting, string lengths, key types) before anything here looks at it;
+the limits on values are documented there and here (``MAX_POINTS``, ``MAX_FREQUENCY_HZ``).
 """
 
 from __future__ import annotations
 
 import math
-import tomllib
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -17,10 +19,15 @@ from typing import Any
 import numpy as np
 
 from crosscheck.errors import CaseFileError, CrosscheckError
+from crosscheck.model.case_file import MAX_FREQUENCY_HZ, boolean, entries, read_table, string, table
+from crosscheck.model.case_file import err as _err
+from crosscheck.model.files import InputFileError, check_path_text, read_regular
 from crosscheck.model.frequencies import FrequencyError, frequency_list
+from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
+from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
-from crosscheck.vocabulary import PHASORS, QUANTITIES, same_frequency
+from crosscheck.vocabulary import PHASORS, QUANTITIES
 
 #: Untrusted input may not ask for more than this many frequency points in one case.
 MAX_POINTS = 10_000
@@ -77,18 +84,34 @@ class Case:
         return str(self.path)
 
 
-def _err(path: Path, key: str, message: str) -> CaseFileError:
-    return CaseFileError(f"{path}: key '{key}': {message}")
-
-
 def _number(path: Path, key: str, raw: Any) -> float:
     try:
-        value = parse_number(raw if isinstance(raw, str) else raw)
+        value = parse_number(raw)
     except CrosscheckError as exc:
         raise _err(path, key, str(exc)) from None
     if not math.isfinite(value):
-        raise _err(path, key, f"{raw!r} is not a finite number")
+        raise _err(path, key, f"{str(raw)[:40]!r} is not a finite number")
     return value
+
+
+def _frequency(path: Path, key: str, raw: Any, negative_later: bool = False) -> float:
+    """One frequency in hertz: a number from 0 (DC) up to ``MAX_FREQUENCY_HZ``.
+
+    ``negative_later``: leave a negative value to ``frequency_list``, which refuses it in its own words.
+    """
+    value = _number(path, key, raw)
+    if not (0 <= value or negative_later) or value > MAX_FREQUENCY_HZ:
+        raise _err(
+            path, key, f"{value:g} Hz is outside 0 .. {MAX_FREQUENCY_HZ:g} Hz; give a frequency in hertz in that range"
+        )
+    return value
+
+
+def _whole(path: Path, key: str, raw: Any, most: int) -> int:
+    """A whole number from 1 to ``most`` (true/false and text are refused)."""
+    if not isinstance(raw, int) or isinstance(raw, bool) or not 1 <= raw <= most:
+        raise _err(path, key, f"must be a whole number from 1 to {most} (got {str(raw)[:40]!r})")
+    return raw
 
 
 def _phasor(path: Path, key: str, raw: Any) -> complex:
@@ -104,8 +127,8 @@ def sweep_frequencies(path: Path, sweep: dict[str, Any]) -> list[float]:
     if unknown:
         raise _err(path, "sweep", f"unknown key(s) {sorted(unknown)}; use start, stop and per_decade or points")
     try:
-        start = _number(path, "sweep.start", sweep["start"])
-        stop = _number(path, "sweep.stop", sweep["stop"])
+        start = _frequency(path, "sweep.start", sweep["start"])
+        stop = _frequency(path, "sweep.stop", sweep["stop"])
     except KeyError as missing:
         raise _err(path, "sweep", f"needs {missing.args[0]!r}") from None
     if not 0 <= start <= stop:
@@ -113,18 +136,13 @@ def sweep_frequencies(path: Path, sweep: dict[str, Any]) -> list[float]:
     if ("per_decade" in sweep) == ("points" in sweep):
         raise _err(path, "sweep", "give exactly one of per_decade (log sweep) or points (linear sweep)")
     if "per_decade" in sweep:
-        per = sweep["per_decade"]
-        if not isinstance(per, int) or per < 1:
-            raise _err(path, "sweep.per_decade", f"must be a whole number >= 1 (got {per!r})")
+        per = _whole(path, "sweep.per_decade", sweep["per_decade"], MAX_POINTS)
         if start <= 0:
             raise _err(path, "sweep.start", "a per-decade sweep needs start > 0")
-        count = int(math.floor(per * math.log10(stop / start) + 1e-9)) + 1
+        count = int(math.floor(per * (math.log10(stop) - math.log10(start)) + 1e-9)) + 1
         _check_count(path, "sweep", count)
         return [float(f) for f in start * 10.0 ** (np.arange(count) / per)]
-    points = sweep["points"]
-    if not isinstance(points, int) or points < 1:
-        raise _err(path, "sweep.points", f"must be a whole number >= 1 (got {points!r})")
-    _check_count(path, "sweep", points)
+    points = _whole(path, "sweep.points", sweep["points"], MAX_POINTS)
     return [float(f) for f in np.linspace(start, stop, points)]
 
 
@@ -133,22 +151,32 @@ def _check_count(path: Path, key: str, count: int) -> None:
         raise _err(path, key, f"asks for {count} frequency points; at most {MAX_POINTS} per case")
 
 
-def _tolerance(path: Path, key: str, table: dict[str, Any], default: Tolerance) -> Tolerance:
-    rel = table.get("rel", default.rel)
-    abs_ = table.get("abs", default.abs)
-    phase = table.get("phase_deg", default.phase_deg)
+def _tolerance(path: Path, key: str, given: dict[str, Any], default: Tolerance) -> Tolerance:
+    rel = _number(path, f"{key}.rel", given["rel"]) if "rel" in given else default.rel
+    abs_ = _number(path, f"{key}.abs", given["abs"]) if "abs" in given else default.abs
+    phase = _number(path, f"{key}.phase_deg", given["phase_deg"]) if "phase_deg" in given else default.phase_deg
     try:
-        return Tolerance(rel=float(rel), abs=float(abs_), phase_deg=None if phase is None else float(phase))
-    except (TypeError, ValueError) as exc:
+        return Tolerance(rel=rel, abs=abs_, phase_deg=phase)
+    except ValueError as exc:
         raise _err(path, key, str(exc)) from None
 
 
 def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str, str]:
+    """The netlist text and the name messages use for it: inline text, or a file beside the case file.
+
+    Why the path is safe: the name is checked as text (no NUL or control character, not overlong),
+    must resolve inside the case file's folder (unless outside paths are allowed), and is read
+    through ``files.read_regular`` (regular files only, never blocking, size-capped).
+    """
     raw = data.get("netlist")
     if not isinstance(raw, str) or not raw.strip():
         raise _err(path, "netlist", "give a netlist file name (next to the case file) or inline netlist text")
-    if "\n" in raw:
+    if "\n" in raw or "\r" in raw:
         return raw, f"{path} (inline netlist)"
+    try:
+        check_path_text(raw)
+    except InputFileError as exc:
+        raise _err(path, "netlist", str(exc)) from None
     target = Path(raw)
     folder = path.parent.resolve()
     resolved = (folder / target).resolve()
@@ -159,18 +187,26 @@ def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str
             f"{raw!r} lies outside the case file's folder; keep netlists beside their "
             "case files, or allow it explicitly (--allow-outside-paths)",
         )
+    name = str(path.parent / target)
+    if not os.path.lexists(resolved):
+        raise _err(path, "netlist", f"file {raw!r} not found next to the case file")
     try:
-        return resolved.read_bytes().decode("utf-8"), str(path.parent / target)
-    except FileNotFoundError:
-        raise _err(path, "netlist", f"file {raw!r} not found next to the case file") from None
-    except UnicodeDecodeError:
-        raise _err(path, "netlist", f"file {raw!r} is not UTF-8 text") from None
+        content = read_regular(resolved, MAX_TEXT_CHARS)
+    except InputFileError as exc:
+        raise _err(path, "netlist", f"file {raw!r}: {exc}") from None
+    return decode_netlist_bytes(content, name), name
 
 
 def _port(path: Path, data: dict[str, Any]) -> tuple[str, str]:
     port = data.get("port")
-    if not (isinstance(port, list) and len(port) == 2 and all(isinstance(n, (str, int)) for n in port)):
-        raise _err(path, "port", f'must be two node names, like port = ["out", "0"] (got {port!r})')
+    if not (
+        isinstance(port, list)
+        and len(port) == 2
+        and all(
+            isinstance(n, (str, int)) and not isinstance(n, bool) and 0 < len(str(n)) <= MAX_NAME_CHARS for n in port
+        )
+    ):
+        raise _err(path, "port", f'must be two node names, like port = ["out", "0"] (got {str(port)[:80]})')
     return str(port[0]), str(port[1])
 
 
@@ -187,7 +223,7 @@ def _frequencies(path: Path, data: dict[str, Any]) -> list[float]:
         if not isinstance(raw, list) or not raw:
             raise _err(path, "frequencies", 'must be a non-empty list like ["50", "1k"]')
         _check_count(path, "frequencies", len(raw))
-        freqs = [_number(path, f"frequencies[{i}]", f) for i, f in enumerate(raw)]
+        freqs = [_frequency(path, f"frequencies[{i}]", f, negative_later=True) for i, f in enumerate(raw)]
     try:
         return list(frequency_list(freqs, where=f"{path}: key 'frequencies'"))
     except FrequencyError as exc:
@@ -195,14 +231,16 @@ def _frequencies(path: Path, data: dict[str, Any]) -> list[float]:
 
 
 def _expectations(path: Path, data: dict[str, Any], freqs: list[float]) -> list[Expectation]:
+    """The ``[[expect]]`` tables; their frequencies join ``freqs`` and count against ``MAX_POINTS``.
+
+    Linear in the number of entries: the joined list is sorted and merged once by ``frequency_list``.
+    """
     out = []
-    for i, item in enumerate(data.get("expect", []), start=1):
+    for i, item in enumerate(entries(path, data, "expect"), start=1):
         key = f"expect[{i}]"
-        if not isinstance(item, dict):
-            raise _err(path, key, "each [[expect]] must be a table")
         if "at" not in item:
             raise _err(path, key, 'needs at = "<frequency>"')
-        at = _number(path, f"{key}.at", item["at"])
+        at = _frequency(path, f"{key}.at", item["at"])
         values: dict[str, complex] = {}
         for q in PHASORS:
             if q in item:
@@ -216,9 +254,11 @@ def _expectations(path: Path, data: dict[str, Any], freqs: list[float]) -> list[
         if unknown:
             raise _err(path, key, f"unknown key(s) {sorted(unknown)}")
         tolerance = _tolerance(path, key, item, HAND_CALCULATION)
-        out.append(Expectation(at, values, tolerance, str(item.get("how", "")), i))
-        if not any(same_frequency(at, f) for f in freqs):
-            freqs.append(at)
+        out.append(Expectation(at, values, tolerance, string(path, item, "how", ""), i))
+    if out:
+        merged = frequency_list([*freqs, *(e.at_hz for e in out)], where=f"{path}: key 'expect'")
+        _check_count(path, "expect", len(merged))
+        freqs[:] = [f for f in merged]
     return out
 
 
@@ -240,25 +280,30 @@ def parse_limit_expression(path: Path, key: str, text: str) -> tuple[str, str]:
 
 def _limits(path: Path, data: dict[str, Any]) -> list[Limit]:
     out = []
-    for i, item in enumerate(data.get("limit", []), start=1):
+    for i, item in enumerate(entries(path, data, "limit"), start=1):
         key = f"limit[{i}]"
-        if not isinstance(item, dict) or "quantity" not in item:
+        if "quantity" not in item:
             raise _err(path, key, 'each [[limit]] needs quantity = "abs(zth)" and a min and/or max')
-        fn, q = parse_limit_expression(path, f"{key}.quantity", str(item["quantity"]))
+        quantity = string(path, item, "quantity", "")
+        fn, q = parse_limit_expression(path, f"{key}.quantity", quantity)
         lo = _number(path, f"{key}.min", item["min"]) if "min" in item else None
         hi = _number(path, f"{key}.max", item["max"]) if "max" in item else None
         if lo is None and hi is None:
             raise _err(path, key, "give min, max or both")
+        if lo is not None and hi is not None and lo > hi:
+            raise _err(path, key, f"min {lo:g} is above max {hi:g}; no value can meet it: swap them")
         band = None
         if "band" in item:
             b = item["band"]
             if not (isinstance(b, list) and len(b) == 2):
                 raise _err(path, f"{key}.band", "must be [low, high] in Hz")
-            band = (_number(path, f"{key}.band[0]", b[0]), _number(path, f"{key}.band[1]", b[1]))
+            band = (_frequency(path, f"{key}.band[0]", b[0]), _frequency(path, f"{key}.band[1]", b[1]))
+            if band[0] > band[1]:
+                raise _err(path, f"{key}.band", f"[{band[0]:g}, {band[1]:g}] is reversed; write [low, high] in Hz")
         unknown = set(item) - {"quantity", "min", "max", "band", "why"}
         if unknown:
             raise _err(path, key, f"unknown key(s) {sorted(unknown)}")
-        out.append(Limit(fn, q, lo, hi, band, str(item["quantity"]), i, str(item.get("why", ""))))
+        out.append(Limit(fn, q, lo, hi, band, quantity, i, string(path, item, "why", "")))
     return out
 
 
@@ -279,29 +324,25 @@ _TOP_KEYS = {
 
 
 def load_case(path: str | Path, allow_outside: bool = False) -> Case:
-    """Read and check one case file; every problem raises CaseFileError naming the file and key."""
+    """Read and check one case file; every problem raises CaseFileError naming the file and key.
+
+    ``allow_outside``: read a netlist, or a symlinked case file's target, outside the case file's folder.
+    """
     path = Path(path)
-    try:
-        data = tomllib.loads(path.read_bytes().decode("utf-8"))
-    except FileNotFoundError:
-        raise CaseFileError(f"{path}: no such case file") from None
-    except UnicodeDecodeError:
-        raise CaseFileError(f"{path}: not UTF-8 text") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise CaseFileError(f"{path}: not valid TOML: {exc}") from None
+    data = read_table(path, allow_outside)
     unknown = set(data) - _TOP_KEYS
     if unknown:
         raise _err(path, sorted(unknown)[0], f"unknown key; a case file knows {', '.join(sorted(_TOP_KEYS))}")
     text, netlist_file = _netlist(path, data, allow_outside)
     freqs = _frequencies(path, data)
     expectations = _expectations(path, data, freqs)
-    sources = str(data.get("sources", "peak")).lower()
+    sources = string(path, data, "sources", "peak").lower()
     if sources not in ("peak", "rms"):
-        raise _err(path, "sources", f'must be "peak" or "rms" (got {sources!r})')
-    tolerance = _tolerance(path, "tolerance", data.get("tolerance", {}), SOLVER_VS_SPICE)
+        raise _err(path, "sources", f'must be "peak" or "rms" (got {sources[:40]!r})')
+    tolerance = _tolerance(path, "tolerance", table(path, data, "tolerance", "{ rel = 1e-6 }"), SOLVER_VS_SPICE)
     return Case(
         path=path,
-        title=str(data.get("title", path.stem)),
+        title=string(path, data, "title", path.stem),
         netlist_text=text,
         netlist_file=netlist_file,
         port=_port(path, data),
@@ -310,17 +351,34 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         tolerance=tolerance,
         expectations=tuple(expectations),
         limits=tuple(_limits(path, data)),
-        allow_negative=bool(data.get("allow_negative", False)),
-        tags=tuple(str(t) for t in data.get("tags", [])),
+        allow_negative=boolean(path, data, "allow_negative", False),
+        tags=_tags(path, data),
     )
 
 
+def _tags(path: Path, data: dict[str, Any]) -> tuple[str, ...]:
+    tags = data.get("tags", [])
+    if not isinstance(tags, list) or not all(isinstance(t, str) for t in tags):
+        raise _err(path, "tags", f'must be a list of strings, like tags = ["filter"] (got {str(tags)[:40]})')
+    return tuple(tags)
+
+
 def find_case_files(paths: list[Path]) -> list[Path]:
-    """Every ``*.toml`` under the given folders (sorted), plus files named directly."""
+    """Every ``*.toml`` under the given folders (sorted), plus files named directly.
+
+    A subfolder that cannot be listed is not skipped in silence: it is returned as it is, so that
+    ``load_case`` refuses it with the reason (reading a folder is refused) and the run reports it.
+    Symbolic links to folders are not followed, so the walk stays inside the folders given.
+    """
     found: list[Path] = []
     for p in paths:
-        if p.is_dir():
-            found.extend(sorted(q for q in p.rglob("*.toml") if q.is_file()))
-        else:
+        if not p.is_dir():
             found.append(p)
+            continue
+        unreadable: list[OSError] = []
+        here: list[Path] = []
+        for root, _dirs, files in os.walk(p, onerror=unreadable.append):
+            here.extend(Path(root) / f for f in files if f.endswith(".toml"))
+        found.extend(sorted(here))
+        found.extend(sorted(Path(exc.filename) for exc in unreadable))
     return found

@@ -18,6 +18,7 @@ import re
 from os import PathLike
 
 from crosscheck.errors import Location, NetlistError, ValueSyntaxError
+from crosscheck.model.files import InputFileError, read_regular
 from crosscheck.model.netlist_cards import Card, CardReader, Tok, show
 from crosscheck.model.netlist_subset import CONTROL_CHAR, IGNORED_CARDS, REFUSED_CARDS, SUBSET
 from crosscheck.model.network import GROUND, Network, Port
@@ -31,6 +32,7 @@ __all__ = [
     "read_netlist_file",
     "read_netlist_file_with_notes",
     "read_netlist_text",
+    "decode_netlist_bytes",
     "MAX_ELEMENTS",
     "MAX_LINE_CHARS",
     "MAX_SUBCKT_DEPTH",
@@ -84,14 +86,14 @@ def read_netlist_text(path: str | PathLike) -> str:
     """The text of a netlist file; unreadable, oversized, binary (NUL bytes) or non-UTF-8 files are refused."""
     file = str(path)
     try:
-        with open(path, "rb") as handle:
-            data = handle.read(MAX_TEXT_CHARS + 1)
-    except OSError as exc:
-        raise NetlistError(f"cannot read the netlist: {exc.strerror or exc}; check the path", Location(file)) from None
-    if len(data) > MAX_TEXT_CHARS:
-        raise NetlistError(
-            f"the file is larger than {MAX_TEXT_CHARS} bytes; a netlist that size is refused", Location(file, 1)
-        )
+        data = read_regular(path, MAX_TEXT_CHARS)
+    except InputFileError as exc:
+        raise NetlistError(f"cannot read the netlist: {exc}; check the path", Location(file)) from None
+    return decode_netlist_bytes(data, file)
+
+
+def decode_netlist_bytes(data: bytes, file: str) -> str:
+    """Netlist file bytes as text; binary (NUL bytes) or non-UTF-8 data is refused with the line."""
     nul = data.find(b"\x00")
     if nul >= 0:
         raise NetlistError(
@@ -164,16 +166,15 @@ class _Reader(CardReader):
                         "join it to a card or remove the +",
                         number,
                     )
-                card = cards[-1]
-                card.text += " "
-                card.starts.append((len(card.text), number))
-                card.text += stripped[1:]
+                cards[-1].extend(stripped[1:], number)
                 continue
             if stripped.split(None, 1)[0].lower() == ".end":
                 if any(_strip_comment(rest).strip() for rest in lines[number:]):
                     self.note("text after .end ignored", number)
                 break
             cards.append(Card(stripped, number, [(0, number)]))
+        for card in cards:
+            card.join()
         title = lines[0].lstrip("\ufeff").strip()
         if re.match(r"^[rlcvi][a-z_]*\d\w*(\s+\S+){2}\s+([0-9.{]|dc|ac)", title, re.IGNORECASE):
             self.note(

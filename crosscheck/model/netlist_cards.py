@@ -8,6 +8,7 @@ DC/AC/transient forms, and X instances. ``model.netlist`` subclasses it with the
 
 from __future__ import annotations
 
+import bisect
 import re
 from dataclasses import dataclass
 from typing import NamedTuple
@@ -18,6 +19,9 @@ from crosscheck.model.network import Element, make_element
 from crosscheck.model.params import evaluate
 from crosscheck.model.subcircuits import Instance
 from crosscheck.model.values import parse_number
+
+#: The longest element, node or subcircuit name accepted (a case file's port names share the limit).
+MAX_NAME_CHARS = 200
 
 _NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{)")
 
@@ -37,9 +41,29 @@ class Card:
     text: str
     line: int
     starts: list[tuple[int, int]]  # (offset in text, physical line) of each joined line
+    parts: list[str] | None = None  # continuation text gathered by ``extend`` until ``join``
+    _length: int = 0  # the length ``text`` will have once joined
+
+    def extend(self, text: str, line: int) -> None:
+        """Add a ``+`` continuation line; the text is joined once by ``join`` so reading stays linear."""
+        if self.parts is None:
+            self.parts = [self.text]
+            self._length = len(self.text)
+        self._length += 1
+        self.starts.append((self._length, line))
+        self.parts.append(text)
+        self._length += len(text)
+
+    def join(self) -> None:
+        """Join the continuation lines gathered by ``extend`` into ``text``, once."""
+        if self.parts is not None:
+            self.text = " ".join(self.parts)
+            self.parts = None
 
     def line_at(self, offset: int) -> int:
-        return max(line for start, line in self.starts if start <= offset)
+        """The physical line holding ``offset``; a binary search, as ``starts`` is in ascending order."""
+        index = bisect.bisect_right(self.starts, offset, key=lambda start: start[0]) - 1
+        return self.starts[max(index, 0)][1]
 
 
 def show(text: str, limit: int = 60) -> str:
@@ -71,6 +95,11 @@ class CardReader:
                 )
 
     def name(self, tok: Tok, what: str) -> str:
+        if len(tok.text) > MAX_NAME_CHARS:
+            raise self.err(
+                f"{what} {show(tok.text)} has {len(tok.text)} characters; names have at most {MAX_NAME_CHARS}",
+                tok.line,
+            )
         if tok.value is not None or not NAME.match(tok.text):
             raise self.err(f"{what} {show(tok.text)} is not a valid name; use {NAME_CHARS}", tok.line)
         return tok.text.lower()

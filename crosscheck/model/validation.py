@@ -30,7 +30,11 @@ from crosscheck.model.network import (
 )
 
 _EXPECTED_NODES = {"R": 2, "L": 2, "C": 2, "V": 2, "I": 2, "E": 4, "G": 4, "F": 2, "H": 2, "K": 0}
-_WELL_POSED = "well-posed"  # the name of the port-independent checks in ``Network._checks_passed``
+_WELL_POSED = "well-posed"
+#: A nonzero resistance smaller in size, or an L or C larger, is refused: 1/R, ω·L and ω·C at up to
+#: 1e15 Hz must stay far from a double's overflow (1e-320 ohms would make 1/R infinite).
+MIN_RESISTANCE = 1e-100
+MAX_REACTIVE = 1e100  # the name of the port-independent checks in ``Network._checks_passed``
 
 
 def validate(network: Network, port: Port | None = None) -> Network:
@@ -89,6 +93,11 @@ def _elements_look_clean(network: Network) -> bool:
     # A sum is finite only if every term is (an overflow only sends a good network to the slow pass).
     if not (np.isfinite(value).all() and math.isfinite(sum(e.ac_mag + e.ac_phase_deg for e in elements))):
         return False
+    magnitude = np.abs(value)
+    tiny_r = (kind == ord("R")) & (magnitude != 0) & (magnitude < MIN_RESISTANCE)
+    huge_lc = ((kind == ord("L")) | (kind == ord("C"))) & (magnitude > MAX_REACTIVE)
+    if (tiny_r | huge_lc).any():
+        return False
     is_ = {k: kind == ord(k) for k in "LCRKVEHI"}
     if any(elements[i].ac_mag < 0 for i in np.flatnonzero(is_["V"] | is_["I"]).tolist()):
         return False
@@ -116,6 +125,15 @@ def _check_each_element(network: Network) -> None:
         for label, number in (("value", e.value), ("AC magnitude", e.ac_mag), ("AC phase", e.ac_phase_deg)):
             if not math.isfinite(number):
                 raise _fail(e, f"{label} is {number}; give a finite number")
+        if (e.kind == "R" and e.value != 0 and abs(e.value) < MIN_RESISTANCE) or (
+            e.kind in "LC" and e.value > MAX_REACTIVE
+        ):
+            raise _fail(
+                e,
+                f"value {e.value:g} is outside the range the engines compute with (a resistance at least "
+                f"{MIN_RESISTANCE:g} Ω in size, L and C at most {MAX_REACTIVE:g}): its conductance or "
+                "its reactance would overflow; give a value in that range",
+            )
         if e.kind in "LC" and e.value <= 0:
             unit = "H" if e.kind == "L" else "F"
             raise _fail(

@@ -38,17 +38,38 @@ _NUMBER = re.compile(r"""^\s*(?P<num>[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)(
 
 _FORMS = "plain numbers like 4.7k, 2.2meg, 10u, 15pF or 1e-9"
 
+#: The longest number text read: ample for any real value, and it keeps a hostile ``1e<5000 digits>``
+#: from costing time or reaching Python's integer-conversion limit.
+MAX_NUMBER_CHARS = 100
+_LARGEST_INT = 10**308
 
-def parse_number(text: str) -> float:
+
+def _shown(text: str) -> str:
+    """Number text quoted for a message, cut short so a hostile value cannot flood it."""
+    return repr(text if len(text) <= 40 else text[:40] + "…")
+
+
+def parse_number(text: str | float) -> float:
     """Read one engineering number as SPICE would, refusing what SPICE would misread.
 
     >>> parse_number("4.7k"), parse_number("2.2Meg"), parse_number("15pF")
     (4700.0, 2200000.0, 1.5e-11)
     """
     if not isinstance(text, str):
-        if isinstance(text, (int, float)) and not isinstance(text, bool):
+        if isinstance(text, int) and not isinstance(text, bool):
+            if abs(text) > _LARGEST_INT:
+                raise ValueSyntaxError(
+                    f"the whole number {_shown(str(text))} is too large (more than 1e308); write {_FORMS}"
+                )
             return float(text)
-        raise ValueSyntaxError(f"expected a number, got {text!r}; write {_FORMS}")
+        if isinstance(text, float):
+            return text
+        raise ValueSyntaxError(f"expected a number, got {_shown(repr(text))}; write {_FORMS}")
+    if len(text) > MAX_NUMBER_CHARS:
+        raise ValueSyntaxError(
+            f"the number {_shown(text)} is {len(text)} characters long; at most {MAX_NUMBER_CHARS} are "
+            f"read; write {_FORMS}"
+        )
     match = _NUMBER.match(text)
     if match is None:
         hint = ""
@@ -89,10 +110,14 @@ _PHASOR_FORMS = "a phasor like 3+4j, 3-j4, 1.5k - j120, 5∠53.13° or 5@53.13 (
 
 def parse_phasor(text: str | complex | float) -> complex:
     """Read a phasor in rectangular or polar form (angles in degrees)."""
-    if isinstance(text, (int, float, complex)) and not isinstance(text, bool):
+    if isinstance(text, int) and not isinstance(text, bool):
+        return complex(parse_number(text))
+    if isinstance(text, (float, complex)):
         return complex(text)
     if not isinstance(text, str):
-        raise ValueSyntaxError(f"expected {_PHASOR_FORMS}, got {text!r}")
+        raise ValueSyntaxError(f"expected {_PHASOR_FORMS}, got {_shown(repr(text))}")
+    if len(text) > 2 * MAX_NUMBER_CHARS + 20:
+        raise ValueSyntaxError(f"the phasor {_shown(text)} is {len(text)} characters long; write {_PHASOR_FORMS}")
     s = text.strip()
     if not s:
         raise ValueSyntaxError(f"empty phasor; write {_PHASOR_FORMS}")

@@ -36,7 +36,7 @@ from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import with_baseline
 from crosscheck.judge.result import CaseResult, error_result
 from crosscheck.model.cases import Case
-from crosscheck.run.check import ENGINES, run_cases
+from crosscheck.run.check import ENGINES, run_cases, unexpected
 from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver
 from crosscheck.spice.workers import SpicePool
 
@@ -117,7 +117,7 @@ def run_batch(
         else:
             result = _outcome(item, future)
             if baseline is not None:
-                result = with_baseline(result, baseline)
+                result = _baselined(item, result, baseline)
         if on_done is not None:
             on_done(result)
         results.append(result)
@@ -138,6 +138,16 @@ def _outcome(item: Case, future: Future) -> CaseResult:
             f"the worker running this case was lost ({type(exc).__name__}: {exc}); "
             "the other cases went on. Run this case alone to see whether it is the cause",
         )
+
+
+def _baselined(item: Case, result: CaseResult, baseline: Baseline) -> CaseResult:
+    """The result held against the baseline; an unexpected failure there is this case's error alone."""
+    try:
+        return with_baseline(result, baseline)
+    except CrosscheckError as exc:
+        return _error(item, str(exc))
+    except Exception as exc:  # a bug met on this case's numbers: its error, never the run's end
+        return _error(item, unexpected(item.name, "comparing with the baseline", exc))
 
 
 def _error(item: Case, message: str) -> CaseResult:

@@ -8,10 +8,14 @@ analyses as correctness allows.
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Iterable, Sequence
+import warnings
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
+from contextlib import contextmanager
 from dataclasses import replace
 from pathlib import Path
+
+import numpy as np
 
 from crosscheck.errors import CrosscheckError, EngineUnavailableError
 from crosscheck.judge.baseline import Baseline
@@ -64,29 +68,67 @@ def run_cases(
             staged.append((error_result(name, str(exc)), None, None))
             continue
         try:
-            network, port = load_network(item)
+            staged.append(_stage(item, engine, pool))
+        except EngineUnavailableError:
+            raise
         except CrosscheckError as exc:
             staged.append((error_result(item.name, str(exc), item), None, None))
-            continue
-        head = CaseResult(
-            item.name,
-            item.title if item.title else network.title,
-            (port.a, port.b),
-            item.freqs_hz,
-            item.tolerance,
-            item.sources,
-            case=item,
-        )
-        future = pool.submit(network, port, item.freqs_hz) if pool is not None and engine != "own" else None
-        staged.append((head, network, future))
+        except Exception as exc:  # a bug met on this input: this case's error, never the run's end
+            message = unexpected(item.name, "reading the netlist", exc)
+            staged.append((error_result(item.name, message, item), None, None))
 
     out: list[CaseResult] = []
     for head, parsed, future in staged:
-        result = head if parsed is None else _finish(head, parsed, future, engine, baseline)
+        try:
+            result = head if parsed is None else _finish(head, parsed, future, engine, baseline)
+        except Exception as exc:  # a bug met on this input: this case's error, never the run's end
+            result = error_result(head.name, unexpected(head.name, "checking the case", exc), head.case)
         if on_done is not None:
             on_done(result)
         out.append(result)
     return out
+
+
+def _stage(item: Case, engine: str, pool: SpicePool | None) -> tuple[CaseResult, Network, Future | None]:
+    """The case's network read, its result's head, and its ngspice task submitted (when asked for)."""
+    network, port = load_network(item)
+    head = CaseResult(
+        item.name,
+        item.title if item.title else network.title,
+        (port.a, port.b),
+        item.freqs_hz,
+        item.tolerance,
+        item.sources,
+        case=item,
+    )
+    future = pool.submit(network, port, item.freqs_hz) if pool is not None and engine != "own" else None
+    return head, network, future
+
+
+def unexpected(name: str, stage: str, exc: Exception) -> str:
+    """The message for an exception crosscheck did not expect: what it was, where, and to report it."""
+    text = str(exc)
+    text = text if len(text) <= 300 else text[:300] + "…"
+    return (
+        f"{name}: unexpected {type(exc).__name__} while {stage}: {text}. This is a crosscheck bug: "
+        "please report it with this case; the other cases went on"
+    )
+
+
+@contextmanager
+def quiet_numpy() -> Iterator[list[str]]:
+    """numpy's floating-point warnings kept off standard error; the list gathers their words for the caller.
+
+    Overflow or invalid values in a solve surface as non-finite answers, which the judgement reports per
+    case; the warnings themselves would only print lines with no case name on the terminal.
+    """
+    caught: list[str] = []
+    with np.errstate(all="ignore"), warnings.catch_warnings(record=True) as records:
+        warnings.simplefilter("always", RuntimeWarning)
+        try:
+            yield caught
+        finally:
+            caught.extend(str(r.message) for r in records if issubclass(r.category, RuntimeWarning))
 
 
 def _finish(
@@ -96,9 +138,16 @@ def _finish(
     started = time.perf_counter()
     own, error = None, None
     try:
-        own = tuple(thevenin(network, Port(*head.port), head.freqs_hz))
+        with quiet_numpy() as caught:
+            own = tuple(thevenin(network, Port(*head.port), head.freqs_hz))
     except CrosscheckError as exc:
         error = f"own solver: {exc}"
+    except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+        error = (
+            f"own solver: the arithmetic failed ({type(exc).__name__}: {str(exc)[:200]}); "
+            + (f"numpy reported: {'; '.join(sorted(set(caught)))[:300]}. " if caught else "")
+            + "check the element values and frequencies for extreme sizes"
+        )
     elapsed_own = time.perf_counter() - started
     spice: SpiceResult | None = None
     spice_note = ""
@@ -121,7 +170,8 @@ def _finish(
         elapsed_own_s=elapsed_own,
         elapsed_spice_s=spice.elapsed_s if spice is not None else 0.0,
     )
-    return judged(result, network, compare=engine != "own", baseline=baseline)
+    with quiet_numpy():
+        return judged(result, network, compare=engine != "own", baseline=baseline)
 
 
 def case_from_netlist(
