@@ -196,7 +196,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
     items: list[Case | tuple[str, CrosscheckError]] = []
     for path in find_case_files(list(args.paths)):
         try:
-            if path.suffix.lower() == ".toml":
+            if path.suffix.lower() == ".toml" or path.is_dir():  # a folder here is one that could not be searched
                 items.append(load_case(path, allow_outside=args.allow_outside_paths))
                 continue
             if not args.port or not args.freq:
