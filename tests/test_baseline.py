@@ -96,6 +96,7 @@ def test_changed_case_is_said_to_be_changed(tmp_path):
 
 
 def test_case_missing_from_baseline_is_a_note_not_a_failure(tmp_path):
+    """A case the baseline does not hold gets a note and no drift checks; it still passes."""
     paths = _corpus(tmp_path / "corpus")
     target = tmp_path / "corpus" / "baseline.json"
     write_baseline(updated_baseline(_run(paths[:1]), target)[0], target)
@@ -106,6 +107,7 @@ def test_case_missing_from_baseline_is_a_note_not_a_failure(tmp_path):
 
 
 def test_new_frequency_is_a_note(tmp_path):
+    """A frequency the baseline does not hold is a note, not drift."""
     paths = _corpus(tmp_path / "corpus")
     target = tmp_path / "corpus" / "baseline.json"
     write_baseline(updated_baseline(_run(paths), target)[0], target)
@@ -162,6 +164,7 @@ def test_errored_case_keeps_its_entry(tmp_path):
      '"vth": {"re": "x"}}]}}}', "--replace-corrupt"),
 ])
 def test_bad_baseline_files_are_refused(tmp_path, content, words):
+    """Each malformed file is a BaselineError naming what is wrong."""
     path = tmp_path / "b.json"
     path.write_text(content)
     with pytest.raises(BaselineError, match=words):
@@ -169,6 +172,7 @@ def test_bad_baseline_files_are_refused(tmp_path, content, words):
 
 
 def test_missing_baseline_says_how_to_write_one(tmp_path):
+    """A missing file names the command that writes one."""
     with pytest.raises(BaselineError, match="--update-baseline"):
         load_baseline(tmp_path / "none.json")
 

@@ -150,6 +150,14 @@ def test_hostile_baselines_are_refused_cleanly(tmp_path, content, words):
     assert "--update-baseline --replace-corrupt" in str(info.value) and "b.json.corrupt" in str(info.value)
 
 
+def test_brackets_inside_strings_do_not_count_as_nesting(tmp_path):
+    """A port name of 100 brackets, escaped quotes and backslashes is text: the file loads."""
+    name = "[" * 100 + '\\"{' * 50 + "\\\\"
+    path = tmp_path / "b.json"
+    path.write_text(_doc().replace('"port": ["out", "0"]', f'"port": ["{name}", "0"]'))
+    assert load_baseline(path).cases["a.toml"].port == ("[" * 100 + '"{' * 50 + "\\", "0")
+
+
 def test_oversized_baseline_is_refused_unread(tmp_path, monkeypatch):
     """A file over the size cap is refused with its size and the cap, before parsing."""
     monkeypatch.setattr(baseline_file, "MAX_BYTES", 2**20)

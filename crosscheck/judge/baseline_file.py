@@ -58,8 +58,8 @@ MAX_DEPTH = 16
 #: The longest integer accepted: a frequency written as an integer needs far fewer digits.
 MAX_INT_DIGITS = 30
 
-_STRING = re.compile(rb'"[^"\\]*(?:\\.[^"\\]*)*"', re.DOTALL)
-_NOT_BRACKET = re.compile(rb"[^\[\]{}]+")
+_STRING = re.compile(rb'"[^"]*"')
+_NOT_STRUCTURE = bytes(b for b in range(256) if b not in b'"[]{}')
 _OPENING = np.frombuffer(b"[{", dtype=np.uint8)
 
 
@@ -197,7 +197,9 @@ def _read_capped(path: Path) -> bytes:
 
 def _check_depth(path: Path, data: bytes) -> None:
     """Refuse nesting deeper than MAX_DEPTH before parsing (brackets inside strings do not count)."""
-    brackets = np.frombuffer(_NOT_BRACKET.sub(b"", _STRING.sub(b"", data)), dtype=np.uint8)
+    # Escaped backslashes, then escaped quotes, go first; then all but quotes and brackets; then strings.
+    skeleton = data.replace(b"\\\\", b"").replace(b'\\"', b"").translate(None, _NOT_STRUCTURE)
+    brackets = np.frombuffer(_STRING.sub(b"", skeleton).replace(b'"', b""), dtype=np.uint8)
     if brackets.size and int(np.cumsum(np.where(np.isin(brackets, _OPENING), 1, -1)).max()) > MAX_DEPTH:
         raise BaselineCorrupt(path, f"nested deeper than {MAX_DEPTH} levels (the format nests 6)")
 
@@ -251,7 +253,7 @@ def _case(path: Path, key: str, entry: Any) -> StoredCase:
 def _point(path: Path, key: str, i: int, raw: Any) -> StoredPoint:
     if not isinstance(raw, dict):
         raise BaselineCorrupt(path, f"{_where(key, i)} must be an object (got {raw!r:.80})")
-    freq = _number(path, _where(key, i, "freq_hz"), raw.get("freq_hz"))
+    freq = _number(path, raw.get("freq_hz"), key, i, "freq_hz")
     if freq < 0:
         raise BaselineCorrupt(path, f"{_where(key, i, 'freq_hz')} is negative ({freq!r})")
     values: dict[str, complex | None] = {}
@@ -264,15 +266,16 @@ def _point(path: Path, key: str, i: int, raw: Any) -> StoredPoint:
         values[q] = (
             None
             if z is None
-            else complex(
-                _number(path, _where(key, i, q) + ".re", z["re"]), _number(path, _where(key, i, q) + ".im", z["im"])
-            )
+            else complex(_number(path, z["re"], key, i, q + ".re"), _number(path, z["im"], key, i, q + ".im"))
         )
     return StoredPoint(freq, values)
 
 
-def _number(path: Path, where: str, raw: Any) -> float:
-    """A stored number: a JSON number (not a boolean, not text), finite."""
+def _number(path: Path, raw: Any, key: str, i: int, q: str) -> float:
+    """A stored number: a JSON number (not a boolean, not text), finite; the place is spelled only on error."""
+    if type(raw) is float and math.isfinite(raw):
+        return raw
+    where = _where(key, i, q)
     if isinstance(raw, bool) or not isinstance(raw, (int, float)):
         kind = (
             "non-finite"
