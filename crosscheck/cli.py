@@ -282,8 +282,20 @@ def _recoverable(args: argparse.Namespace, read: Callable, *more):
     try:
         return read(*more)
     except BaselineCorrupt as exc:
-        cases = " ".join(shlex.quote(str(p)) for p in args.paths)
-        raise BaselineCorrupt(exc.path, exc.problem, cases=cases) from None
+        raise BaselineCorrupt(exc.path, exc.problem, cases=_repair_cases(args)) from None
+
+
+def _repair_cases(args: argparse.Namespace) -> str:
+    """This run's paths and the options that decide which cases run, quoted for a shell."""
+    words = [str(p) for p in args.paths]
+    words += ["--port", *args.port] if args.port else []
+    words += ["--freq", *args.freq] if args.freq else []
+    words += [
+        f
+        for f, on in (("--allow-outside-paths", args.allow_outside_paths), ("--allow-negative", args.allow_negative))
+        if on
+    ]
+    return " ".join(shlex.quote(w) for w in words)
 
 
 def _update_baseline(args: argparse.Namespace, results) -> None:

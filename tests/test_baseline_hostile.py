@@ -343,3 +343,16 @@ def test_cli_prune_lists_what_it_removes(tmp_path, capsys):
     with pytest.raises(SystemExit) as info:
         main(["verify", str(tmp_path / "a"), "--baseline", str(target), "--prune"])
     assert info.value.code == 2 and "--prune needs --update-baseline" in capsys.readouterr().err
+
+
+def test_repair_command_keeps_the_options_that_choose_the_cases(tmp_path, capsys):
+    """For netlists named with --port and --freq the repair command repeats them, quoted for a shell."""
+    netlist = tmp_path / "my rc.cir"
+    netlist.write_text(RC)
+    target = tmp_path / "baseline.json"
+    target.write_text("[]")
+    argv = ["verify", str(netlist), "--port", "out", "0", "--freq", "50", "--baseline", str(target)]
+    assert main(argv) == EXIT_ERROR
+    err = " ".join(capsys.readouterr().err.split())
+    assert f"crosscheck verify {shlex.quote(str(netlist))} --port out 0 --freq 50 --baseline {target}" in err
+    assert "--update-baseline --replace-corrupt" in err and target.read_text() == "[]"

@@ -73,11 +73,15 @@ class BaselineCorrupt(BaselineError):
     def __init__(self, path: str | Path, problem: str, cases: str = "CASES") -> None:
         self.path = Path(path)
         self.problem = problem
+        self.cases = cases
         super().__init__(
             f"{path}: {problem}. Repair it from a run: crosscheck verify {cases} --baseline {path} "
             f"--update-baseline --replace-corrupt (rewrites it from that run's cases and keeps this file "
             f"as {corrupt_name(path)})"
         )
+
+    def __reduce__(self) -> tuple[Any, ...]:
+        return (type(self), (self.path, self.problem, self.cases))
 
 
 def corrupt_name(path: str | Path) -> Path:
