@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import io
 import json
+import shlex
 import sys
 from collections.abc import Callable, Sequence
 from dataclasses import replace
@@ -15,7 +16,7 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 
 from crosscheck.cli_parser import parser
 from crosscheck.errors import CrosscheckError
-from crosscheck.judge.baseline import diff_baselines, format_changes, load_baseline, updated_baseline, write_baseline
+from crosscheck.judge.baseline import BaselineCorrupt, load_baseline, update_baseline_file
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.cases import Case, find_case_files, load_case
 from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
@@ -323,22 +324,58 @@ def _resolved(path: Path) -> Path:
 
 
 def _baseline(args: argparse.Namespace):
-    """The stored baseline to compare with, or None (none asked for, or it is about to be rewritten)."""
-    if args.baseline is None or args.update_baseline:
-        return None
+    """The stored baseline to compare with, or None (none asked for, or it is about to be rewritten).
 
-    return load_baseline(args.baseline)
+    Before an update the existing file is read once too, so a corrupt one stops the command before
+    the run rather than after it (the update reads it again under the lock)."""
+    _baseline_flags(args)
+    if args.baseline is None:
+        return None
+    if args.update_baseline:
+        if not args.replace_corrupt and args.baseline.exists():
+            _recoverable(args, load_baseline, args.baseline)
+        return None
+    return _recoverable(args, load_baseline, args.baseline)
+
+
+def _baseline_flags(args: argparse.Namespace) -> None:
+    """--prune and --replace-corrupt only with --update-baseline: a usage error (exit 2) otherwise."""
+    for flag, given in (("--prune", args.prune), ("--replace-corrupt", args.replace_corrupt)):
+        if given and not args.update_baseline:
+            print(f"crosscheck verify: error: {flag} needs --update-baseline (it changes the file)", file=sys.stderr)
+            raise SystemExit(EXIT_USAGE)
+
+
+def _recoverable(args: argparse.Namespace, read: Callable, *more):
+    """``read(*more)``; a corrupt baseline is re-raised naming this run's own case paths in the repair command."""
+    try:
+        return read(*more)
+    except BaselineCorrupt as exc:
+        raise BaselineCorrupt(exc.path, exc.problem, cases=_repair_cases(args)) from None
+
+
+def _repair_cases(args: argparse.Namespace) -> str:
+    """This run's paths and the options that decide which cases run, quoted for a shell."""
+    words = [str(p) for p in args.paths]
+    words += ["--port", *args.port] if args.port else []
+    words += ["--freq", *args.freq] if args.freq else []
+    words += [
+        f
+        for f, on in (("--allow-outside-paths", args.allow_outside_paths), ("--allow-negative", args.allow_negative))
+        if on
+    ]
+    return " ".join(shlex.quote(w) for w in words)
 
 
 def _update_baseline(args: argparse.Namespace, results) -> None:
-    """Write the baseline explicitly and say what changed (to stderr when stdout carries a report file format)."""
-
-    old = load_baseline(args.baseline) if args.baseline.exists() else None
-    new, kept = updated_baseline(results, args.baseline, old)
-    lines = format_changes(diff_baselines(old, new, kept), args.baseline)
-    write_baseline(new, args.baseline)
+    """Merge this run into the baseline under its lock and say what changed (to stderr when stdout
+    carries a report file format): added, changed, kept, removed (only with --prune)."""
+    report = _recoverable(
+        args,
+        lambda: update_baseline_file(results, args.baseline, prune=args.prune, replace_corrupt=args.replace_corrupt),
+    )
     out = sys.stderr if args.format != "text" and not args.output else sys.stdout
-    print("\n".join(lines), file=out)
+    print("\n".join(report.lines(args.baseline)), file=out)
 
 
 def _emit(text: str, output: Path | None) -> None:

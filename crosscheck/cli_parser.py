@@ -119,7 +119,19 @@ def _verify_parser(sub: Any) -> None:
     verify.add_argument(
         "--update-baseline",
         action="store_true",
-        help="write this run's equivalents to --baseline FILE and list what changed",
+        help="write this run's equivalents to --baseline FILE and list what changed; only the cases "
+        "of this run change, the others are kept",
+    )
+    verify.add_argument(
+        "--prune",
+        action="store_true",
+        help="with --update-baseline: also remove the cases of the baseline that are not in this run (each is listed)",
+    )
+    verify.add_argument(
+        "--replace-corrupt",
+        action="store_true",
+        help="with --update-baseline: when the baseline cannot be read, rewrite it from this run and keep "
+        "the unreadable file as FILE.corrupt",
     )
     _common_options(verify)
 

@@ -50,7 +50,7 @@ def test_round_trip_is_exact(tmp_path):
     baseline, kept = updated_baseline(results, target)
     write_baseline(baseline, target)
     back = load_baseline(target)
-    assert kept == ()
+    assert kept == {}
     assert set(back.cases) == {"rc.toml", "rl.toml"}
     for r in results:
         stored = back.cases[case_key(r.name, target)]
@@ -96,6 +96,7 @@ def test_changed_case_is_said_to_be_changed(tmp_path):
 
 
 def test_case_missing_from_baseline_is_a_note_not_a_failure(tmp_path):
+    """A case the baseline does not hold gets a note and no drift checks; it still passes."""
     paths = _corpus(tmp_path / "corpus")
     target = tmp_path / "corpus" / "baseline.json"
     write_baseline(updated_baseline(_run(paths[:1]), target)[0], target)
@@ -106,6 +107,7 @@ def test_case_missing_from_baseline_is_a_note_not_a_failure(tmp_path):
 
 
 def test_new_frequency_is_a_note(tmp_path):
+    """A frequency the baseline does not hold is a note, not drift."""
     paths = _corpus(tmp_path / "corpus")
     target = tmp_path / "corpus" / "baseline.json"
     write_baseline(updated_baseline(_run(paths), target)[0], target)
@@ -115,8 +117,8 @@ def test_new_frequency_is_a_note(tmp_path):
     assert "not in the baseline" in rc.baseline_note
 
 
-def test_update_lists_added_removed_and_moved(tmp_path):
-    """Writing a new baseline over an old one names each change with old → new."""
+def test_update_lists_added_changed_kept_and_moved(tmp_path):
+    """Writing a new baseline over an old one names each change with old → new; a case not run is kept."""
     paths = _corpus(tmp_path / "corpus")
     target = tmp_path / "corpus" / "baseline.json"
     write_baseline(updated_baseline(_run(paths[:1]), target)[0], target)
@@ -126,10 +128,17 @@ def test_update_lists_added_removed_and_moved(tmp_path):
     new, kept = updated_baseline(_run(paths), target, old)
     changes = diff_baselines(old, new, kept)
     assert changes.added == ("rl.toml",)
-    assert changes.removed == ("gone.toml",)
+    assert changes.removed == () and [k for k, _ in changes.kept] == ["gone.toml"]
+    assert new.cases["gone.toml"] == old.cases["gone.toml"]
+    assert [k for k, _ in changes.changed] == ["rc.toml"]
     assert [(m.case, m.freq_hz, m.quantity) for m in changes.moved] == [("rc.toml", 50.0, "vth")]
     text = "\n".join(format_changes(changes, target))
-    assert "added    rl.toml" in text and "removed  gone.toml" in text and "→" in text
+    assert "1 added, 1 changed, 0 unchanged, 1 kept, 0 removed" in text
+    assert "added    rl.toml" in text and "kept     gone.toml (not in this run" in text and "→" in text
+    pruned, kept = updated_baseline(_run(paths), target, old, prune=True)
+    changes = diff_baselines(old, pruned, kept)
+    assert changes.removed == ("gone.toml",) and "gone.toml" not in pruned.cases
+    assert "removed  gone.toml (not in this run; --prune)" in "\n".join(format_changes(changes, target))
     unchanged = diff_baselines(new, new)
     assert unchanged.empty and "no changes" in format_changes(unchanged, target)[0]
 
@@ -143,17 +152,19 @@ def test_errored_case_keeps_its_entry(tmp_path):
     results = _run(paths)
     assert results[1].verdict == "error"
     new, kept = updated_baseline(results, target, old)
-    assert kept == ("rl.toml",) and new.cases["rl.toml"] == old.cases["rl.toml"]
+    assert list(kept) == ["rl.toml"] and "error" in kept["rl.toml"]
+    assert new.cases["rl.toml"] == old.cases["rl.toml"]
 
 
 @pytest.mark.parametrize("content, words", [
-    ("not json", "not a JSON baseline"),
+    ("not json", "not valid JSON"),
     ('{"format": "something else"}', "not a crosscheck baseline"),
     ('{"format": "crosscheck baseline", "format_version": 99, "cases": {}}', "format version"),
     ('{"format": "crosscheck baseline", "format_version": 1, "cases": {"a": {"points": [{"freq_hz": 1, '
-     '"vth": {"re": "x"}}]}}}', "rewrite"),
+     '"vth": {"re": "x"}}]}}}', "--replace-corrupt"),
 ])
 def test_bad_baseline_files_are_refused(tmp_path, content, words):
+    """Each malformed file is a BaselineError naming what is wrong."""
     path = tmp_path / "b.json"
     path.write_text(content)
     with pytest.raises(BaselineError, match=words):
@@ -161,6 +172,7 @@ def test_bad_baseline_files_are_refused(tmp_path, content, words):
 
 
 def test_missing_baseline_says_how_to_write_one(tmp_path):
+    """A missing file names the command that writes one."""
     with pytest.raises(BaselineError, match="--update-baseline"):
         load_baseline(tmp_path / "none.json")
 
@@ -191,7 +203,7 @@ def test_cli_verify_with_baseline(tmp_path, capsys):
     capsys.readouterr()
     assert main(["verify", str(folder), "--baseline", str(target), "--update-baseline"]) == EXIT_OK
     out = capsys.readouterr().out
-    assert "2 case(s) added" in out and target.exists()
+    assert "2 added, 0 changed" in out and target.exists()
     assert main(["verify", str(folder), "--baseline", str(target)]) == EXIT_OK
     capsys.readouterr()
     _nudge(target, "rc.toml", "zth", 1 + 1e-6)
@@ -203,7 +215,8 @@ def test_cli_verify_with_baseline(tmp_path, capsys):
     rc = next(c for c in doc["cases"] if c["case"].endswith("rc.toml"))
     assert rc["verdict"] == "drift" and any(d["verdict"] == "drift" for d in rc["drift"])
     assert main(["verify", str(folder), "--baseline", str(target), "--update-baseline"]) == EXIT_OK
-    assert "moved" in capsys.readouterr().out
+    out = capsys.readouterr().out
+    assert "changed  rc.toml (1 quantity(ies) moved" in out and "moved    rc.toml" in out
 
 
 def test_malformed_case_entry_is_refused(tmp_path):

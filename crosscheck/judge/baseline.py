@@ -6,7 +6,14 @@ a new numpy, a changed case). It stores V_th, Z_th and I_N per case and
 frequency at full double precision (JSON floats round-trip exactly), with the
 crosscheck version and a hash of the case file and netlist, so a change can be
 told from an intended edit. It is written only on request (``--update-baseline``),
-and writing it lists what changed; it is never updated silently.
+and writing it lists what changed; it is never updated silently. An update changes
+only the cases of that run; a case not run is kept unless ``--prune`` is given.
+The file itself (strict reading, atomic writes, the lock that keeps concurrent
+updates from losing each other's cases) is ``baseline_file``'s job.
+
+Holding a run against a baseline is O(n log n) in points per case: stored points
+are indexed by frequency once (``baseline_file.FrequencyIndex``), and so are the
+run's own points when looking for stored frequencies no longer computed.
 
 Cases are keyed by their path relative to the baseline file's folder, so the
 same baseline works from any working directory.
@@ -15,66 +22,65 @@ same baseline works from any working directory.
 from __future__ import annotations
 
 import hashlib
-import json
 import math
 import os
-from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, field
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from crosscheck.errors import CrosscheckError
+from crosscheck.judge.baseline_file import (
+    FORMAT,
+    FORMAT_VERSION,
+    MAX_BYTES,
+    MAX_DEPTH,
+    STORED,
+    Baseline,
+    BaselineCorrupt,
+    BaselineError,
+    FrequencyIndex,
+    StoredCase,
+    StoredPoint,
+    baseline_document,
+    corrupt_name,
+    keep_corrupt,
+    load_baseline,
+    locked,
+    write_baseline,
+)
 from crosscheck.judge.records import Cause, DriftCheck
 from crosscheck.model.tolerance import BASELINE, Tolerance
 from crosscheck.model.values import format_eng, format_rect
 from crosscheck.own.equivalent import Equivalent
 from crosscheck.version import __version__
-from crosscheck.vocabulary import (
-    COMPARED,
-    Verdict,
-    phasor_json,
-    quantity_name,
-    quantity_unit,
-    relative_error,
-    same_frequency,
-)
+from crosscheck.vocabulary import Verdict, quantity_name, quantity_unit, relative_error
 
-FORMAT = "crosscheck baseline"
-FORMAT_VERSION = 1
-#: What a baseline stores of each point: the compared quantities.
-STORED = COMPARED
-
-
-class BaselineError(CrosscheckError, ValueError):
-    """The baseline file is missing or malformed: the message names the file and what to do."""
-
-
-@dataclass(frozen=True)
-class StoredPoint:
-    freq_hz: float
-    values: dict[str, complex | None]
-
-
-@dataclass(frozen=True)
-class StoredCase:
-    """One case as the baseline holds it."""
-
-    case_sha256: str | None
-    netlist_sha256: str | None
-    port: tuple[str, str]
-    points: tuple[StoredPoint, ...]
-
-    def point(self, freq_hz: float) -> StoredPoint | None:
-        return next((p for p in self.points if same_frequency(p.freq_hz, freq_hz)), None)
-
-
-@dataclass
-class Baseline:
-    """Stored cases by key; ``path`` is the file it was read from (keys are relative to its folder)."""
-
-    crosscheck_version: str
-    cases: dict[str, StoredCase] = field(default_factory=dict)
-    path: Path | None = None
+__all__ = [
+    "FORMAT",
+    "FORMAT_VERSION",
+    "MAX_BYTES",
+    "MAX_DEPTH",
+    "STORED",
+    "Baseline",
+    "BaselineChanges",
+    "BaselineCorrupt",
+    "BaselineError",
+    "Moved",
+    "StoredCase",
+    "StoredPoint",
+    "UpdateReport",
+    "baseline_document",
+    "case_key",
+    "compare_with_baseline",
+    "corrupt_name",
+    "diff_baselines",
+    "drift_checks",
+    "format_changes",
+    "load_baseline",
+    "update_baseline_file",
+    "updated_baseline",
+    "write_baseline",
+]
 
 
 @dataclass(frozen=True)
@@ -89,17 +95,19 @@ class Moved:
 
 @dataclass(frozen=True)
 class BaselineChanges:
-    """What writing a new baseline changes: cases added and removed, quantities moved beyond tolerance."""
+    """What writing a new baseline changes, case by case, and each quantity moved beyond tolerance."""
 
     added: tuple[str, ...]
-    removed: tuple[str, ...]
-    kept: tuple[str, ...]  # did not run this time (error), old entry kept
+    removed: tuple[str, ...]  # not in this run and --prune given
+    kept: tuple[tuple[str, str], ...]  # (case, why): entry kept as it was
     moved: tuple[Moved, ...]
     points_changed: tuple[str, ...]  # cases whose frequency list changed
+    changed: tuple[tuple[str, str], ...] = ()  # (case, what changed)
+    unchanged: tuple[str, ...] = ()  # ran again, nothing beyond tolerance
 
     @property
     def empty(self) -> bool:
-        return not (self.added or self.removed or self.moved or self.points_changed)
+        return not (self.added or self.removed or self.moved or self.points_changed or self.changed)
 
 
 # --------------------------------------------------------------------------- keys and hashes
@@ -129,93 +137,11 @@ def case_hashes(case: Any) -> tuple[str | None, str | None]:
     return _sha256(data), _sha256(case.netlist_text.encode("utf-8"))
 
 
-# --------------------------------------------------------------------------- reading and writing
+# --------------------------------------------------------------------------- updating
 
-
-def _decode(path: Path, where: str, raw: Any) -> complex | None:
-    if raw is None:
-        return None
-    try:
-        return complex(float(raw["re"]), float(raw["im"]))
-    except (TypeError, KeyError, ValueError):
-        raise BaselineError(
-            f'{path}: {where} must be {{"re": …, "im": …}} or null (got {raw!r}); '
-            "rewrite the baseline with --update-baseline"
-        ) from None
-
-
-def load_baseline(path: str | Path) -> Baseline:
-    """Read a baseline file; a missing or malformed file raises BaselineError saying how to write one."""
-    path = Path(path)
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise BaselineError(
-            f"{path}: no baseline file here; write one with crosscheck verify ... --baseline {path} --update-baseline"
-        ) from None
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise BaselineError(f"{path}: not a JSON baseline ({exc}); rewrite it with --update-baseline") from None
-    if not isinstance(doc, dict) or doc.get("format") != FORMAT:
-        raise BaselineError(
-            f'{path}: not a crosscheck baseline (no "format": "{FORMAT}"); '
-            "name the right file, or write one with --update-baseline"
-        )
-    if doc.get("format_version") != FORMAT_VERSION:
-        raise BaselineError(
-            f"{path}: baseline format version {doc.get('format_version')!r}, this crosscheck reads "
-            f"{FORMAT_VERSION}; rewrite it with --update-baseline"
-        )
-    cases: dict[str, StoredCase] = {}
-    raw_cases = doc.get("cases")
-    if not isinstance(raw_cases, dict):
-        raise BaselineError(f'{path}: "cases" must be an object keyed by case path')
-    for key, entry in raw_cases.items():
-        try:
-            points = tuple(
-                StoredPoint(
-                    float(p["freq_hz"]),
-                    {q: _decode(path, f"cases[{key!r}] at {p['freq_hz']} Hz: {q}", p.get(q)) for q in STORED},
-                )
-                for p in entry["points"]
-            )
-            port = (str(entry.get("port", ("?", "?"))[0]), str(entry.get("port", ("?", "?"))[1]))
-        except (TypeError, KeyError, ValueError, AttributeError, IndexError):
-            raise BaselineError(
-                f"{path}: case {key!r} is malformed (needs points with freq_hz, vth, zth, in); "
-                "rewrite the baseline with --update-baseline"
-            ) from None
-        cases[key] = StoredCase(entry.get("case_sha256"), entry.get("netlist_sha256"), port, points)
-    return Baseline(str(doc.get("crosscheck_version", "?")), cases, path)
-
-
-def baseline_document(baseline: Baseline, tolerance: Tolerance = BASELINE) -> dict[str, Any]:
-    return {
-        "format": FORMAT,
-        "format_version": FORMAT_VERSION,
-        "crosscheck_version": baseline.crosscheck_version,
-        "drift_tolerance": {"rel": tolerance.rel, "abs": tolerance.abs},
-        "cases": {
-            key: {
-                "case_sha256": entry.case_sha256,
-                "netlist_sha256": entry.netlist_sha256,
-                "port": list(entry.port),
-                "points": [
-                    {"freq_hz": p.freq_hz, **{q: phasor_json(p.values.get(q)) for q in STORED}} for p in entry.points
-                ],
-            }
-            for key, entry in sorted(baseline.cases.items())
-        },
-    }
-
-
-def write_baseline(baseline: Baseline, path: str | Path) -> None:
-    """Write atomically (a temporary file renamed over the old one), keys sorted for readable diffs."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    text = json.dumps(baseline_document(baseline), indent=1, ensure_ascii=False, allow_nan=False) + "\n"
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text, encoding="utf-8")
-    os.replace(tmp, path)
+#: Why a case's previous entry is kept as it was.
+NOT_RUN = "not in this run; previous entry kept (--prune removes it)"
+NO_EQUIVALENTS = "did not run this time (error); previous entry kept"
 
 
 def stored_case(result: Any) -> StoredCase:
@@ -226,20 +152,34 @@ def stored_case(result: Any) -> StoredCase:
 
 
 def updated_baseline(
-    results: Sequence[Any], path: str | Path, previous: Baseline | None = None
-) -> tuple[Baseline, tuple[str, ...]]:
-    """The baseline this run would write, and the cases whose previous entry is kept because they
-    produced no equivalents this time (an error)."""
+    results: Sequence[Any], path: str | Path, previous: Baseline | None = None, *, prune: bool = False
+) -> tuple[Baseline, dict[str, str]]:
+    """The baseline this run would write, and the cases whose previous entry is kept, with why.
+
+    Only the cases of this run change. A case that ran without equivalents (an error) or with a
+    non-finite value (which a baseline cannot hold) keeps its previous entry; a case of the previous
+    baseline that is not in this run is kept too, unless ``prune``: then it is dropped.
+    """
     new = Baseline(__version__, path=Path(path))
-    kept = []
+    kept: dict[str, str] = {}
+    ran: set[str] = set()
     for r in results:
         key = case_key(r.name, Path(path))
-        if r.own is not None:
-            new.cases[key] = stored_case(r)
+        ran.add(key)
+        entry = stored_case(r) if r.own is not None else None
+        bad = None if entry is None else entry.first_non_finite()
+        if entry is not None and bad is None:
+            new.cases[key] = entry
         elif previous is not None and key in previous.cases:
             new.cases[key] = previous.cases[key]
-            kept.append(key)
-    return new, tuple(kept)
+            kept[key] = (
+                NO_EQUIVALENTS if bad is None else f"holds {bad}, which a baseline cannot store; previous entry kept"
+            )
+    if previous is not None and not prune:
+        for key in previous.cases.keys() - ran:
+            new.cases[key] = previous.cases[key]
+            kept[key] = NOT_RUN
+    return new, kept
 
 
 # --------------------------------------------------------------------------- drift
@@ -299,7 +239,8 @@ def drift_checks(
                     Cause.AGREES if ok else Cause.OUT_OF_TOLERANCE,
                 )
             )
-    gone = [p.freq_hz for p in stored.points if not any(same_frequency(p.freq_hz, eq.freq_hz) for eq in own)]
+    computed = FrequencyIndex([eq.freq_hz for eq in own])
+    gone = [p.freq_hz for p in stored.points if computed.find(p.freq_hz) is None]
     if new_freqs:
         notes.append(
             f"{len(new_freqs)} frequency(ies) not in the baseline (first {format_eng(new_freqs[0], 6, ' Hz')})"
@@ -338,48 +279,115 @@ def compare_with_baseline(
 
 
 def diff_baselines(
-    old: Baseline | None, new: Baseline, kept: Iterable[str] = (), tolerance: Tolerance = BASELINE
+    old: Baseline | None,
+    new: Baseline,
+    kept: Mapping[str, str] | Iterable[str] = (),
+    tolerance: Tolerance = BASELINE,
 ) -> BaselineChanges:
-    """What replacing ``old`` by ``new`` changes, quantity by quantity beyond ``tolerance``."""
+    """What replacing ``old`` by ``new`` changes, case by case; ``kept`` names entries carried over as
+    they were (a mapping gives why). O(n log n) in points per case."""
+    why = dict(kept) if isinstance(kept, Mapping) else {k: NO_EQUIVALENTS for k in kept}
     old_cases = old.cases if old is not None else {}
-    added = tuple(sorted(set(new.cases) - set(old_cases)))
-    removed = tuple(sorted(set(old_cases) - set(new.cases)))
     moved: list[Moved] = []
     points_changed: list[str] = []
-    for key in sorted(set(new.cases) & set(old_cases)):
+    changed: list[tuple[str, str]] = []
+    unchanged: list[str] = []
+    for key in sorted((set(new.cases) & set(old_cases)) - set(why)):
         before, after = old_cases[key], new.cases[key]
+        reasons = []
         if sorted(p.freq_hz for p in before.points) != sorted(p.freq_hz for p in after.points):
             points_changed.append(key)
-        for p in after.points:
-            q_old = before.point(p.freq_hz)
-            if q_old is None:
-                continue
-            for q in STORED:
-                rel, ok = _judge(q_old.values.get(q), p.values.get(q), tolerance)
-                if not ok:
-                    moved.append(Moved(key, p.freq_hz, q, q_old.values.get(q), p.values.get(q), rel))
-    return BaselineChanges(added, removed, tuple(sorted(kept)), tuple(moved), tuple(points_changed))
+            reasons.append("frequency list changed")
+        case_moved = list(_moved(key, before, after, tolerance))
+        if case_moved:
+            moved += case_moved
+            reasons.insert(0, f"{len(case_moved)} quantity(ies) moved beyond tolerance")
+        if (before.case_sha256, before.netlist_sha256) != (after.case_sha256, after.netlist_sha256):
+            reasons.append("case file or netlist edited")
+        if before.port != after.port:
+            reasons.append(f"port {before.port} → {after.port}")
+        if reasons:
+            changed.append((key, "; ".join(reasons)))
+        else:
+            unchanged.append(key)
+    return BaselineChanges(
+        added=tuple(sorted(set(new.cases) - set(old_cases))),
+        removed=tuple(sorted(set(old_cases) - set(new.cases))),
+        kept=tuple(sorted((k, w) for k, w in why.items() if k in new.cases)),
+        moved=tuple(moved),
+        points_changed=tuple(points_changed),
+        changed=tuple(changed),
+        unchanged=tuple(unchanged),
+    )
+
+
+def _moved(key: str, before: StoredCase, after: StoredCase, tolerance: Tolerance) -> Iterator[Moved]:
+    for p in after.points:
+        q_old = before.point(p.freq_hz)
+        if q_old is None:
+            continue
+        for q in STORED:
+            rel, ok = _judge(q_old.values.get(q), p.values.get(q), tolerance)
+            if not ok:
+                yield Moved(key, p.freq_hz, q, q_old.values.get(q), p.values.get(q), rel)
 
 
 def format_changes(changes: BaselineChanges, path: str | Path) -> list[str]:
-    """Lines for the terminal: what the written baseline changed."""
-    lines = [
-        f"baseline {path}: "
-        + (
-            "no changes beyond tolerance"
-            if changes.empty
-            else f"{len(changes.added)} case(s) added, {len(changes.removed)} removed, "
-            f"{len(changes.moved)} quantity(ies) moved, "
-            f"{len(changes.points_changed)} frequency list(s) changed"
-        )
-    ]
+    """Lines for the terminal: what the written baseline changed, case by case."""
+    counts = (
+        f"{len(changes.added)} added, {len(changes.changed)} changed, {len(changes.unchanged)} unchanged, "
+        f"{len(changes.kept)} kept, {len(changes.removed)} removed"
+    )
+    lines = [f"baseline {path}: {counts}" + ("; no changes beyond tolerance" if changes.empty else "")]
     lines += [f"  added    {k}" for k in changes.added]
-    lines += [f"  removed  {k}" for k in changes.removed]
-    lines += [f"  kept     {k} (did not run this time; previous entry kept)" for k in changes.kept]
-    lines += [f"  frequencies changed  {k}" for k in changes.points_changed]
+    lines += [f"  changed  {k} ({why})" for k, why in changes.changed]
+    lines += [f"  kept     {k} ({why})" for k, why in changes.kept]
+    lines += [f"  removed  {k} (not in this run; --prune)" for k in changes.removed]
     lines += [
         f"  moved    {m.case} at {format_eng(m.freq_hz, 6, ' Hz')} {quantity_name(m.quantity)}: "
         f"{_show(m.quantity, m.old)} → {_show(m.quantity, m.new)} (relative change {m.rel_err:.3g})"
         for m in changes.moved
     ]
     return lines
+
+
+@dataclass(frozen=True)
+class UpdateReport:
+    """What ``update_baseline_file`` did: the changes, and where a refused file was kept (or None)."""
+
+    changes: BaselineChanges
+    corrupt_kept_as: Path | None = None
+
+    def lines(self, path: str | Path) -> list[str]:
+        out = format_changes(self.changes, path)
+        if self.corrupt_kept_as is not None:
+            out.insert(
+                0,
+                f"baseline {path} could not be read; rewritten from this run's cases only, the refused file "
+                f"is kept as {self.corrupt_kept_as}",
+            )
+        return out
+
+
+def update_baseline_file(
+    results: Sequence[Any], path: str | Path, *, prune: bool = False, replace_corrupt: bool = False
+) -> UpdateReport:
+    """Merge this run into the baseline file under its lock (read, merge, atomic write: see
+    ``baseline_file``), so concurrent updates of different cases all land.
+
+    A file that cannot be read stops the update with ``BaselineCorrupt`` unless ``replace_corrupt``:
+    then it is moved aside as ``BASELINE.corrupt`` and the baseline is written from this run alone.
+    """
+    path = Path(path)
+    kept_as = None
+    with locked(path):
+        try:
+            old: Baseline | None = load_baseline(path) if path.exists() else None
+        except BaselineCorrupt:
+            if not replace_corrupt:
+                raise
+            kept_as, old = keep_corrupt(path), None
+        new, kept = updated_baseline(results, path, old, prune=prune)
+        changes = diff_baselines(old, new, kept)
+        write_baseline(new, path)
+    return UpdateReport(changes, kept_as)
