@@ -51,14 +51,15 @@ from multiprocessing.connection import Connection
 from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
+from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
 from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver, Settings, Task, describe_bytes
 
-DEFAULT_TIMEOUT_S = 60.0
-DEFAULT_MEMORY_BYTES = 2 << 30
+#: The defaults of every case's budget (``model.budget``, defined there once): 60 s wall clock, 2 GiB.
+DEFAULT_TIMEOUT_S = DEFAULT_TIME_S
 _START_TIMEOUT_S = 60.0  # a worker's interpreter, numpy, PySpice and ngspice: ~0.5 s when well
 
 
