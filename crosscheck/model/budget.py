@@ -75,7 +75,9 @@ def parse_memory(text: str) -> int:
             f"--memory {text!r} is not an amount of memory; give a number of bytes with K, M, G or T, e.g. --memory 4G"
         )
     scale = 1024 ** "kmgt".find(match.group(2).lower()) * 1024 if match.group(2) else 1
-    return _checked_memory(int(float(match.group(1)) * scale))
+    memory_bytes = int(float(match.group(1)) * scale)
+    _checked_memory(memory_bytes)
+    return memory_bytes
 
 
 def _checked_memory(memory_bytes: int | None) -> int | None:
