@@ -16,6 +16,7 @@ from __future__ import annotations
 import math
 import re
 import time
+from collections.abc import Callable
 from dataclasses import dataclass
 
 from crosscheck.errors import CrosscheckError
@@ -119,11 +120,12 @@ class Budget:
         """A deadline ``time_s`` from now (never, with no time limit)."""
         return Deadline(None if self.time_s is None else time.monotonic() + self.time_s, self.time_s)
 
-    def check_memory(self, estimate: int, what: str) -> None:
-        """Refuse ``what`` (words for the work) when ``estimate`` bytes are over ``memory_bytes``."""
+    def check_memory(self, estimate: int, what: Callable[[], str]) -> None:
+        """Refuse the work when ``estimate`` bytes are over ``memory_bytes``; ``what()`` puts the work in words
+        (called only then: formatting it costs more than the check)."""
         if self.memory_bytes is not None and estimate > self.memory_bytes:
             raise MemoryBudgetError(
-                f"the own solver would need about {describe_memory(estimate)} for {what}, over the memory limit of "
+                f"the own solver would need about {describe_memory(estimate)} for {what()}, over the memory limit of "
                 f"{describe_memory(self.memory_bytes)}; raise the limit with --memory (e.g. --memory "
                 f"{math.ceil(estimate / 2**30)}G) if the machine has it, or give fewer frequencies"
             )
@@ -131,18 +133,27 @@ class Budget:
 
 @dataclass(frozen=True)
 class Deadline:
-    """When the current case must be finished (``monotonic`` seconds; None: never)."""
+    """When the current case must be finished (``monotonic`` seconds; None: never).
+
+    ``offset`` and ``total`` place a run of frequencies in its whole sweep, for the message only.
+    """
 
     at: float | None
     time_s: float | None = None
+    offset: int = 0
+    total: int | None = None
+
+    def within(self, offset: int, total: int) -> Deadline:
+        """The same deadline for a run that starts at frequency ``offset`` of a sweep of ``total``."""
+        return Deadline(self.at, self.time_s, offset, total)
 
     def check(self, done: int, total: int) -> None:
         """Raise ``TimeBudgetError`` if the deadline has passed; ``done`` of ``total`` frequencies are finished."""
         if self.at is not None and time.monotonic() > self.at:
             raise TimeBudgetError(
                 f"the own solver did not finish this case within {self.time_s:g} s of wall-clock time "
-                f"(stopped after {done} of {total} frequencies); raise the limit with --timeout if the network "
-                "is genuinely that large, or give fewer frequencies"
+                f"(stopped at frequency {self.offset + done + 1} of {self.total or total}); raise the limit with "
+                "--timeout if the network is genuinely that large, or give fewer frequencies"
             )
 
 

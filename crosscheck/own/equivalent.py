@@ -126,20 +126,35 @@ def thevenin(
 def _check_memory(network: Network, ties: int, frequencies: int, budget: Budget) -> None:
     """Refuse the sweep before assembly when ``sweep_bytes``' estimate is over the budget's memory.
 
-    The unknowns are counted as ``MnaSystem`` will number them (nodes, branch elements, ideal shorts,
-    ties); the nonzeros are bounded by ``ENTRIES_PER_ELEMENT`` per element and four per tie.
+    The nonzeros are bounded by ``ENTRIES_PER_ELEMENT`` per element and four per tie. The unknowns are
+    first bounded by nodes + elements + ties (free to count, and enough for almost every case); only when
+    that bound is over the limit are they counted as ``MnaSystem`` numbers them (nodes, branch elements,
+    ideal shorts, ties), so that the refusal is not the coarse bound's doing.
     """
-    arrays = network.element_arrays
-    branches = int(np.count_nonzero(arrays.of_kind(BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))))
-    unknowns = len(network.node_index) + branches + ties
+    if budget.memory_bytes is None:
+        return
     nonzeros = ENTRIES_PER_ELEMENT * len(network.elements) + 4 * ties
-    threads = default_threads() if unknowns >= THREADS_FROM else 1
-    estimate = sweep_bytes(unknowns, nonzeros, frequencies, 2, dense=unknowns <= DENSE_LIMIT, threads=threads)
+    unknowns = len(network.node_index) + len(network.elements) + ties
+    paths = (False, True) if len(network.node_index) + ties <= DENSE_LIMIT else (False,)  # which may be taken
+    if max(_estimate(unknowns, nonzeros, frequencies, dense) for dense in paths) <= budget.memory_bytes:
+        return
+    arrays = network.element_arrays
+    branches = arrays.of_kind(BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))
+    unknowns = len(network.node_index) + int(np.count_nonzero(branches)) + ties
     budget.check_memory(
-        estimate,
-        f"this sweep ({unknowns:,} unknowns, at most {nonzeros:,} matrix entries, {frequencies:,} frequencies "
-        "x 2 right-hand sides)",
+        _estimate(unknowns, nonzeros, frequencies, unknowns <= DENSE_LIMIT),
+        lambda: (
+            f"this sweep ({unknowns:,} unknowns, at most {nonzeros:,} matrix entries, {frequencies:,} frequencies "
+            "x 2 right-hand sides)"
+        ),
     )
+
+
+def _estimate(unknowns: int, nonzeros: int, frequencies: int, dense: bool) -> int:
+    """``sweep_bytes`` for a sweep of the two right-hand sides on the given path, with the threads
+    ``solve_many`` will use."""
+    threads = default_threads() if unknowns >= THREADS_FROM else 1
+    return sweep_bytes(unknowns, nonzeros, frequencies, 2, dense=dense, threads=threads)
 
 
 def _one_frequency(

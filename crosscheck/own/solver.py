@@ -214,12 +214,15 @@ class MnaSystem:
         threads = 1
         if len(chunks) > 1:  # only from THREADS_FROM unknowns
             threads = min(len(chunks), self.sweep_threads or default_threads())
+        starts = np.cumsum([0] + [len(c) for c in chunks[:-1]]).tolist()
+
+        def run(j: int) -> tuple[np.ndarray, np.ndarray]:
+            return self._sweep(chunks[j], rhs, estimate_condition, deadline.within(starts[j], len(freqs)))
+
         if threads > 1:
-            parts = list(
-                _thread_pool(threads).map(lambda chunk: self._sweep(chunk, rhs, estimate_condition, deadline), chunks)
-            )
+            parts = list(_thread_pool(threads).map(run, range(len(chunks))))
         else:
-            parts = [self._sweep(chunk, rhs, estimate_condition, deadline) for chunk in chunks]
+            parts = [run(j) for j in range(len(chunks))]
         if not parts:
             return np.empty((0, self.size, rhs.shape[1]), dtype=complex), np.empty(0)
         return np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
