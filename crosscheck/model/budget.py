@@ -166,7 +166,7 @@ def sweep_bytes(unknowns: int, nonzeros: int, frequencies: int, rhs: int, *, den
 
     The rule (n unknowns, z stored matrix entries, F frequencies, k right-hand sides):
 
-    * solutions: 16·F·n·k bytes, twice (each run's array and their concatenation), plus 8·F·n for the
+    * solutions: 16·F·n·k bytes, twice (each run's array and their concatenation), plus 8·F·n·k for the
       per-column magnitudes the equivalents are scaled by;
     * the matrix: ``ASSEMBLY_ENTRY_BYTES`` per entry (assembly's triples and the matrices made from them);
     * the sparse path: ``LU_FILL``·z LU entries of ``LU_ENTRY_BYTES`` each, two factors alive at once
@@ -178,10 +178,12 @@ def sweep_bytes(unknowns: int, nonzeros: int, frequencies: int, rhs: int, *, den
 
     ``LU_FILL`` = 10 is several times the fill KLU's ordering gives on ladder, grid and random networks
     (2-4x), so the estimate errs on the high side: it refuses early rather than let a sweep run the
-    process out of memory; ``--memory`` raises the limit when the machine has it.
+    process out of memory; ``--memory`` raises the limit when the machine has it. Measured against the
+    peak memory growth of real sweeps it is 1.3-2.8x too high (ladders of 20 to 20,000 nodes and a
+    1,000-node grid, 200 to 9,601 frequencies).
     """
     n, z, f, k = unknowns, nonzeros, frequencies, rhs
-    total = 2 * 16 * f * n * k + 8 * f * n + ASSEMBLY_ENTRY_BYTES * z
+    total = 2 * 16 * f * n * k + 8 * f * n * k + ASSEMBLY_ENTRY_BYTES * z
     if dense:
         batch = min(f * n * n, max(DENSE_BATCH_ENTRIES, n * n))
         total += 4 * 16 * batch

@@ -52,7 +52,7 @@ from multiprocessing.connection import Connection
 from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
-from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S
+from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
@@ -250,8 +250,7 @@ class SpicePool:
         count = (os.cpu_count() or 1) if workers is None else int(workers)
         if count < 1:
             raise ValueError(f"workers must be at least 1 (got {workers!r})")
-        if not timeout_s > 0:
-            raise ValueError(f"timeout_s must be a positive number of seconds (got {timeout_s!r})")
+        Budget(timeout_s, memory_bytes)  # the same limits as the own route's: finite seconds > 0, >= 1 MiB
         self.workers = count
         self.timeout_s = float(timeout_s)
         self.strategy = strategy
