@@ -48,8 +48,21 @@ def main(argv: Sequence[str] | None = None) -> int:
     except (CrosscheckError, _AlreadyReported) as exc:
         print(f"crosscheck: error: {exc}", file=sys.stderr)
         return EXIT_ERROR
-    except KeyboardInterrupt:
-        print("crosscheck: interrupted", file=sys.stderr)
+    except KeyboardInterrupt as interrupt:
+        # Ctrl-C: cancel every ngspice pool at once (queued cases dropped, running workers killed), say how
+        # many cases finished, exit with 130 (128 + SIGINT). A command that kept its finished results
+        # attaches them to the interrupt as ``finished`` (a list of CaseResult) before re-raising it;
+        # without that, the count is ngspice's finished cases.
+        from crosscheck.spice.workers import cancel_all  # start-up time: needed only after an interrupt
+
+        spice_done, cancelled = cancel_all()
+        kept = getattr(interrupt, "finished", None)
+        done = (
+            f"{len(kept)} case(s) finished and were kept"
+            if kept is not None
+            else f"{spice_done} ngspice case(s) finished"
+        )
+        print(f"crosscheck: interrupted: {done}; {cancelled} queued or running case(s) cancelled", file=sys.stderr)
         return 130
     return EXIT_USAGE
 

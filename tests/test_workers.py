@@ -7,6 +7,7 @@ dies or hogs memory for the network titles in ``misbehaving_solve.TITLES``.
 
 from __future__ import annotations
 
+import math
 import os
 import subprocess
 import sys
@@ -16,6 +17,7 @@ import textwrap
 import pytest
 
 from crosscheck.errors import CrosscheckError, NetworkError, ReferenceEngineError
+from crosscheck.model.budget import BudgetSettingError
 from crosscheck.model.network import Network, Port, make_element as el
 from crosscheck.spice.engine import SpiceResult
 from crosscheck.spice.workers import SpicePool, _worker_environment
@@ -196,11 +198,12 @@ def test_closed_pool_refuses_new_cases():
 
 
 def test_pool_arguments_are_checked():
-    """workers and timeout_s must make sense."""
+    """workers must be at least 1, and timeout_s finite and above 0 (inf is refused, not read as no limit)."""
     with pytest.raises(ValueError, match="workers"):
         SpicePool(workers=0)
-    with pytest.raises(ValueError, match="timeout_s"):
-        SpicePool(workers=1, timeout_s=0)
+    for bad in (0, -1.0, math.inf, math.nan):
+        with pytest.raises(BudgetSettingError, match="--timeout .* finite number of seconds above 0"):
+            SpicePool(workers=1, timeout_s=bad)
 
 
 @pytest.mark.spice

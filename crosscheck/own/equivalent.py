@@ -21,9 +21,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from crosscheck.errors import SingularNetworkError
+from crosscheck.model.budget import ENTRIES_PER_ELEMENT, NO_DEADLINE, Budget, sweep_bytes
 from crosscheck.model.network import Network, Port, check_port, floating_reference, make_element
-from crosscheck.own.assembly import STAMPS, Stamps
-from crosscheck.own.solver import MnaSystem
+from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps
+from crosscheck.own.solver import DENSE_LIMIT, THREADS_FROM, MnaSystem, default_threads
 
 #: |Z_th| below this multiple of eps times the test solution's largest entry is an exact zero. It is
 #: not scaled by the condition number: an ill-conditioned network's small Z_th is still a value (the
@@ -84,12 +85,20 @@ class Equivalent:
 
 
 def thevenin(
-    network: Network, port: Port, freqs_hz: Sequence[float] | float, *, stamps: Stamps = STAMPS
+    network: Network,
+    port: Port,
+    freqs_hz: Sequence[float] | float,
+    *,
+    stamps: Stamps = STAMPS,
+    budget: Budget | None = None,
 ) -> list[Equivalent]:
     """Equivalents at ``port`` for each frequency (Hz; 0 is DC), one factorization per frequency.
 
     ``stamps``: how elements and the test current enter the matrix; the correct ones unless a caller
     measuring the comparison passes broken ones (``crosscheck.fuzz.faults``).
+    ``budget``: the time and memory this case may use (None: no limit). Its memory limit is held against
+    ``model.budget.sweep_bytes`` before assembly (``MemoryBudgetError``); its deadline is checked between
+    runs of frequencies (``TimeBudgetError``).
     """
     freqs = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
     check_port(network, port)
@@ -97,13 +106,55 @@ def thevenin(
     if bad.size:
         raise ValueError(f"frequency {bad[0]!r} Hz is not allowed; give finite frequencies >= 0")
     ties = [r] if (r := floating_reference(network, port)) is not None else []
+    deadline = NO_DEADLINE
+    if budget is not None:
+        deadline = budget.deadline()
+        _check_memory(network, len(ties), len(freqs), budget)
     system = MnaSystem(network, ties, stamps)
     rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
     try:
-        xs, conds = system.solve_many(freqs, rhs)
+        xs, conds = system.solve_many(freqs, rhs, deadline=deadline)
     except SingularNetworkError:
-        return [_one_frequency(system, network, port, float(f), ties, stamps) for f in freqs]
+        out = []
+        for i, f in enumerate(freqs):  # the slow path: one factorization each, so the deadline is read each
+            deadline.check(i, len(freqs))
+            out.append(_one_frequency(system, network, port, float(f), ties, stamps))
+        return out
     return _from_open_port(system, port, freqs, xs, conds)
+
+
+def _check_memory(network: Network, ties: int, frequencies: int, budget: Budget) -> None:
+    """Refuse the sweep before assembly when ``sweep_bytes``' estimate is over the budget's memory.
+
+    The nonzeros are bounded by ``ENTRIES_PER_ELEMENT`` per element and four per tie. The unknowns are
+    first bounded by nodes + elements + ties (free to count, and enough for almost every case); only when
+    that bound is over the limit are they counted as ``MnaSystem`` numbers them (nodes, branch elements,
+    ideal shorts, ties), so that the refusal is not the coarse bound's doing.
+    """
+    if budget.memory_bytes is None:
+        return
+    nonzeros = ENTRIES_PER_ELEMENT * len(network.elements) + 4 * ties
+    unknowns = len(network.node_index) + len(network.elements) + ties
+    paths = (False, True) if len(network.node_index) + ties <= DENSE_LIMIT else (False,)  # which may be taken
+    if max(_estimate(unknowns, nonzeros, frequencies, dense) for dense in paths) <= budget.memory_bytes:
+        return
+    arrays = network.element_arrays
+    branches = arrays.of_kind(BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))
+    unknowns = len(network.node_index) + int(np.count_nonzero(branches)) + ties
+    budget.check_memory(
+        _estimate(unknowns, nonzeros, frequencies, unknowns <= DENSE_LIMIT),
+        lambda: (
+            f"this sweep ({unknowns:,} unknowns, at most {nonzeros:,} matrix entries, {frequencies:,} frequencies "
+            "x 2 right-hand sides)"
+        ),
+    )
+
+
+def _estimate(unknowns: int, nonzeros: int, frequencies: int, dense: bool) -> int:
+    """``sweep_bytes`` for a sweep of the two right-hand sides on the given path, with the threads
+    ``solve_many`` will use."""
+    threads = default_threads() if unknowns >= THREADS_FROM else 1
+    return sweep_bytes(unknowns, nonzeros, frequencies, 2, dense=dense, threads=threads)
 
 
 def _one_frequency(

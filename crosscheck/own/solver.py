@@ -22,6 +22,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from crosscheck.errors import SingularNetworkError
+from crosscheck.model.budget import DENSE_BATCH_ENTRIES, NO_DEADLINE, Deadline
 from crosscheck.model.network import SOURCE_KINDS, Network
 from crosscheck.own import klu_library, sparse_backends, sweep_kernel
 from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps, assemble
@@ -30,6 +31,7 @@ from crosscheck.own.diagnose import singular_error
 from crosscheck.own.refinement import REFINE_ABOVE, backward_error, column_sizes, refined
 
 __all__ = [
+    "BUDGET_CHUNK",
     "DENSE_LIMIT",
     "REFINE_ABOVE",
     "SINGULAR_CONDITION",
@@ -54,6 +56,11 @@ SWEEP_CHUNK = 16
 #: GIL for about half of each frequency's time (a 1,000-node ladder, 1,500 unknowns), and 1.3-1.5x at
 #: 15,000 unknowns.
 THREADS_FROM = 4000
+#: A sweep checks its deadline (``model.budget.Deadline``) once per this many frequencies, and more often on
+#: large networks (once per BUDGET_CHUNK_ENTRIES // unknowns frequencies, at least one): a clock read per run
+#: is lost in the run's factorizations, and a run of a 100,000-unknown network is about ten frequencies.
+BUDGET_CHUNK = 64
+BUDGET_CHUNK_ENTRIES = 1 << 20
 #: A right-hand side whose largest entry is below this (and not 0) keeps its sweep off the compiled loop.
 TINY_RHS = 1e-250
 
@@ -180,7 +187,11 @@ class MnaSystem:
         return Factorization(freq_hz, lambda b: refined(a, lu, np.asarray(b, dtype=complex), norm_inf), condition)
 
     def solve_many(
-        self, freqs_hz: Sequence[float] | np.ndarray, rhs: np.ndarray, estimate_condition: bool = True
+        self,
+        freqs_hz: Sequence[float] | np.ndarray,
+        rhs: np.ndarray,
+        estimate_condition: bool = True,
+        deadline: Deadline = NO_DEADLINE,
     ) -> tuple[np.ndarray, np.ndarray]:
         """Solve A(ω)·X = rhs for every frequency: (F, n, k) solutions and (F,) conditions (NaN if not estimated).
 
@@ -189,11 +200,12 @@ class MnaSystem:
         together with the condition estimate's two opening probes (``condition_estimate``). With KLU a
         frequency refactors on the pivot order of the one before (no pivot search, ~2x faster), kept
         only while the right-hand sides' backward error stays below REFINE_ABOVE; else it pivots afresh.
+        ``deadline`` is checked between runs of at most BUDGET_CHUNK frequencies (``model.budget``).
         """
         freqs = np.asarray(freqs_hz, dtype=float)
         rhs = np.asarray(rhs, dtype=complex).reshape(self.size, -1)
         if self.size <= DENSE_LIMIT and len(freqs) > 0:
-            return self._solve_dense(freqs, rhs, estimate_condition)
+            return self._solve_dense(freqs, rhs, estimate_condition, deadline)
         self._ensure_analysis()
         if self.size < THREADS_FROM:  # never threaded: one chain, no fresh pivot search at each run's start
             chunks = [freqs] if len(freqs) else []
@@ -202,22 +214,29 @@ class MnaSystem:
         threads = 1
         if len(chunks) > 1:  # only from THREADS_FROM unknowns
             threads = min(len(chunks), self.sweep_threads or default_threads())
+        starts = np.cumsum([0] + [len(c) for c in chunks[:-1]]).tolist()
+
+        def run(j: int) -> tuple[np.ndarray, np.ndarray]:
+            return self._sweep(chunks[j], rhs, estimate_condition, deadline.within(starts[j], len(freqs)))
+
         if threads > 1:
-            parts = list(_thread_pool(threads).map(lambda chunk: self._sweep(chunk, rhs, estimate_condition), chunks))
+            parts = list(_thread_pool(threads).map(run, range(len(chunks))))
         else:
-            parts = [self._sweep(chunk, rhs, estimate_condition) for chunk in chunks]
+            parts = [run(j) for j in range(len(chunks))]
         if not parts:
             return np.empty((0, self.size, rhs.shape[1]), dtype=complex), np.empty(0)
         return np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
 
-    def _sweep(self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool) -> tuple[np.ndarray, np.ndarray]:
+    def _sweep(
+        self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool, deadline: Deadline = NO_DEADLINE
+    ) -> tuple[np.ndarray, np.ndarray]:
         """``solve_many``'s sparse path for consecutive frequencies: one chain of refactorizations.
 
         Each frequency costs one factorization, one solve of every column, one sparse product for the
         backward error and, with the estimate, typically one adjoint solve. After a KLU factorization the
         compiled loop (``sweep_kernel``, same steps in C) takes the frequencies that follow for as long as
         they are usual; this loop is the reference, and takes the first frequency of the chain and any
-        frequency the compiled loop hands back. It stays one function, a little over 60 lines, because the
+        frequency the compiled loop hands back. It stays one function, about 70 lines, because the
         compiled loop mirrors it step for step: the two are checked against each other side by side.
         """
         k = rhs.shape[1]
@@ -238,15 +257,24 @@ class MnaSystem:
         compiled = self._compiled_run(k, rhs_sizes)
         freq_list = freqs.tolist()
         i = 0
+        check_at = 0  # the deadline is checked once per run of frequencies, not per frequency
+        run = max(1, min(BUDGET_CHUNK, BUDGET_CHUNK_ENTRIES // max(1, n)))
         while i < len(freq_list):
+            if i >= check_at:
+                deadline.check(i, len(freq_list))
+                check_at = i + run
             numeric = getattr(lu, "numeric", None)
             if compiled is not None and isinstance(numeric, klu_library.Numeric):
                 # The compiled loop takes the frequencies that follow a KLU factorization for as long as they
-                # are usual; the first unusual one (if any) comes back to the loop below, which redoes it.
-                done, peak = compiled.advance(numeric, freqs[i:], rhs, rhs_sizes, columns, peak, xs[i:], conds[i:])
+                # are usual, up to the next deadline check; the first unusual one (if any) comes back to the
+                # loop below, which redoes it.
+                end = min(check_at, len(freq_list))
+                done, peak = compiled.advance(
+                    numeric, freqs[i:end], rhs, rhs_sizes, columns, peak, xs[i:end], conds[i:end]
+                )
                 i += done
-                if i == len(freq_list):
-                    break
+                if i == end:
+                    continue
             f = freq_list[i]
             self._values(f, out=a.data)
             norm_1, norm_inf = self._norms(a, out=sizes)
@@ -289,9 +317,25 @@ class MnaSystem:
         return sweep_kernel.Run(symbolic, self._a0, self._a1, self._entry_columns, k, REFINE_ABOVE, SINGULAR_CONDITION)
 
     def _solve_dense(
+        self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool, deadline: Deadline = NO_DEADLINE
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """The sweep as batched dense solves of at most DENSE_BATCH_ENTRIES matrix entries each (a bound on
+        memory; each matrix's solve is the same whatever the batch), the deadline checked between batches."""
+        batch = max(1, DENSE_BATCH_ENTRIES // max(1, self.size * self.size))
+        if len(freqs) <= batch:
+            return self._solve_dense_batch(freqs, rhs, estimate_condition)
+        xs = np.empty((len(freqs), self.size, rhs.shape[1]), dtype=complex)
+        conds = np.empty(len(freqs))
+        for start in range(0, len(freqs), batch):
+            deadline.check(start, len(freqs))
+            end = start + batch
+            xs[start:end], conds[start:end] = self._solve_dense_batch(freqs[start:end], rhs, estimate_condition)
+        return xs, conds
+
+    def _solve_dense_batch(
         self, freqs: np.ndarray, rhs: np.ndarray, estimate_condition: bool
     ) -> tuple[np.ndarray, np.ndarray]:
-        """The whole sweep as one batched dense solve, with the exact 1-norm condition of each matrix."""
+        """Frequencies as one batched dense solve, with the exact 1-norm condition of each matrix."""
         mats = self.dense_matrices(freqs)
         if not estimate_condition:
             conds = np.full(len(freqs), math.nan)

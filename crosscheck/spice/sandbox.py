@@ -17,12 +17,15 @@ makes would.
 
 from __future__ import annotations
 
+import ctypes
 import importlib
 import math
 import os
 import resource
 import shutil
+import signal
 import sys
+import threading
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from multiprocessing.connection import Connection
@@ -56,6 +59,11 @@ class CaseSolver:
         return function
 
 
+#: How every worker's temporary directory is named (``tempfile.mkdtemp(prefix=...)`` in the parent).
+WORKER_PREFIX = "crosscheck-ngspice-"
+#: Linux ``prctl`` option that sends this process a signal when the thread that started it ends.
+_PR_SET_PDEATHSIG = 1
+
 #: ngspice's own solve: what every pool uses unless its constructor is told otherwise.
 ENGINE_SOLVE = CaseSolver()
 
@@ -88,10 +96,57 @@ def describe_bytes(n: int | None) -> str:
 
 
 def child_entry(argv: Sequence[str]) -> None:
-    """A worker's entry point: serve cases on the socket inherited as file descriptor argv[0]."""
+    """A worker's entry point: serve cases on the socket inherited as file descriptor argv[0].
+
+    argv[1] is the parent's pid and argv[2] this worker's directory (``watch_parent``).
+    """
+    watch_parent(int(argv[1]), argv[2])
     conn = Connection(int(argv[0]))
     settings = conn.recv()
     worker_main(conn, settings)
+
+
+def watch_parent(parent_pid: int, directory: str) -> None:
+    """End this worker, removing its directory, as soon as its parent dies, even by SIGKILL.
+
+    The kernel sends SIGTERM when the parent's thread that started this worker ends (Linux's parent-death
+    signal, ``prctl(PR_SET_PDEATHSIG)``); if the parent died before that was set, this process already has
+    another parent, which ``os.getppid`` shows right after. SIGTERM is blocked in every thread (the worker's
+    command blocks it before any import), so it is taken here by a thread of its own in ``sigwait``, which
+    runs even while the main thread is stuck in ngspice's C code (ctypes and cffi release the GIL), removes
+    the directory and ends the process. Without the parent-death signal (not Linux) the worker still removes
+    its directory when its socket closes (``worker_main``), and a hang there is ended by its CPU limit.
+
+    Why the removal is safe: ``directory`` comes from the parent's command line (``tempfile.mkdtemp`` in
+    ``workers``), never from a case, and it is removed only if it is named like a worker's directory and
+    is the one this process was started in (its ``work`` folder is the current directory).
+    """
+    here = os.path.realpath(os.getcwd())
+    if not os.path.basename(directory).startswith(WORKER_PREFIX) or here != os.path.realpath(
+        os.path.join(directory, "work")
+    ):
+        raise ReferenceEngineError(f"the ngspice worker was started outside its own directory ({here!r}); not starting")
+    owned = directory
+
+    def orphaned() -> None:
+        shutil.rmtree(owned, ignore_errors=True)
+        os._exit(128 + signal.SIGTERM)
+
+    if sys.platform.startswith("linux"):
+        try:
+            libc = ctypes.CDLL(None, use_errno=True)
+            libc.prctl(_PR_SET_PDEATHSIG, int(signal.SIGTERM), 0, 0, 0)
+        except (OSError, AttributeError):
+            pass
+    if os.getppid() != parent_pid:  # the parent died before the signal was set
+        orphaned()
+    if signal.SIGTERM in signal.pthread_sigmask(signal.SIG_BLOCK, ()):
+
+        def wait_for_sigterm() -> None:
+            signal.sigwait({signal.SIGTERM})
+            orphaned()
+
+        threading.Thread(target=wait_for_sigterm, name="crosscheck-orphan-watch", daemon=True).start()
 
 
 def worker_main(conn: Any, settings: Settings) -> None:

@@ -45,20 +45,22 @@ import subprocess
 import sys
 import tempfile
 import threading
+import weakref
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
 from multiprocessing.connection import Connection
 from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
+from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
-from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver, Settings, Task, describe_bytes
+from crosscheck.spice.sandbox import ENGINE_SOLVE, WORKER_PREFIX, CaseSolver, Settings, Task, describe_bytes
 
-DEFAULT_TIMEOUT_S = 60.0
-DEFAULT_MEMORY_BYTES = 2 << 30
+#: The defaults of every case's budget (``model.budget``, defined there once): 60 s wall clock, 2 GiB.
+DEFAULT_TIMEOUT_S = DEFAULT_TIME_S
 _START_TIMEOUT_S = 60.0  # a worker's interpreter, numpy, PySpice and ngspice: ~0.5 s when well
 
 
@@ -70,16 +72,29 @@ class _WorkerLost(CrosscheckError, RuntimeError):
 
 
 #: What a worker runs. ``-c`` rather than ``-m crosscheck.spice.sandbox``, so that module is imported once, by name.
-_CHILD_COMMAND = "import sys; from crosscheck.spice.sandbox import child_entry; child_entry(sys.argv[1:])"
+#: Before any import (numpy starts threads, which inherit the mask) it blocks SIGTERM, so that only the
+#: sandbox's orphan watch receives it (``sandbox.watch_parent``), and ignores SIGINT: a Ctrl-C in a terminal
+#: reaches the whole process group, and the parent, not each worker, decides what an interrupt stops.
+_CHILD_COMMAND = (
+    "import signal, sys; signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGTERM}); "
+    "signal.signal(signal.SIGINT, signal.SIG_IGN); "
+    "from crosscheck.spice.sandbox import child_entry; child_entry(sys.argv[1:])"
+)
 
 
 class _Worker:
     """The parent's handle on one worker process, started in its own empty directory."""
 
-    def __init__(self, settings_for: Any, start_timeout_s: float):
-        self.directory = tempfile.mkdtemp(prefix="crosscheck-ngspice-")
+    def __init__(
+        self,
+        settings_for: Any,
+        start_timeout_s: float,
+        on_process: Callable[[_Worker, bool], None] = lambda w, up: None,
+    ):
+        self.directory = tempfile.mkdtemp(prefix=WORKER_PREFIX)
         self.process: subprocess.Popen | None = None
         self.conn: Connection | None = None
+        self._on_process = on_process
         try:
             self._start(settings_for(self.directory), start_timeout_s)
         except _WorkerLost:
@@ -97,8 +112,10 @@ class _Worker:
         self.conn = Connection(ours.detach())
         try:
             with open(self._log_path, "wb") as log:
+                # The parent's pid and the directory let the worker watch for this process's death and then
+                # remove its own directory (``sandbox.watch_parent``); the path is mkdtemp's, never a case's.
                 self.process = subprocess.Popen(
-                    [sys.executable, "-c", _CHILD_COMMAND, str(theirs.fileno())],
+                    [sys.executable, "-c", _CHILD_COMMAND, str(theirs.fileno()), str(os.getpid()), self.directory],
                     cwd=work,
                     env=_worker_environment(self.directory, settings.library),
                     stdin=subprocess.DEVNULL,
@@ -109,6 +126,7 @@ class _Worker:
                 )
         finally:
             theirs.close()
+        self._on_process(self, True)
         try:
             self.conn.send(settings)
             if not self.conn.poll(start_timeout_s):
@@ -169,6 +187,11 @@ class _Worker:
             pass
         self.kill()
 
+    def terminate_now(self) -> None:
+        """Kill the process only (any thread may call it); the thread serving this worker then cleans up."""
+        if self.process is not None and self.process.poll() is None:
+            self.process.kill()
+
     def kill(self) -> None:
         if self.process is not None and self.process.poll() is None:
             self.process.kill()
@@ -176,6 +199,7 @@ class _Worker:
         if self.conn is not None:
             self.conn.close()
         shutil.rmtree(self.directory, ignore_errors=True)
+        self._on_process(self, False)
 
 
 def _worker_environment(directory: str, library: str | None) -> dict[str, str]:
@@ -202,7 +226,9 @@ class SpicePool:
     Every problem of a case arrives through its future: ``NetworkError`` for an
     ill-posed network, ``ReferenceEngineError`` when ngspice fails, crashes or
     overruns, ``EngineUnavailableError`` when ngspice is not installed. Use it
-    as a context manager; leaving waits for the cases already submitted.
+    as a context manager; leaving normally waits for the cases already submitted,
+    leaving by an exception (a KeyboardInterrupt among them) cancels them
+    (``close(cancel=True)``). ``finished`` and ``cancelled`` count the cases so far.
 
     ``solve``: the function each worker calls per case (``sandbox.CaseSolver``); ngspice's
     ``engine.solve`` unless a test names one of its own.
@@ -224,8 +250,7 @@ class SpicePool:
         count = (os.cpu_count() or 1) if workers is None else int(workers)
         if count < 1:
             raise ValueError(f"workers must be at least 1 (got {workers!r})")
-        if not timeout_s > 0:
-            raise ValueError(f"timeout_s must be a positive number of seconds (got {timeout_s!r})")
+        Budget(timeout_s, memory_bytes)  # the same limits as the own route's: finite seconds > 0, >= 1 MiB
         self.workers = count
         self.timeout_s = float(timeout_s)
         self.strategy = strategy
@@ -243,7 +268,12 @@ class SpicePool:
         self._start_timeout_s = start_timeout_s
         self._queue: queue.SimpleQueue = queue.SimpleQueue()
         self._closed = False
+        self._cancelled = False
+        self._live: set[_Worker] = set()  # workers whose process runs: what a cancel kills
+        self.finished = 0  # cases whose future holds a result or an error
+        self.cancelled = 0  # cases cancelled before a worker started them, or stopped by a cancel
         self._lock = threading.Lock()
+        _ALL_POOLS.add(self)
         self._threads = [
             threading.Thread(target=self._serve, name=f"crosscheck-spice-{i}", daemon=True) for i in range(count)
         ]
@@ -253,8 +283,8 @@ class SpicePool:
     def __enter__(self) -> SpicePool:
         return self
 
-    def __exit__(self, *exc_info: object) -> None:
-        self.close()
+    def __exit__(self, exc_type: object, exc: BaseException | None, tb: object) -> None:
+        self.close(cancel=exc is not None)
 
     def submit(
         self,
@@ -296,10 +326,21 @@ class SpicePool:
             else:
                 raise exc
 
-    def close(self) -> None:
-        """Finish the cases already submitted, then stop every worker."""
+    def close(self, cancel: bool = False) -> None:
+        """Stop every worker: after the cases already submitted, or with ``cancel`` at once.
+
+        A cancel (also what leaving the ``with`` block by an exception does) cancels every queued case's
+        future, kills the workers running a case (their futures get a ``ReferenceEngineError`` saying the
+        run was interrupted), and no worker starts after it. It may follow a close that is still waiting,
+        from another thread or from the same one after a KeyboardInterrupt.
+        """
         with self._lock:
-            if self._closed:
+            if cancel and not self._cancelled:
+                self._cancelled = True
+                self._cancel_queued()
+                for worker in list(self._live):
+                    worker.terminate_now()
+            elif self._closed:
                 return
             self._closed = True
             for _ in self._threads:
@@ -307,6 +348,30 @@ class SpicePool:
         for t in self._threads:
             if t is not threading.current_thread():
                 t.join()
+
+    def _cancel_queued(self) -> None:
+        """Cancel every case still in the queue (the lock is held; the close puts the stop marks back)."""
+        while True:
+            try:
+                item = self._queue.get_nowait()
+            except queue.Empty:
+                return
+            if item is not None and item[0].cancel():
+                self.cancelled += 1
+
+    def _worker_process(self, worker: _Worker, up: bool) -> None:
+        """Note a worker's process as started (killed at once after a cancel) or gone."""
+        with self._lock:
+            if not up:
+                self._live.discard(worker)
+            elif self._cancelled:
+                worker.terminate_now()
+            else:
+                self._live.add(worker)
+
+    def _count(self, field: str) -> None:
+        with self._lock:
+            setattr(self, field, getattr(self, field) + 1)
 
     # One thread per worker: it only waits on pipes; ngspice itself runs in the worker process.
     def _serve(self) -> None:
@@ -319,15 +384,20 @@ class SpicePool:
                 future, task, timeout_s = item
                 if not future.set_running_or_notify_cancel():
                     continue
+                if self._cancelled:  # taken off the queue just before a cancel emptied it
+                    self._count("cancelled")
+                    future.set_exception(_interrupted())
+                    continue
                 try:
                     if worker is None:
-                        worker = _Worker(self._settings_for, self._start_timeout_s)
+                        worker = _Worker(self._settings_for, self._start_timeout_s, self._worker_process)
                     (status, value), retire = worker.call(task, timeout_s)
                 except _WorkerLost as lost:
                     if worker is not None:
                         worker.kill()
                         worker = None
-                    future.set_exception(self._lost(lost, task))
+                    self._count("cancelled" if self._cancelled else "finished")
+                    future.set_exception(_interrupted() if self._cancelled else self._lost(lost, task))
                     continue
                 except BaseException as exc:  # never leave a future unresolved
                     future.set_exception(ReferenceEngineError(f"the ngspice pool failed: {type(exc).__name__}: {exc}"))
@@ -335,6 +405,7 @@ class SpicePool:
                 if retire:
                     worker.stop()
                     worker = None
+                self._count("finished")
                 if status == "ok":
                     future.set_result(value)
                 else:
@@ -357,6 +428,28 @@ class SpicePool:
             "A linear network of this kind takes milliseconds in ngspice: if it is very large, raise the limits; "
             "otherwise report the network."
         )
+
+
+def _interrupted() -> ReferenceEngineError:
+    return ReferenceEngineError("the run was interrupted before ngspice finished this case; nothing was judged")
+
+
+#: Every pool of this process not yet collected, for ``cancel_all``.
+_ALL_POOLS: weakref.WeakSet[SpicePool] = weakref.WeakSet()
+
+
+def cancel_all() -> tuple[int, int]:
+    """Cancel every pool of this process (``close(cancel=True)``); return the cases (finished, cancelled).
+
+    For an interrupt: the command line calls it on KeyboardInterrupt, so that no pool (the shared ones
+    closed only at exit included) waits for its queue or leaves a worker running.
+    """
+    finished = cancelled = 0
+    for pool in list(_ALL_POOLS):
+        pool.close(cancel=True)
+        finished += pool.finished
+        cancelled += pool.cancelled
+    return finished, cancelled
 
 
 _SHARED: SpicePool | None = None
