@@ -18,6 +18,7 @@ from crosscheck.cli_parser import parser
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.baseline import BaselineCorrupt, load_baseline, update_baseline_file
 from crosscheck.judge.result import CaseResult
+from crosscheck.model.budget import Budget, BudgetSettingError, parse_memory
 from crosscheck.model.cases import Case, find_case_files, load_case
 from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.frequencies import checked_frequencies
@@ -25,6 +26,7 @@ from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import render_report, verify_format
+from crosscheck.report.untrusted import terminal_text
 from crosscheck.vocabulary import same_frequency
 
 # Exit codes (documented in the README).
@@ -45,8 +47,11 @@ def main(argv: Sequence[str] | None = None) -> int:
             return _verify(args)
         if args.command == "fuzz":
             return _fuzz(args)
+    except BudgetSettingError as exc:
+        print(f"crosscheck {args.command}: error: {terminal_text(str(exc))}", file=sys.stderr)
+        return EXIT_USAGE
     except (CrosscheckError, _AlreadyReported) as exc:
-        print(f"crosscheck: error: {exc}", file=sys.stderr)
+        print(f"crosscheck: error: {terminal_text(str(exc))}", file=sys.stderr)
         return EXIT_ERROR
     except KeyboardInterrupt as interrupt:
         # Ctrl-C: cancel every ngspice pool at once (queued cases dropped, running workers killed), say how
@@ -70,6 +75,11 @@ def main(argv: Sequence[str] | None = None) -> int:
 def _frequencies(texts: Sequence[str]) -> list[float]:
     """--freq values in the order given (engineering numbers; finite and >= 0)."""
     return list(checked_frequencies((parse_number(t) for t in texts), where="--freq"))
+
+
+def _budget(args: argparse.Namespace) -> Budget:
+    """--timeout and --memory as the time and memory each route may take per case (a usage error if unusable)."""
+    return Budget(time_s=args.timeout, memory_bytes=parse_memory(args.memory))
 
 
 def _tolerance(args: argparse.Namespace) -> Tolerance:
@@ -188,15 +198,25 @@ def _verify(args: argparse.Namespace) -> int:
             file=sys.stderr,
         )
         return EXIT_USAGE
-    baseline = _baseline(args)
+    budget = _budget(args)  # a usable limit, or a usage error before any work
     items = _verify_items(args)
     if _refuse_outputs_that_are_inputs(args, items):
         return EXIT_USAGE
+    baseline = _baseline(args)
     progress, advance = _progress_bar(len(items))
-    with progress, _executor(args.cluster) as executor:
-        results = run_batch(
-            items, executor, workers=args.workers, timeout_s=args.timeout, on_done=advance, baseline=baseline
-        )
+    finished: list[CaseResult] = []
+
+    def done(result: CaseResult) -> None:
+        finished.append(result)
+        advance(result)
+
+    try:
+        with progress, _executor(args.cluster) as executor:
+            results = run_batch(items, executor, workers=args.workers, budget=budget, on_done=done, baseline=baseline)
+    except KeyboardInterrupt as interrupt:  # keep what finished: its reports are written, main says how many
+        _write_reports(args, finished)
+        interrupt.finished = finished  # type: ignore[attr-defined]
+        raise
     written = _write_reports(args, results)
     if args.update_baseline:
         _update_baseline(args, results)

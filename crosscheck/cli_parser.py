@@ -104,11 +104,27 @@ def _verify_parser(sub: Any) -> None:
     )
     verify.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
     verify.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
-    verify.add_argument("--timeout", type=float, default=60.0, help="seconds ngspice may take per case (default 60)")
+    verify.add_argument(
+        "--timeout",
+        type=float,
+        default=60.0,
+        help="seconds each route may take per case (default 60; raise it for large networks)",
+    )
+    verify.add_argument(
+        "--memory",
+        default="2G",
+        metavar="SIZE",
+        help="memory each route may use per case, e.g. 4G (default 2G; raise it for large networks)",
+    )
     verify.add_argument(
         "--allow-outside-paths", action="store_true", help="let case files name netlists outside their own folder"
     )
     verify.add_argument("--detail", action="store_true", help="show every point of every case")
+    _baseline_options(verify)
+    _common_options(verify)
+
+
+def _baseline_options(verify: argparse.ArgumentParser) -> None:
     verify.add_argument(
         "--baseline",
         type=Path,
@@ -133,7 +149,6 @@ def _verify_parser(sub: Any) -> None:
         help="with --update-baseline: when the baseline cannot be read, rewrite it from this run and keep "
         "the unreadable file as FILE.corrupt",
     )
-    _common_options(verify)
 
 
 def _fuzz_parser(sub: Any) -> None:

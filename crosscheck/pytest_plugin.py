@@ -31,6 +31,7 @@ from typing import Any
 import pytest
 
 from crosscheck.errors import CrosscheckError
+from crosscheck.report.untrusted import terminal_text
 
 _CASE_KEYS = ("netlist", "port")
 _LOOKS_LIKE_KEY = {k: re.compile(rf"^\s*{k}\s*=", re.MULTILINE) for k in _CASE_KEYS}
@@ -196,7 +197,7 @@ def failure_text(result: Any, rows: int = 8) -> str:
         if f.why and f.check != "input" and not any(f.why in s for s in said):
             said.append(f.why)
             lines.append(f"     {f.label}: {f.why}")
-    return "\n".join(lines)
+    return terminal_text("\n".join(lines))  # case text is untrusted: no terminal control sequences
 
 
 def _pool(config: pytest.Config) -> Any:

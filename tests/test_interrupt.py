@@ -196,3 +196,36 @@ def test_ctrl_c_stops_a_verify_run_within_two_seconds(tmp_path):
     assert elapsed < 2.0, elapsed
     assert "interrupted" in stderr and "cancelled" in stderr, stderr
     assert _wait_until(lambda: all(_gone(p) for p in workers), 1.0) is not None, workers
+
+
+@pytest.mark.spice
+def test_ctrl_c_keeps_the_cases_that_finished(tmp_path):
+    """After SIGINT, the cases that finished before it are written to --output and counted as kept."""
+    for i in range(2):
+        (tmp_path / f"a_good{i}.cir").write_text("good\nV1 s 0 AC 10\nR1 s a 1k\nR2 a 0 500\n.end\n")
+        (tmp_path / f"a_good{i}.toml").write_text(
+            f'netlist = "a_good{i}.cir"\nport = ["a", "0"]\nfrequencies = ["1k"]\n'
+        )
+    _hanging_cases(tmp_path, 4)
+    report = tmp_path / "out" / "r.json"
+    script = _VERIFY.format(tests=str(TESTS), folder=str(tmp_path)).replace(
+        '"--workers", "2"]', f'"--workers", "2", "--output", {str(report)!r}]'
+    )
+    run = subprocess.Popen([sys.executable, "-c", script], cwd=REPO, stderr=subprocess.PIPE, text=True)
+    try:
+        took = _wait_until(lambda: len([p for p in _descendants(run.pid) if not _gone(p)]) >= 2, 60.0)
+        assert took is not None, "the two workers never started"
+        time.sleep(1.0)  # the good cases are done; the workers hang on the next ones
+        run.send_signal(signal.SIGINT)
+        code = run.wait(timeout=30)
+    finally:
+        if run.poll() is None:
+            run.kill()
+    stderr = run.stderr.read()
+    run.stderr.close()
+    assert code == 130, stderr
+    assert "2 case(s) finished and were kept" in stderr, stderr
+    import json
+
+    kept = json.loads(report.read_text())
+    assert [c["verdict"] for c in kept["cases"]] == ["pass", "pass"]

@@ -9,6 +9,7 @@ from crosscheck.fuzz.generate import Knobs, generate_case
 from crosscheck.fuzz.judging import CaseOutcome, isolate, judge, solve_own, spice_result
 from crosscheck.fuzz.loop import Progress, finish, note_outcome
 from crosscheck.fuzz.summary import FuzzOptions, FuzzSummary
+from crosscheck.model.budget import Budget
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.run.batch import DEFAULT_WINDOW, windowed, worker_count, worker_pool
 
@@ -21,7 +22,7 @@ def fuzz_case(
     The same steps, in the same order, as ``run_fuzz`` takes for one case. Returns the
     ``CaseOutcome`` and the seconds the own solver took.
     """
-    pool = worker_pool(timeout_s)
+    pool = worker_pool(Budget(time_s=timeout_s))
     case = generate_case(seed, knobs)
     future = pool.submit(case.network, case.port, case.freqs_hz)
     started = time.perf_counter()

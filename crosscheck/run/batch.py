@@ -35,10 +35,14 @@ from crosscheck.errors import CrosscheckError, EngineUnavailableError
 from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import with_baseline
 from crosscheck.judge.result import CaseResult, error_result
+from crosscheck.model.budget import DEFAULT_TIME_S, Budget
 from crosscheck.model.cases import Case
 from crosscheck.run.check import ENGINES, run_cases, unexpected
 from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver
 from crosscheck.spice.workers import SpicePool
+
+#: The limits a case gets unless the caller says otherwise: the workers' defaults (``model.budget``).
+DEFAULT_BUDGET = Budget()
 
 #: Tasks kept in flight per executor: enough to keep a cluster busy, bounded so that a million cases
 #: never sit in memory (or in the scheduler) at once.
@@ -48,26 +52,32 @@ _POOLS: dict[CaseSolver, SpicePool] = {}
 _POOL_LOCK = threading.Lock()
 
 
-def worker_pool(timeout_s: float = 60.0, solve: CaseSolver = ENGINE_SOLVE) -> SpicePool:
+def worker_pool(budget: Budget = DEFAULT_BUDGET, solve: CaseSolver = ENGINE_SOLVE) -> SpicePool:
     """This process's own one-worker ``SpicePool`` for ``solve``, kept alive between tasks (started on first use)."""
     with _POOL_LOCK:
         pool = _POOLS.get(solve)
         if pool is None:
-            pool = _POOLS[solve] = SpicePool(workers=1, timeout_s=timeout_s, solve=solve)
+            pool = _POOLS[solve] = _pool(1, budget, solve)
             atexit.register(pool.close)
         return pool
 
 
+def _pool(workers: int | None, budget: Budget, solve: CaseSolver) -> SpicePool:
+    """An ngspice pool held to the budget (its time limit defaults to the budget's when the budget has none)."""
+    time_s = budget.time_s if budget.time_s is not None else DEFAULT_TIME_S
+    return SpicePool(workers=workers, timeout_s=time_s, memory_bytes=budget.memory_bytes, solve=solve)
+
+
 def check_case(
-    item: Case, engine: str = "both", timeout_s: float = 60.0, solve: CaseSolver = ENGINE_SOLVE
+    item: Case, engine: str = "both", budget: Budget = DEFAULT_BUDGET, solve: CaseSolver = ENGINE_SOLVE
 ) -> CaseResult:
     """The whole check of one case in this process: the task that executors run.
 
     ngspice runs in this process's ``worker_pool``; a baseline, if any, is applied by the caller.
     ``solve``: the function the ngspice worker calls per case (a test seam; ngspice's own by default).
     """
-    pool = worker_pool(timeout_s, solve) if engine in ("spice", "both") else None
-    result = run_cases([item], engine=engine, pool=pool)[0]
+    pool = worker_pool(budget, solve) if engine in ("spice", "both") else None
+    result = run_cases([item], engine=engine, pool=pool, budget=budget)[0]
     return _travel_light(result)
 
 
@@ -85,7 +95,7 @@ def run_batch(
     *,
     engine: str = "both",
     workers: int | None = None,
-    timeout_s: float = 60.0,
+    budget: Budget = DEFAULT_BUDGET,
     baseline: Baseline | None = None,
     solve: CaseSolver = ENGINE_SOLVE,
     on_done: Callable[[CaseResult], None] | None = None,
@@ -98,19 +108,20 @@ def run_batch(
     default: the own solver here and ngspice in ``workers`` sandboxed processes (default: all cores).
     An item may be ``(name, error)`` for a case file that could not be read: it becomes an ``error``
     result here, without a task. ``baseline`` (``baseline.Baseline``) is held against each result here,
-    after its task, so it is never shipped to the workers.
+    after its task, so it is never shipped to the workers. ``budget``: the time and memory each route
+    may take per case (ngspice's workers and the own route alike).
     """
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {ENGINES} (got {engine!r})")
     if executor is None:
         if engine == "own":
-            return run_cases(cases, engine=engine, on_done=on_done, baseline=baseline)
-        with SpicePool(workers=workers, timeout_s=timeout_s, solve=solve) as pool:
-            return run_cases(cases, engine=engine, pool=pool, on_done=on_done, baseline=baseline)
+            return run_cases(cases, engine=engine, on_done=on_done, baseline=baseline, budget=budget)
+        with _pool(workers, budget, solve) as pool:
+            return run_cases(cases, engine=engine, pool=pool, on_done=on_done, baseline=baseline, budget=budget)
 
     results: list[CaseResult] = []
     for item, future in windowed(
-        executor, check_case, cases, (engine, timeout_s, solve), window, skip=lambda x: isinstance(x, tuple)
+        executor, check_case, cases, (engine, budget, solve), window, skip=lambda x: isinstance(x, tuple)
     ):
         if future is None:  # a case file that could not be read
             result = run_cases([item], engine="own")[0]

@@ -21,6 +21,7 @@ from crosscheck.errors import CrosscheckError, EngineUnavailableError
 from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import judged
 from crosscheck.judge.result import CaseResult, error_result
+from crosscheck.model.budget import Budget
 from crosscheck.model.cases import Case
 from crosscheck.model.frequencies import frequency_list
 from crosscheck.model.netlist import read_netlist
@@ -50,12 +51,14 @@ def run_cases(
     pool: SpicePool | None = None,
     on_done: Callable[[CaseResult], None] | None = None,
     baseline: Baseline | None = None,
+    budget: Budget | None = None,
 ) -> list[CaseResult]:
     """Own solver now, ngspice in the pool in parallel; results in the order given.
 
     An item may be ``(name, error)`` for a case file that could not be read: it becomes an
     ``error`` result and the rest go on. With a ``baseline`` each case's own equivalents are also
-    held against the stored ones, and moving beyond tolerance is ``drift``.
+    held against the stored ones, and moving beyond tolerance is ``drift``. ``budget`` bounds the own
+    route's time and memory per case (None: no limit; the pool holds ngspice to its own limits).
     """
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {ENGINES} (got {engine!r})")
@@ -80,7 +83,7 @@ def run_cases(
     out: list[CaseResult] = []
     for head, parsed, future in staged:
         try:
-            result = head if parsed is None else _finish(head, parsed, future, engine, baseline)
+            result = head if parsed is None else _finish(head, parsed, future, engine, baseline, budget)
         except Exception as exc:  # a bug met on this input: this case's error, never the run's end
             result = error_result(head.name, unexpected(head.name, "checking the case", exc), head.case)
         if on_done is not None:
@@ -132,14 +135,19 @@ def quiet_numpy() -> Iterator[list[str]]:
 
 
 def _finish(
-    head: CaseResult, network: Network, future: Future | None, engine: str, baseline: Baseline | None
+    head: CaseResult,
+    network: Network,
+    future: Future | None,
+    engine: str,
+    baseline: Baseline | None,
+    budget: Budget | None = None,
 ) -> CaseResult:
     """Both routes' answers for one case, then its judgement."""
     started = time.perf_counter()
     own, error = None, None
     try:
         with quiet_numpy() as caught:
-            own = tuple(thevenin(network, Port(*head.port), head.freqs_hz))
+            own = tuple(thevenin(network, Port(*head.port), head.freqs_hz, budget=budget))
     except CrosscheckError as exc:
         error = f"own solver: {exc}"
     except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
