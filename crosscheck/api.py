@@ -16,7 +16,9 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.model.cases import Case, load_case
 from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
+from crosscheck.own.equivalent import Equivalent
 from crosscheck.run.check import ENGINES, case_from_netlist, run_cases
+from crosscheck.spice.engine import SpicePoint
 from crosscheck.spice.workers import SpicePool
 
 if TYPE_CHECKING:  # pandas is loaded only when a frame is asked for
@@ -37,6 +39,7 @@ def reduce_netlist(
 
     ``netlist`` is the netlist's text when it is a ``str``, and a file when it is a path (``pathlib.Path``).
     The result's ``own`` holds the equivalents point by point; ``verdict`` says how the routes agreed.
+    ngspice's own answers are in ``spice``; ``spice_equivalents(result)`` gives them as equivalents.
     """
     if isinstance(netlist, str):
         name, text = "<string>", netlist
@@ -69,6 +72,23 @@ def run_case_objects(
         return run_cases(items, engine="own")
     with SpicePool(workers=workers) as pool:
         return run_cases(items, engine=engine, pool=pool)
+
+
+def spice_equivalents(result: CaseResult) -> tuple[Equivalent, ...] | None:
+    """ngspice's answers of a result as equivalents (what ``engine="spice"`` shows), None when ngspice gave none.
+
+    ngspice reports no matrix condition, so ``condition`` is NaN; Y_N is 1/Z_th where Z_th is finite
+    and not 0; a point's notes say why a quantity is missing.
+    """
+    if result.spice is None:
+        return None
+    return tuple(_spice_equivalent(p) for p in result.spice.points)
+
+
+def _spice_equivalent(point: SpicePoint) -> Equivalent:
+    zth = point.zth
+    yn = 1 / zth if zth is not None and zth != 0 and abs(zth) < float("inf") else None
+    return Equivalent(point.requested_hz, point.vth, zth, point.isc, yn, float("nan"), "; ".join(point.notes))
 
 
 def results_frame(results: Sequence[CaseResult]) -> pd.DataFrame:

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import io
 import json
 import shlex
 import sys
@@ -25,7 +24,8 @@ from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
-from crosscheck.report.outputs import render_report, verify_format
+from crosscheck.report.outputs import unknown_extensions, verify_format, write_reports
+from crosscheck.report.results_text import report_console
 from crosscheck.report.untrusted import terminal_text
 from crosscheck.vocabulary import same_frequency
 
@@ -129,6 +129,7 @@ def _reduce(args: argparse.Namespace) -> int:
     )
 
     freqs = _frequencies(args.freq)
+    sources = args.sources or "peak"
     try:
         expectations = _expectations(args, freqs)
     except _UsageError as exc:
@@ -142,7 +143,7 @@ def _reduce(args: argparse.Namespace) -> int:
         freqs,
         _tolerance(args),
         args.allow_negative,
-        args.sources,
+        sources,
     )
     case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
     if args.engine == "own":
@@ -151,16 +152,53 @@ def _reduce(args: argparse.Namespace) -> int:
         from crosscheck.spice.workers import SpicePool  # start-up time: loaded only by the commands that use it
 
         with SpicePool(workers=1) as pool:
-            [result] = run_cases([case], engine="both", pool=pool)
+            [result] = run_cases([case], engine=args.engine, pool=pool)
+    if args.engine == "spice":
+        return _spice_alone(args, result, sources, bool(expectations))
     if result.error and result.own is None:
         raise _AlreadyReported(result.error)
     compared = args.engine != "own"
     if args.format == "json":
-        doc = reduction_document(result, compared, args.sources, str(args.netlist), bool(expectations))
+        doc = reduction_document(result, compared, sources, str(args.netlist), bool(expectations))
         json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
         print()
     else:
-        print_reduction(Console(), result, compared, args.sources, bool(expectations))
+        print_reduction(report_console(), result, compared, sources, bool(expectations))
+    return exit_code([result.verdict])
+
+
+def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, expectations: bool) -> int:
+    """`reduce --engine spice`: ngspice's equivalents alone (any --expect values held against them), nothing
+    compared; exit 4 when ngspice was unavailable, 3 when it failed on the netlist."""
+    from crosscheck.api import spice_equivalents  # start-up time: loaded only by the commands that use it
+    from crosscheck.judge.case import judged  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.reduction import (  # start-up time: loaded only by the commands that use it
+        print_reduction,
+        reduction_document,
+    )
+
+    points = spice_equivalents(result)
+    if points is None:
+        if result.error and not result.error.startswith("own solver:"):  # the own route's trouble is not asked about
+            raise _AlreadyReported(result.error)
+        why = result.spice_note or "ngspice was not run"
+        print(f"crosscheck reduce: ngspice gave no equivalents: {terminal_text(why)}", file=sys.stderr)
+        return EXIT_UNAVAILABLE
+    result = judged(replace(result, own=points, points=(), error=None), None, compare=False)
+    version = result.spice.ngspice_version if result.spice is not None else ""
+    if args.format == "json":
+        doc = reduction_document(result, False, sources, str(args.netlist), expectations)
+        doc.update(engine="ngspice", ngspice_version=version)
+        for point in doc["points"]:
+            point["ngspice"] = dict(point.pop("own"), condition=None)  # ngspice reports no matrix condition
+        json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
+        print()
+    else:
+        console = report_console()
+        console.print(
+            f"Equivalents from ngspice alone ({terminal_text(version)}); not compared with crosscheck's solver."
+        )
+        print_reduction(console, result, False, sources, expectations)
     return exit_code([result.verdict])
 
 
@@ -202,6 +240,11 @@ def _verify(args: argparse.Namespace) -> int:
     items = _verify_items(args)
     if _refuse_outputs_that_are_inputs(args, items):
         return EXIT_USAGE
+    wrong = unknown_extensions(args.format, args.output or ())
+    for problem in wrong:
+        print(f"crosscheck verify: error: {terminal_text(problem)}", file=sys.stderr)
+    if wrong:
+        return EXIT_USAGE
     baseline = _baseline(args)
     progress, advance = _progress_bar(len(items))
     finished: list[CaseResult] = []
@@ -228,11 +271,13 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
     from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
 
     items: list[Case | tuple[str, CrosscheckError]] = []
+    netlists = 0
     for path in find_case_files(list(args.paths)):
         try:
             if path.suffix.lower() == ".toml" or path.is_dir():  # a folder here is one that could not be searched
-                items.append(load_case(path, allow_outside=args.allow_outside_paths))
+                items.append(_overridden(load_case(path, allow_outside=args.allow_outside_paths), args))
                 continue
+            netlists += 1
             if not args.port or not args.freq:
                 raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
             items.append(
@@ -243,14 +288,38 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
                     _frequencies(args.freq),
                     _tolerance(args),
                     args.allow_negative,
-                    args.sources,
+                    args.sources or "peak",
                 )
             )
         except CrosscheckError as exc:
             items.append((str(path), exc))
     if not items:
         raise CrosscheckError(f"no case files (*.toml) found under {', '.join(map(str, args.paths))}")
+    unused = [
+        o
+        for o, given in (("--port", args.port), ("--freq", args.freq), ("--allow-negative", args.allow_negative))
+        if given
+    ]
+    if unused and not netlists:
+        print(
+            f"crosscheck verify: note: {', '.join(unused)} appl{'y' if len(unused) > 1 else 'ies'} only to netlists "
+            "named directly; the case files use their own port, frequencies and allow_negative",
+            file=sys.stderr,
+        )
     return items
+
+
+def _overridden(case: Case, args: argparse.Namespace) -> Case:
+    """A case file's case with --rel and --sources from the command line in place of its own (when given)."""
+    tolerance = case.tolerance if args.rel is None else replace(case.tolerance, rel=args.rel)
+    return replace(case, tolerance=tolerance, sources=args.sources or case.sources)
+
+
+def override_header(args: argparse.Namespace) -> str:
+    """The report's first line when --rel or --sources overrode the case files' own settings, else ""."""
+    given = [f"rel = {args.rel:g} (solver vs SPICE)"] if args.rel is not None else []
+    given += [f"sources = {args.sources.upper()}"] if args.sources else []
+    return f"Command line overrides every case file: {', '.join(given)}." if given else ""
 
 
 def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
@@ -271,59 +340,11 @@ def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
 
 
 def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> bool:
-    """Each --output in the format its extension names (standard output without one), then the summary.
-
-    Each output is written on its own: one that fails (a missing folder that cannot be made, a
-    folder as the path, a full disk) does not stop the others, and the terminal summary still
-    prints, so no result is lost; the failures are then reported on stderr. Returns True when
-    every output was written.
-    """
-    from crosscheck.report.results_text import print_results  # start-up time: loaded only by the commands that use it
-
-    outputs = args.output or [None]
-    failed: list[tuple[Path | None, OSError]] = []
-    for output in outputs:
-        fmt = verify_format(args.format, output)
-        try:
-            if fmt != "text":
-                _emit(render_report(fmt, results), output)
-            elif output is None:
-                print_results(Console(), results, detail=args.detail)
-            else:
-                buffer = io.StringIO()
-                print_results(Console(file=buffer, width=160), results, detail=args.detail)
-                _emit(buffer.getvalue(), output)
-        except OSError as exc:
-            failed.append((output, exc))
-    args.format = verify_format(args.format, outputs[0])
-    if args.output:
-        # The reports went to files: the terminal still gets the summary and where to look.
-        print_results(Console(), results, detail=False)
-        written = [str(o) for o in outputs if all(o is not f for f, _ in failed)]
-        if written:
-            print(f"report{'s' if len(written) > 1 else ''} written to {', '.join(written)}")
-    if any(output is None for output, _ in failed):
-        print_results(Console(stderr=True), results, detail=False)  # standard output failed: the summary on stderr
-    for output, problem in failed:
-        print(_write_failure(output, problem), file=sys.stderr)
-    return not failed
-
-
-def _write_failure(output: Path | None, exc: OSError) -> str:
-    """What could not be written, why, and what to do (the path shown with control characters made visible)."""
-    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
-
-    reason = terminal_text(exc.strerror or str(exc) or type(exc).__name__)
-    if output is None:
-        return (
-            f"crosscheck verify: error: could not write the report to standard output: {reason}. The summary "
-            "is above on stderr; write the report to a file with --output FILE and run again."
-        )
-    return (
-        f"crosscheck verify: error: could not write the report {terminal_text(output)}: {reason}. The run's "
-        "results are in the summary above and in any other report written; give --output a file path in a "
-        "folder that exists or can be made and is writable (not a folder itself), then run again."
-    )
+    """Every --output (standard output without one) and the terminal summary; True when all were written.
+    ``args.format`` becomes the first output's format (``_update_baseline`` reads it)."""
+    written = write_reports(args.output or [None], args.format, results, args.detail, override_header(args))
+    args.format = verify_format(args.format, (args.output or [None])[0])
+    return written
 
 
 def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Case | tuple[str, object]]) -> bool:
@@ -411,20 +432,6 @@ def _update_baseline(args: argparse.Namespace, results) -> None:
     print("\n".join(report.lines(args.baseline)), file=out)
 
 
-def _emit(text: str, output: Path | None) -> None:
-    """The report text to standard output, or to ``output`` (its missing folders made); an OSError is the caller's.
-
-    ``output`` comes from the command line, never from a case file, and ``_verify`` has already
-    refused one that names an input of the run.
-    """
-    if output is None:
-        sys.stdout.write(text)
-        sys.stdout.flush()
-    else:
-        output.parent.mkdir(parents=True, exist_ok=True)
-        output.write_text(text, encoding="utf-8")
-
-
 def _fuzz(args: argparse.Namespace) -> int:
     """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
     from crosscheck.fuzz.generate import Knobs  # start-up time: loaded only by the commands that use it
@@ -460,7 +467,7 @@ def _fuzz(args: argparse.Namespace) -> int:
         json.dump(summary_document(summary), sys.stdout, indent=2, ensure_ascii=False)
         print()
     else:
-        print_summary(Console(), summary)
+        print_summary(report_console(), summary)
     return exit_code(summary.verdicts())
 
 

@@ -3,11 +3,21 @@
 from __future__ import annotations
 
 import argparse
+import math
+import sys
 from pathlib import Path
 from typing import Any
 
+from crosscheck.errors import CrosscheckError
+from crosscheck.model.frequencies import checked_frequency
+from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import VERIFY_FORMATS
 from crosscheck.version import __version__
+
+#: The smallest --rel that means anything: machine epsilon, the spacing of doubles near 1. Below it (0
+#: included) the comparison would drop its round-off floor and blame the last bit of any answer on
+#: ill-conditioning, which contradicts the documented pass rule; so those values are refused.
+SMALLEST_REL = sys.float_info.epsilon
 
 CLUSTER_HELP = (
     "run every case as a task on the Dask cluster whose scheduler is at ADDRESS (tcp://host:port); "
@@ -40,6 +50,7 @@ def _reduce_parser(sub: Any) -> None:
         "--freq",
         nargs="+",
         required=True,
+        type=_frequency_option,
         metavar="F",
         help="frequencies in Hz, engineering notation allowed (50 1k 10.7meg; 0 is DC)",
     )
@@ -48,7 +59,8 @@ def _reduce_parser(sub: Any) -> None:
         "--engine",
         choices=("own", "spice", "both"),
         default="both",
-        help="own: crosscheck's solver only; spice: compare with ngspice too (same as both)",
+        help="own: crosscheck's solver only; spice: ngspice only (its equivalents, nothing compared); "
+        "both (default): both, compared",
     )
     reduce.add_argument(
         "--expect",
@@ -61,7 +73,7 @@ def _reduce_parser(sub: Any) -> None:
     )
     reduce.add_argument(
         "--expect-rel",
-        type=float,
+        type=_expect_rel_option,
         default=None,
         metavar="REL",
         help="magnitude tolerance of --expect values (default 0.01: three significant figures)",
@@ -87,7 +99,9 @@ def _verify_parser(sub: Any) -> None:
         help="case files (*.toml), folders searched for them, or netlists (with --port and --freq)",
     )
     verify.add_argument("--port", nargs=2, metavar=("A", "B"), help="port for netlists named directly")
-    verify.add_argument("--freq", nargs="+", metavar="F", help="frequencies for netlists named directly")
+    verify.add_argument(
+        "--freq", nargs="+", type=_frequency_option, metavar="F", help="frequencies for netlists named directly"
+    )
     verify.add_argument(
         "--format",
         choices=VERIFY_FORMATS,
@@ -100,13 +114,16 @@ def _verify_parser(sub: Any) -> None:
         type=Path,
         action="append",
         help="write the report to this file instead of standard output; repeat it for several "
-        "formats from one run (each file's extension names its format)",
+        "formats from one run (each file's extension names its format: .json .xml .csv .html .htm .md "
+        ".markdown .txt; without --format any other extension is refused, none at all is text)",
     )
-    verify.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
+    verify.add_argument(
+        "--workers", type=_count_option, default=None, help="ngspice worker processes (default: all cores)"
+    )
     verify.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
     verify.add_argument(
         "--timeout",
-        type=float,
+        type=float,  # checked with --memory right after parsing, by the budget (model/budget.py)
         default=60.0,
         help="seconds each route may take per case (default 60; raise it for large networks)",
     )
@@ -127,7 +144,7 @@ def _verify_parser(sub: Any) -> None:
 def _baseline_options(verify: argparse.ArgumentParser) -> None:
     verify.add_argument(
         "--baseline",
-        type=Path,
+        type=_baseline_option,
         metavar="FILE",
         help="compare the own solver's equivalents with this stored baseline; a change beyond "
         "numerical noise is 'drift' (exit code 5)",
@@ -159,18 +176,20 @@ def _fuzz_parser(sub: Any) -> None:
     )
 
     fuzz = sub.add_parser("fuzz", help="random networks through both engines; shrinks what disagrees")
-    fuzz.add_argument("--count", type=int, default=100, metavar="N", help="how many networks (default 100)")
-    fuzz.add_argument("--seed", type=int, default=0, metavar="S", help="run seed; case i gets seed S*1000003+i")
+    fuzz.add_argument("--count", type=_count_option, default=100, metavar="N", help="how many networks (default 100)")
+    fuzz.add_argument(
+        "--seed", type=_seed_option, default=0, metavar="S", help="run seed; case i gets seed S*1000003+i"
+    )
     fuzz.add_argument(
         "--case-seed",
-        type=int,
+        type=_seed_option,
         nargs="+",
         metavar="SEED",
         help="run only these case seeds (printed with every failure) instead of --count/--seed",
     )
     fuzz.add_argument(
         "--nodes",
-        type=int,
+        type=_count_option,
         nargs=2,
         default=(2, 8),
         metavar=("MIN", "MAX"),
@@ -188,7 +207,9 @@ def _fuzz_parser(sub: Any) -> None:
         metavar="LETTERS",
         help=f"element kinds to draw from (default {ALL_KINDS}; F and H bring 0 V sensing sources)",
     )
-    fuzz.add_argument("--workers", type=int, default=None, help="ngspice worker processes (default: all cores)")
+    fuzz.add_argument(
+        "--workers", type=_count_option, default=None, help="ngspice worker processes (default: all cores)"
+    )
     fuzz.add_argument("--cluster", metavar="ADDRESS", help=CLUSTER_HELP)
     fuzz.add_argument(
         "--out",
@@ -205,10 +226,16 @@ def _common_options(p: argparse.ArgumentParser) -> None:
     p.add_argument(
         "--sources",
         choices=("peak", "rms"),
-        default="peak",
-        help="how the netlist's AC magnitudes are meant (labels the output; default peak)",
+        default=None,
+        help="how the netlist's AC magnitudes are meant (labels the output; default peak); with verify it "
+        "overrides the case files' own 'sources' (the report header says so)",
     )
-    p.add_argument("--rel", type=float, default=None, help="relative tolerance, solver vs SPICE (default 1e-6)")
+    p.add_argument(
+        "--rel",
+        type=_rel_option,
+        default=None,
+        help=f"relative tolerance, solver vs SPICE (default 1e-6; from {SMALLEST_REL:.3g}, machine epsilon, to 1)",
+    )
 
 
 def _phase_option(text: str) -> float | str:
@@ -222,3 +249,74 @@ def _phase_option(text: str) -> float | str:
     if not 0 <= value <= 180:
         raise argparse.ArgumentTypeError(f"{text!r} must be between 0 and 180 degrees")
     return value
+
+
+def _finite(text: str, what: str) -> float:
+    """``text`` as a finite float, or an argparse error naming the value and what to write."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number; write {what}") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number; write {what}")
+    return value
+
+
+def _rel_option(text: str) -> float:
+    """--rel: a relative tolerance from machine epsilon to 1 (see ``SMALLEST_REL`` for why not 0)."""
+    what = f"a relative tolerance from {SMALLEST_REL:.3g} (machine epsilon, the smallest meaningful) to 1, e.g. 1e-6"
+    value = _finite(text, what)
+    if not SMALLEST_REL <= value <= 1:
+        raise argparse.ArgumentTypeError(f"{text!r} is out of range; write {what}")
+    return value
+
+
+def _expect_rel_option(text: str) -> float:
+    """--expect-rel: a relative tolerance above 0 and at most 1 for hand-calculated values."""
+    what = "a relative tolerance above 0 and at most 1, e.g. 0.01 (three significant figures)"
+    value = _finite(text, what)
+    if not 0 < value <= 1:
+        raise argparse.ArgumentTypeError(f"{text!r} is out of range; write {what}")
+    return value
+
+
+def _whole(text: str, what: str) -> int:
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; write {what}") from None
+
+
+def _count_option(text: str) -> int:
+    """--workers, --count, --nodes: a whole number of at least 1."""
+    value = _whole(text, "a whole number of at least 1, e.g. 4")
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{text!r} must be at least 1; write a whole number of at least 1, e.g. 4")
+    return value
+
+
+def _seed_option(text: str) -> int:
+    """--seed, --case-seed: a whole number >= 0 (the random generator takes no negative seeds)."""
+    value = _whole(text, "a whole number >= 0, e.g. 0 or 12345")
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{text!r} is negative; write a whole number >= 0, e.g. 0 or 12345")
+    return value
+
+
+def _frequency_option(text: str) -> str:
+    """--freq: checked here (a finite frequency >= 0 in engineering notation), kept as written."""
+    try:
+        checked_frequency(parse_number(text), where="--freq")
+    except CrosscheckError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+    return text
+
+
+def _baseline_option(text: str) -> Path:
+    """--baseline: a file path, not a folder (a folder cannot be read or written as a baseline)."""
+    path = Path(text)
+    if path.is_dir():
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is a folder; name the baseline's JSON file, e.g. {text}/baseline.json"
+        )
+    return path

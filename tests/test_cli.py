@@ -97,9 +97,13 @@ def test_reduce_missing_file(tmp_path, capsys):
     assert "none.cir" in capsys.readouterr().err
 
 
-def test_bad_frequency_is_an_input_error(rc, capsys):
-    assert main(["reduce", str(rc), "--port", "out", "0", "--freq", "-5", "--engine", "own"]) == EXIT_ERROR
-    assert "-5" in capsys.readouterr().err
+def test_bad_frequency_is_a_usage_error(rc, capsys):
+    """A negative --freq is a command-line value that cannot be used: exit 2, naming --freq and the value."""
+    with pytest.raises(SystemExit) as info:
+        main(["reduce", str(rc), "--port", "out", "0", "--freq", "-5", "--engine", "own"])
+    assert info.value.code == 2
+    err = capsys.readouterr().err
+    assert "--freq" in err and "-5" in err
 
 
 def test_usage_error_exits_2(capsys):

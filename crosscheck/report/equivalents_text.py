@@ -6,6 +6,7 @@ shown as text, markup escaped.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
 from rich.console import Console
@@ -35,13 +36,18 @@ def _cell(z: complex | None, unit: str, polar: bool) -> str:
     return format_polar(z, 4, unit) if polar else format_rect(z, 4, unit.strip())
 
 
+def _condition(kappa: float) -> str:
+    """The matrix condition number, or — when the engine does not report one (ngspice)."""
+    return "—" if math.isnan(kappa) else f"{kappa:.1g}"
+
+
 def equivalents_table(title: str, port: tuple[str, str], points: Sequence[Equivalent], wide: bool = False) -> Table:
     """One row per frequency; the parallel (Norton admittance) form only on wide terminals."""
     where = f"{markup_text(title)}\nport {markup_text(port[0])} → {markup_text(port[1])}"
     table = Table(title=where, title_justify="left", show_lines=False)
     headers = ["f", "V_th", "Z_th", "Z_th as R + L or C", "I_N"] + (["Y_N as G ‖ C or L"] if wide else []) + ["cond"]
     for header in headers:
-        table.add_column(header, justify="right" if header in ("f", "cond") else "left", no_wrap=True)
+        table.add_column(header, justify="right" if header in ("f", "cond") else "left", no_wrap=True, overflow="fold")
     for eq in points:
         row = [
             format_eng(eq.freq_hz, 4, " Hz"),
@@ -52,7 +58,7 @@ def equivalents_table(title: str, port: tuple[str, str], points: Sequence[Equiva
         ]
         if wide:
             row.append(_form(eq.parallel_form(), series=False))
-        table.add_row(*row, f"{eq.condition:.1g}")
+        table.add_row(*row, _condition(eq.condition))
     return table
 
 
@@ -61,7 +67,7 @@ def equivalents_blocks(console: Console, title: str, port: tuple[str, str], poin
     console.print(f"[bold]{markup_text(title)}[/]\nport {markup_text(port[0])} → {markup_text(port[1])}")
     for eq in points:
         console.print(
-            f"\n[bold]f = {format_eng(eq.freq_hz, 6, ' Hz')}[/]   [dim](matrix condition {eq.condition:.1g})[/]"
+            f"\n[bold]f = {format_eng(eq.freq_hz, 6, ' Hz')}[/]   [dim](matrix condition {_condition(eq.condition)})[/]"
         )
         series = eq.series_form()
         parallel = eq.parallel_form()

@@ -17,6 +17,7 @@ from rich.text import Text
 from crosscheck.fuzz.faults import FAULTS
 from crosscheck.fuzz.reproducer import regenerate_command
 from crosscheck.fuzz.summary import FuzzSummary
+from crosscheck.report.results_text import whole_words
 from crosscheck.report.untrusted import markup_text as escape
 from crosscheck.vocabulary import COMPARED
 
@@ -79,7 +80,9 @@ def _error_table(s: FuzzSummary) -> Table:
     """Percentiles of the judged error per compared quantity, and where the worst one was."""
     table = Table(title="judged error |Δ| / max(|ref|, roundoff floor) per compared value", title_justify="left")
     for h in ("quantity", "compared", "p50", "p90", "p99", "p99.9", "max", "worst at (case seed, f)"):
-        table.add_column(h, justify="left" if h in ("quantity", "worst at (case seed, f)") else "right")
+        table.add_column(
+            h, justify="left" if h in ("quantity", "worst at (case seed, f)") else "right", overflow="fold"
+        )
     for q in COMPARED:
         p = s.percentiles(q)
         worst = s.worst.get(q)
@@ -99,7 +102,7 @@ def _print_problems(console: Console, s: FuzzSummary) -> None:
         for h in ("case seed", "family", "status", "why"):
             t.add_column(h, overflow="fold")
         for o in s.problems:
-            t.add_row(str(o.case.seed), o.case.family, o.status, escape(o.reason[:400]))
+            t.add_row(str(o.case.seed), o.case.family, o.status, escape(whole_words(o.reason, 400)))
         console.print(t)
         console.print("Seeds of the failures: " + " ".join(str(o.case.seed) for o in s.problems))
         console.print(f"Rerun one alone: {regenerate_command(s.problems[0].case.seed, s.options.knobs)}")
@@ -113,7 +116,7 @@ def _print_problems(console: Console, s: FuzzSummary) -> None:
     if s.explained_cases:
         console.print(f"[dim]Explained ({len(s.explained_cases)}; first {min(_SHOWN, len(s.explained_cases))}):[/]")
         for o in s.explained_cases[:_SHOWN]:
-            console.print(f"[dim]  {o.case.seed} {o.status}: {escape(o.reason[:240])}[/]")
+            console.print(f"[dim]  {o.case.seed} {o.status}: {escape(whole_words(o.reason, 240))}[/]")
 
 
 class _Rate(ProgressColumn):

@@ -7,7 +7,9 @@ Every user string (title, file and node names, explanations, errors) reaches ric
 from __future__ import annotations
 
 import math
+import os
 from collections.abc import Sequence
+from typing import IO
 
 from rich.console import Console
 from rich.table import Table
@@ -20,6 +22,32 @@ from crosscheck.report.caution import CAUTION
 from crosscheck.report.results_json import ngspice_version, summary
 from crosscheck.report.untrusted import markup_text as escape
 from crosscheck.vocabulary import quantity_unit
+
+#: Width of report text written to a file or a pipe (a CI log, the main place it is read) when the
+#: ``COLUMNS`` environment variable does not give one: wide enough that case paths, table headers and
+#: explanations print whole instead of being cut or folded at a terminal's 80 columns.
+PIPE_WIDTH = 200
+
+
+def pipe_width() -> int:
+    """``COLUMNS`` when it is a whole number above 0, else ``PIPE_WIDTH``."""
+    text = os.environ.get("COLUMNS", "").strip()
+    return int(text) if text.isdigit() and int(text) > 0 else PIPE_WIDTH
+
+
+def report_console(*, stderr: bool = False, file: IO[str] | None = None) -> Console:
+    """A console for report text: a terminal's own width; anywhere else ``pipe_width()`` columns."""
+    console = Console(stderr=stderr, file=file)
+    return console if console.is_terminal else Console(stderr=stderr, file=file, width=pipe_width())
+
+
+def whole_words(text: str, limit: int) -> str:
+    """``text`` up to ``limit`` characters, shortened only at a space (never mid-word) and marked with …."""
+    if len(text) <= limit:
+        return text
+    cut = text.rfind(" ", 0, limit)
+    return text[: cut if cut > 0 else limit].rstrip() + " …"
+
 
 STYLE = {"pass": "green", "fail": "bold red", "error": "bold magenta", "unavailable": "yellow", "drift": "bold yellow"}
 
@@ -43,15 +71,11 @@ def comparison_table(result: CaseResult) -> Table:
         title_justify="left",
     )
     for h in ("f", "qty", "crosscheck", "ngspice", "err", "verdict"):
-        # On a narrow terminal (80 columns, a CI log) the long phasors fold; the frequency, quantity, error
-        # and verdict always show whole (rich otherwise squeezed the frequency column to nothing).
+        # On a narrow terminal the long phasors fold at their spaces; the frequency, quantity, error and
+        # verdict keep their width (rich otherwise squeezed the frequency column to nothing), and fold
+        # rather than lose characters to "…" if even they cannot fit.
         folds = h in ("crosscheck", "ngspice")
-        table.add_column(
-            h,
-            justify="right" if h in ("f", "err") else "left",
-            no_wrap=not folds,
-            overflow="fold" if folds else "ellipsis",
-        )
+        table.add_column(h, justify="right" if h in ("f", "err") else "left", no_wrap=not folds, overflow="fold")
     for p in result.points:
         for i, q in enumerate(p.quantities):
             table.add_row(
@@ -68,7 +92,9 @@ def comparison_table(result: CaseResult) -> Table:
 def summary_table(results: Sequence[CaseResult]) -> Table:
     table = Table(title="crosscheck: solver vs ngspice", title_justify="left")
     for h in ("case", "port", "points", "worst err", "verdict", "why"):
-        table.add_column(h, overflow="fold")
+        # Paths and ports keep their width (a path folded mid-name cannot be pasted); the explanation
+        # wraps at its spaces. When even the paths cannot fit, they fold rather than lose characters.
+        table.add_column(h, overflow="fold", no_wrap=h != "why")
     for r in results:
         errs = [q.err for p in r.points for q in p.quantities if not math.isnan(q.err)]
         table.add_row(
@@ -77,7 +103,7 @@ def summary_table(results: Sequence[CaseResult]) -> Table:
             str(len(r.freqs_hz)),
             f"{max(errs):.1e}" if errs else "—",
             _v(r.verdict),
-            "" if r.verdict == "pass" else escape(r.explanation[:300]),
+            "" if r.verdict == "pass" else escape(whole_words(r.explanation, 600)),
         )
     return table
 
@@ -96,6 +122,7 @@ def expectation_table(result: CaseResult, detail: bool, wide: bool = True) -> Ta
             h,
             justify="right" if h in ("Δ mag", "Δ phase") else "left",
             no_wrap=h in ("Δ mag", "Δ phase", "verdict") or (wide and h != "slip"),
+            overflow="fold",
         )
     for e in rows:
         mag = "—" if math.isnan(e.mag_err_pct) else f"{e.mag_err_pct:+.3g} %"
@@ -120,7 +147,9 @@ def limit_table(result: CaseResult, detail: bool) -> Table | None:
         return None
     table = Table(title=f"design limits  [dim]({escape(result.name)})[/]", title_justify="left")
     for h in ("#", "limit", "band", "worst at", "worst value", "margin", "verdict"):
-        table.add_column(h, justify="right" if h in ("#", "worst at", "worst value", "margin") else "left")
+        table.add_column(
+            h, justify="right" if h in ("#", "worst at", "worst value", "margin") else "left", overflow="fold"
+        )
     for lim in rows:
         u = " " + unit(lim.function, lim.quantity)
         bounds = " ≤ ".join(
@@ -154,7 +183,7 @@ def drift_table(result: CaseResult, detail: bool) -> Table | None:
         return None
     table = Table(title=f"baseline drift  [dim]({escape(result.name)})[/]", title_justify="left")
     for h in ("f", "qty", "baseline", "now", "rel change", "verdict"):
-        table.add_column(h, justify="right" if h in ("f", "rel change") else "left")
+        table.add_column(h, justify="right" if h in ("f", "rel change") else "left", overflow="fold")
     for d in rows:
         table.add_row(
             format_eng(d.freq_hz, 6, " Hz"),
@@ -192,7 +221,11 @@ def summary_line(results: Sequence[CaseResult]) -> str:
     return f"{s['cases']} case(s): {parts}" + (f"  ({escape(version)})" if version else "")
 
 
-def print_results(console: Console, results: Sequence[CaseResult], detail: bool) -> None:
+def print_results(console: Console, results: Sequence[CaseResult], detail: bool, header: str = "") -> None:
+    """The checked cases as tables; ``header`` (when given) first, e.g. which command-line options
+    overrode the case files' own settings."""
+    if header:
+        console.print(escape(header))
     if detail:
         for r in results:
             if r.points:
