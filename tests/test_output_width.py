@@ -87,3 +87,24 @@ def test_reduce_through_a_pipe_respects_columns(tmp_path):
     out = _reduce_through_a_pipe(tmp_path, "100")
     assert max(len(line) for line in out.splitlines()) <= 100
     assert "…" not in out
+
+
+@pytest.mark.parametrize("width", [80, 60])
+def test_fuzz_error_table_headers_are_never_cut(width):
+    """The fuzz summary's error table on a narrow console folds its headers; "quantity" is never "quanti…"."""
+    from rich.console import Console
+
+    from crosscheck.fuzz.loop import FuzzOptions
+    from crosscheck.fuzz.summary import FuzzSummary
+    from crosscheck.report.fuzz_summary import print_summary
+
+    summary = FuzzSummary(options=FuzzOptions(count=1), faults=())
+    for q in summary.errors:
+        summary.errors[q].extend([1.25e-13, 3.5e-12])
+        summary.worst[q] = (3.5e-12, 123456789012, 10.7e6)
+    buffer = io.StringIO()
+    print_summary(Console(file=buffer, width=width), summary)
+    out = buffer.getvalue()
+    assert "…" not in out
+    if width >= 80:  # at 80 columns the header fits whole; narrower it may fold, but loses no letter
+        assert "quantity" in out.replace("│", " ").replace("┃", " ").split()

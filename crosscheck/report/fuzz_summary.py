@@ -80,9 +80,10 @@ def _error_table(s: FuzzSummary) -> Table:
     """Percentiles of the judged error per compared quantity, and where the worst one was."""
     table = Table(title="judged error |Δ| / max(|ref|, roundoff floor) per compared value", title_justify="left")
     for h in ("quantity", "compared", "p50", "p90", "p99", "p99.9", "max", "worst at (case seed, f)"):
-        table.add_column(
-            h, justify="left" if h in ("quantity", "worst at (case seed, f)") else "right", overflow="fold"
-        )
+        # Headers and numbers keep their width; the place of the worst case wraps at its spaces; anything
+        # that still cannot fit folds rather than losing letters to "…".
+        where = h == "worst at (case seed, f)"
+        table.add_column(h, justify="left" if h == "quantity" or where else "right", no_wrap=not where, overflow="fold")
     for q in COMPARED:
         p = s.percentiles(q)
         worst = s.worst.get(q)
