@@ -1,17 +1,21 @@
-"""The bundled corpus: every hand calculation agrees with crosscheck's solver, and the corpus covers what it claims.
+"""The bundled corpus: every expected value agrees with crosscheck's solver and with the script it came from.
 
-Each case file under ``corpus/`` records hand-calculated values (``[[expect]]``, with
-how each was obtained) and design limits. The hand values were worked in closed form
-(dividers, series/parallel combinations, source transformations, transformer
-reflection) to 4 significant figures; they are held to each expectation's own
-tolerance, by default 1 % in magnitude and 0.5 degrees (common practice: what three
-significant figures allow). The limits are evaluated here with a small evaluator of
-our own, so a corpus edit that breaks a design requirement fails, and the on-purpose
-failing case in ``tests/data/failing_limit/`` must keep failing its limit.
+Each case file under ``corpus/`` records expected values (``[[expect]]``) and design
+limits. The expected values are closed-form formulas (dividers, series/parallel
+combinations, source transformations, transformer reflection) evaluated in double
+precision by ``corpus/hand_values.py``, a plain-Python script independent of
+crosscheck; each ``how`` names the function and the digits it states. Two checks
+hold them: the stated value is the script's value rounded as the ``how`` says (so a
+value edited by hand fails), and it agrees with crosscheck's solver to the
+expectation's own tolerance, which matches that rounding. The limits are evaluated
+here with a small evaluator of our own, so a corpus edit that breaks a design
+requirement fails, and the on-purpose failing case in ``tests/data/failing_limit/``
+must keep failing its limit.
 """
 
 from __future__ import annotations
 
+import importlib.util
 import math
 import re
 import tomllib
@@ -23,6 +27,7 @@ import pytest
 from crosscheck.model.cases import Case, load_case
 from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.model.netlist import read_netlist
+from crosscheck.model.values import parse_number
 from crosscheck.model.network import GROUND, Network, Port, floating_reference
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -102,6 +107,108 @@ def test_hand_calculations_agree_with_the_solver(path: Path) -> None:
             if why:
                 problems.append(f"expect[{e.index}] at {e.at_hz:g} Hz: {why}")
     assert not problems, f"{path}:\n  " + "\n  ".join(problems)
+
+
+# ---------------------------------------------------------------- where each expected value comes from
+
+HAND_VALUES = CORPUS / "hand_values.py"
+_FUNCTION = re.compile(r"corpus/hand_values\.py \(function (\w+)\)")
+_DIGITS = re.compile(r"Printed to (\d+) significant figures \(angles to 0\.(0*)1 degree\)")
+#: The tolerance that matches each stated precision: 5 figures -> 1e-4 and 0.01 degree (the rounding is at most
+#: 5e-5 relative per part and 0.0005 degree); 3 figures -> the 1 % and 0.5 degree of a hand check.
+_TOLERANCE_FOR = {5: (1e-4, 0.01), 3: (1e-2, 0.5)}
+
+
+def _hand_values():
+    """corpus/hand_values.py, imported by path (it is a script, not a package module)."""
+    spec = importlib.util.spec_from_file_location("corpus_hand_values", HAND_VALUES)
+    assert spec is not None and spec.loader is not None, f"cannot import {HAND_VALUES}"
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+def _rounded(x: float, sig: int) -> float:
+    return float(f"{x:.{sig - 1}e}")
+
+
+def _same(a: float, b: float) -> bool:
+    """Equal up to the binary representation of decimal text (1e-12 relative)."""
+    return abs(a - b) <= 1e-12 * max(abs(a), abs(b), 1e-300)
+
+
+def _rounding_problems(key: str, stated: str, value: complex | float, sig: int, decimals: int) -> list[str]:
+    """How ``stated`` differs from ``value`` rounded to ``sig`` figures (angles to ``decimals``), part by part."""
+    value = complex(value)
+    text = stated.strip()
+    if "∠" in text:
+        mag_text, ang_text = text.split("∠")
+        angle = math.degrees(math.atan2(value.imag, value.real))
+        pairs = [("magnitude", parse_number(mag_text), _rounded(abs(value), sig)),
+                 ("angle", float(ang_text.rstrip("°")), round(angle, decimals) + 0.0)]
+    elif (m := re.fullmatch(r"(\S+)\s*([+-])\s*j(\S+)", text)) is not None:
+        im = parse_number(m.group(3)) * (-1 if m.group(2) == "-" else 1)
+        pairs = [("real part", parse_number(m.group(1)), _rounded(value.real, sig)),
+                 ("imaginary part", im, _rounded(value.imag, sig))]
+    else:
+        pairs = [("value", parse_number(text), _rounded(value.real, sig))]
+        half_unit = 0.5 * 10.0 ** (math.floor(math.log10(abs(value.real))) - sig + 1) if value.real else 0.0
+        if abs(value.imag) > half_unit:
+            pairs.append(("imaginary part (stated as 0)", 0.0, value.imag))
+    return [f"{key}: stated {what} {s!r} from {stated!r}, the script gives {v!r} rounded as the how says"
+            for what, s, v in pairs if not _same(s, v)]
+
+
+@pytest.fixture(scope="module")
+def hand_values():
+    return _hand_values()
+
+
+@pytest.mark.parametrize("path", CASE_FILES, ids=_case_id)
+def test_stated_values_are_the_scripts_values_rounded_as_stated(path: Path, hand_values) -> None:
+    """Every [[expect]] names a corpus/hand_values.py function and its digits; each stated value is that
+    function's value at the expectation's frequency rounded to those digits (exact up to 1e-12 relative), and
+    the tolerance is the one that matches the digits."""
+    case = load_case(path)
+    raw = tomllib.loads(path.read_text(encoding="utf-8"))["expect"]
+    problems = []
+    for e, table in zip(case.expectations, raw, strict=True):
+        where = f"expect[{e.index}] at {e.at_hz:g} Hz"
+        function, digits = _FUNCTION.search(e.how), _DIGITS.search(e.how)
+        if function is None or digits is None:
+            problems.append(f"{where}: the how must say 'corpus/hand_values.py (function NAME)' and "
+                            f"'Printed to N significant figures (angles to 0.0..1 degree)'")
+            continue
+        sig, decimals = int(digits.group(1)), len(digits.group(2)) + 1
+        if (e.tolerance.rel, e.tolerance.phase_deg or _TOLERANCE_FOR.get(sig, (0, 0))[1]) != _TOLERANCE_FOR.get(sig):
+            problems.append(f"{where}: {sig} figures need rel, phase_deg = {_TOLERANCE_FOR.get(sig)}, "
+                            f"the case has {e.tolerance.rel}, {e.tolerance.phase_deg}")
+        values = getattr(hand_values, function.group(1))(e.at_hz)
+        for key in e.values:
+            if key not in values:
+                problems.append(f"{where}: {function.group(1)} gives no {key}")
+                continue
+            problems += [f"{where}: {p}" for p in _rounding_problems(key, str(table[key]), values[key], sig, decimals)]
+    assert not problems, f"{path}:\n  " + "\n  ".join(problems)
+
+
+def test_the_script_covers_every_expectation_and_nothing_else(hand_values) -> None:
+    """The script's table of points is exactly the corpus's [[expect]] list (case, function named in the how,
+    frequency), in file order: no stated value without a source, no script value without a case."""
+    in_corpus = []
+    for path in CASE_FILES:
+        for e in load_case(path).expectations:
+            found = _FUNCTION.search(e.how)
+            in_corpus.append((_case_id(path), found.group(1) if found else None, e.at_hz))
+    in_script = [(case, function.__name__, f_hz) for case, function, f_hz in hand_values.POINTS]
+    assert in_script == in_corpus
+
+
+def test_the_script_stands_alone() -> None:
+    """corpus/hand_values.py imports only the standard library's math and cmath (no crosscheck, no numpy)."""
+    imports = re.findall(r"^\s*(?:from\s+(\S+)\s+import|import\s+(\S+))", HAND_VALUES.read_text(encoding="utf-8"),
+                         flags=re.M)
+    assert {a or b for a, b in imports} <= {"__future__", "math", "cmath"}
 
 
 # ---------------------------------------------------------------- design limits, evaluated independently

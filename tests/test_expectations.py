@@ -236,7 +236,8 @@ def test_cli_expect_pass(w6, capsys):
 
 
 def test_cli_expect_fail_names_the_slip(w6, capsys):
-    """The published wrong answer (dependent source zeroed) fails with exit code 1 and the slip named."""
+    """W6's wrong answer with the dependent source zeroed (computed by this project) fails with exit code 1 and
+    the slip named."""
     code = main(["reduce", str(w6), "--port", "a", "0", "--freq", repr(F_UNIT), "--engine", "own",
                  "--expect", "vth=44.72∠-63.43°", "--expect", "zth=4-8j"])
     out = " ".join(capsys.readouterr().out.split())

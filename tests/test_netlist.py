@@ -169,7 +169,7 @@ def test_fields_may_be_separated_by_commas_and_equals() -> None:
 
 # ----------------------------------------------------------------------------- sources
 
-# published: Ngspice User's Manual, "Independent Sources for Voltage or Current": AC magnitude defaults to 1,
+# from memory: Ngspice User's Manual, "Independent Sources for Voltage or Current": AC magnitude defaults to 1,
 # phase to 0 degrees; DC and transient parts do not enter AC analysis. The rows were also run through
 # ngspice 39 (v(n) across 1 ohm at 1 kHz) and gave these magnitudes and phases.
 SOURCE_FORMS = [

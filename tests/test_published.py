@@ -1,11 +1,13 @@
-"""Published worked examples (W1–W8 in the project's reference list), solved by crosscheck.
+"""Worked examples from textbooks and other outside sources (labelled W1–W8), solved by crosscheck.
 
-Each check names its source beside it, as ``published: <title, author, section>`` or
-``from memory`` where the printed answer was recalled rather than read, and holds
-the answer to the precision it was printed with: one unit in the last printed
-digit unless a check says otherwise. Every example was recomputed by hand before
-it was trusted. Impedances are realised at ω = 1 rad/s (f = 1/(2π) Hz) with
-L = X and C = 1/|X|, unless the example fixes ω.
+Each check names its source beside it: ``published: <title, author, section>`` only
+where the answer was read in print in that source; ``from memory`` where the printed
+answer was recalled rather than read; ``recomputed by this project`` where the source
+prints no such answer and the value is our own. Each check holds the answer to the
+precision it is stated with: one unit in the last stated digit unless a check says
+otherwise. Every stated answer was also recomputed independently (the closed-form
+network equations evaluated in double precision) and agreed. Impedances are realised
+at ω = 1 rad/s (f = 1/(2π) Hz) with L = X and C = 1/|X|, unless the example fixes ω.
 """
 
 from __future__ import annotations
@@ -131,8 +133,10 @@ def test_w3_linear_transformer() -> None:
 
 
 def test_w3_reversed_dot() -> None:
-    """published: Nilsson & Riedel, Electric Circuits, ch. 9 (as W3) with one dot reversed, recomputed:
-    V_th = 95.60∠−169.29° V (180° away), Z_th unchanged = 171.09 + j1224.26 Ω."""
+    """Recomputed by this project from the published example's data (Nilsson & Riedel, Electric Circuits,
+    ch. 9, as W3) with one dot reversed; the published example prints only the normal dot orientation.
+    Our values, rounded to W3's printed digits: V_th = 95.60∠−169.29° V (180° from W3), Z_th unchanged =
+    171.09 + j1224.26 Ω; held to one unit in the last digit."""
     eq = _equivalent(_w3(True), W3_PORT, W3_FREQ)
     assert_polar(eq.vth, "95.60", "-169.29", "W3 reversed-dot V_th")
     assert_rect(eq.zth, "171.09", "1224.26", "W3 reversed-dot Z_th")
@@ -193,7 +197,8 @@ def test_w6_dependent_source() -> None:
     # The angle is printed in whole degrees: held to 0.5° (common practice for hand calculations).
     assert_polar(eq.vth, "57.34", "-55", "W6 V_th", deg_tol=0.5)
     assert_rect(eq.zth, "4.7", "-6.7", "W6 Z_th")
-    # Zeroing the dependent source by mistake gives 4 − j8 Ω and 44.72∠−63.43° V: must be far from ours.
+    # Zeroing the dependent source by mistake gives 4 − j8 Ω and 44.72∠−63.43° V (computed by this project;
+    # not read in the source): must be far from ours.
     assert abs(eq.zth - (4 - 8j)) > 1.0, "Z_th matches the dependent-source-zeroed slip (tolerance 1 Ω)"
     assert abs(eq.vth - 44.72 * np.exp(-1j * math.radians(63.43))) > 5.0, \
         "V_th matches the dependent-source-zeroed slip (tolerance 5 V)"
@@ -223,7 +228,7 @@ def test_w7_maximum_average_power() -> None:
     i = _load_current(_w7(), "a", "0", load)
     p_load = 0.5 * abs(i) ** 2 * eq.zth.real
     assert abs(p_load - 2.368) <= 0.001, f"W7 conjugate load draws {p_load:.6g} W, printed 2.368 W (tolerance 0.001 W)"
-    # The RMS formula by mistake gives 4.735 W.
+    # The RMS formula by mistake gives 4.735 W (computed by this project).
     assert abs(p_max - 4.735) > 1.0, "P_max matches the RMS-formula slip (tolerance 1 W)"
 
 

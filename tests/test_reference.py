@@ -418,7 +418,8 @@ def test_transformer_matches_published_values(pool, grounded):
 
 @pytest.mark.spice
 def test_transformer_with_reversed_dot_turns_vth_by_180_degrees(pool):
-    """published: Nilsson & Riedel (as above): a reversed dot gives 95.60∠−169.29° V, Z_th unchanged."""
+    """Recomputed by this project from the published example's data (Nilsson & Riedel, as above); the published
+    example prints only the normal dot orientation: a reversed dot gives 95.60∠−169.29° V, Z_th unchanged."""
     net, port = transformer(grounded=False, reversed_dot=True)
     p = pool.submit(net, port, [F_XFMR]).result().points[0]
     assert abs(p.vth) == pytest.approx(95.60, abs=0.005)

@@ -189,9 +189,9 @@ G1 0 a s a 0.02
 """
 
 
-def test_dependent_sources_zeroed_published_w6():
-    """published (byjus.com, GATE-style problem; REFERENCES W6): zeroing the VCCS gives 4 − j8 Ω and
-    44.72∠−63.43° V, printed to 4 significant figures."""
+def test_dependent_sources_zeroed_w6_slip():
+    """Zeroing the VCCS of the published W6 problem (byjus.com, GATE-style) gives 4 − j8 Ω and 44.72∠−63.43° V:
+    the slip's answer, computed by this project (not read in the source) and stated to 4 significant figures."""
     stated = {"vth": cmath.rect(44.72, math.radians(-63.43)), "zth": 4 - 8j}
     checks = _diagnosed(W6, ("a", "0"), 1 / (2 * math.pi), stated)
     _assert_named(checks["vth"], "dependent sources zeroed")

@@ -88,7 +88,7 @@ def test_condition_estimate_is_a_close_lower_bound(backend):
         _, conds = system.solve_many(SWEEP, rhs)
         ratios += [c / _exact_condition(system, f) for f, c in zip(SWEEP, conds)]
     ratios = np.array(ratios)
-    # published: N. J. Higham, ACM TOMS 14(4), 1988: the estimate is a lower bound (each iterate is
+    # from memory: N. J. Higham, ACM TOMS 14(4), 1988: the estimate is a lower bound (each iterate is
     # ‖A⁻¹x‖₁ with ‖x‖₁ = 1), "usually" exact. The exact κ₁ here comes from a dense inverse with a relative
     # error up to κ·ε (κ reaches ~1e10 on the random family), hence the 1e-5 margin.
     assert ratios.max() <= 1 + 1e-5, ratios.max()

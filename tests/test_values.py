@@ -12,8 +12,9 @@ from hypothesis import strategies as st
 from crosscheck.errors import ValueSyntaxError
 from crosscheck.model.values import format_eng, format_polar, format_rect, parse_number, parse_phasor
 
-# published: Ngspice User's Manual (H. Vogt et al.), §2.1.1 "Some naming conventions", Table 2.2
-# "Ngspice scale factors" and the paragraph after it (10V, 10Hz, M is milli, meg is mega).
+# from memory: Ngspice User's Manual (H. Vogt et al.), §2.1.1 "Some naming conventions", Table 2.2
+# "Ngspice scale factors" and the paragraph after it (10V, 10Hz, M is milli, meg is mega); section and
+# table numbers not re-checked against the current edition.
 # The "1A"/"1a" rows were checked against ngspice 39 itself (print @r[resistance]): it has no atto suffix.
 # Tolerance: exact (==). The reader shifts the decimal exponent, so "10u" is the double nearest 1e-5.
 SPICE_NUMBERS = [
