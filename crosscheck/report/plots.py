@@ -283,11 +283,20 @@ def _limits_on_panels(axes: dict[str, Any], result: CaseResult, freqs: np.ndarra
         if panel is not None:
             on_panel[panel].append(c)
     for key, ax in axes.items():
-        fit_y(ax, [b for c in on_panel[key] for b in _limit_bounds(c)])
+        bounds = [b for c in on_panel[key] for b in _limit_bounds(c)]
+        if key.endswith("mag") and ax.get_yscale() != "log":  # bounds decades from the data: a log axis shows both
+            positive = [v for v in (*_panel_values(ax), *bounds) if v is not None and math.isfinite(v) and v > 0]
+            if positive and max(positive) / min(positive) > 20:
+                ax.set_yscale("log")
+        fit_y(ax, bounds)
         for c in on_panel[key]:
             band = c.band or (float(freqs.min()), float(freqs.max()))
             _shade_limit(ax, c, band[0], band[1], *_limit_bounds(c))
         ax.legend(fontsize=8, loc="best")
+
+
+def _panel_values(ax) -> list[float]:
+    return [float(y) for line in ax.lines for y in np.asarray(line.get_ydata(), dtype=float)]
 
 
 def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
