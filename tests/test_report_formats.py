@@ -339,3 +339,16 @@ def test_comparison_table_keeps_its_frequencies_on_an_80_column_terminal(results
     assert max(len(line) for line in text.splitlines()) <= 80
     for p in result.points:
         assert format_eng(p.freq_hz, 4, " Hz") in text, (p.freq_hz, text)
+
+
+def test_html_badges_use_the_okabe_ito_verdict_colours_and_si_units(results, page_text):
+    """Every verdict badge on the page has its own palette colour and symbol rule, and no number with a
+    unit is written with SPICE's 'Meg' (mega is 'M' for people) or a prefixed decibel."""
+    from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS
+
+    for verdict in {r.verdict for r in results}:
+        assert f'class="verdict v-{verdict}"' in page_text
+        assert f".v-{verdict} {{ background: {VERDICT_COLOURS[verdict]};" in page_text
+        assert f'.v-{verdict}::before {{ content: "{VERDICT_SYMBOLS[verdict]} "; }}' in page_text
+    assert not re.search(r"\dMeg ?(Hz|Ω|V|A|S|F|H)\b", page_text)
+    assert not re.search(r"\d [munpkMGT]dB\b", page_text)

@@ -10,7 +10,16 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from crosscheck.errors import ValueSyntaxError
-from crosscheck.model.values import format_eng, format_polar, format_rect, parse_number, parse_phasor
+from crosscheck.model.values import (
+    format_element_form,
+    format_eng,
+    format_polar,
+    format_rect,
+    parse_number,
+    parse_phasor,
+    reactive_element,
+    resistive_digits,
+)
 
 # from memory: Ngspice User's Manual (H. Vogt et al.), §2.1.1 "Some naming conventions", Table 2.2
 # "Ngspice scale factors" and the paragraph after it (10V, 10Hz, M is milli, meg is mega); section and
@@ -165,3 +174,61 @@ def test_format_polar_reads_back(z: complex, ascii_only: bool) -> None:
     assert math.isclose(abs(back), abs(z), rel_tol=1e-7)  # tolerance: rel 1e-7 on the magnitude
     if abs(z):
         assert abs(cmath.phase(back / z)) <= math.radians(0.0051)  # tolerance: 0.0051° (2-decimal angle)
+
+
+# ----------------------------------------------------------------------------- units as engineers write them
+
+
+@pytest.mark.parametrize(("x", "unit", "expected"), [
+    (1e6, " Hz", "1 MHz"), (2.5e6, " Hz", "2.5 MHz"), (1e3, " Hz", "1 kHz"), (1.0, " Hz", "1 Hz"),
+    (3.3e9, " Hz", "3.3 GHz"), (0.0, " Hz", "0 Hz"), (2.2e6, " Ω", "2.2 MΩ"), (2.2e6, "Ω", "2.2MΩ"),
+    (4.7e-6, " F", "4.7 uF"),
+])
+def test_format_eng_with_unit_writes_si_mega(x: float, unit: str, expected: str) -> None:
+    """A number with a unit writes mega as the SI 'M' (never 'Meg'): 1e6 Hz is '1 MHz'."""
+    assert format_eng(x, 4, unit) == expected
+
+
+def test_format_eng_bare_keeps_spice_meg() -> None:
+    """A bare number keeps SPICE's 'Meg', which parse_number reads back (an 'M' would be milli)."""
+    assert format_eng(2.2e6) == "2.2Meg"
+    assert parse_number(format_eng(2.2e6)) == 2.2e6  # tolerance: exact (two significant figures)
+
+
+@pytest.mark.parametrize(("x", "unit", "expected"), [
+    (0.30449, " dB", "0.3045 dB"), (-0.30449, " dB", "-0.3045 dB"), (-20.0, " dB", "-20 dB"),
+    (1e-7, " dB", "1.000e-07 dB"), (1234.5, " dB", "1234 dB"), (0.0, " dB", "0 dB"), (12.5, " %", "12.5 %"),
+    (45.0, " °", "45 °"), (0.3, " dBV", "0.3 dBV"),
+])
+def test_format_eng_decibels_take_no_prefix(x: float, unit: str, expected: str) -> None:
+    """Decibels (and percent, degrees) never take an SI prefix: 0.30449 dB is '0.3045 dB', not '304.5 mdB'."""
+    assert format_eng(x, 4, unit) == expected
+
+
+def _z_with_c(r: float, c: float, f: float) -> complex:
+    return complex(r, -1.0 / (2 * math.pi * f * c))
+
+
+@pytest.mark.parametrize(("z", "f", "series", "expected"), [
+    (_z_with_c(50.0, 2.533e9, 1e3), 1e3, True, "50 Ω (resistive to 14 digits: no series L or C)"),
+    (complex(50.0, 1e-3), 1e3, True, "50 Ω + L 159.2 nH"),
+    (complex(50.0, -5e-6), 1e3, True, "50 Ω (resistive to 7 digits: no series L or C)"),
+    (complex(50.0, 2 * math.pi * 1e3 * 1e-19), 1e3, True, "50 Ω (resistive to 16 digits: no series L or C)"),
+    (complex(1e-3, -1e-3), 100.0, True, "1 mΩ + C 1.592 F"),
+    (complex(50.0, 0.0), 1e3, True, "50 Ω"),
+    (complex(50.0, -10.0), 0.0, True, "50 Ω"),
+    (complex(0.02, -1e-3), 1e3, False, "20 mS ‖ L 159.2 mH"),
+    (complex(0.02, -1e-14), 1e3, False, "20 mS (resistive to 12 digits: no parallel C or L)"),
+    (complex(0.0, -1e-14), 1e3, True, "0 Ω + C 15.92 GF"),
+])
+def test_format_element_form(z: complex, f: float, series: bool, expected: str) -> None:
+    """R + L or C as engineers draw it; a near-resistive Z_th (|X|/R < 1e-9, or < 1e-3 with C > 1 F or
+    L < 1 fH) is R alone with how many digits it is resistive to; a real 1.6 F at |X|/R = 1 stays."""
+    assert format_element_form(z, f, series) == expected
+
+
+def test_resistive_digits_and_reactive_element_agree() -> None:
+    """reactive_element is None exactly where resistive_digits names a digit count (or X = 0, or DC)."""
+    for x in (-1e-12, -5e-6, -1e-3, 1e-20, 1e-3, 5.0):
+        z = complex(50.0, x)
+        assert (reactive_element(z, 1e3) is None) == (resistive_digits(z, 1e3) is not None)

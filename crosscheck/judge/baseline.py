@@ -25,7 +25,7 @@ import hashlib
 import math
 import os
 from collections.abc import Iterable, Iterator, Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -43,6 +43,7 @@ from crosscheck.judge.baseline_file import (
     StoredPoint,
     baseline_document,
     corrupt_name,
+    element_cards,
     keep_corrupt,
     load_baseline,
     locked,
@@ -74,6 +75,8 @@ __all__ = [
     "compare_with_baseline",
     "corrupt_name",
     "diff_baselines",
+    "element_cards",
+    "element_changes",
     "drift_checks",
     "format_changes",
     "load_baseline",
@@ -104,6 +107,7 @@ class BaselineChanges:
     points_changed: tuple[str, ...]  # cases whose frequency list changed
     changed: tuple[tuple[str, str], ...] = ()  # (case, what changed)
     unchanged: tuple[str, ...] = ()  # ran again, nothing beyond tolerance
+    inputs: tuple[tuple[str, str], ...] = ()  # (case, which elements changed in its netlist), where known
 
     @property
     def empty(self) -> bool:
@@ -137,6 +141,51 @@ def case_hashes(case: Any) -> tuple[str | None, str | None]:
     return _sha256(data), _sha256(case.netlist_text.encode("utf-8"))
 
 
+_ELEMENT_UNITS = {"R": " Ω", "L": " H", "C": " F", "G": " S", "H": " Ω"}
+#: At most this many changed elements are named; the rest are counted.
+SHOWN_ELEMENTS = 4
+
+
+def element_changes(before: Mapping[str, str] | None, after: Mapping[str, str] | None) -> str:
+    """'R2 1 kΩ → 1.2 kΩ; C5 added' for two sets of element cards; '' when they are equal or unknown."""
+    if before is None or after is None:
+        return ""
+    parts = []
+    for name in sorted(before.keys() | after.keys()):
+        old, new = before.get(name), after.get(name)
+        if old == new:
+            continue
+        if old is None or new is None:
+            parts.append(f"{name} {'added' if old is None else 'removed'}")
+            continue
+        a, b = old.split(), new.split()
+        if len(a) == len(b) and a[:-1] == b[:-1] and a[0] not in "VI":
+            unit = _ELEMENT_UNITS.get(a[0], "")
+            parts.append(f"{name} {format_eng(float(a[-1]), 4, unit)} → {format_eng(float(b[-1]), 4, unit)}")
+        else:
+            parts.append(f"{name} '{old}' → '{new}'")
+    more = len(parts) - SHOWN_ELEMENTS
+    return "; ".join(parts[:SHOWN_ELEMENTS]) + (f"; and {more} more" if more > 0 else "")
+
+
+def _input_change(stored: StoredCase, case: Any) -> str:
+    """What changed in the case's inputs since ``stored`` was written, in words ('' for nothing)."""
+    case_hash, netlist_hash = case_hashes(case)
+    netlist = stored.netlist_sha256 is not None and netlist_hash is not None and stored.netlist_sha256 != netlist_hash
+    case_file = stored.case_sha256 is not None and case_hash is not None and stored.case_sha256 != case_hash
+    if not (netlist or case_file):
+        return ""
+    since = "changed since the baseline was written"
+    if not netlist:
+        return f"the case file {since} (the netlist did not)"
+    named = element_changes(stored.elements, element_cards(case))
+    if named:
+        return f"the netlist {since} ({named})"
+    if stored.elements is None:
+        return f"the netlist {since} (this baseline predates per-element records; --update-baseline adds them)"
+    return f"the netlist {since} (same elements and values: comments, order or spacing)"
+
+
 # --------------------------------------------------------------------------- updating
 
 #: Why a case's previous entry is kept as it was.
@@ -148,7 +197,7 @@ def stored_case(result: Any) -> StoredCase:
     """A run's own equivalents as the baseline stores them."""
     case_hash, netlist_hash = case_hashes(result.case)
     points = tuple(StoredPoint(eq.freq_hz, {"vth": eq.vth, "zth": eq.zth, "in": eq.in_}) for eq in result.own)
-    return StoredCase(case_hash, netlist_hash, tuple(result.port), points)
+    return StoredCase(case_hash, netlist_hash, tuple(result.port), points, element_cards(result.case))
 
 
 def updated_baseline(
@@ -199,17 +248,26 @@ def _show(q: str, z: complex | None) -> str:
     return "none" if z is None else format_rect(z, 10, quantity_unit(q))
 
 
+def _percent(rel: float) -> str:
+    return f"{rel * 100:.3g} %"
+
+
 def drift_checks(
-    own: Sequence[Equivalent], stored: StoredCase, tolerance: Tolerance = BASELINE, changed_input: bool = False
+    own: Sequence[Equivalent], stored: StoredCase, tolerance: Tolerance = BASELINE, changed_input: bool | str = False
 ) -> tuple[list[DriftCheck], list[str]]:
-    """Each stored quantity against this run; notes for frequencies only one side has."""
-    checks: list[DriftCheck] = []
-    notes: list[str] = []
-    why = (
-        "; the case file or netlist changed since the baseline was written, so the change may be intended"
-        if changed_input
-        else "; the case is unchanged, so the solver's answer itself moved"
+    """Each stored quantity against this run, and notes (frequencies only one side has, what changed).
+
+    Drifted records come first, worst first, then the rest in frequency order: a case's headline (its
+    first record with the drift verdict) is then its worst change. Only that record says why (the inputs
+    changed, naming the elements, or did not); the others say where and how much, once each.
+    ``changed_input``: what changed in the case's inputs, in words (``True``: something did).
+    """
+    what = (
+        "the case file or netlist changed since the baseline was written"
+        if changed_input is True
+        else (changed_input or "")
     )
+    checks: list[DriftCheck] = []
     new_freqs = []
     for eq in own:
         point = stored.point(eq.freq_hz)
@@ -219,26 +277,42 @@ def drift_checks(
         for q, obtained in (("vth", eq.vth), ("zth", eq.zth), ("in", eq.in_)):
             old = point.values.get(q)
             rel, ok = _judge(old, obtained, tolerance)
-            text = (
-                ""
-                if ok
-                else (
-                    f"{quantity_name(q)} at {format_eng(eq.freq_hz, 6, ' Hz')} moved from {_show(q, old)} to "
-                    f"{_show(q, obtained)} (relative change {rel:.3g}, baseline tolerance {tolerance.rel:.3g}){why}"
-                )
-            )
-            checks.append(
-                DriftCheck(
-                    eq.freq_hz,
-                    q,
-                    old,
-                    obtained,
-                    rel,
-                    Verdict.PASS if ok else Verdict.DRIFT,
-                    text,
-                    Cause.AGREES if ok else Cause.OUT_OF_TOLERANCE,
-                )
-            )
+            text = "" if ok else _moved_text(q, eq.freq_hz, old, obtained, rel)
+            verdict, cause = (Verdict.PASS, Cause.AGREES) if ok else (Verdict.DRIFT, Cause.OUT_OF_TOLERANCE)
+            checks.append(DriftCheck(eq.freq_hz, q, old, obtained, rel, verdict, text, cause))
+    drifted = sorted((c for c in checks if c.verdict == "drift"), key=lambda c: -c.rel_err)
+    if drifted:
+        why = (
+            f"{what}, so the change may be intended"
+            if what
+            else "the case is unchanged, so the solver's answer itself moved"
+        )
+        count = f"worst of {len(drifted)} moved beyond tolerance {tolerance.rel:.3g}"
+        drifted[0] = replace(drifted[0], explanation=f"{drifted[0].explanation}, {count}; {why}")
+    checks = drifted + [c for c in checks if c.verdict != "drift"]
+    return checks, _drift_notes(own, stored, new_freqs, what, drifted)
+
+
+def _moved_text(q: str, freq_hz: float, old: complex | None, new: complex | None, rel: float) -> str:
+    return (
+        f"{quantity_name(q)} at {format_eng(freq_hz, 6, ' Hz')} moved from {_show(q, old)} to {_show(q, new)} "
+        f"(relative change {_percent(rel)})"
+    )
+
+
+def _drift_notes(
+    own: Sequence[Equivalent], stored: StoredCase, new_freqs: list[float], what: str, drifted: list[DriftCheck]
+) -> list[str]:
+    """One line per kind of news: worst drift first, then what changed, then frequencies, then what to do."""
+    notes = []
+    if drifted:
+        w = drifted[0]
+        notes.append(
+            f"{len(drifted)} value(s) drifted; worst {quantity_name(w.quantity)} at "
+            f"{format_eng(w.freq_hz, 6, ' Hz')}, relative change {_percent(w.rel_err)}"
+        )
+    if what:
+        notes.append(what)
     computed = FrequencyIndex([eq.freq_hz for eq in own])
     gone = [p.freq_hz for p in stored.points if computed.find(p.freq_hz) is None]
     if new_freqs:
@@ -248,15 +322,13 @@ def drift_checks(
         )
     if gone:
         notes.append(f"{len(gone)} baseline frequency(ies) no longer computed (first {format_eng(gone[0], 6, ' Hz')})")
-    if changed_input:
-        notes.append("the case file or netlist changed since the baseline was written")
-    if any(c.verdict == "drift" for c in checks):
+    if drifted:
         notes.append(
             "accept the new values with --update-baseline if the change is intended"
-            if changed_input
+            if what
             else "find out why before accepting the new values with --update-baseline"
         )
-    return checks, notes
+    return notes
 
 
 def compare_with_baseline(
@@ -270,11 +342,7 @@ def compare_with_baseline(
     stored = baseline.cases.get(key)
     if stored is None:
         return [], f"not in the baseline {baseline_path} (as {key!r}); add it with --update-baseline"
-    case_hash, netlist_hash = case_hashes(result.case)
-    changed = (stored.case_sha256 is not None and case_hash is not None and stored.case_sha256 != case_hash) or (
-        stored.netlist_sha256 is not None and netlist_hash is not None and stored.netlist_sha256 != netlist_hash
-    )
-    checks, notes = drift_checks(result.own, stored, tolerance, changed)
+    checks, notes = drift_checks(result.own, stored, tolerance, _input_change(stored, result.case))
     return checks, "; ".join(notes)
 
 
@@ -292,6 +360,7 @@ def diff_baselines(
     points_changed: list[str] = []
     changed: list[tuple[str, str]] = []
     unchanged: list[str] = []
+    inputs: list[tuple[str, str]] = []
     for key in sorted((set(new.cases) & set(old_cases)) - set(why)):
         before, after = old_cases[key], new.cases[key]
         reasons = []
@@ -301,8 +370,13 @@ def diff_baselines(
         case_moved = list(_moved(key, before, after, tolerance))
         if case_moved:
             moved += case_moved
-            reasons.insert(0, f"{len(case_moved)} quantity(ies) moved beyond tolerance")
-        if (before.case_sha256, before.netlist_sha256) != (after.case_sha256, after.netlist_sha256):
+            w = max(case_moved, key=lambda m: m.rel_err)
+            reasons.insert(0, f"{len(case_moved)} quantity(ies) moved beyond tolerance, worst {_where(w)}")
+        named = element_changes(before.elements, after.elements)
+        if named:
+            inputs.append((key, named))
+            reasons.append(f"netlist: {named}")
+        elif (before.case_sha256, before.netlist_sha256) != (after.case_sha256, after.netlist_sha256):
             reasons.append("case file or netlist edited")
         if before.port != after.port:
             reasons.append(f"port {before.port} → {after.port}")
@@ -318,6 +392,7 @@ def diff_baselines(
         points_changed=tuple(points_changed),
         changed=tuple(changed),
         unchanged=tuple(unchanged),
+        inputs=tuple(inputs),
     )
 
 
@@ -332,22 +407,41 @@ def _moved(key: str, before: StoredCase, after: StoredCase, tolerance: Tolerance
                 yield Moved(key, p.freq_hz, q, q_old.values.get(q), p.values.get(q), rel)
 
 
+def _where(m: Moved) -> str:
+    return f"{quantity_name(m.quantity)} at {format_eng(m.freq_hz, 6, ' Hz')} ({_percent(m.rel_err)})"
+
+
 def format_changes(changes: BaselineChanges, path: str | Path) -> list[str]:
-    """Lines for the terminal: what the written baseline changed, case by case."""
+    """Lines for the terminal: the worst change first (case, quantity, frequency, relative change, and the
+    elements that changed in its netlist), the counts, then one line per case: never one per point."""
     counts = (
         f"{len(changes.added)} added, {len(changes.changed)} changed, {len(changes.unchanged)} unchanged, "
         f"{len(changes.kept)} kept, {len(changes.removed)} removed"
     )
-    lines = [f"baseline {path}: {counts}" + ("; no changes beyond tolerance" if changes.empty else "")]
+    lines = []
+    by_case: dict[str, list[Moved]] = {}
+    for m in changes.moved:
+        by_case.setdefault(m.case, []).append(m)
+    inputs = dict(changes.inputs)
+    if changes.moved:
+        w = max(changes.moved, key=lambda m: m.rel_err)
+        because = f"; netlist: {inputs[w.case]}" if w.case in inputs else ""
+        lines.append(
+            f"worst change: {w.case} {quantity_name(w.quantity)} at {format_eng(w.freq_hz, 6, ' Hz')}, relative "
+            f"change {_percent(w.rel_err)}{because}"
+        )
+    lines.append(f"baseline {path}: {counts}" + ("; no changes beyond tolerance" if changes.empty else ""))
     lines += [f"  added    {k}" for k in changes.added]
     lines += [f"  changed  {k} ({why})" for k, why in changes.changed]
     lines += [f"  kept     {k} ({why})" for k, why in changes.kept]
     lines += [f"  removed  {k} (not in this run; --prune)" for k in changes.removed]
-    lines += [
-        f"  moved    {m.case} at {format_eng(m.freq_hz, 6, ' Hz')} {quantity_name(m.quantity)}: "
-        f"{_show(m.quantity, m.old)} → {_show(m.quantity, m.new)} (relative change {m.rel_err:.3g})"
-        for m in changes.moved
-    ]
+    for case, moved in by_case.items():
+        w = max(moved, key=lambda m: m.rel_err)
+        lines.append(
+            f"  moved    {case}: {len(moved)} value(s) beyond tolerance; worst {quantity_name(w.quantity)} at "
+            f"{format_eng(w.freq_hz, 6, ' Hz')}: {_show(w.quantity, w.old)} → {_show(w.quantity, w.new)} "
+            f"(relative change {_percent(w.rel_err)})"
+        )
     return lines
 
 

@@ -44,6 +44,8 @@ from typing import Any
 import numpy as np
 
 from crosscheck.errors import CrosscheckError
+from crosscheck.model.netlist import read_netlist
+from crosscheck.model.network import Element, Port
 from crosscheck.model.tolerance import BASELINE, Tolerance
 from crosscheck.vocabulary import COMPARED, phasor_json, same_frequency
 
@@ -132,6 +134,9 @@ class StoredCase:
     netlist_sha256: str | None
     port: tuple[str, str]
     points: tuple[StoredPoint, ...]
+    #: Element name -> its card as the netlist reader understood it (``baseline.element_cards``), so a drift
+    #: report can name what changed; None in entries written before cards were stored (still read).
+    elements: dict[str, str] | None = None
     index: FrequencyIndex = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -251,7 +256,27 @@ def _case(path: Path, key: str, entry: Any) -> StoredCase:
     if not (isinstance(port, list) and len(port) == 2 and all(isinstance(n, str) for n in port)):
         raise BaselineCorrupt(path, f"{_where(key)}.port must be two node names (got {port!r:.80})")
     points = tuple(_point(path, key, i, p) for i, p in enumerate(entry["points"]))
-    return StoredCase(hashes[0], hashes[1], (port[0], port[1]), points)
+    return StoredCase(hashes[0], hashes[1], (port[0], port[1]), points, _elements(path, key, entry.get("elements")))
+
+
+#: An element card as stored: the reader's names (letters, digits, _ . : # + - [ ] < > ! /), spaces and
+#: numbers as Python writes them; nothing else, so stored text is inert wherever a report shows it.
+_CARD = re.compile(r"[A-Za-z0-9_.:#+\-\[\]<>!/ ]{1,400}")
+_ELEMENT_NAME = re.compile(r"[A-Za-z0-9_.:#+\-\[\]<>!/]{1,200}")
+
+
+def _elements(path: Path, key: str, raw: Any) -> dict[str, str] | None:
+    """The optional element cards of a case entry (absent in older files: None)."""
+    if raw is None:
+        return None
+    if not isinstance(raw, dict):
+        raise BaselineCorrupt(path, f"{_where(key)}.elements must be an object of element cards (got {raw!r:.80})")
+    for name, card in raw.items():
+        if not (_ELEMENT_NAME.fullmatch(name) and isinstance(card, str) and _CARD.fullmatch(card)):
+            raise BaselineCorrupt(
+                path, f"{_where(key)}.elements[{name!r:.60}] is not an element card (got {card!r:.80})"
+            )
+    return dict(raw)
 
 
 def _point(path: Path, key: str, i: int, raw: Any) -> StoredPoint:
@@ -293,6 +318,31 @@ def _number(path: Path, raw: Any, key: str, i: int, q: str) -> float:
     return value
 
 
+# --------------------------------------------------------------------------- element cards
+
+
+def _card(e: Element) -> str:
+    """The element as the reader understood it: kind, nodes, then its value (or AC magnitude and phase)."""
+    extra = [*(e.coupled or ()), *([e.control] if e.control else [])]
+    value = [repr(e.ac_mag), repr(e.ac_phase_deg)] if e.kind in "VI" else [repr(e.value)]
+    return " ".join([e.kind, *(() if e.kind == "K" else e.nodes), *extra, *value])
+
+
+def element_cards(case: Any) -> dict[str, str] | None:
+    """Element name -> card for the case's netlist, or None when it cannot be read now.
+
+    The text read is the netlist the run itself accepted (``case.netlist_text``), read by the same
+    reader, so nothing new reaches a file, a shell or ngspice; the cards hold only the reader's names
+    and Python's numbers (``baseline_file`` refuses anything else when it reads them back)."""
+    if case is None:
+        return None
+    try:
+        network = read_netlist(case.netlist_text, allow_negative=case.allow_negative, port=Port(*case.port))
+    except (CrosscheckError, TypeError, ValueError):
+        return None
+    return {e.name: _card(e) for e in network.elements}
+
+
 # --------------------------------------------------------------------------- writing
 
 
@@ -307,6 +357,7 @@ def baseline_document(baseline: Baseline, tolerance: Tolerance = BASELINE) -> di
                 "case_sha256": entry.case_sha256,
                 "netlist_sha256": entry.netlist_sha256,
                 "port": list(entry.port),
+                **({} if entry.elements is None else {"elements": dict(sorted(entry.elements.items()))}),
                 "points": [
                     {"freq_hz": p.freq_hz, **{q: phasor_json(p.values.get(q)) for q in STORED}} for p in entry.points
                 ],

@@ -169,7 +169,8 @@ def _part(piece: str, whole: str) -> float:
         raise ValueSyntaxError(f"cannot read {whole!r}; write {_PHASOR_FORMS}") from None
 
 
-# Mega is "Meg", as SPICE writes it: a plain "M" reads back as milli, 1e9 too small.
+# Bare numbers write mega as "Meg", as SPICE reads it (a plain "M" reads back as milli, 1e9 too
+# small); a number with a unit is for people and takes the SI "M" ("1 MHz", "2.2 MΩ").
 _PREFIXES = (
     (1e12, "T"),
     (1e9, "G"),
@@ -182,19 +183,42 @@ _PREFIXES = (
     (1e-12, "p"),
     (1e-15, "f"),
 )
+_PREFIX_LETTERS = "TGMegkmunpf"
+
+#: Units that never take an SI prefix: a logarithmic ratio ("0.3045 dB", never "304.5 mdB"), percent, degrees.
+_UNPREFIXED = ("%", "°", "deg", "rad")
+
+
+def _unprefixed(unit: str) -> bool:
+    u = unit.strip()
+    return u.startswith("dB") or u in _UNPREFIXED
+
+
+def _plain(x: float, sig: int) -> str:
+    """``sig`` significant figures with no prefix; an exponent only beyond 1e-4 … 1e6."""
+    ax = abs(x)
+    if ax != 0 and not (1e-4 <= ax < 1e6 * (1 - 0.5 * 10 ** (-sig))):
+        return f"{x:.{sig - 1}e}"
+    return f"{x:.{sig}g}"
 
 
 def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
     """Format with an SI prefix and ``sig`` significant figures: 4700 -> '4.7k'.
 
     A ``unit`` given with a leading space is set apart the engineering way: (1000, unit=" Hz") -> '1 kHz'.
+    With a unit, mega is the SI "M" (1e6, " Hz" -> '1 MHz'); a bare number keeps SPICE's "Meg" so that
+    ``parse_number`` reads it back. Decibels, percent and degrees take no prefix: (0.30449, 4, " dB") ->
+    '0.3045 dB'.
     """
-    if unit.startswith(" ") and x is not None and math.isfinite(x) and x != 0:
-        bare = format_eng(x, sig)
-        head = bare.rstrip("TGMegkmunpf")
-        return f"{head} {bare[len(head) :]}{unit.strip()}" if "e" not in head[-4:] else f"{bare} {unit.strip()}"
     if x is None or not math.isfinite(x):
         return f"{x}{unit}"
+    if unit and _unprefixed(unit):
+        return f"{_plain(x, sig)}{unit}"
+    if unit.startswith(" ") and x != 0:
+        bare = format_eng(x, sig)
+        head = bare.rstrip(_PREFIX_LETTERS)
+        prefix = bare[len(head) :].replace("Meg", "M")
+        return f"{head} {prefix}{unit.strip()}" if "e" not in head[-4:] else f"{bare} {unit.strip()}"
     if x == 0:
         return f"0{unit}"
     ax = abs(x)
@@ -204,7 +228,67 @@ def format_eng(x: float, sig: int = 4, unit: str = "") -> str:
         return f"{x:.{sig - 1}e}{unit}"
     scale, prefix = found
     text = f"{x / scale:.{sig}g}"
-    return f"{text}{prefix}{unit}"
+    return f"{text}{'M' if unit and prefix == 'Meg' else prefix}{unit}"
+
+
+#: |X|/R below this is resistive whatever the element value: the reactance is rounding, not a part.
+RESISTIVE_RATIO = 1e-9
+#: |X|/R below this is resistive when the element would also be absurd (below).
+_SMALL_RATIO = 1e-3
+#: A series C above 1 F or L below 1 fH (a parallel L above 1 GH or C below 1 aF) is no real part.
+_ABSURD = {
+    ("C", True): (1.0, math.inf),
+    ("L", True): (0.0, 1e-15),
+    ("L", False): (1e9, math.inf),
+    ("C", False): (0.0, 1e-18),
+}
+
+
+def reactive_element(z: complex, freq_hz: float, series: bool = True) -> tuple[str, float] | None:
+    """The reactive element of ``z`` (series R + L or C; parallel G ‖ C or L for an admittance), or None
+    when there is none to draw: DC, zero reactance, or near-resistive (see ``resistive_digits``)."""
+    x = z.imag
+    if freq_hz == 0 or x == 0 or resistive_digits(z, freq_hz, series) is not None:
+        return None
+    omega = 2.0 * math.pi * freq_hz
+    if series:
+        return ("L", x / omega) if x > 0 else ("C", -1.0 / (omega * x))
+    return ("C", x / omega) if x > 0 else ("L", -1.0 / (omega * x))
+
+
+def resistive_digits(z: complex, freq_hz: float, series: bool = True) -> int | None:
+    """How many digits ``z`` is resistive to (floor of -log10 |X|/R), when its L or C would be absurd:
+    |X|/R below 1e-9, or below 1e-3 with an element value no part has (``_ABSURD``); else None."""
+    r, x = abs(z.real), abs(z.imag)
+    if freq_hz == 0 or x == 0 or r == 0:
+        return None
+    ratio = x / r
+    if ratio >= _SMALL_RATIO:
+        return None
+    omega = 2.0 * math.pi * freq_hz
+    if series:
+        kind, value = ("L", x / omega) if z.imag > 0 else ("C", 1.0 / (omega * x))
+    else:
+        kind, value = ("C", x / omega) if z.imag > 0 else ("L", 1.0 / (omega * x))
+    lo, hi = _ABSURD[(kind, series)]
+    if ratio >= RESISTIVE_RATIO and not lo < value < hi:
+        return None
+    return int(math.floor(-math.log10(ratio)))
+
+
+def format_element_form(z: complex, freq_hz: float, series: bool = True, sig: int = 4) -> str:
+    """Z_th as 'R + L or C' ('50 Ω + L 1.2 nH'), or Y_N as 'G ‖ C or L'; a near-resistive one as R (G)
+    alone with a note, never an absurd element: '50 Ω (resistive to 12 digits: no series L or C)'."""
+    first = format_eng(z.real, sig, " Ω" if series else " S")
+    element = reactive_element(z, freq_hz, series)
+    if element is not None:
+        kind, value = element
+        joiner = " + " if series else " ‖ "
+        return f"{first}{joiner}{kind} {format_eng(value, sig, ' H' if kind == 'L' else ' F')}"
+    digits = resistive_digits(z, freq_hz, series)
+    if digits is None:
+        return first
+    return f"{first} (resistive to {digits} digits: no {'series L or C' if series else 'parallel C or L'})"
 
 
 def format_rect(z: complex, sig: int = 4, unit: str = "") -> str:

@@ -18,7 +18,7 @@ from crosscheck.model.values import format_eng, format_polar
 from crosscheck.report.caution import CAUTION
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
-from crosscheck.report.plots import case_figure_png, is_swept
+from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_png, is_swept
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
 from crosscheck.vocabulary import quantity_unit
@@ -29,9 +29,8 @@ h1 { margin-bottom: 0.2em; } h3 { margin-bottom: 0.3em; }
 table { border-collapse: collapse; margin: 0.5em 0 1em; font-size: 0.9em; }
 th, td { border: 1px solid #ccc; padding: 0.25em 0.5em; text-align: left; vertical-align: top; }
 th { background: #f2f2f2; } td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-.verdict { font-weight: bold; padding: 0.05em 0.4em; border-radius: 0.3em; color: white; }
-.v-pass { background: #2e7d32; } .v-fail { background: #c62828; } .v-error { background: #8e24aa; }
-.v-unavailable { background: #8d6e00; } .v-drift { background: #6a1b9a; } .v-other { background: #555; }
+.verdict { font-weight: bold; padding: 0.05em 0.4em; border-radius: 0.3em; color: black; }
+.v-other { background: #ffffff; border: 1px solid #000; }
 .status { font-size: 1.25em; } .meta { color: #555; font-size: 0.9em; }
 .why { background: #fff4e5; border-left: 4px solid #d9822b; padding: 0.4em 0.7em; }
 .error { background: #fdecea; border-left: 4px solid #c62828; padding: 0.4em 0.7em; white-space: pre-wrap; }
@@ -43,6 +42,22 @@ footer { border-top: 2px solid #ddd; margin-top: 2em; padding-top: 0.5em; color:
 """
 
 _KNOWN = ("pass", "fail", "error", "unavailable", "drift")
+
+
+def verdict_css() -> str:
+    """Badge rules: each verdict its own Okabe–Ito colour (``plots.VERDICT_COLOURS``) and its own symbol
+    before the word, so no verdict is told by colour alone. Black text reads on every fill but black,
+    which takes white (contrast at least 4.5:1 throughout)."""
+    rules = []
+    for verdict in _KNOWN:
+        colour = VERDICT_COLOURS[verdict]
+        text = "white" if colour == "#000000" else "black"
+        rules.append(f".v-{verdict} {{ background: {colour}; color: {text}; }}")
+        rules.append(f'.v-{verdict}::before {{ content: "{VERDICT_SYMBOLS[verdict]} "; }}')
+    return "\n".join(rules) + "\n"
+
+
+_STYLE += verdict_css()
 
 
 def _e(text: object) -> str:

@@ -23,10 +23,41 @@ MIN_SWEEP_POINTS = 3
 #: Errors of exactly zero cannot sit on a log axis; they are drawn here and the axis says so.
 ERROR_FLOOR = 1e-18
 
-_OWN: dict[str, Any] = dict(color="#1f5fa8", lw=1.6, label="crosscheck")
-_SPICE: dict[str, Any] = dict(color="#d9822b", marker="o", ms=4.5, ls="none", mfc="none", mew=1.2, label="ngspice")
-_VERDICT_COLOUR = {"pass": "#2e7d32", "fail": "#c62828", "unavailable": "#9e9e9e", "drift": "#6a1b9a"}
-_ERR_COLOURS = {"vth": "#1f5fa8", "zth": "#d9822b", "in": "#2e7d32"}
+#: Okabe & Ito's colour-blind-safe palette ("Color Universal Design", Okabe and Ito 2008): eight colours
+#: that stay distinct under protanopia, deuteranopia and tritanopia.
+OKABE_ITO = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky blue": "#56B4E9",
+    "bluish green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish purple": "#CC79A7",
+}
+#: One colour per verdict, each a different Okabe–Ito colour; reports also spell the verdict (and the HTML
+#: badge adds a symbol), so colour is never the only sign.
+VERDICT_COLOURS = {
+    "pass": OKABE_ITO["bluish green"],
+    "fail": OKABE_ITO["vermillion"],
+    "error": OKABE_ITO["reddish purple"],
+    "unavailable": OKABE_ITO["black"],
+    "drift": OKABE_ITO["sky blue"],
+}
+#: A symbol per verdict, so that a verdict is told by shape as well as by colour (and its word).
+VERDICT_SYMBOLS = {"pass": "✓", "fail": "✗", "error": "!", "unavailable": "∅", "drift": "Δ"}
+#: Matplotlib markers per verdict, for hand values drawn on the plots.
+_VERDICT_MARKERS = {"pass": "o", "fail": "X", "error": "D", "unavailable": "s", "drift": "^"}
+#: Fraction of the y span left free above and below the data and limits.
+MARGIN = 0.05
+
+_OWN: dict[str, Any] = dict(color=OKABE_ITO["blue"], lw=1.6, label="crosscheck")
+_SPICE: dict[str, Any] = dict(
+    color=OKABE_ITO["orange"], marker="o", ms=4.5, ls="none", mfc="none", mew=1.2, label="ngspice"
+)
+_VERDICT_COLOUR = VERDICT_COLOURS
+_FAIL = VERDICT_COLOURS["fail"]
+_ERR_COLOURS = {"vth": OKABE_ITO["blue"], "zth": OKABE_ITO["orange"], "in": OKABE_ITO["bluish green"]}
 _PANELS = {
     ("abs", "zth"): "zmag",
     ("abs", "vth"): "vmag",
@@ -67,19 +98,12 @@ def _limit_bounds(check: LimitCheck) -> tuple[float | None, float | None]:
 
 
 def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float | None, upper: float | None) -> None:
-    """The forbidden side of each bound, shaded over the limit's band; the bound itself as a dashed line."""
-    colour = _VERDICT_COLOUR.get(check.verdict, "#c62828")
-    log = ax.get_yscale() == "log"
-    if log:  # a bound at or below zero has no place on a log axis
-        lower = lower if lower is not None and lower > 0 else None
-        upper = upper if upper is not None and upper > 0 else None
+    """The forbidden side of each bound, shaded over the limit's band; the bound itself as a dashed line.
+
+    Call after ``fit_y``: the shading runs from the bound to the panel's edge."""
+    colour = _VERDICT_COLOUR.get(check.verdict, _FAIL)
+    lower, upper = _drawable(ax, lower), _drawable(ax, upper)
     bottom, top = ax.get_ylim()
-    span = top - bottom
-    # Widen the axis so the bound shows with some forbidden region beyond it.
-    if upper is not None:
-        top = max(top, upper * 1.5 if log else upper + 0.1 * span)
-    if lower is not None:
-        bottom = min(bottom, lower / 1.5 if log else lower - 0.1 * span)
     label: str | None = f"limit[{check.index}] {check.text} ({check.verdict})"
     for bound, edge in ((upper, top), (lower, bottom)):
         if bound is None:
@@ -90,15 +114,43 @@ def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float
     ax.set_ylim(bottom, top)
 
 
+def _drawable(ax, bound: float | None) -> float | None:
+    """A bound that can sit on this axis: finite, and above zero on a log axis."""
+    if bound is None or not math.isfinite(bound) or (ax.get_yscale() == "log" and bound <= 0):
+        return None
+    return bound
+
+
+def fit_y(ax, bounds: Sequence[float | None] = ()) -> tuple[float, float]:
+    """Set the y range to hold every drawn line's data and each bound, with ``MARGIN`` of the span
+    either side (in decades on a log axis). A flat curve gets a span of its own: 10 % of its value
+    (1 for zero) on a linear axis, one decade on a log axis. Returns the range set."""
+    log = ax.get_yscale() == "log"
+    ys = [np.asarray(line.get_ydata(), dtype=float) for line in ax.lines]
+    values = np.concatenate([*ys, np.array([b for b in bounds if _drawable(ax, b) is not None], dtype=float)])
+    values = values[np.isfinite(values) & ((values > 0) if log else True)]
+    if not values.size:
+        return ax.get_ylim()
+    lo, hi = (np.log10(values.min()), np.log10(values.max())) if log else (values.min(), values.max())
+    span = hi - lo
+    if span <= 0:
+        span = 1.0 if log else (0.1 * abs(hi) or 1.0)
+        lo, hi = lo - span / 2, hi + span / 2
+    lo, hi = lo - MARGIN * span, hi + MARGIN * span
+    limits = (10**lo, 10**hi) if log else (lo, hi)
+    ax.set_ylim(*limits)
+    return limits
+
+
 def _expectation_points(axes: dict, result: CaseResult) -> None:
     for e in result.expectations:
         if e.quantity not in ("vth", "zth") or e.at_hz <= 0:
             continue
         prefix = "z" if e.quantity == "zth" else "v"
-        colour = _VERDICT_COLOUR.get(e.verdict, "#c62828")
+        colour = _VERDICT_COLOUR.get(e.verdict, _FAIL)
         style = dict(
-            marker="*",
-            ms=12,
+            marker=_VERDICT_MARKERS.get(e.verdict, "*"),
+            ms=10,
             ls="none",
             color=colour,
             mec="black",
@@ -127,7 +179,8 @@ def _error_panel(ax, result: CaseResult, freqs: np.ndarray, keep: np.ndarray) ->
             continue
         drew_floor |= bool(np.any(errs == 0))
         ax.plot(freqs, np.where(errs == 0, ERROR_FLOOR, errs), marker=".", color=colour, lw=1, label=quantity)
-    ax.axhline(result.tolerance.rel, color="#c62828", ls="--", lw=1.2, label=f"tolerance {result.tolerance.rel:.3g}")
+    ax.axhline(result.tolerance.rel, color=_FAIL, ls="--", lw=1.2, label=f"tolerance {result.tolerance.rel:.3g}")
+    fit_y(ax)
     if drew_floor:
         ax.text(
             0.01, 0.02, f"exact agreement drawn at {ERROR_FLOOR:g}", transform=ax.transAxes, fontsize=8, color="#555555"
@@ -142,8 +195,8 @@ def _other_limits_panel(ax, result: CaseResult, checks: list[LimitCheck]) -> Non
     for c in checks:
         if c.values:
             f, v = zip(*c.values)
-            ax.plot(f, v, color=_VERDICT_COLOUR.get(c.verdict, "#c62828"), marker=".", lw=1, label=c.text)
-    ax.autoscale_view()
+            ax.plot(f, v, color=_VERDICT_COLOUR.get(c.verdict, _FAIL), marker=".", lw=1, label=c.text)
+    fit_y(ax, [b for c in checks for b in (c.minimum, c.maximum)])
     for c in checks:
         band = c.band or (min(result.freqs_hz), max(result.freqs_hz))
         _shade_limit(ax, c, band[0], band[1], c.minimum, c.maximum)
@@ -176,8 +229,9 @@ def _draw_routes(
         ax.grid(True, which="both", alpha=0.25)
 
 
-def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
-    """The case's figure as PNG bytes, or None when the case is not a sweep (fewer than 3 frequencies > 0)."""
+def case_figure(result: CaseResult) -> Any:
+    """The case's matplotlib ``Figure`` (not rendered), or None when the case is not a sweep (fewer than 3
+    frequencies > 0). Every panel's y range holds its data and its limits (``fit_y``)."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
     from matplotlib.ticker import LogLocator, NullFormatter
@@ -204,13 +258,7 @@ def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
     error_ax = fig.add_subplot(grid[2, 0] if other else grid[2, :])
     _draw_routes(axes, freqs, own, ref, result.sources)
     _expectation_points(axes, result)
-    for c in result.limits:
-        panel = _PANELS.get((c.function, c.quantity))
-        if panel is not None:
-            band = c.band or (float(freqs.min()), float(freqs.max()))
-            _shade_limit(axes[panel], c, band[0], band[1], *_limit_bounds(c))
-    for ax in axes.values():
-        ax.legend(fontsize=8, loc="best")
+    _limits_on_panels(axes, result, freqs)
     _error_panel(error_ax, result, freqs, keep)
     error_ax.grid(True, which="both", alpha=0.25)
     if other:
@@ -224,6 +272,38 @@ def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
             if axis.get_scale() == "log":
                 axis.set_minor_locator(LogLocator(subs=(2.0, 5.0)))
             axis.set_minor_formatter(NullFormatter())
+    return fig
+
+
+def _limits_on_panels(axes: dict[str, Any], result: CaseResult, freqs: np.ndarray) -> None:
+    """Fit each route panel to its data and the bounds of the limits drawn on it, then shade the limits."""
+    on_panel: dict[str, list[LimitCheck]] = {key: [] for key in axes}
+    for c in result.limits:
+        panel = _PANELS.get((c.function, c.quantity))
+        if panel is not None:
+            on_panel[panel].append(c)
+    for key, ax in axes.items():
+        bounds = [b for c in on_panel[key] for b in _limit_bounds(c)]
+        if key.endswith("mag") and ax.get_yscale() != "log":  # bounds decades from the data: a log axis shows both
+            positive = [v for v in (*_panel_values(ax), *bounds) if v is not None and math.isfinite(v) and v > 0]
+            if positive and max(positive) / min(positive) > 20:
+                ax.set_yscale("log")
+        fit_y(ax, bounds)
+        for c in on_panel[key]:
+            band = c.band or (float(freqs.min()), float(freqs.max()))
+            _shade_limit(ax, c, band[0], band[1], *_limit_bounds(c))
+        ax.legend(fontsize=8, loc="best")
+
+
+def _panel_values(ax) -> list[float]:
+    return [float(y) for line in ax.lines for y in np.asarray(line.get_ydata(), dtype=float)]
+
+
+def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
+    """The case's figure (``case_figure``) as PNG bytes, or None when the case is not a sweep."""
+    fig = case_figure(result)
+    if fig is None:
+        return None
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
     return buffer.getvalue()
