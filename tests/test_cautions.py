@@ -201,3 +201,17 @@ def test_case_caution_of_the_wrong_kind_is_refused_naming_the_key(tmp_path: Path
     path = _case(tmp_path / "bad", "low", LOW, extra=f"caution = {value}\n")
     with pytest.raises(CaseFileError, match=rf"key 'caution'.*{message}"):
         load_case(path)
+
+
+def test_a_hazard_assessed_with_the_network_equals_one_assessed_from_the_case_file(mains: list[CaseResult]) -> None:
+    """Judging with the network at hand (``assessed_hazard``) and re-reading the case's netlist agree exactly."""
+    from dataclasses import replace
+
+    from crosscheck.judge.hazards import assess_network
+    from crosscheck.run.check import load_network
+
+    result = mains[0]
+    assert result.case is not None
+    network, _ = load_network(result.case)
+    given = replace(result, assessed_hazard=assess_network(network, result.own, result.sources))
+    assert given.hazard == result.hazard and given.hazard is given.assessed_hazard

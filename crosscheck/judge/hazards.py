@@ -128,6 +128,11 @@ def source_volts(network: Network) -> tuple[float, ...]:
     return tuple(abs(e.ac_mag) for e in network.by_kind("V"))
 
 
+def assess_network(network: Network, own: Sequence[Equivalent] | None, sources: str = "peak") -> Hazard | None:
+    """``assess`` for a network at hand (None when the own route gave no equivalents)."""
+    return assess(source_volts(network), own, sources) if own else None
+
+
 def assess_case(case: Case | None, own: Sequence[Equivalent] | None, sources: str = "peak") -> Hazard | None:
     """``assess`` for a case whose network is not at hand: its netlist is read again (None: no equivalents).
 
@@ -137,7 +142,7 @@ def assess_case(case: Case | None, own: Sequence[Equivalent] | None, sources: st
     """
     if not own:
         return None
-    volts: tuple[float, ...] = ()
+    volts: tuple[float, ...] = ()  # a network that does not read: no source test
     if case is not None:
         try:
             network = read_netlist(

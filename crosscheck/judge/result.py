@@ -41,11 +41,17 @@ class CaseResult:
     limits: tuple[LimitCheck, ...] = ()
     drift: tuple[DriftCheck, ...] = ()
     baseline_note: str = ""  # e.g. the case is not in the baseline: a note, never a verdict
+    #: The hazard judgement made where the network is at hand (``judge.hazards.assess_network``); None: made on
+    #: first use of ``hazard``, reading the case's netlist again.
+    assessed_hazard: Hazard | None = None
 
     @cached_property
     def hazard(self) -> Hazard | None:
         """Its sources, port voltage and prospective current against the hazard limits (``judge.hazards``);
-        None when the own route gave nothing. Assessed on first use and kept: every report reads it."""
+        None when the own route gave nothing. ``assessed_hazard`` when judging set it, else assessed on first
+        use and kept: every report reads it."""
+        if self.assessed_hazard is not None:
+            return self.assessed_hazard
         return assess_case(self.case, self.own, self.sources)
 
     @property
