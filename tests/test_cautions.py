@@ -169,15 +169,15 @@ def test_dc_levels_are_held_against_the_dc_limit(tmp_path: Path) -> None:
     )
 
 
-def test_port_voltage_above_elv_flags_a_low_voltage_source(tmp_path: Path) -> None:
-    """A 12 V source stepped up twentyfold (a VCVS) puts 240 V on the port: flagged, and the words name |V_th|."""
-    net = "step-up\nV1 1 0 AC 12\nRIN 1 0 1k\nE1 2 0 1 0 20\nR2 2 out 10\nRL out 0 1meg\n.end\n"
-    results = _run(_case(tmp_path / "x", "stepup", net))
+def test_current_sources_skip_the_voltage_test_and_a_large_current_alone_flags(tmp_path: Path) -> None:
+    """A 200 A current source (no voltage of its own) is flagged on |I_N| alone: 200 A RMS to 1e-9, no source level."""
+    net = "current\nI1 0 out AC 200\nR1 out 0 1\n.end\n"
+    results = _run(_case(tmp_path / "i", "isrc", net))
     hazard = results[0].hazard
-    assert hazard is not None and hazard.source is not None and not hazard.source.above
-    assert hazard.port_voltage is not None and hazard.port_voltage.value == pytest.approx(240.0, rel=1e-3)
-    assert hazard.above_elv and not hazard.high_current  # 240 V / 10 ohm = 24 A
-    assert "open-circuit voltage |V_th|" in markdown_report(results)
+    assert hazard is not None and hazard.source is None and not hazard.above_elv
+    assert hazard.high_current and hazard.current is not None
+    assert hazard.current.value == pytest.approx(200.0, rel=1e-9)
+    assert "a prospective short-circuit current |I_N| of 200 A RMS at 50 Hz" in markdown_report(results)
 
 
 def test_hostile_case_caution_is_inert_in_every_format(tmp_path: Path) -> None:

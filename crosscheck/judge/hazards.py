@@ -1,13 +1,14 @@
-"""Is a case at a hazardous level? Its sources and port against extra-low voltage, its I_N against a flag.
+"""Is a case at a hazardous level? Its voltage sources against extra-low voltage, its I_N against a flag.
 
 A judgement on the result, made once per case, which every report words the same way
 (``report.caution``). Two tests, either of which flags the case:
 
-- Voltage: the highest independent voltage source, and the port's open-circuit voltage |V_th|, against
-  the extra-low-voltage limits, 50 V AC RMS and 120 V ripple-free DC (IEC 61140 / IEC 60449 band I,
-  from memory; common practice — defer to local codes). The port voltage is held too because a
-  network can raise a safe source to a hazardous level (a step-up transformer, a resonance).
-  Current sources have no voltage of their own and are left out of the source test.
+- Voltage: the highest independent voltage source against the extra-low-voltage limits, 50 V AC RMS
+  and 120 V ripple-free DC (IEC 61140 / IEC 60449 band I, from memory; common practice — defer to
+  local codes). Current sources have no voltage of their own and are left out of this test. The port's
+  |V_th| is not held against the limits: behind a current-output stage a small-signal model gives
+  kilovolts no circuit could reach (a corpus control case shows 83 kV), and a flag that is mostly
+  wrong teaches readers to skip it.
 - Current: the prospective short-circuit current |I_N| (the own route's Norton current, the highest
   over the case's frequencies) above ``HIGH_CURRENT_RMS_A``.
 
@@ -64,19 +65,17 @@ class Level:
 class Hazard:
     """A case's levels against the limits; ``flagged`` when any is above its limit.
 
-    ``source``: the highest independent voltage source (None: the network has none);
-    ``port_voltage``: the highest |V_th|; ``current``: the highest |I_N| (None: no point has a Norton
-    form, i.e. an ideal source at the port). For the voltages, "highest" is the largest share of its
-    limit, so an AC and a DC point compare fairly.
+    ``source``: the highest independent voltage source (None: the network has none); ``current``: the highest |I_N| (None: no point has a Norton
+    form, i.e. an ideal source at the port). "Highest" is the largest share of its limit, so an AC and
+    a DC point compare fairly.
     """
 
     source: Level | None
-    port_voltage: Level | None
     current: Level | None
 
     @property
     def above_elv(self) -> bool:
-        return any(level is not None and level.above for level in (self.source, self.port_voltage))
+        return self.source is not None and self.source.above
 
     @property
     def high_current(self) -> bool:
@@ -110,9 +109,6 @@ def assess(source_volts: Sequence[float], own: Sequence[Equivalent], sources: st
     source = None
     if top is not None:
         source = _highest([_level(top, f, peak, ELV_AC_RMS_V, ELV_DC_V) for f in freqs])
-    port_voltage = _highest(
-        [_level(abs(eq.vth), eq.freq_hz, peak, ELV_AC_RMS_V, ELV_DC_V) for eq in own if eq.vth is not None]
-    )
     current = _highest(
         [
             _level(abs(eq.in_), eq.freq_hz, peak, HIGH_CURRENT_RMS_A, HIGH_CURRENT_RMS_A)
@@ -120,7 +116,7 @@ def assess(source_volts: Sequence[float], own: Sequence[Equivalent], sources: st
             if eq.in_ is not None
         ]
     )
-    return Hazard(source, port_voltage, current)
+    return Hazard(source, current)
 
 
 def source_volts(network: Network) -> tuple[float, ...]:

@@ -47,7 +47,7 @@ class CaseResult:
 
     @cached_property
     def hazard(self) -> Hazard | None:
-        """Its sources, port voltage and prospective current against the hazard limits (``judge.hazards``);
+        """Its sources and prospective current against the hazard limits (``judge.hazards``);
         None when the own route gave nothing. ``assessed_hazard`` when judging set it, else assessed on first
         use and kept: every report reads it."""
         if self.assessed_hazard is not None:

@@ -58,15 +58,11 @@ def _against(level: Level, unit: str, what: str) -> str:
 def hazard_text(hazard: Hazard) -> str:
     """The caution for a flagged case, in crosscheck's words only (no user text): levels, limits, whom to defer to.
 
-    The port's |V_th| is named only when it is above extra-low voltage while no source is (a step-up or a
-    resonance); |I_N| is always named, as RMS.
+    |I_N| is always named, as RMS (or DC at 0 Hz), whichever test flagged the case.
     """
     parts = []
     if hazard.source is not None:
         parts.append("a voltage source of " + _against(hazard.source, "V", "extra-low-voltage limit"))
-    port = hazard.port_voltage
-    if port is not None and port.above and not (hazard.source is not None and hazard.source.above):
-        parts.append("the port's open-circuit voltage |V_th| of " + _against(port, "V", "extra-low-voltage limit"))
     if hazard.current is not None:
         parts.append("a prospective short-circuit current |I_N| of " + _against(hazard.current, "A", "flag"))
     else:

@@ -149,7 +149,6 @@ def caution_document(result: CaseResult) -> dict[str, Any]:
             "above_extra_low_voltage": hazard.above_elv,
             "high_prospective_current": hazard.high_current,
             "source_voltage": _level_document(hazard.source, "V"),
-            "port_voltage": _level_document(hazard.port_voltage, "V"),
             "prospective_current": _level_document(hazard.current, "A"),
         },
         "text": (found.hazard or None) if found is not None else None,
