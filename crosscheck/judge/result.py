@@ -7,7 +7,9 @@ and the fuzzer; a later judgement (a baseline held against it) makes a new one w
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
+from crosscheck.judge.hazards import Hazard, assess_case
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.model.cases import Case
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
@@ -39,6 +41,23 @@ class CaseResult:
     limits: tuple[LimitCheck, ...] = ()
     drift: tuple[DriftCheck, ...] = ()
     baseline_note: str = ""  # e.g. the case is not in the baseline: a note, never a verdict
+    #: The hazard judgement made where the network is at hand (``judge.hazards.assess_network``); None: made on
+    #: first use of ``hazard``, reading the case's netlist again.
+    assessed_hazard: Hazard | None = None
+
+    @cached_property
+    def hazard(self) -> Hazard | None:
+        """Its sources and prospective current against the hazard limits (``judge.hazards``);
+        None when the own route gave nothing. ``assessed_hazard`` when judging set it, else assessed on first
+        use and kept: every report reads it."""
+        if self.assessed_hazard is not None:
+            return self.assessed_hazard
+        return assess_case(self.case, self.own, self.sources)
+
+    @property
+    def stated_caution(self) -> str:
+        """The case file's own ``caution`` text (untrusted user text), or ""."""
+        return self.case.caution if self.case is not None else ""
 
     @property
     def explanation(self) -> str:

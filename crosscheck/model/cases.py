@@ -2,7 +2,8 @@
 
 A case file names its netlist (a file inside its own folder tree, or inline
 text), the port, the frequencies or a sweep, the source convention, the
-solver-vs-SPICE tolerance, hand-calculated expectations and design limits.
+solver-vs-SPICE tolerance, hand-calculated expectations, design limits and a ``caution`` (free text
+that every report shows near its top, for what the numbers leave out).
 Errors name the file and the key at fault. ``model.case_file`` reads the file and checks its
 structure (size, kind of file, nesting, string lengths, key types) before anything here looks at it;
 the limits on values are documented there and here (``MAX_POINTS``, ``MAX_FREQUENCY_HZ``).
@@ -78,6 +79,7 @@ class Case:
     limits: tuple[Limit, ...] = ()
     allow_negative: bool = False
     tags: tuple[str, ...] = field(default=())
+    caution: str = ""  # the case file's own caution, free text (user text: reports make it inert)
 
     @property
     def name(self) -> str:
@@ -320,6 +322,7 @@ _TOP_KEYS = {
     "allow_negative",
     "tags",
     "about",
+    "caution",
 }
 
 
@@ -353,6 +356,7 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         limits=tuple(_limits(path, data)),
         allow_negative=boolean(path, data, "allow_negative", False),
         tags=_tags(path, data),
+        caution=string(path, data, "caution", "").strip(),
     )
 
 

@@ -5,7 +5,9 @@ One row per case, check, frequency and quantity (columns in ``frame.COLUMNS``; t
 are split into ``*_re`` and ``*_im`` columns, written as the shortest text that reads back
 to the same double, so a round trip through ``read_csv`` loses nothing. Empty cells mean "not applicable to this row".
 The last row (``check`` = ``caution``) carries the caution every report ends with, in a
-row rather than a trailing comment, so the file stays one valid table.
+row rather than a trailing comment, so the file stays one valid table. A case's own cautions
+(``report.caution``) come first, right under the header, in rows of the same kind with the case named:
+``quantity`` = ``hazard`` for crosscheck's judgement of its levels, ``case file`` for its file's ``caution``.
 Every string cell goes through ``untrusted.csv_text``: one a spreadsheet would read as a
 formula (it starts with ``= + - @``, tab or CR) gets a leading ``'``, the rule of OWASP's
 CSV Injection guidance; number columns are left as numbers.
@@ -18,7 +20,7 @@ from collections.abc import Sequence
 import pandas as pd
 
 from crosscheck.judge.result import CaseResult
-from crosscheck.report.caution import CAUTION
+from crosscheck.report.caution import CAUTION, case_cautions
 from crosscheck.report.frame import COLUMNS, verdict_frame
 from crosscheck.report.untrusted import csv_text
 
@@ -26,8 +28,23 @@ from crosscheck.report.untrusted import csv_text
 def csv_report(results: Sequence[CaseResult]) -> str:
     """The CSV text (header line first, ``\\n`` line ends)."""
     frame = verdict_frame(results)
-    caution = pd.DataFrame([{"check": "caution", "explanation": CAUTION}], columns=COLUMNS)
-    frame = pd.concat([frame, caution], ignore_index=True) if len(frame) else caution
+    own = [
+        {
+            "case": c.name,
+            "title": c.title,
+            "port": ",".join(results[c.index - 1].port),
+            "check": "caution",
+            "quantity": quantity,
+            "explanation": text,
+        }
+        for c in case_cautions(results)
+        for quantity, text in (("hazard", c.hazard), ("case file", c.stated))
+        if text
+    ]
+    rows = [pd.DataFrame(own, columns=COLUMNS)] if own else []
+    rows += [frame] if len(frame) else []
+    rows.append(pd.DataFrame([{"check": "caution", "explanation": CAUTION}], columns=COLUMNS))
+    frame = pd.concat(rows, ignore_index=True)
     for column in frame.columns:
         if not pd.api.types.is_numeric_dtype(frame[column]):  # text columns only: a negative number is no formula
             frame[column] = frame[column].map(csv_text)

@@ -3,6 +3,9 @@
 Self-contained means a reviewer can mail it or attach it to a CI run: no external links,
 no scripts, no fonts or styles fetched from anywhere; plots are PNG and drawings SVG,
 both embedded as base64 data URIs. Collapsed parts use ``<details>``, which needs no script.
+Cautions come before any case: the summary opens with each case's own (``report.caution``: a hazardous
+level, or its case file's ``caution``) and the general caution, which the page also ends with; a case's
+section repeats its own under its heading. Every string goes through ``html.escape``.
 """
 
 from __future__ import annotations
@@ -15,7 +18,7 @@ from collections.abc import Sequence
 
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
-from crosscheck.report.caution import CAUTION
+from crosscheck.report.caution import CAUTION, CaseCaution, case_caution, case_cautions
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
 from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_png, is_swept
@@ -96,6 +99,29 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], numeric: Seque
         for row in rows
     )
     return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _caution_items(c: CaseCaution) -> list[str]:
+    items = [_e(c.hazard)] if c.hazard else []
+    return items + ([f"The case file's caution: {_e(c.stated)}"] if c.stated else [])
+
+
+def _cautions(results: Sequence[CaseResult]) -> str:
+    """The cautions block at the top of the summary: each case's own, linked to its section, then the general one."""
+    rows = [
+        f'<li><a href="#case-{c.index}">{_e(c.name)}</a>: {item}</li>'
+        for c in case_cautions(results)
+        for item in _caution_items(c)
+    ]
+    listed = f"<ul>{''.join(rows)}</ul>" if rows else ""
+    return f'<div class="why cautions" id="cautions"><strong>Caution.</strong>{listed}<p>{_e(CAUTION)}</p></div>'
+
+
+def _case_caution(i: int, r: CaseResult) -> str:
+    found = case_caution(r, i)
+    if found is None:
+        return ""
+    return "".join(f'<p class="why caution"><strong>Caution.</strong> {item}</p>' for item in _caution_items(found))
 
 
 def _summary(results: Sequence[CaseResult]) -> str:
@@ -211,6 +237,7 @@ def _case_section(i: int, r: CaseResult) -> str:
     out = [
         f'<section class="case" id="case-{i}"><h3>{_e(r.title)} {_badge(r.verdict)}</h3>',
         f'<p class="meta">{" · ".join(meta)}</p>',
+        _case_caution(i, r),
     ]
     if r.error:
         out.append(f'<p class="error">{_e(r.error)}</p>')
@@ -242,7 +269,7 @@ def html_report(results: Sequence[CaseResult], title: str = "crosscheck report")
         '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
         f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>"
         f"<header><h1>{_e(title)}</h1>{head}</header>"
-        f"<h2>Summary</h2>{_summary(results)}<h2>Cases</h2>{body}"
+        f"<h2>Summary</h2>{_cautions(results)}{_summary(results)}<h2>Cases</h2>{body}"
         f'<footer><h2>Caution</h2><p class="caution">{_e(CAUTION)}</p></footer>'
         "</body></html>\n"
     )

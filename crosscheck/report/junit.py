@@ -8,6 +8,8 @@ follows; attributes as that schema allows them, from memory): ``<testsuites>`` h
 ``<failure>``, ``error`` is ``<error>``, ``unavailable`` is ``<skipped>`` with the reason. Each
 suite carries tests, failures, errors, skipped and time (``<testsuites>`` all but skipped, which
 the schema does not define there) and lists the ngspice and crosscheck versions as properties.
+A case's own cautions (``report.caution``: a hazardous level, or its case file's ``caution``) open its
+``<system-out>``, and the suite's ``<system-out>`` lists them before the general caution.
 """
 
 from __future__ import annotations
@@ -22,7 +24,7 @@ from pathlib import PurePath
 
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng
-from crosscheck.report.caution import CAUTION
+from crosscheck.report.caution import CAUTION, case_caution
 from crosscheck.report.frame import case_reason, finding_table, findings, worst_spice_error
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
@@ -64,12 +66,18 @@ def _details(result: CaseResult) -> str:
     return "\n".join(lines)
 
 
+def _caution_lines(result: CaseResult) -> list[str]:
+    found = case_caution(result)
+    return [f"CAUTION: {line}" for line in found.lines()] if found is not None else []
+
+
 def _summary(result: CaseResult) -> str:
     worst = worst_spice_error(result)
     span = ""
     if result.freqs_hz:
         span = f"{format_eng(min(result.freqs_hz), 4, ' Hz')} … {format_eng(max(result.freqs_hz), 4, ' Hz')}"
     parts = [
+        *_caution_lines(result),
         f"file: {result.name}",
         f"title: {result.title}",
         f"port: {result.port[0]} -> {result.port[1]}",
@@ -135,7 +143,8 @@ def junit_tree(results: Sequence[CaseResult], timestamp: str | None = None, host
         counts = Counter(_testcase(suite, r) for r in members)
         seconds = sum(r.elapsed_own_s + r.elapsed_spice_s for r in members)
         _counts(suite, len(members), counts, seconds)
-        ET.SubElement(suite, "system-out").text = f"Caution: {CAUTION}"
+        own = [f"{line} ({r.name})" for r in members for line in _caution_lines(r)]
+        ET.SubElement(suite, "system-out").text = _clean("\n".join([*own, f"Caution: {CAUTION}"]))
         ET.SubElement(suite, "system-err").text = ""
         total += counts
         total_time += seconds

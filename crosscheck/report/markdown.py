@@ -1,6 +1,7 @@
 """A Markdown summary of a run, sized for a pull-request comment.
 
-A header line with the overall status word and the counts; a table of the cases that
+A header line with the overall status word and the counts; the cautions of the cases that
+have their own (``report.caution``: a hazardous level, or the case file's ``caution``); a table of the cases that
 did not pass, with the reason; the rest (and the numbers behind each problem) folded
 into ``<details>`` blocks; the ngspice version; the caution. Code hosts cap a comment
 at about 65,000 characters, so long lists are cut with a note of how many were left out.
@@ -14,7 +15,7 @@ from collections import Counter
 from collections.abc import Sequence
 
 from crosscheck.judge.result import CaseResult
-from crosscheck.report.caution import CAUTION
+from crosscheck.report.caution import CAUTION, case_cautions
 from crosscheck.report.frame import (
     case_reason,
     count_words,
@@ -31,6 +32,10 @@ from crosscheck.version import __version__
 STATUS = {"pass": "PASS", "fail": "FAIL", "error": "ERROR", "unavailable": "UNAVAILABLE", "drift": "DRIFT"}
 MAX_ROWS = 200
 MAX_REASON = 300
+#: Cases whose own cautions are listed at the top (each at most ~1,600 characters: the comment stays under its cap).
+MAX_CAUTIONS = 20
+#: A case file's caution is cut to this many characters here (the JSON and HTML reports keep it whole).
+MAX_STATED = 1_000
 
 
 def _cell(text: object, limit: int = MAX_REASON) -> str:
@@ -83,6 +88,22 @@ def _passing_details(passing: Sequence[CaseResult]) -> list[str]:
     return lines
 
 
+def _cautions(results: Sequence[CaseResult]) -> list[str]:
+    """A quoted list of each case's own cautions, for the top of the comment ([] when no case has one)."""
+    found = case_cautions(results)
+    if not found:
+        return []
+    lines = ["> ⚠️ **Caution for these cases** (crosscheck's judgement, then what the case file says):", ">"]
+    for c in found[:MAX_CAUTIONS]:
+        if c.hazard:
+            lines.append(f"> - {_line(c.name)}: {c.hazard}")
+        if c.stated:
+            lines.append(f"> - {_line(c.name)}, its case file: {_line(c.stated, MAX_STATED)}")
+    if len(found) > MAX_CAUTIONS:
+        lines.append(f"> - … and {len(found) - MAX_CAUTIONS} more case(s) with a caution; see the full report.")
+    return [*lines, ""]
+
+
 def markdown_report(results: Sequence[CaseResult]) -> str:
     """The comment text (GitHub-flavoured Markdown; also renders on other code hosts)."""
 
@@ -90,6 +111,7 @@ def markdown_report(results: Sequence[CaseResult]) -> str:
     word = STATUS.get(overall, overall.upper())
     counts = Counter(r.verdict for r in results)
     lines = [f"### crosscheck: {word} — {len(results)} case(s): {count_words(counts)}", ""]
+    lines += _cautions(results)
     problems = [r for r in results if r.verdict != "pass"]
     passing = [r for r in results if r.verdict == "pass"]
     if problems:

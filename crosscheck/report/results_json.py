@@ -1,4 +1,10 @@
-"""JSON documents of checked cases: every engine's numbers, the errors and the verdicts."""
+"""JSON documents of checked cases: every engine's numbers, the errors and the verdicts.
+
+Cautions come first after the summary: ``cautions`` lists each case that has its own (a hazard
+``judge.hazards`` flagged, worded by ``report.caution``, or the case file's ``caution``), and each case's
+``caution`` holds the numbers behind it (levels as RMS, or DC, with the limits they were held against).
+The general ``caution`` stays last.
+"""
 
 from __future__ import annotations
 
@@ -7,8 +13,9 @@ from collections import Counter
 from collections.abc import Sequence
 from typing import Any
 
+from crosscheck.judge.hazards import Level
 from crosscheck.judge.result import CaseResult
-from crosscheck.report.caution import CAUTION
+from crosscheck.report.caution import CAUTION, case_caution, case_cautions
 from crosscheck.report.equivalents_json import own_point
 from crosscheck.version import __version__
 from crosscheck.vocabulary import Verdict
@@ -117,10 +124,43 @@ def checks_document(result: CaseResult) -> dict[str, Any]:
     }
 
 
+def _level_document(level: Level | None, unit: str) -> dict[str, Any] | None:
+    if level is None:
+        return None
+    return {
+        "value": _num(level.value),
+        "unit": f"{unit} DC" if level.dc else f"{unit} RMS",
+        "freq_hz": level.freq_hz,
+        "from_peak": level.from_peak,  # true: a peak phasor divided by sqrt(2)
+        "limit": level.limit,
+        "above": level.above,
+    }
+
+
+def caution_document(result: CaseResult) -> dict[str, Any]:
+    """The case's own caution: the hazard judgement's numbers and words, and the case file's text."""
+    hazard = result.hazard
+    found = case_caution(result)
+    return {
+        "hazard": None
+        if hazard is None
+        else {
+            "flagged": hazard.flagged,
+            "above_extra_low_voltage": hazard.above_elv,
+            "high_prospective_current": hazard.high_current,
+            "source_voltage": _level_document(hazard.source, "V"),
+            "prospective_current": _level_document(hazard.current, "A"),
+        },
+        "text": (found.hazard or None) if found is not None else None,
+        "stated": result.stated_caution or None,
+    }
+
+
 def case_document(result: CaseResult) -> dict[str, Any]:
     doc: dict[str, Any] = {
         "case": result.name,
         "title": result.title,
+        "caution": caution_document(result),
         "port": list(result.port),
         "sources": result.sources,
         "tolerance": {
@@ -154,6 +194,7 @@ def results_document(results: Sequence[CaseResult]) -> dict[str, Any]:
         "crosscheck_version": __version__,
         "ngspice_version": ngspice_version(results),
         "summary": summary(results),
+        "cautions": [{"case": c.name, "lines": c.lines()} for c in case_cautions(results)],
         "cases": [case_document(r) for r in results],
         "caution": CAUTION,
     }
