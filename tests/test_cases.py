@@ -131,3 +131,17 @@ def test_find_case_files_recurses_sorted(tmp_path):
         (tmp_path / p).write_text("")
     found = find_case_files([tmp_path])
     assert [p.relative_to(tmp_path).as_posix() for p in found] == ["a/y.toml", "b/x.toml"]
+
+
+def test_a_zero_relative_tolerance_is_refused_naming_the_key(tmp_path):
+    """rel = 0 in a case file contradicts the pass rule (it drops the abs and round-off terms): refused."""
+    import pytest
+
+    from crosscheck.errors import CaseFileError
+    from crosscheck.model.cases import load_case
+
+    (tmp_path / "rc.cir").write_text("rc\nV1 in 0 AC 1\nR1 in out 1k\nC1 out 0 100n\n.end\n")
+    case = tmp_path / "c.toml"
+    case.write_text('netlist = "rc.cir"\nport = ["out", "0"]\nfrequencies = ["1k"]\n[tolerance]\nrel = 0\n')
+    with pytest.raises(CaseFileError, match=r"tolerance\.rel.*machine epsilon"):
+        load_case(case)

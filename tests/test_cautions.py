@@ -194,7 +194,7 @@ def test_hostile_case_caution_is_inert_in_every_format(tmp_path: Path) -> None:
 
 @pytest.mark.parametrize(
     ("value", "message"),
-    [("5", "must be a string"), ('"a\\u0007b"', "control character"), (json.dumps("x" * 1001), "at most 1000")],
+    [("5", "must be a string"), ('"a\\u0007b"', "control character"), (json.dumps("x" * 100_001), "at most 100000")],
 )
 def test_case_caution_of_the_wrong_kind_is_refused_naming_the_key(tmp_path: Path, value: str, message: str) -> None:
     """``caution`` must be text without control characters, within the case file's string cap."""

@@ -28,7 +28,7 @@ def corpus(tmp_path: Path) -> tuple[list[Path], Path]:
     folder = tmp_path / "audio"
     shutil.copytree(CORPUS, folder)
     mixer = folder / "mixer_line_out.toml"
-    mixer.write_text(mixer.read_text().split("[[expect]]")[0])
+    mixer.write_text(mixer.read_text().split("\n[[expect]]")[0] + "\n")
     paths = sorted(folder.glob("*.toml"))
     target = folder / "baseline.json"
     update_baseline_file(_run(paths), target)

@@ -11,6 +11,7 @@ from dataclasses import replace
 from crosscheck.judge.baseline import Baseline, compare_with_baseline
 from crosscheck.judge.compare import EngineAnswer, compare_point, spice_answer
 from crosscheck.judge.expectations import check_expectations
+from crosscheck.judge.hazards import assess_network
 from crosscheck.judge.limits import check_limits
 from crosscheck.judge.records import ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.judge.result import CaseResult, case_verdict
@@ -39,7 +40,8 @@ def judged(
             [spice_answer(p) for p in result.spice.points] if result.spice is not None else [None] * len(result.own)
         )
         points = tuple(compare_point(o, r, result.tolerance, result.spice_note) for o, r in zip(result.own, refs))
-    new = replace(result, expectations=expectations, limits=limits, points=points)
+    hazard = assess_network(network, result.own, result.sources) if network is not None else None
+    new = replace(result, expectations=expectations, limits=limits, points=points, assessed_hazard=hazard)
     if baseline is not None:
         new = with_baseline(new, baseline)
     return replace(new, verdict=case_verdict(new))

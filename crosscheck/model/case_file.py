@@ -34,7 +34,7 @@ MAX_ENTRIES = 500
 #: low enough that 2·π·f times any element value stays far from overflowing a double.
 MAX_FREQUENCY_HZ = 1e15
 
-_FREE_TEXT = {"netlist", "about", "how", "why"}
+_FREE_TEXT = {"netlist", "about", "how", "why", "caution"}
 
 
 def err(path: Path, key: str, message: str) -> CaseFileError:

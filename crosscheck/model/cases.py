@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import math
 import os
+import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -157,6 +158,8 @@ def _tolerance(path: Path, key: str, given: dict[str, Any], default: Tolerance) 
     rel = _number(path, f"{key}.rel", given["rel"]) if "rel" in given else default.rel
     abs_ = _number(path, f"{key}.abs", given["abs"]) if "abs" in given else default.abs
     phase = _number(path, f"{key}.phase_deg", given["phase_deg"]) if "phase_deg" in given else default.phase_deg
+    if rel < sys.float_info.epsilon:  # a smaller rel would drop the abs and round-off terms of the pass rule
+        raise _err(path, f"{key}.rel", f"{rel!r} is below machine epsilon; give at least {sys.float_info.epsilon:.3g}")
     try:
         return Tolerance(rel=rel, abs=abs_, phase_deg=phase)
     except ValueError as exc:

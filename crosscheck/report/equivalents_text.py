@@ -12,22 +12,15 @@ from collections.abc import Sequence
 from rich.console import Console
 from rich.table import Table
 
-from crosscheck.model.values import format_eng, format_polar, format_rect
-from crosscheck.own.equivalent import ElementForm, Equivalent
+from crosscheck.model.values import format_element_form, format_eng, format_polar, format_rect
+from crosscheck.own.equivalent import Equivalent
 from crosscheck.report.caution import CAUTION
 from crosscheck.report.untrusted import markup_text
 
 
-def _form(form: ElementForm | None, series: bool) -> str:
-    if form is None:
-        return "—"
-    first = format_eng(form.resistance, 4, " Ω" if series else " S")
-    if form.reactive_kind is None:
-        return first
-    assert form.reactive_value is not None  # a form with a reactive kind has its value
-    unit = " H" if form.reactive_kind == "L" else " F"
-    joiner = " + " if series else " ‖ "
-    return f"{first}{joiner}{form.reactive_kind} {format_eng(form.reactive_value, 4, unit)}"
+def _element_form(z: complex | None, freq_hz: float, series: bool) -> str:
+    """Z_th as R + L or C (Y_N as G ‖ C or L); a near-resistive one as R alone, saying so."""
+    return "—" if z is None else format_element_form(z, freq_hz, series=series)
 
 
 def _cell(z: complex | None, unit: str, polar: bool) -> str:
@@ -53,11 +46,11 @@ def equivalents_table(title: str, port: tuple[str, str], points: Sequence[Equiva
             format_eng(eq.freq_hz, 4, " Hz"),
             _cell(eq.vth, " V", polar=True),
             _cell(eq.zth, " Ω", polar=False),
-            _form(eq.series_form(), series=True),
+            _element_form(eq.zth, eq.freq_hz, series=True),
             _cell(eq.in_, " A", polar=True),
         ]
         if wide:
-            row.append(_form(eq.parallel_form(), series=False))
+            row.append(_element_form(eq.yn, eq.freq_hz, series=False))
         table.add_row(*row, _condition(eq.condition))
     return table
 
@@ -72,10 +65,14 @@ def equivalents_blocks(console: Console, title: str, port: tuple[str, str], poin
         series = eq.series_form()
         parallel = eq.parallel_form()
         console.print(f"  V_th  {_cell(eq.vth, ' V', polar=True)}")
-        console.print(f"  Z_th  {_cell(eq.zth, ' Ω', polar=False)}" + (f"  =  {_form(series, True)}" if series else ""))
+        console.print(
+            f"  Z_th  {_cell(eq.zth, ' Ω', polar=False)}"
+            + (f"  =  {_element_form(eq.zth, eq.freq_hz, True)}" if series else "")
+        )
         console.print(f"  I_N   {_cell(eq.in_, ' A', polar=True)}")
         console.print(
-            f"  Y_N   {_cell(eq.yn, ' S', polar=False)}" + (f"  =  {_form(parallel, False)}" if parallel else "")
+            f"  Y_N   {_cell(eq.yn, ' S', polar=False)}"
+            + (f"  =  {_element_form(eq.yn, eq.freq_hz, False)}" if parallel else "")
         )
 
 

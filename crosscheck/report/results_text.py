@@ -18,7 +18,7 @@ from crosscheck.judge.limits import unit
 from crosscheck.judge.result import CaseResult
 from crosscheck.judge.stated import format_value
 from crosscheck.model.values import format_eng, format_polar
-from crosscheck.report.caution import CAUTION
+from crosscheck.report.caution import CAUTION, case_cautions
 from crosscheck.report.results_json import ngspice_version, summary
 from crosscheck.report.untrusted import markup_text as escape
 from crosscheck.vocabulary import quantity_unit
@@ -226,6 +226,11 @@ def print_results(console: Console, results: Sequence[CaseResult], detail: bool,
     overrode the case files' own settings."""
     if header:
         console.print(escape(header))
+    for c in case_cautions(results):
+        for line in c.lines():
+            console.print(
+                f"[bold yellow]Caution ({escape(c.name, keep_layout=False)}):[/] {escape(line, keep_layout=False)}"
+            )
     if detail:
         for r in results:
             if r.points:
