@@ -215,7 +215,7 @@ def test_ctrl_c_keeps_the_cases_that_finished(tmp_path):
     try:
         took = _wait_until(lambda: len([p for p in _descendants(run.pid) if not _gone(p)]) >= 2, 60.0)
         assert took is not None, "the two workers never started"
-        time.sleep(1.0)  # the good cases are done; the workers hang on the next ones
+        time.sleep(4.0)  # the good cases are done (milliseconds each, with room for a loaded machine); the workers hang on the next ones
         run.send_signal(signal.SIGINT)
         code = run.wait(timeout=30)
     finally:
