@@ -168,20 +168,14 @@ def _descendants(pid: int) -> list[int]:
     return found
 
 
-@pytest.mark.spice
-def test_ctrl_c_stops_a_verify_run_within_two_seconds(tmp_path):
-    """SIGINT to ``crosscheck verify`` over 20 hanging cases exits with 130 within 2 s, with no worker left."""
-    _hanging_cases(tmp_path, 20)
-    run = subprocess.Popen(
-        [sys.executable, "-c", _VERIFY.format(tests=str(TESTS), folder=str(tmp_path))],
-        cwd=REPO,
-        stderr=subprocess.PIPE,
-        text=True,
-    )
+def _interrupt(script: str, settle_s: float) -> tuple[int, float, str, list[int]]:
+    """Run ``script``, wait until its two workers are up and ``settle_s`` more, send SIGINT; return the exit
+    code, the seconds from the signal to the exit, standard error, and the worker pids seen before it."""
+    run = subprocess.Popen([sys.executable, "-c", script], cwd=REPO, stderr=subprocess.PIPE, text=True)
     try:
         took = _wait_until(lambda: len([p for p in _descendants(run.pid) if not _gone(p)]) >= 2, 60.0)
         assert took is not None, "the two workers never started"
-        time.sleep(0.5)  # both workers inside their hanging case
+        time.sleep(settle_s)
         workers = _descendants(run.pid)
         start = time.monotonic()
         run.send_signal(signal.SIGINT)
@@ -190,8 +184,18 @@ def test_ctrl_c_stops_a_verify_run_within_two_seconds(tmp_path):
     finally:
         if run.poll() is None:
             run.kill()
+    assert run.stderr is not None
     stderr = run.stderr.read()
     run.stderr.close()
+    return code, elapsed, stderr, workers
+
+
+@pytest.mark.spice
+def test_ctrl_c_stops_a_verify_run_within_two_seconds(tmp_path):
+    """SIGINT to ``crosscheck verify`` over 20 hanging cases exits with 130 within 2 s, with no worker left."""
+    _hanging_cases(tmp_path, 20)
+    # 0.5 s: both workers inside their hanging case.
+    code, elapsed, stderr, workers = _interrupt(_VERIFY.format(tests=str(TESTS), folder=str(tmp_path)), 0.5)
     assert code == 130, stderr
     assert elapsed < 2.0, elapsed
     assert "interrupted" in stderr and "cancelled" in stderr, stderr
@@ -211,18 +215,8 @@ def test_ctrl_c_keeps_the_cases_that_finished(tmp_path):
     script = _VERIFY.format(tests=str(TESTS), folder=str(tmp_path)).replace(
         '"--workers", "2"]', f'"--workers", "2", "--output", {str(report)!r}]'
     )
-    run = subprocess.Popen([sys.executable, "-c", script], cwd=REPO, stderr=subprocess.PIPE, text=True)
-    try:
-        took = _wait_until(lambda: len([p for p in _descendants(run.pid) if not _gone(p)]) >= 2, 60.0)
-        assert took is not None, "the two workers never started"
-        time.sleep(4.0)  # the good cases are done (milliseconds each, with room for a loaded machine); the workers hang on the next ones
-        run.send_signal(signal.SIGINT)
-        code = run.wait(timeout=30)
-    finally:
-        if run.poll() is None:
-            run.kill()
-    stderr = run.stderr.read()
-    run.stderr.close()
+    # 4 s: the good cases are done (milliseconds each, with room for a loaded machine); the workers hang.
+    code, _, stderr, _ = _interrupt(script, 4.0)
     assert code == 130, stderr
     assert "2 case(s) finished and were kept" in stderr, stderr
     import json
