@@ -137,6 +137,9 @@ class Network:
     title: str
     elements: tuple[Element, ...]
     allow_negative: bool = field(default=False, compare=False)
+    #: The user's own lines the reader accepted (element, subcircuit, parameter and model cards), for the
+    #: reading check that ngspice makes from the text itself (``spice.reading``); () when not read from text.
+    source_lines: tuple[str, ...] = field(default=(), compare=False, repr=False)
 
     def __getstate__(self) -> dict:
         return {f.name: self.__dict__[f.name] for f in fields(self)}

@@ -1,0 +1,42 @@
+"""Run a netlist as written through ngspice's AC analysis, for tests that need ngspice's own value.
+
+Tests of the reader compare what crosscheck reads with what ngspice computes from the same text, so
+the expected number is measured in the test, never stored from crosscheck. The text is the test's
+own (trusted), so it goes to ngspice in this process; user text only ever reaches ngspice through
+the reader's accepted lines inside the isolated workers.
+"""
+
+from __future__ import annotations
+
+import re
+from types import SimpleNamespace
+
+from crosscheck.spice.engine import Engine
+
+_ENGINE: Engine | None = None
+
+
+def _engine() -> Engine:
+    global _ENGINE
+    if _ENGINE is None:
+        _ENGINE = Engine()
+    return _ENGINE
+
+
+def ngspice_ac(netlist: str, freq: float, nodes: list[str] | tuple[str, ...]) -> dict[str, complex]:
+    """Each named node's voltage phasor from ngspice's ``.ac`` at ``freq`` on ``netlist`` as written.
+
+    Any ``.end`` card and ``.control`` ... ``.endc`` block is removed (crosscheck never runs those, and
+    a ``run`` inside one would add a second analysis), and ``.options noopac`` plus one ``.ac lin 1 f f``
+    card are added at the end.
+    """
+    without_control = re.sub(r"(?ims)^\s*\.control\b.*?^\s*\.endc\b[^\n]*", "", netlist)
+    body = "\n".join(line for line in without_control.splitlines() if not re.match(r"^\s*\.end\s*$", line, re.I))
+    text = f"{body}\n.options noopac\n.ac lin 1 {freq!r} {freq!r}\n.end\n"
+    plots, _ = _engine().run(SimpleNamespace(text=text))  # type: ignore[arg-type]
+    (plot,) = [p for p in plots.values() if "frequency" in p]
+    out = {}
+    for node in nodes:
+        key = node.lower()
+        out[node] = 0j if key in ("0", "gnd") else complex(plot[key][0])
+    return out
