@@ -23,12 +23,14 @@ from crosscheck.model.netlist_cards import Card, CardReader, Tok, show
 from crosscheck.model.netlist_subset import CONTROL_CHAR, IGNORED_CARDS, REFUSED_CARDS, SUBSET
 from crosscheck.model.network import GROUND, Network, Port
 from crosscheck.model.params import assignments, evaluate
+from crosscheck.model.reading import Reading
 from crosscheck.model.subcircuits import Subckt, check_local_references, flatten
 from crosscheck.model.validation import validate
 
 __all__ = [
     "read_netlist",
     "read_netlist_with_notes",
+    "read_netlist_reading",
     "read_netlist_file",
     "read_netlist_file_with_notes",
     "read_netlist_text",
@@ -68,6 +70,14 @@ def read_netlist_with_notes(
     only when it holds the whole port (a transformer secondary, for example).
     """
     return _Reader(file).read(text, allow_negative, port)
+
+
+def read_netlist_reading(
+    text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
+) -> tuple[Network, Reading]:
+    """Read a netlist; also return its ``Reading``: the notes and the warnings (traps), each naming file and line."""
+    network, notes = read_netlist_with_notes(text, file, allow_negative=allow_negative, port=port)
+    return network, Reading(tuple(notes), ())
 
 
 def read_netlist_file(path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None) -> Network:
