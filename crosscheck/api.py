@@ -17,7 +17,7 @@ from crosscheck.model.cases import Case, load_case
 from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import Equivalent
-from crosscheck.run.check import ENGINES, case_from_netlist, run_cases
+from crosscheck.run.check import ENGINES, case_from_netlist, held_strictly, run_cases
 from crosscheck.spice.engine import SpicePoint
 from crosscheck.spice.workers import SpicePool
 
@@ -34,32 +34,39 @@ def reduce_netlist(
     tolerance: Tolerance = SOLVER_VS_SPICE,
     sources: str = "peak",
     allow_negative: bool = False,
+    accept_warnings: Iterable[str] = (),
+    strict: bool = False,
 ) -> CaseResult:
     """Equivalents of one netlist at ``port`` and ``freqs`` (Hz), compared with ngspice unless ``engine="own"``.
 
     ``netlist`` is the netlist's text when it is a ``str``, and a file when it is a path (``pathlib.Path``).
     The result's ``own`` holds the equivalents point by point; ``verdict`` says how the routes agreed.
     ngspice's own answers are in ``spice``; ``spice_equivalents(result)`` gives them as equivalents.
+    What reading said is in ``read_notes`` and ``warnings`` (``open_warnings``: those not in ``accept_warnings``);
+    ``strict=True`` makes an open warning an ``error``, as ``--strict`` does.
     """
     if isinstance(netlist, str):
         name, text = "<string>", netlist
     else:
         name, text = str(netlist), read_netlist_text(netlist)
-    case = case_from_netlist(name, text, port, freqs, tolerance, allow_negative, sources)
-    return run_case_objects([case], engine=engine)[0]
+    case = case_from_netlist(name, text, port, freqs, tolerance, allow_negative, sources, accept_warnings)
+    result = run_case_objects([case], engine=engine)[0]
+    return held_strictly(result) if strict else result
 
 
 def run_case_files(
-    paths: Iterable[str | PathLike[str]], *, engine: str = "both", workers: int | None = None
+    paths: Iterable[str | PathLike[str]], *, engine: str = "both", workers: int | None = None, strict: bool = False
 ) -> list[CaseResult]:
-    """Run case files (TOML); a file that cannot be read becomes an ``error`` result and the rest go on."""
+    """Run case files (TOML); a file that cannot be read becomes an ``error`` result and the rest go on.
+    ``strict=True``: a reading warning its case file does not acknowledge makes the case an ``error``."""
     items: list[Case | tuple[str, CrosscheckError]] = []
     for path in paths:
         try:
             items.append(load_case(Path(path)))
         except CrosscheckError as exc:
             items.append((str(path), exc))
-    return run_case_objects(items, engine=engine, workers=workers)
+    results = run_case_objects(items, engine=engine, workers=workers)
+    return [held_strictly(r) for r in results] if strict else results
 
 
 def run_case_objects(

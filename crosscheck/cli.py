@@ -33,7 +33,7 @@ from crosscheck.vocabulary import same_frequency
 EXIT_OK = 0  # every compared quantity within tolerance (or nothing to compare)
 EXIT_FAIL = 1  # some quantity outside tolerance, or a design limit or expectation not met
 EXIT_USAGE = 2  # the command line itself is wrong (argparse's own code)
-EXIT_ERROR = 3  # invalid input (netlist, case file) or an engine crashed on a case
+EXIT_ERROR = 3  # invalid input (netlist, case file), an engine crashed on a case, or (--strict) a reading warning
 EXIT_UNAVAILABLE = 4  # nothing failed, but an engine could not produce some quantity
 EXIT_DRIFT = 5  # nothing failed, but a result moved from the stored baseline (verify --baseline)
 
@@ -144,6 +144,7 @@ def _reduce(args: argparse.Namespace) -> int:
         _tolerance(args),
         args.allow_negative,
         sources,
+        args.accept_warning,
     )
     case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
     if args.engine == "own":
@@ -155,7 +156,9 @@ def _reduce(args: argparse.Namespace) -> int:
             [result] = run_cases([case], engine=args.engine, pool=pool)
     if args.engine == "spice":
         return _spice_alone(args, result, sources, bool(expectations))
+    result = _strict(args, [result])[0]
     if result.error and result.own is None:
+        _warnings_on_stderr(result)
         raise _AlreadyReported(result.error)
     compared = args.engine != "own"
     if args.format == "json":
@@ -180,11 +183,12 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
     points = spice_equivalents(result)
     if points is None:
         if result.error and not result.error.startswith("own solver:"):  # the own route's trouble is not asked about
+            _warnings_on_stderr(result)
             raise _AlreadyReported(result.error)
         why = result.spice_note or "ngspice was not run"
         print(f"crosscheck reduce: ngspice gave no equivalents: {terminal_text(why)}", file=sys.stderr)
         return EXIT_UNAVAILABLE
-    result = judged(replace(result, own=points, points=(), error=None), None, compare=False)
+    result = _strict(args, [judged(replace(result, own=points, points=(), error=None), None, compare=False)])[0]
     version = result.spice.ngspice_version if result.spice is not None else ""
     if args.format == "json":
         doc = reduction_document(result, False, sources, str(args.netlist), expectations)
@@ -200,6 +204,12 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
         )
         print_reduction(console, result, False, sources, expectations)
     return exit_code([result.verdict])
+
+
+def _warnings_on_stderr(result: CaseResult) -> None:
+    """The case's unacknowledged reading warnings on stderr, for a reduce that ends in an error without a report."""
+    for warning in result.open_warnings:
+        print(f"crosscheck: warning: {terminal_text(str(warning))}", file=sys.stderr)
 
 
 def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
@@ -257,9 +267,10 @@ def _verify(args: argparse.Namespace) -> int:
         with progress, _executor(args.cluster) as executor:
             results = run_batch(items, executor, workers=args.workers, budget=budget, on_done=done, baseline=baseline)
     except KeyboardInterrupt as interrupt:  # keep what finished: its reports are written, main says how many
-        _write_reports(args, finished)
+        _write_reports(args, _strict(args, finished))
         interrupt.finished = finished  # type: ignore[attr-defined]
         raise
+    results = _strict(args, results)
     written = _write_reports(args, results)
     if args.update_baseline:
         _update_baseline(args, results)
@@ -289,6 +300,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
                     _tolerance(args),
                     args.allow_negative,
                     args.sources or "peak",
+                    args.accept_warning,
                 )
             )
         except CrosscheckError as exc:
@@ -297,7 +309,12 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
         raise CrosscheckError(f"no case files (*.toml) found under {', '.join(map(str, args.paths))}")
     unused = [
         o
-        for o, given in (("--port", args.port), ("--freq", args.freq), ("--allow-negative", args.allow_negative))
+        for o, given in (
+            ("--port", args.port),
+            ("--freq", args.freq),
+            ("--allow-negative", args.allow_negative),
+            ("--accept-warning", args.accept_warning),
+        )
         if given
     ]
     if unused and not netlists:
@@ -307,6 +324,15 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
             file=sys.stderr,
         )
     return items
+
+
+def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[CaseResult]:
+    """The results under --strict (an unacknowledged reading warning makes its case an error), else as they are."""
+    if not args.strict:
+        return list(results)
+    from crosscheck.run.check import held_strictly  # start-up time: loaded only by the commands that use it
+
+    return [held_strictly(r) for r in results]
 
 
 def _overridden(case: Case, args: argparse.Namespace) -> Case:

@@ -9,7 +9,8 @@ from pathlib import Path
 from typing import Any
 
 from crosscheck.errors import CrosscheckError
-from crosscheck.model.frequencies import checked_frequency
+from crosscheck.model.frequencies import check_frequency_text, checked_frequency
+from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import VERIFY_FORMATS
 from crosscheck.version import __version__
@@ -236,6 +237,25 @@ def _common_options(p: argparse.ArgumentParser) -> None:
         default=None,
         help=f"relative tolerance, solver vs SPICE (default 1e-6; from {SMALLEST_REL:.3g}, machine epsilon, to 1)",
     )
+    _warning_options(p)
+
+
+def _warning_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--strict",
+        action="store_true",
+        help="make every reading warning nobody acknowledged an error (exit 3), for CI gates; without it a "
+        "warning is reported in every format but never changes a verdict or the exit code",
+    )
+    p.add_argument(
+        "--accept-warning",
+        action="append",
+        default=[],
+        choices=tuple(WARNING_CODES),
+        metavar="CODE",
+        help="acknowledge a reading warning for netlists named on the command line (case files use "
+        f"accept_warnings); repeat for more. Codes: {', '.join(WARNING_CODES)}",
+    )
 
 
 def _phase_option(text: str) -> float | str:
@@ -304,8 +324,10 @@ def _seed_option(text: str) -> int:
 
 
 def _frequency_option(text: str) -> str:
-    """--freq: checked here (a finite frequency >= 0 in engineering notation), kept as written."""
+    """--freq: checked here (a finite frequency >= 0 in engineering notation, no misread scale such as
+    ``1MHz``: ``frequencies.misread_frequency_text``), kept as written."""
     try:
+        check_frequency_text(text, where="--freq")
         checked_frequency(parse_number(text), where="--freq")
     except CrosscheckError as exc:
         raise argparse.ArgumentTypeError(str(exc)) from None

@@ -14,7 +14,10 @@ One case file is one test item. Outcomes: ``pass`` passes; ``fail`` and ``drift`
 obtained/expected table; an invalid case file or netlist is an *error* at setup naming the file
 and key (or line); a case an engine crashed on fails with the engine's words; ``unavailable``
 (an engine could not produce a quantity) is *skipped with the reason*, which ``-ra`` lists in the
-summary. A CI gate that must not let an unavailable case through should run ``crosscheck verify``
+summary. A reading warning the case file does not acknowledge (``accept_warnings``) is a pytest warning
+(``CrosscheckReadingWarning``) at the netlist's file and line, and the ``crosscheck reading`` report section
+lists it with reading's notes; ``--crosscheck-strict`` makes it a failure, as ``verify --strict`` does.
+A CI gate that must not let an unavailable case through should run ``crosscheck verify``
 (exit code 4) or ``ci/crosscheck-gate.sh``, not rely on the skip.
 
 Only stdlib and pytest are imported at module level: the plugin loads in every pytest run.
@@ -24,6 +27,7 @@ from __future__ import annotations
 
 import re
 import tomllib
+import warnings
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -62,6 +66,13 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         default=60.0,
         metavar="SECONDS",
         help="seconds ngspice may take per case (default 60)",
+    )
+    group.addoption(
+        "--crosscheck-strict",
+        action="store_true",
+        default=False,
+        help="a reading warning the case file does not acknowledge (accept_warnings) fails the case, as "
+        "crosscheck verify --strict does; without it each warning is a pytest warning",
     )
     parser.addini(
         "crosscheck_cases",
@@ -157,7 +168,12 @@ class CaseItem(pytest.Item):
         engine = self.config.getoption("crosscheck_engine")
         pool = _pool(self.config) if engine == "both" else None
         [result] = run_cases([self.case], engine=engine, pool=pool)
+        if self.config.getoption("crosscheck_strict"):
+            from crosscheck.run.check import held_strictly  # start-up time: pytest loads this plugin in every session
+
+            result = held_strictly(result)
         self.result = result
+        _report_reading(self, result)
         self.user_properties.append(("crosscheck_verdict", result.verdict))
         if result.spice is not None:
             self.user_properties.append(("ngspice_version", result.spice.ngspice_version))
@@ -176,6 +192,32 @@ class CaseItem(pytest.Item):
         return self.path, None, f"crosscheck case {self.path.name}"
 
 
+class CrosscheckReadingWarning(UserWarning):
+    """A trap found reading a case's netlist (``model.reading.WARNING_CODES``); silenced by the case file's
+    ``accept_warnings``, made a failure by ``--crosscheck-strict`` (or by ``-W error``, as any warning)."""
+
+
+def _report_reading(item: CaseItem, result: Any) -> None:
+    """Each unacknowledged warning as a pytest warning at the netlist's file and line, and a report section
+    (shown with a failure, or with ``-rA``) holding the warnings and reading's notes. Text is user text:
+    shown through ``terminal_text``."""
+    from crosscheck.report.read_warnings import (  # start-up time: pytest loads this plugin in every session
+        note_lines,
+        warning_lines,
+    )
+
+    for w in result.open_warnings:
+        warnings.warn_explicit(
+            CrosscheckReadingWarning(terminal_text(f"crosscheck [{w.code}]: {w.message}")),
+            CrosscheckReadingWarning,
+            filename=terminal_text(w.location.file),
+            lineno=w.location.line or 0,
+        )
+    lines = warning_lines(result) + note_lines(result)
+    if lines:
+        item.add_report_section("call", "crosscheck reading", terminal_text("\n".join(lines)))
+
+
 def failure_text(result: Any, rows: int = 8) -> str:
     """A few lines a reviewer can act on: the verdict, the obtained/expected table, and why."""
     from crosscheck.report.frame import (  # start-up time: pytest loads this plugin in every session
@@ -183,9 +225,11 @@ def failure_text(result: Any, rows: int = 8) -> str:
         finding_table,
         findings,
     )
+    from crosscheck.report.read_warnings import warning_lines  # start-up time: see above
 
     found = findings(result)
     lines = [f"crosscheck: {result.verdict} — {result.title} (port {result.port[0]} → {result.port[1]})"]
+    lines += ["  " + line for line in warning_lines(result)]
     table = finding_table(found, limit=rows)
     lines += ["  " + line for line in table]
     reason = case_reason(result)

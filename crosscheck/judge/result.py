@@ -12,6 +12,7 @@ from functools import cached_property
 from crosscheck.judge.hazards import Hazard, assess_case
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.model.cases import Case
+from crosscheck.model.reading import ReadWarning
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import Equivalent
 from crosscheck.spice.engine import SpiceResult
@@ -44,6 +45,10 @@ class CaseResult:
     #: The hazard judgement made where the network is at hand (``judge.hazards.assess_network``); None: made on
     #: first use of ``hazard``, reading the case's netlist again.
     assessed_hazard: Hazard | None = None
+    #: What reading the netlist said besides the network (``model.reading.Reading``): notes (something read
+    #: that has no effect on an AC answer, each naming file and line) and warnings (traps, in line order).
+    read_notes: tuple[str, ...] = ()
+    warnings: tuple[ReadWarning, ...] = ()
 
     @cached_property
     def hazard(self) -> Hazard | None:
@@ -58,6 +63,21 @@ class CaseResult:
     def stated_caution(self) -> str:
         """The case file's own ``caution`` text (untrusted user text), or ""."""
         return self.case.caution if self.case is not None else ""
+
+    @property
+    def accepted_codes(self) -> tuple[str, ...]:
+        """The warning codes the case file acknowledges (``accept_warnings``)."""
+        return self.case.accept_warnings if self.case is not None else ()
+
+    @property
+    def open_warnings(self) -> tuple[ReadWarning, ...]:
+        """The warnings nobody acknowledged: every report shows them, and ``--strict`` makes them errors."""
+        return tuple(w for w in self.warnings if w.code not in self.accepted_codes)
+
+    @property
+    def accepted_warnings(self) -> tuple[ReadWarning, ...]:
+        """The warnings the case file acknowledges: silent in reports (JSON keeps them, marked accepted)."""
+        return tuple(w for w in self.warnings if w.code in self.accepted_codes)
 
     @property
     def explanation(self) -> str:

@@ -24,9 +24,10 @@ from crosscheck.errors import CaseFileError, CrosscheckError
 from crosscheck.model.case_file import MAX_FREQUENCY_HZ, boolean, entries, read_table, string, table
 from crosscheck.model.case_file import err as _err
 from crosscheck.model.files import InputFileError, check_path_text, read_regular
-from crosscheck.model.frequencies import FrequencyError, frequency_list
+from crosscheck.model.frequencies import FrequencyError, frequency_list, misread_frequency_text
 from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
+from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
 from crosscheck.vocabulary import PHASORS, QUANTITIES
@@ -81,6 +82,9 @@ class Case:
     allow_negative: bool = False
     tags: tuple[str, ...] = field(default=())
     caution: str = ""  # the case file's own caution, free text (user text: reports make it inert)
+    #: Reading-warning codes (``model.reading.WARNING_CODES``) the author has acknowledged: reports keep them
+    #: silent (JSON lists them as accepted) and ``--strict`` does not make them errors.
+    accept_warnings: tuple[str, ...] = ()
 
     @property
     def name(self) -> str:
@@ -101,7 +105,11 @@ def _frequency(path: Path, key: str, raw: Any, negative_later: bool = False) -> 
     """One frequency in hertz: a number from 0 (DC) up to ``MAX_FREQUENCY_HZ``.
 
     ``negative_later``: leave a negative value to ``frequency_list``, which refuses it in its own words.
+    Text whose scale SPICE misreads (``1MHz``, ``1M``: milli) is refused with the fix (``misread_frequency_text``).
     """
+    why = misread_frequency_text(raw) if isinstance(raw, str) else None
+    if why is not None:
+        raise _err(path, key, why)
     value = _number(path, key, raw)
     if not (0 <= value or negative_later) or value > MAX_FREQUENCY_HZ:
         raise _err(
@@ -326,6 +334,7 @@ _TOP_KEYS = {
     "tags",
     "about",
     "caution",
+    "accept_warnings",
 }
 
 
@@ -360,7 +369,23 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         allow_negative=boolean(path, data, "allow_negative", False),
         tags=_tags(path, data),
         caution=string(path, data, "caution", "").strip(),
+        accept_warnings=accepted_warnings(data.get("accept_warnings", []), where=f"{path}: key 'accept_warnings'"),
     )
+
+
+def accepted_warnings(raw: Any, *, where: str) -> tuple[str, ...]:
+    """``accept_warnings = ["no-ac-source", ...]``: known warning codes, each once, in the order given.
+
+    An unknown code is refused with the list of known ones: a misspelt acknowledgement would
+    otherwise silence nothing while looking as if it did.
+    """
+    known = ", ".join(WARNING_CODES)
+    if not isinstance(raw, list) or not all(isinstance(code, str) for code in raw):
+        raise CaseFileError(f'{where}: must be a list of warning codes, like ["no-ac-source"]; the codes are {known}')
+    for code in raw:
+        if code not in WARNING_CODES:
+            raise CaseFileError(f"{where}: {code[:60]!r} is not a warning code; write one of {known}")
+    return tuple(dict.fromkeys(raw))
 
 
 def _tags(path: Path, data: dict[str, Any]) -> tuple[str, ...]:

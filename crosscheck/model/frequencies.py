@@ -5,6 +5,7 @@ engine's caller), so every entry point accepts and refuses the same lists with t
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Iterable
 
 from crosscheck.errors import CrosscheckError
@@ -13,6 +14,42 @@ from crosscheck.vocabulary import same_frequency
 
 class FrequencyError(CrosscheckError, ValueError):
     """A frequency list that no AC analysis can mean; the message says where it came from and what to write."""
+
+
+#: A number in engineering notation and the letters after it (what SPICE reads as the scale and ignores).
+_NUMBER_AND_LETTERS = re.compile(r"^\s*[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?(?P<letters>[A-Za-z]*)\s*$")
+
+
+def misread_frequency_text(text: str) -> str | None:
+    """Why a frequency written as ``text`` is probably not what its author meant, or None when it reads as written.
+
+    SPICE's scale letters ignore case, and the letters after one are ignored: ``1MHz`` and ``1M`` are
+    1 milli-hertz, not 1 MHz (mega is ``meg``). So an upper-case ``M`` scale, and an ``m`` scale
+    followed by ``Hz`` (``1mHz`` reads the same as ``1MHz``), are refused in frequency arguments and
+    case files; ``1m`` (lower case, no unit) stays milli, ``1kHz`` ``1GHz`` ``1megHz`` read as written.
+    """
+    match = _NUMBER_AND_LETTERS.match(text)
+    if match is None:
+        return None
+    letters = match.group("letters")
+    lower = letters.lower()
+    if not lower.startswith("m") or lower.startswith(("meg", "mil")):
+        return None
+    if letters[0] == "M" or lower.endswith("hz"):
+        number = text.strip()[: len(text.strip()) - len(letters)]
+        return (
+            f"{text.strip()!r} would be read as {number} milli-hertz: SPICE reads M and m alike as milli "
+            f"(mega is 'meg'); write {number}meg for {number} MHz, or {number}m (lower case, without Hz) "
+            "if millihertz is meant"
+        )
+    return None
+
+
+def check_frequency_text(text: str, *, where: str) -> None:
+    """Refuse a frequency written with a scale SPICE misreads (``misread_frequency_text``), naming ``where``."""
+    why = misread_frequency_text(text)
+    if why is not None:
+        raise FrequencyError(f"{where}: {why}")
 
 
 def checked_frequency(value: object, *, where: str) -> float:

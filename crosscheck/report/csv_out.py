@@ -8,6 +8,8 @@ The last row (``check`` = ``caution``) carries the caution every report ends wit
 row rather than a trailing comment, so the file stays one valid table. A case's own cautions
 (``report.caution``) come first, right under the header, in rows of the same kind with the case named:
 ``quantity`` = ``hazard`` for crosscheck's judgement of its levels, ``case file`` for its file's ``caution``.
+Reading's unacknowledged warnings follow them (``check`` = ``warning``, ``quantity`` = the code, ``explanation``
+= ``file:line: message``); its notes come last before the caution row (``check`` = ``note``).
 Every string cell goes through ``untrusted.csv_text``: one a spreadsheet would read as a
 formula (it starts with ``= + - @``, tab or CR) gets a leading ``'``, the rule of OWASP's
 CSV Injection guidance; number columns are left as numbers.
@@ -23,6 +25,22 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.report.caution import CAUTION, case_cautions
 from crosscheck.report.frame import COLUMNS, verdict_frame
 from crosscheck.report.untrusted import csv_text
+
+
+def reading_rows(results: Sequence[CaseResult], notes: bool) -> list[dict[str, str]]:
+    """Rows for reading's warnings (``check`` = ``warning``, ``quantity`` = its code, ``explanation`` =
+    ``file:line: message``; unacknowledged only) or, with ``notes``, its notes (``check`` = ``note``)."""
+    out: list[dict[str, str]] = []
+    for r in results:
+        head = {"case": r.name, "title": r.title, "port": ",".join(r.port)}
+        if notes:
+            out += [head | {"check": "note", "explanation": n} for n in r.read_notes]
+        else:
+            out += [
+                head | {"check": "warning", "quantity": w.code, "explanation": f"{w.location}: {w.message}"}
+                for w in r.open_warnings
+            ]
+    return out
 
 
 def csv_report(results: Sequence[CaseResult]) -> str:
@@ -41,8 +59,11 @@ def csv_report(results: Sequence[CaseResult]) -> str:
         for quantity, text in (("hazard", c.hazard), ("case file", c.stated))
         if text
     ]
+    own += reading_rows(results, notes=False)
+    notes = reading_rows(results, notes=True)
     rows = [pd.DataFrame(own, columns=COLUMNS)] if own else []
     rows += [frame] if len(frame) else []
+    rows += [pd.DataFrame(notes, columns=COLUMNS)] if notes else []
     rows.append(pd.DataFrame([{"check": "caution", "explanation": CAUTION}], columns=COLUMNS))
     frame = pd.concat(rows, ignore_index=True)
     for column in frame.columns:

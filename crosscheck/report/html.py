@@ -5,7 +5,9 @@ no scripts, no fonts or styles fetched from anywhere; plots are PNG and drawings
 both embedded as base64 data URIs. Collapsed parts use ``<details>``, which needs no script.
 Cautions come before any case: the summary opens with each case's own (``report.caution``: a hazardous
 level, or its case file's ``caution``) and the general caution, which the page also ends with; a case's
-section repeats its own under its heading. Every string goes through ``html.escape``.
+section repeats its own under its heading. Reading's unacknowledged warnings follow the cautions, and each
+case's section repeats its own with its notes from reading folded below them (``report.read_warnings``).
+Every string goes through ``html.escape``.
 """
 
 from __future__ import annotations
@@ -22,6 +24,7 @@ from crosscheck.report.caution import CAUTION, CaseCaution, case_caution, case_c
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
 from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_png, is_swept
+from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
 from crosscheck.vocabulary import quantity_unit
@@ -36,6 +39,7 @@ th { background: #f2f2f2; } td.num { text-align: right; font-variant-numeric: ta
 .v-other { background: #ffffff; border: 1px solid #000; }
 .status { font-size: 1.25em; } .meta { color: #555; font-size: 0.9em; }
 .why { background: #fff4e5; border-left: 4px solid #d9822b; padding: 0.4em 0.7em; }
+.warning { background: #fff8c5; border-left: 4px solid #9a6700; padding: 0.4em 0.7em; }
 .error { background: #fdecea; border-left: 4px solid #c62828; padding: 0.4em 0.7em; white-space: pre-wrap; }
 section.case { border-top: 2px solid #ddd; margin-top: 2em; }
 .figures { display: flex; flex-wrap: wrap; gap: 1em; align-items: flex-start; }
@@ -122,6 +126,34 @@ def _case_caution(i: int, r: CaseResult) -> str:
     if found is None:
         return ""
     return "".join(f'<p class="why caution"><strong>Caution.</strong> {item}</p>' for item in _caution_items(found))
+
+
+def _read_warnings(results: Sequence[CaseResult]) -> str:
+    """The reading warnings block under the cautions: each unacknowledged warning, linked to its case's section."""
+    rows = [
+        f'<li><a href="#case-{i}">{_e(r.name)}</a>: {_e(warning_words(w))}</li>'
+        for i, r in warned(results)
+        for w in r.open_warnings
+    ]
+    if not rows:
+        return ""
+    return (
+        '<div class="warning read-warnings" id="read-warnings"><strong>Reading warnings</strong> (the answer is '
+        f"probably not what the netlist meant):<ul>{''.join(rows)}</ul><p>{_e(ACKNOWLEDGE)}</p></div>"
+    )
+
+
+def _case_reading(r: CaseResult) -> str:
+    """A case's unacknowledged warnings (prominent) and its notes from reading (folded)."""
+    out = [
+        f'<p class="warning read-warning"><strong>Warning.</strong> {_e(warning_words(w))}</p>' for w in r.open_warnings
+    ]
+    if r.read_notes:
+        items = "".join(f"<li>{_e(n)}</li>" for n in shown_notes(r.read_notes))
+        out.append(
+            f'<details class="notes"><summary>{len(r.read_notes)} note(s) from reading</summary><ul>{items}</ul></details>'
+        )
+    return "".join(out)
 
 
 def _summary(results: Sequence[CaseResult]) -> str:
@@ -238,6 +270,7 @@ def _case_section(i: int, r: CaseResult) -> str:
         f'<section class="case" id="case-{i}"><h3>{_e(r.title)} {_badge(r.verdict)}</h3>',
         f'<p class="meta">{" · ".join(meta)}</p>',
         _case_caution(i, r),
+        _case_reading(r),
     ]
     if r.error:
         out.append(f'<p class="error">{_e(r.error)}</p>')
@@ -269,7 +302,7 @@ def html_report(results: Sequence[CaseResult], title: str = "crosscheck report")
         '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
         f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>"
         f"<header><h1>{_e(title)}</h1>{head}</header>"
-        f"<h2>Summary</h2>{_cautions(results)}{_summary(results)}<h2>Cases</h2>{body}"
+        f"<h2>Summary</h2>{_cautions(results)}{_read_warnings(results)}{_summary(results)}<h2>Cases</h2>{body}"
         f'<footer><h2>Caution</h2><p class="caution">{_e(CAUTION)}</p></footer>'
         "</body></html>\n"
     )

@@ -8,8 +8,11 @@ follows; attributes as that schema allows them, from memory): ``<testsuites>`` h
 ``<failure>``, ``error`` is ``<error>``, ``unavailable`` is ``<skipped>`` with the reason. Each
 suite carries tests, failures, errors, skipped and time (``<testsuites>`` all but skipped, which
 the schema does not define there) and lists the ngspice and crosscheck versions as properties.
-A case's own cautions (``report.caution``: a hazardous level, or its case file's ``caution``) open its
-``<system-out>``, and the suite's ``<system-out>`` lists them before the general caution.
+A case's own cautions (``report.caution``: a hazardous level, or its case file's ``caution``) and then its
+unacknowledged reading warnings (``WARNING [code] file:line: message``, ``report.read_warnings``) open its
+``<system-out>``, whose last lines are reading's notes; the suite's ``<system-out>`` lists the cautions and
+warnings before the general caution. A warning never changes the element; under ``--strict`` the case's
+verdict is ``error`` and so is its element.
 """
 
 from __future__ import annotations
@@ -26,6 +29,7 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng
 from crosscheck.report.caution import CAUTION, case_caution
 from crosscheck.report.frame import case_reason, finding_table, findings, worst_spice_error
+from crosscheck.report.read_warnings import ACKNOWLEDGE, note_lines, warning_lines
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
 
@@ -78,6 +82,7 @@ def _summary(result: CaseResult) -> str:
         span = f"{format_eng(min(result.freqs_hz), 4, ' Hz')} … {format_eng(max(result.freqs_hz), 4, ' Hz')}"
     parts = [
         *_caution_lines(result),
+        *warning_lines(result),
         f"file: {result.name}",
         f"title: {result.title}",
         f"port: {result.port[0]} -> {result.port[1]}",
@@ -95,7 +100,7 @@ def _summary(result: CaseResult) -> str:
         )
         if group
     ]
-    return "\n".join(parts)
+    return "\n".join(parts + note_lines(result))
 
 
 def _testcase(parent: ET.Element, result: CaseResult) -> str:
@@ -143,8 +148,9 @@ def junit_tree(results: Sequence[CaseResult], timestamp: str | None = None, host
         counts = Counter(_testcase(suite, r) for r in members)
         seconds = sum(r.elapsed_own_s + r.elapsed_spice_s for r in members)
         _counts(suite, len(members), counts, seconds)
-        own = [f"{line} ({r.name})" for r in members for line in _caution_lines(r)]
-        ET.SubElement(suite, "system-out").text = _clean("\n".join([*own, f"Caution: {CAUTION}"]))
+        own = [f"{line} ({r.name})" for r in members for line in [*_caution_lines(r), *warning_lines(r)]]
+        hint = [ACKNOWLEDGE] if any(r.open_warnings for r in members) else []
+        ET.SubElement(suite, "system-out").text = _clean("\n".join([*own, *hint, f"Caution: {CAUTION}"]))
         ET.SubElement(suite, "system-err").text = ""
         total += counts
         total_time += seconds

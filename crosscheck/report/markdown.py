@@ -24,6 +24,7 @@ from crosscheck.report.frame import (
     overall_verdict,
     worst_spice_error,
 )
+from crosscheck.report.read_warnings import ACKNOWLEDGE, MAX_NOTES_SHOWN, shown_notes, warned
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.report.untrusted import markdown_fence, markdown_text
 from crosscheck.version import __version__
@@ -104,6 +105,38 @@ def _cautions(results: Sequence[CaseResult]) -> list[str]:
     return [*lines, ""]
 
 
+def _read_warnings(results: Sequence[CaseResult]) -> list[str]:
+    """A quoted list of every unacknowledged reading warning, for the top of the comment ([] when none).
+
+    The case name, location and message are user text: each goes through ``_line`` (a code span)."""
+    found = warned(results)
+    if not found:
+        return []
+    lines = ["> ⚠️ **Reading warnings**: the answer is probably not what the netlist meant.", ">"]
+    shown = [(r, w) for _i, r in found for w in r.open_warnings]
+    for r, w in shown[:MAX_CAUTIONS]:
+        lines.append(f"> - {_line(r.name)}: **{_line(w.code, 40)}** at {_line(w.location)}: {_line(w.message)}")
+    if len(shown) > MAX_CAUTIONS:
+        lines.append(f"> - … and {len(shown) - MAX_CAUTIONS} more warning(s); see the full report.")
+    return [*lines, ">", f"> {ACKNOWLEDGE}", ""]
+
+
+def _read_notes(results: Sequence[CaseResult]) -> list[str]:
+    """Reading's notes folded into one ``<details>`` block (a fenced block of user text; [] when none)."""
+    notes = [n for r in results for n in r.read_notes]
+    if not notes:
+        return []
+    fence = markdown_fence(shown_notes(notes, MAX_NOTES_SHOWN * 5))
+    return [
+        f"<details><summary>{len(notes)} note(s) from reading the netlists</summary>",
+        "",
+        *fence,
+        "",
+        "</details>",
+        "",
+    ]
+
+
 def markdown_report(results: Sequence[CaseResult]) -> str:
     """The comment text (GitHub-flavoured Markdown; also renders on other code hosts)."""
 
@@ -112,6 +145,7 @@ def markdown_report(results: Sequence[CaseResult]) -> str:
     counts = Counter(r.verdict for r in results)
     lines = [f"### crosscheck: {word} — {len(results)} case(s): {count_words(counts)}", ""]
     lines += _cautions(results)
+    lines += _read_warnings(results)
     problems = [r for r in results if r.verdict != "pass"]
     passing = [r for r in results if r.verdict == "pass"]
     if problems:
@@ -124,6 +158,7 @@ def markdown_report(results: Sequence[CaseResult]) -> str:
         ]
     if passing:
         lines += _passing_details(passing)
+    lines += _read_notes(results)
     lines += [
         f"ngspice: {_line(ngspice_version(results) or '') or 'not run'} · crosscheck {__version__}",
         "",

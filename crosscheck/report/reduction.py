@@ -11,8 +11,9 @@ from crosscheck.model.network import Network, Port
 from crosscheck.report.caution import CAUTION
 from crosscheck.report.equivalents_json import equivalents_document
 from crosscheck.report.equivalents_text import print_equivalents
-from crosscheck.report.results_json import case_document, checks_document, results_document
-from crosscheck.report.results_text import print_checks, print_results
+from crosscheck.report.results_json import case_document, checks_document, read_document, results_document
+from crosscheck.report.results_text import print_checks, print_read_notes, print_read_warnings, print_results
+from crosscheck.report.untrusted import markup_text
 
 
 def reduction_document(
@@ -28,17 +29,24 @@ def reduction_document(
         )
     if expectations:
         doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
+    doc.update(read_document(result))  # warnings (unacknowledged), accepted_warnings, notes
+    if result.error is not None:  # e.g. --strict made a warning an error: the document says so
+        doc.update({"error": result.error, "verdict": result.verdict})
     return doc
 
 
 def print_reduction(console: Console, result: CaseResult, compared: bool, sources: str, expectations: bool) -> None:
     """The equivalents as text, then the comparison (both routes) or the hand calculations (own route)."""
     source_note = f"Sources as written in the netlist, taken as {sources.upper()} phasors."
-    print_equivalents(
-        console, result.title, result.port, result.own or (), source_note, caution=not compared and not expectations
-    )
+    print_read_warnings(console, [result])  # first: a warning can make every number below meaningless
+    print_equivalents(console, result.title, result.port, result.own or (), source_note, caution=False)
     if compared:
-        print_results(console, [result], detail=True)
-    elif expectations:
+        print_results(console, [result], detail=True, reading=False)
+        print_read_notes(console, [result])
+        return
+    if expectations:
         print_checks(console, result, detail=True)
-        console.print(f"[dim]Caution: {CAUTION}[/]")
+    if result.error:
+        console.print(f"[bold magenta]error: {markup_text(result.error)}[/]")
+    print_read_notes(console, [result])
+    console.print(f"[dim]Caution: {CAUTION}[/]")

@@ -17,6 +17,7 @@ from crosscheck.judge.hazards import Level
 from crosscheck.judge.result import CaseResult
 from crosscheck.report.caution import CAUTION, case_caution, case_cautions
 from crosscheck.report.equivalents_json import own_point
+from crosscheck.report.read_warnings import warned, warning_document
 from crosscheck.version import __version__
 from crosscheck.vocabulary import Verdict
 from crosscheck.vocabulary import phasor_json as phasor
@@ -173,10 +174,26 @@ def case_document(result: CaseResult) -> dict[str, Any]:
         "points": points_document(result),
         "elapsed_s": {"own": result.elapsed_own_s, "spice": result.elapsed_spice_s},
         **checks_document(result),
+        **read_document(result),
     }
     if result.spice is not None:
         doc["spice_strategy"] = result.spice.strategy
     return doc
+
+
+def read_document(result: CaseResult) -> dict[str, Any]:
+    """What reading said: unacknowledged ``warnings``, ``accepted_warnings`` (the case file's
+    ``accept_warnings``), and every note."""
+    return {
+        "warnings": [warning_document(w) for w in result.open_warnings],
+        "accepted_warnings": [warning_document(w) for w in result.accepted_warnings],
+        "notes": list(result.read_notes),
+    }
+
+
+def run_warnings(results: Sequence[CaseResult]) -> list[dict[str, Any]]:
+    """Every unacknowledged warning of the run, each with its case, for the top of the document."""
+    return [{"case": r.name, **warning_document(w)} for _i, r in warned(results) for w in r.open_warnings]
 
 
 def ngspice_version(results: Sequence[CaseResult]) -> str | None:
@@ -195,6 +212,7 @@ def results_document(results: Sequence[CaseResult]) -> dict[str, Any]:
         "ngspice_version": ngspice_version(results),
         "summary": summary(results),
         "cautions": [{"case": c.name, "lines": c.lines()} for c in case_cautions(results)],
+        "warnings": run_warnings(results),
         "cases": [case_document(r) for r in results],
         "caution": CAUTION,
     }

@@ -19,6 +19,7 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.judge.stated import format_value
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.report.caution import CAUTION, case_cautions
+from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version, summary
 from crosscheck.report.untrusted import markup_text as escape
 from crosscheck.vocabulary import quantity_unit
@@ -221,9 +222,12 @@ def summary_line(results: Sequence[CaseResult]) -> str:
     return f"{s['cases']} case(s): {parts}" + (f"  ({escape(version)})" if version else "")
 
 
-def print_results(console: Console, results: Sequence[CaseResult], detail: bool, header: str = "") -> None:
+def print_results(
+    console: Console, results: Sequence[CaseResult], detail: bool, header: str = "", reading: bool = True
+) -> None:
     """The checked cases as tables; ``header`` (when given) first, e.g. which command-line options
-    overrode the case files' own settings."""
+    overrode the case files' own settings. ``reading``: include reading's warnings and notes (off when
+    the caller prints them itself, as ``reduce`` does around its equivalents)."""
     if header:
         console.print(escape(header))
     for c in case_cautions(results):
@@ -231,6 +235,8 @@ def print_results(console: Console, results: Sequence[CaseResult], detail: bool,
             console.print(
                 f"[bold yellow]Caution ({escape(c.name, keep_layout=False)}):[/] {escape(line, keep_layout=False)}"
             )
+    if reading:
+        print_read_warnings(console, results)
     if detail:
         for r in results:
             if r.points:
@@ -245,5 +251,27 @@ def print_results(console: Console, results: Sequence[CaseResult], detail: bool,
         console.print(summary_table(results))
         for r in results:
             print_checks(console, r, detail=False)
+    if reading:
+        print_read_notes(console, results)
     console.print(summary_line(results))
     console.print(f"[dim]Caution: {CAUTION}[/]")
+
+
+def print_read_warnings(console: Console, results: Sequence[CaseResult]) -> None:
+    """Every unacknowledged reading warning, near the top and in bold (``report.read_warnings``), then how to answer."""
+    found = warned(results)
+    for _i, r in found:
+        for w in r.open_warnings:
+            console.print(
+                f"[bold yellow]Warning ({escape(r.name, keep_layout=False)}):[/] "
+                f"{escape(warning_words(w), keep_layout=False)}"
+            )
+    if found:
+        console.print(f"[yellow]{ACKNOWLEDGE}[/]")
+
+
+def print_read_notes(console: Console, results: Sequence[CaseResult]) -> None:
+    """The notes from reading, dim, after the tables: read, and no effect on an AC answer."""
+    for r in results:
+        for note in shown_notes(r.read_notes):
+            console.print(f"[dim]note: {escape(note, keep_layout=False)}[/]")

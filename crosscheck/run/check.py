@@ -22,27 +22,38 @@ from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import judged
 from crosscheck.judge.result import CaseResult, error_result
 from crosscheck.model.budget import Budget
-from crosscheck.model.cases import Case
+from crosscheck.model.cases import Case, accepted_warnings
 from crosscheck.model.frequencies import frequency_list
-from crosscheck.model.netlist import read_netlist
+from crosscheck.model.netlist import read_netlist_reading
 from crosscheck.model.network import Network, Port
+from crosscheck.model.reading import Reading
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
 from crosscheck.spice.engine import SpiceResult
 from crosscheck.spice.workers import SpicePool
+from crosscheck.vocabulary import Verdict
 
 ENGINES = ("own", "spice", "both")
 
 
 def load_network(case: Case) -> tuple[Network, Port]:
-    """Parse and validate the case's netlist; errors carry file and line.
+    """Parse and validate the case's netlist; errors carry file and line (``load_network_reading`` without
+    the reading)."""
+    network, port, _reading = load_network_reading(case)
+    return network, port
 
-    ``read_netlist`` validates the network with the port (elements, loops, connectivity, the port's
-    nodes), so nothing is checked twice here.
+
+def load_network_reading(case: Case) -> tuple[Network, Port, Reading]:
+    """The case's netlist read and validated, with what reading it said (notes and warnings).
+
+    ``read_netlist_reading`` validates the network with the port (elements, loops, connectivity, the
+    port's nodes), so nothing is checked twice here.
     """
     port = Port(*case.port)
-    network = read_netlist(case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative, port=port)
-    return network, port
+    network, reading = read_netlist_reading(
+        case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative, port=port
+    )
+    return network, port, reading
 
 
 def run_cases(
@@ -94,7 +105,7 @@ def run_cases(
 
 def _stage(item: Case, engine: str, pool: SpicePool | None) -> tuple[CaseResult, Network, Future | None]:
     """The case's network read, its result's head, and its ngspice task submitted (when asked for)."""
-    network, port = load_network(item)
+    network, port, reading = load_network_reading(item)
     head = CaseResult(
         item.name,
         item.title if item.title else network.title,
@@ -103,6 +114,8 @@ def _stage(item: Case, engine: str, pool: SpicePool | None) -> tuple[CaseResult,
         item.tolerance,
         item.sources,
         case=item,
+        read_notes=reading.notes,
+        warnings=reading.warnings,
     )
     future = pool.submit(network, port, item.freqs_hz) if pool is not None and engine != "own" else None
     return head, network, future
@@ -190,8 +203,10 @@ def case_from_netlist(
     tolerance: Tolerance = SOLVER_VS_SPICE,
     allow_negative: bool = False,
     sources: str = "peak",
+    accept_warnings: Iterable[str] = (),
 ) -> Case:
-    """A case for a bare netlist named on the command line with its port and frequencies."""
+    """A case for a bare netlist named on the command line with its port and frequencies; ``accept_warnings``
+    are the warning codes acknowledged for it (``--accept-warning``), checked as a case file's are."""
     return Case(
         path=Path(path),
         title="",
@@ -202,4 +217,26 @@ def case_from_netlist(
         sources=sources,
         tolerance=tolerance,
         allow_negative=allow_negative,
+        accept_warnings=accepted_warnings(list(accept_warnings), where=f"{path}: accepted warnings"),
     )
+
+
+def held_strictly(result: CaseResult) -> CaseResult:
+    """``result`` under ``--strict``: any warning its case does not acknowledge makes it an ``error``.
+
+    The answers, judgements and warnings stay as they were; only ``error`` (which names each warning and
+    both ways out: fix the netlist, or acknowledge the code) and the verdict change. A result without an
+    unacknowledged warning comes back unchanged.
+    """
+    found = result.open_warnings
+    if not found:
+        return result
+    codes = ", ".join(dict.fromkeys(f'"{w.code}"' for w in found))
+    words = "; ".join(str(w) for w in found)
+    message = (
+        f"--strict: {len(found)} unacknowledged reading warning(s): {words}. Fix the netlist, or, when the "
+        f"netlist is meant as written, acknowledge it: accept_warnings = [{codes}] in the case file "
+        "(--accept-warning CODE for a netlist named on the command line)"
+    )
+    error = f"{result.error}; {message}" if result.error else message
+    return replace(result, error=error, verdict=Verdict.ERROR)
