@@ -5,7 +5,7 @@ set -u
 
 usage() {
   cat <<'TEXT'
-Usage: crosscheck-gate.sh [--out DIR] PATH... [-- VERIFY_OPTION...]
+Usage: crosscheck-gate.sh [--out DIR] [--lenient] PATH... [-- VERIFY_OPTION...]
 
 Runs `crosscheck verify` on the case files (*.toml) in each PATH (files or folders) and
 writes, into DIR (default: crosscheck-reports):
@@ -14,6 +14,11 @@ writes, into DIR (default: crosscheck-reports):
   crosscheck.html  one self-contained HTML report with plots, to keep as an artifact
 Options after `--` go to the `crosscheck verify` run unchanged (e.g. -- --timeout 120
 --baseline equivalents.json).
+
+The gate runs verify with --strict: a reading warning (no AC source, an element on the
+title line, a suffix SPICE misreads) that the case file does not acknowledge with
+accept_warnings = ["CODE"] is an error (exit 3). --lenient leaves --strict out: warnings
+are then reported in every format but change no exit code.
 
 Exit code: crosscheck's own: 0 pass, 1 fail, 2 usage, 3 error (invalid input or engine
 crash), 4 unavailable (an engine could not produce a quantity), 5 drift from the baseline.
@@ -24,6 +29,7 @@ TEXT
 }
 
 out="crosscheck-reports"
+strict=(--strict)
 paths=()
 extra=()
 while [ $# -gt 0 ]; do
@@ -33,6 +39,7 @@ while [ $# -gt 0 ]; do
       if [ $# -lt 2 ] || [ -z "$2" ]; then echo "crosscheck-gate: $1 needs a folder name" >&2; usage >&2; exit 2; fi
       out="$2"; shift 2 ;;
     --out=*) out="${1#--out=}"; shift ;;
+    --lenient) strict=(); shift ;;
     --) shift; extra=("$@"); break ;;
     -*) echo "crosscheck-gate: unknown option $1 (verify options go after --)" >&2; usage >&2; exit 2 ;;
     *) paths+=("$1"); shift ;;
@@ -59,7 +66,7 @@ mkdir -p "$out" || { echo "crosscheck-gate: cannot create $out" >&2; exit 2; }
 
 # One verify run writes all three reports (each --output file's extension names its format).
 "${cmd[@]}" verify "${paths[@]}" --output "$out/crosscheck.xml" --output "$out/crosscheck.md" \
-  --output "$out/crosscheck.html" ${extra[@]+"${extra[@]}"}
+  --output "$out/crosscheck.html" ${strict[@]+"${strict[@]}"} ${extra[@]+"${extra[@]}"}
 code=$?
 if [ $code -eq 2 ] || [ ! -s "$out/crosscheck.md" ]; then
   echo "crosscheck-gate: crosscheck verify exited $code without a report; see its message above" >&2

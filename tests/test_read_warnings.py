@@ -142,8 +142,13 @@ def test_every_format_shows_the_warning_and_the_note(inject):
     doc = json.loads(out["json"])
     [case] = doc["cases"]
     assert case["warnings"] == [
-        {"code": "no-ac-source", "meaning": WARNING_CODES["no-ac-source"], "file": "div.cir", "line": 2,
-         "message": NO_AC.message}
+        {
+            "code": "no-ac-source",
+            "meaning": WARNING_CODES["no-ac-source"],
+            "file": "div.cir",
+            "line": 2,
+            "message": NO_AC.message,
+        }
     ]
     assert doc["warnings"][0]["case"] == "div.cir" and case["notes"][-1] == NOTE and case["accepted_warnings"] == []
     frame = pd.read_csv(io.StringIO(out["csv"]), keep_default_na=False)
@@ -204,8 +209,10 @@ def test_reduce_shows_warnings_in_text_and_json(inject, netlist, capsys):
     text = capsys.readouterr().out
     assert "Warning" in text and "[no-ac-source] div.cir:2" in text and ".tran 1u 1m ignored" in text
     assert text.index("no-ac-source") < text.index("V_th")  # before the numbers it may make meaningless
-    assert main(["reduce", str(netlist), "--port", "out", "0", "--freq", "1k", "--engine", "own",
-                 "--format", "json"]) == EXIT_OK
+    assert (
+        main(["reduce", str(netlist), "--port", "out", "0", "--freq", "1k", "--engine", "own", "--format", "json"])
+        == EXIT_OK
+    )
     doc = json.loads(capsys.readouterr().out)
     assert [w["code"] for w in doc["warnings"]] == ["no-ac-source"] and doc["notes"][-1] == NOTE
 
@@ -283,7 +290,11 @@ def test_plugin_is_silent_about_an_acknowledged_warning(inject, plugin_library):
 def test_misread_frequency_spellings_are_refused_with_the_fix(text):
     """SPICE reads M and m alike as milli and ignores the letters after a scale (common practice)."""
     why = misread_frequency_text(text)
-    assert why is not None and "milli" in why and f"{text.strip()[:-len(text.strip().lstrip('0123456789.e+-'))]}meg" in why
+    assert (
+        why is not None
+        and "milli" in why
+        and f"{text.strip()[: -len(text.strip().lstrip('0123456789.e+-'))]}meg" in why
+    )
     with pytest.raises(FrequencyError, match="--freq:"):
         check_frequency_text(text, where="--freq")
 
