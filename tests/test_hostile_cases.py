@@ -307,7 +307,7 @@ def test_an_unexpected_exception_in_solving_is_that_case_error(tmp_path, monkeyp
 
 def test_an_unexpected_exception_in_reading_is_that_case_error(tmp_path, monkeypatch):
     """A non-crosscheck exception from the netlist reader becomes that case's error with the case name."""
-    monkeypatch.setattr(check, "read_netlist", lambda *a, **k: [][1])
+    monkeypatch.setattr(check, "read_netlist_reading", lambda *a, **k: [][1])
     first, _ = run_cases(_two_cases(tmp_path), engine="own")
     assert first.verdict == Verdict.ERROR and "IndexError" in first.error and "first.toml" in first.error
 
