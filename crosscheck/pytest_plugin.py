@@ -192,7 +192,7 @@ class CaseItem(pytest.Item):
         return self.path, None, f"crosscheck case {self.path.name}"
 
 
-class CrosscheckReadingWarning(UserWarning):
+class CrosscheckReadingWarning(CrosscheckError, UserWarning):
     """A trap found reading a case's netlist (``model.reading.WARNING_CODES``); silenced by the case file's
     ``accept_warnings``, made a failure by ``--crosscheck-strict`` (or by ``-W error``, as any warning)."""
 
