@@ -138,7 +138,7 @@ def _reduce(args: argparse.Namespace) -> int:
     extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
     case = case_from_netlist(
         str(args.netlist),
-        _read_text(args.netlist),
+        read_netlist_text(args.netlist),
         tuple(args.port),
         freqs,
         _tolerance(args),
@@ -227,11 +227,6 @@ class _AlreadyReported(CrosscheckError):
     """An error already put in words by the case result; the command line prints it as it is."""
 
 
-def _read_text(path: Path) -> str:
-
-    return read_netlist_text(path)
-
-
 def _verify(args: argparse.Namespace) -> int:
     """Case files (and netlists named with --port and --freq) through both routes; reports; the exit code."""
     from crosscheck.run.batch import run_batch  # start-up time: loaded only by the commands that use it
@@ -294,7 +289,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
             items.append(
                 case_from_netlist(
                     str(path),
-                    _read_text(path),
+                    read_netlist_text(path),
                     tuple(args.port),
                     _frequencies(args.freq),
                     _tolerance(args),
@@ -307,20 +302,12 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
             items.append((str(path), exc))
     if not items:
         raise CrosscheckError(f"no case files (*.toml) found under {', '.join(map(str, args.paths))}")
-    unused = [
-        o
-        for o, given in (
-            ("--port", args.port),
-            ("--freq", args.freq),
-            ("--allow-negative", args.allow_negative),
-            ("--accept-warning", args.accept_warning),
-        )
-        if given
-    ]
+    named = {"--port": args.port, "--freq": args.freq, "--allow-negative": args.allow_negative}
+    unused = [o for o, given in {**named, "--accept-warning": args.accept_warning}.items() if given]
     if unused and not netlists:
         print(
             f"crosscheck verify: note: {', '.join(unused)} appl{'y' if len(unused) > 1 else 'ies'} only to netlists "
-            "named directly; the case files use their own port, frequencies and allow_negative",
+            "named directly; the case files use their own port, frequencies, allow_negative and accept_warnings",
             file=sys.stderr,
         )
     return items
@@ -328,11 +315,9 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
 
 def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[CaseResult]:
     """The results under --strict (an unacknowledged reading warning makes its case an error), else as they are."""
-    if not args.strict:
-        return list(results)
     from crosscheck.run.check import held_strictly  # start-up time: loaded only by the commands that use it
 
-    return [held_strictly(r) for r in results]
+    return [held_strictly(r) for r in results] if args.strict else list(results)
 
 
 def _overridden(case: Case, args: argparse.Namespace) -> Case:
