@@ -112,12 +112,13 @@ def test_pickle_and_copy_carry_the_fields_only() -> None:
     network = validate(read_netlist(EVERY_KIND))
     _ = network.nodes, network.element_arrays, floating_reference(network, Port("a", "b"))
     state = network.__getstate__()
-    assert set(state) == {"title", "elements", "allow_negative"}
+    assert set(state) == {"title", "elements", "allow_negative", "source_lines"}
     for twin in (pickle.loads(pickle.dumps(network)), copy.copy(network), copy.deepcopy(network)):
         assert twin == network and hash(twin) == hash(network)
         assert "_topology" not in vars(twin) or twin is network
         assert twin.nodes == network.nodes and twin.node_index == network.node_index
         assert twin.allow_negative == network.allow_negative
+        assert twin.source_lines == network.source_lines
         assert validate(twin) is twin
 
 
