@@ -360,3 +360,12 @@ def test_replace_keeps_reading_fields(inject):
     """A later judgement (``replace``) keeps what reading said."""
     result = _own_result(inject, NO_AC)
     assert replace(result, baseline_note="x").warnings == (NO_AC,)
+
+
+@pytest.mark.parametrize("at", ["1MHz", "1M"])
+def test_expect_option_refuses_a_misread_frequency(netlist, capsys, at):
+    with pytest.raises(SystemExit) as stop:
+        main(["reduce", str(netlist), "--port", "out", "0", "--freq", "1k", "--engine", "own", "--expect", f"vth@{at}=1"])
+    assert stop.value.code == EXIT_USAGE
+    err = capsys.readouterr().err
+    assert f"vth@{at}=1" in err and "write 1meg for 1 MHz" in err

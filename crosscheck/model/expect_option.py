@@ -7,6 +7,7 @@ from collections.abc import Sequence
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.model.cases import Expectation
+from crosscheck.model.frequencies import check_frequency_text
 from crosscheck.model.tolerance import Tolerance
 from crosscheck.model.values import format_eng, parse_number, parse_phasor
 from crosscheck.vocabulary import PHASORS, same_frequency
@@ -40,6 +41,7 @@ def expectations_from_options(
             raise ExpectOptionError(f"--expect {text!r}: unknown quantity {quantity!r}; {_EXPECT_FORM}")
         try:
             if at_sep:
+                check_frequency_text(left.partition("@")[2].strip(), where="the frequency after @")
                 at = parse_number(at_text.strip())
             elif len(freqs_hz) == 1:
                 at = float(freqs_hz[0])
