@@ -20,6 +20,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 __all__ = [
+    "COMMON_KEYS",
+    "INSTANCE_KEYS",
+    "INSTANCE_NO_AC_EFFECT",
+    "KIND_WORDS",
     "DEFAULT_TEMPERATURE",
     "MODEL_KINDS",
     "ModelProblem",
@@ -34,6 +38,21 @@ __all__ = [
 DEFAULT_TEMPERATURE = 27.0
 #: The ``.model`` types ngspice 39 takes for the linear passives (measured: ``cap`` and ``ind`` are refused).
 MODEL_KINDS = {"r": "R", "res": "R", "c": "C", "l": "L"}
+
+#: The instance parameters of R, C and L: spelling -> canonical name ("value" is the element's value).
+INSTANCE_KEYS = {
+    "r": {"r": "value", "resistance": "value", "ac": "ac", "l": "l", "w": "w", "tc": "tc1"},
+    "c": {"c": "value", "cap": "value", "capacitance": "value", "l": "l", "w": "w"},
+    "l": {"l": "value", "inductance": "value"},
+}
+COMMON_KEYS = {k: k for k in ("temp", "dtemp", "m", "tc1", "tc2", "scale")}
+#: Instance parameters read with a note: they do not change an AC answer.
+INSTANCE_NO_AC_EFFECT = {
+    "ic": "an initial condition only affects transient analysis",
+    "noisy": "it only affects noise analysis",
+    "bv_max": "a breakdown limit: ngspice only warns when it is exceeded",
+}
+KIND_WORDS = {"R": "resistor", "C": "capacitor", "L": "inductor"}
 
 #: Device model types of ngspice that are not linear passives, by what they describe.
 _OTHER_TYPES = {
@@ -112,7 +131,9 @@ def model_parameter(kind: str, key: str) -> tuple[str | None, str | None]:
     if key in _NO_AC_EFFECT and (key != "c" or kind == "C"):
         return None, _NO_AC_EFFECT[key]
     if key in _NOT_IMPLEMENTED and kind in ("C" if key in ("di", "thick") else "L"):
-        raise ModelProblem(f"the {kind} model parameter {key}= is not implemented by crosscheck; {_NOT_IMPLEMENTED[key]}", key)
+        raise ModelProblem(
+            f"the {kind} model parameter {key}= is not implemented by crosscheck; {_NOT_IMPLEMENTED[key]}", key
+        )
     known = " ".join(sorted(_MODEL_PARAMS[kind]))
     raise ModelProblem(f"{key}= is not a {kind} model parameter crosscheck knows (it reads: {known})", key)
 
@@ -164,9 +185,7 @@ def _base_value(kind: str, value: float | None, inst: dict[str, float], model: d
             return rsh * (length - 2 * model.get("short", 0.0)) / (width - 2 * model.get("narrow", 0.0))
         if "r" in model:
             return model["r"]
-        raise ModelProblem(
-            "no resistance: give a value, or a .model with r= or rsh= (ngspice would quietly use 1 mΩ)"
-        )
+        raise ModelProblem("no resistance: give a value, or a .model with r= or rsh= (ngspice would quietly use 1 mΩ)")
     if kind == "C":
         if "cap" in model:
             return model["cap"]

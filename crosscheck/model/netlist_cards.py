@@ -4,6 +4,10 @@
 ``Instance`` of a subcircuit): R L C and K, the E F G H controlled sources, V and I with their
 DC/AC/transient forms, and X instances. ``model.netlist`` subclasses it with the file-level work
 (lines to cards, fields, ``.param`` and ``.subckt``) so that each module stays about one job.
+R L C are read with ngspice's instance parameters and ``.model`` cards (formulas in ``model.device_models``);
+``.temp`` and ``.options temp= tnom=`` set the temperatures. Safety: these paths only turn whitelisted
+keys and numbers into floats on the model; an RF port's internal node and resistor are named from the
+already validated element name (``v1#z0``, ``rv1#z0``), so nothing new from the text reaches a deck.
 """
 
 from __future__ import annotations
@@ -15,6 +19,10 @@ from typing import NamedTuple
 
 from crosscheck.errors import Location, NetlistError, ValueSyntaxError
 from crosscheck.model.device_models import (
+    COMMON_KEYS,
+    INSTANCE_KEYS,
+    INSTANCE_NO_AC_EFFECT,
+    KIND_WORDS,
     MODEL_KINDS,
     ModelProblem,
     Temperatures,
@@ -32,20 +40,6 @@ from crosscheck.model.values import parse_number
 MAX_NAME_CHARS = 200
 
 _NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{|')")
-#: The instance parameters of R, C and L: spelling -> canonical name ("value" is the element's value).
-_INSTANCE_KEYS = {
-    "r": {"r": "value", "resistance": "value", "ac": "ac", "l": "l", "w": "w", "tc": "tc1"},
-    "c": {"c": "value", "cap": "value", "capacitance": "value", "l": "l", "w": "w"},
-    "l": {"l": "value", "inductance": "value"},
-}
-_COMMON_KEYS = {k: k for k in ("temp", "dtemp", "m", "tc1", "tc2", "scale")}
-#: Instance parameters read with a note: they do not change an AC answer.
-_NO_AC_EFFECT = {
-    "ic": "an initial condition only affects transient analysis",
-    "noisy": "it only affects noise analysis",
-    "bv_max": "a breakdown limit: ngspice only warns when it is exceeded",
-}
-_KIND_WORDS = {"R": "resistor", "C": "capacitor", "L": "inductor"}
 
 
 class Tok(NamedTuple):
@@ -299,17 +293,17 @@ class CardReader:
 
     def skip_function(self, name: str, rest: list[Tok], k: int) -> int:
         """A transient function or DISTOF1/2 input and its arguments (in parentheses or bare): noted, skipped."""
-        t = rest[k - 1]
-        word = t.text.lower()
+        t, distortion = rest[k - 1], rest[k - 1].text.lower().startswith("distof")
         if k < len(rest) and rest[k].text.startswith("("):
             k += 1
         else:
-            limit = k + (2 if word.startswith("distof") else len(rest))
+            limit = k + (2 if distortion else len(rest))
             while k < limit and self.is_value(rest, k):
                 self.value(rest[k], name, f"{t.text.upper()} argument")
                 k += 1
-        what = "a distortion-analysis input" if word.startswith("distof") else "a transient function"
-        self.note(f"{name}: {t.text.upper()} ignored: {what} has no effect on AC analysis", t.line)
+        word = t.text.upper()
+        what = f"{word} (a distortion-analysis input)" if distortion else f"transient function {word}(...)"
+        self.note(f"{name}: {what} ignored: it has no effect on AC analysis", t.line)
         return k
 
     def port_resistor(
@@ -359,7 +353,7 @@ class CardReader:
             elif model_tok is None and not _NUMERIC.match(t.text):
                 raise self.err(
                     f"{name}: the model name {show(t.text)} comes after the value; ngspice reads a "
-                    f"{_KIND_WORDS[kind]}'s model before its value: write {name.upper()} n+ n- {t.text} value",
+                    f"{KIND_WORDS[kind]}'s model before its value: write {name.upper()} n+ n- {t.text} value",
                     t.line,
                 )
             else:
@@ -379,23 +373,32 @@ class CardReader:
     def instance_fields(self, name: str, toks: list[Tok]) -> tuple[dict[str, Tok], list[Tok]]:
         """An R, L or C card's key=value fields by canonical name, and its bare fields (nodes, value, model)."""
         letter, usage = name[0], USAGE[name[0]]
-        keys = {**_COMMON_KEYS, **_INSTANCE_KEYS[letter]}
+        keys = {**COMMON_KEYS, **INSTANCE_KEYS[letter]}
         given: dict[str, Tok] = {}
         bare: list[Tok] = []
         for previous, t in zip(toks, toks[1:]):
             if t.value is None:
-                if letter == "r" and previous.value is not None and previous.text.lower() == "tc" and _NUMERIC.match(t.text):
+                if (
+                    letter == "r"
+                    and previous.value is not None
+                    and previous.text.lower() == "tc"
+                    and _NUMERIC.match(t.text)
+                ):
                     given.setdefault("tc2", t)  # ngspice reads "tc=a b" as tc1=a tc2=b
                 else:
                     bare.append(t)
                 continue
             key = t.text.lower()
-            if key in _NO_AC_EFFECT and (key != "ic" or letter in "lc"):
-                self.note(f"{name}: {t.text}= ignored: {_NO_AC_EFFECT[key]}", t.line)
+            if key in INSTANCE_NO_AC_EFFECT and (key != "ic" or letter in "lc"):
+                self.note(f"{name}: {t.text}= ignored: {INSTANCE_NO_AC_EFFECT[key]}", t.line)
                 continue
             if key not in keys:
-                hint = "; ngspice computes it only when no inductance is given: give the inductance" if key == "nt" else ""
-                raise self.err(f"{name}: the parameter {t.text}= is not supported{hint}; write {usage} [key=value ...]", t.line)
+                hint = (
+                    "; ngspice computes it only when no inductance is given: give the inductance" if key == "nt" else ""
+                )
+                raise self.err(
+                    f"{name}: the parameter {t.text}= is not supported{hint}; write {usage} [key=value ...]", t.line
+                )
             if keys[key] in given:
                 raise self.err(f"{name}: {t.text}= is given twice (or with another spelling); keep one", t.line)
             given[keys[key]] = t.value
@@ -413,8 +416,8 @@ class CardReader:
             )
         if model.kind != kind:
             raise self.err(
-                f"{name}: model {model.name!r} (line {model.line}) is a {_KIND_WORDS[model.kind]} model; "
-                f"a {_KIND_WORDS[kind]} needs a .model of type {kind}",
+                f"{name}: model {model.name!r} (line {model.line}) is a {KIND_WORDS[model.kind]} model; "
+                f"a {KIND_WORDS[kind]} needs a .model of type {kind}",
                 tok.line,
             )
         if model.values is None:
@@ -448,7 +451,9 @@ class CardReader:
                 flat[1].line,
             )
         if name in self.models:
-            raise self.err(f".model {name} is defined twice (first at line {self.models[name].line}); keep one", card.line)
+            raise self.err(
+                f".model {name} is defined twice (first at line {self.models[name].line}); keep one", card.line
+            )
         params: dict[str, Tok] = {}
         for t in flat[2:]:
             if t.value is None:
