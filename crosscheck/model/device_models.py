@@ -19,6 +19,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from crosscheck.errors import CrosscheckError
+
 __all__ = [
     "COMMON_KEYS",
     "INSTANCE_KEYS",
@@ -99,7 +101,7 @@ _NOT_IMPLEMENTED = {
 }
 
 
-class ModelProblem(ValueError):
+class ModelProblem(CrosscheckError, ValueError):
     """A model or instance parameter that cannot be used; ``key`` names it (for the line), or None."""
 
     def __init__(self, message: str, key: str | None = None):
