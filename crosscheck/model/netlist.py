@@ -285,7 +285,13 @@ class _Reader(CardReader):
                 )
             self.subckts[current.name] = current
             current = None
+        elif word == ".model":
+            self.model_card(card)
+        elif word == ".temp":
+            self.temp_card(card)
         elif word in IGNORED_CARDS:
+            if word in (".options", ".option"):
+                self.options_temperature(card)
             self.note(f"{first} card ignored: {IGNORED_CARDS[word]}", card.line)
         elif word in REFUSED_CARDS:
             raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
@@ -302,9 +308,9 @@ class _Reader(CardReader):
     ) -> tuple[Network, list[str]]:
         """Every card read: the subcircuits' elements, the flattened network validated, and the notes."""
         for sub in self.subckts.values():
-            sub.protos = [self.element(card, toks) for card, toks in sub.cards]
+            sub.protos = self.read_elements(sub.cards)
             check_local_references(sub)
-        protos = [self.element(card, toks) for card, toks in top]
+        protos = self.read_elements(top)
         elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH)
         if not elements:
             raise self.err("the netlist has no element cards; add the network's elements after the title", last)

@@ -4,6 +4,10 @@
 ``Instance`` of a subcircuit): R L C and K, the E F G H controlled sources, V and I with their
 DC/AC/transient forms, and X instances. ``model.netlist`` subclasses it with the file-level work
 (lines to cards, fields, ``.param`` and ``.subckt``) so that each module stays about one job.
+R L C are read with ngspice's instance parameters and ``.model`` cards (formulas in ``model.device_models``);
+``.temp`` and ``.options temp= tnom=`` set the temperatures. Safety: these paths only turn whitelisted
+keys and numbers into floats on the model; an RF port's internal node and resistor are named from the
+already validated element name (``v1#z0``, ``rv1#z0``), so nothing new from the text reaches a deck.
 """
 
 from __future__ import annotations
@@ -14,7 +18,19 @@ from dataclasses import dataclass
 from typing import NamedTuple
 
 from crosscheck.errors import Location, NetlistError, ValueSyntaxError
-from crosscheck.model.netlist_subset import BEHAVIOURAL, DEVICES, NAME, NAME_CHARS, SUBSET, TRANSIENT, USAGE, VALUE_KEYS
+from crosscheck.model.device_models import (
+    COMMON_KEYS,
+    INSTANCE_KEYS,
+    INSTANCE_NO_AC_EFFECT,
+    KIND_WORDS,
+    MODEL_KINDS,
+    ModelProblem,
+    Temperatures,
+    model_parameter,
+    other_model_type,
+    passive_value,
+)
+from crosscheck.model.netlist_subset import BEHAVIOURAL, DEVICES, NAME, NAME_CHARS, SUBSET, TRANSIENT, USAGE
 from crosscheck.model.network import Element, make_element
 from crosscheck.model.params import evaluate
 from crosscheck.model.subcircuits import Instance
@@ -23,7 +39,7 @@ from crosscheck.model.values import parse_number
 #: The longest element, node or subcircuit name accepted (a case file's port names share the limit).
 MAX_NAME_CHARS = 200
 
-_NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{)")
+_NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{|')")
 
 
 class Tok(NamedTuple):
@@ -71,6 +87,17 @@ def show(text: str, limit: int = 60) -> str:
     return repr(text if len(text) <= limit else text[:limit] + "…")
 
 
+@dataclass
+class DeviceModel:
+    """A ``.model`` card of type R, C or L: its parameters as written, evaluated when an element first uses it."""
+
+    name: str
+    kind: str
+    line: int
+    params: dict[str, Tok]  # canonical parameter name -> the value field
+    values: dict[str, float] | None = None
+
+
 class CardReader:
     """Element cards to elements; errors and notes name the file and the card's line."""
 
@@ -78,6 +105,10 @@ class CardReader:
         self.file = file
         self.notes: list[tuple[int, str]] = []
         self.params: dict[str, float] = {}
+        self.models: dict[str, DeviceModel] = {}  # .model cards by name, read before any element
+        self.temps = Temperatures()  # .temp and .options temp= tnom=
+        self.temp_lines: dict[str, int] = {}
+        self.port_resistors: dict[int, Element] = {}  # a port source's internal resistor, by its card's line
 
     def err(self, message: str, line: int | None) -> NetlistError:
         return NetlistError(message, Location(self.file, line))
@@ -144,6 +175,8 @@ class CardReader:
             return self.instance(name, card, toks, where)
         if letter in "vi":
             return self.source(name, card, toks, where)
+        if letter in "rlc":
+            return self.passive(name, card, toks, where)
         return self.linear(name, card, toks, where)
 
     def refuse_behavioural(self, name: str, toks: list[Tok]) -> None:
@@ -167,37 +200,31 @@ class CardReader:
         return Instance(name, nodes, self.name(toks[-1], f"{name}: subcircuit"), where)
 
     def linear(self, name: str, card: Card, toks: list[Tok], where: Location) -> Element:
-        """R L C, E F G H and K: nodes (or coupled inductors), a controlling source and one value."""
+        """E F G H and K: nodes (or coupled inductors), a controlling source, one value; m= on G and F."""
         letter, usage = name[0], USAGE[name[0]]
         positional = [t for t in toks if t.value is None]
-        keyed = [t for t in toks if t.value is not None]
-        value_tok = None
-        for t in keyed:
-            key = t.text.lower()
-            if letter in VALUE_KEYS and key in VALUE_KEYS[letter]:
-                if value_tok is not None or len(positional) >= 4:
-                    raise self.err(f"{name}: the value is given twice; write {usage}", t.line)
-                value_tok = t.value
-            elif key == "ic" and letter in "lc":
-                raise self.err(
-                    f"{name}: an initial condition (ic=) only affects transient analysis and "
-                    "crosscheck's model is small-signal AC; remove it",
-                    t.line,
-                )
+        multiplier = 1.0
+        for t in (t for t in toks if t.value is not None):
+            if t.text.lower() == "m" and letter in "gf":
+                multiplier = self.value(t.value, name, "multiplier m")  # type: ignore[arg-type]
+            elif t.text.lower() == "m" and letter in "eh":
+                raise self.err(f"{name}: ngspice does not take m= on an {letter.upper()} source; remove it", t.line)
             else:
                 raise self.err(f"{name}: the parameter {t.text}= is not supported; write {usage}", t.line)
-        expected = {"e": 6, "g": 6, "f": 5, "h": 5, "k": 4}.get(letter, 3 if value_tok else 4)
+        expected = {"e": 6, "g": 6, "f": 5, "h": 5, "k": 4}[letter]
         if len(positional) < expected:
             raise self.err(f"{name}: too few fields; write {usage}", card.line)
         if len(positional) > expected:
             extra = positional[expected]
-            raise self.err(
-                f"{name}: unexpected field {show(extra.text)} (model names and extra parameters "
-                f"are not supported); write {usage}",
-                extra.line,
-            )
-        value_tok = value_tok or positional[-1]
-        value = self.value(value_tok, name, usage.rsplit(" ", 1)[1])
+            if letter == "k" and not _NUMERIC.match(positional[3].text):  # K1 L1 L2 L3 k: blame L3
+                extra = positional[3]
+                raise self.err(
+                    f"{name}: couples a third inductor {show(extra.text)}; a K card couples two inductors "
+                    f"in ngspice: write one K card per pair ({usage})",
+                    extra.line,
+                )
+            raise self.err(f"{name}: unexpected field {show(extra.text)}; write {usage}", extra.line)
+        value = self.value(positional[-1], name, usage.rsplit(" ", 1)[1]) * multiplier
         if letter == "k":
             coupled = (self.name(positional[1], f"{name}: inductor"), self.name(positional[2], f"{name}: inductor"))
             return make_element(name, "K", (), value, coupled=coupled, where=where)
@@ -206,50 +233,266 @@ class CardReader:
         return make_element(name, None, nodes, value, control=control, where=where)
 
     def source(self, name: str, card: Card, toks: list[Tok], where: Location) -> Element:
-        """V and I: the AC phasor; a DC value is checked and ignored, a transient function noted."""
+        """V and I: the AC phasor; DC, transient and distortion fields are checked and noted, m= scales an
+        I source, and ``portnum N z0 Z`` gives a V source an internal resistance (see ``port_resistor``)."""
         usage = USAGE[name[0]]
         if len(toks) < 3 or any(t.value is not None for t in toks[:3]):
             raise self.err(f"{name}: too few fields; write {usage}", card.line)
         nodes = [self.name(t, f"{name}: node") for t in toks[1:3]]
-        rest: list[Tok] = []  # dc=v, ac=v and a leading bare value become the keyword forms DC v, AC v
+        rest: list[Tok] = []  # dc=v, ac=v, portnum=n, z0=z and a leading bare value become keyword forms
+        multiplier = 1.0
         for t in toks[3:]:
-            keyword = t.value is not None and t.text.lower() in ("dc", "ac")
-            rest += [Tok(t.text, t.line), t.value] if keyword and t.value else [t]
-
-        def is_value(k: int) -> bool:
-            return k < len(rest) and rest[k].value is None and _NUMERIC.match(rest[k].text) is not None
-
-        if is_value(0):
+            key = t.text.lower() if t.value is not None else None
+            if key == "m" and name[0] == "i" and t.value is not None:
+                multiplier = self.value(t.value, name, "multiplier m")
+            elif key == "m":
+                raise self.err(f"{name}: ngspice does not take m= on a V source; remove it", t.line)
+            else:
+                keyword = key in ("dc", "ac", "portnum", "z0")
+                rest += [Tok(t.text, t.line), t.value] if keyword and t.value else [t]
+        if self.is_value(rest, 0):
             rest.insert(0, Tok("DC", rest[0].line))
-        mag, phase, seen, k = 0.0, 0.0, set(), 0
+        found = self.source_fields(name, rest)
+        mag, phase = found.get("ac", (0.0, 0.0))
+        if "portnum" in found or "z0" in found:
+            self.port_resistor(name, card, found, nodes, where)
+        return make_element(name, None, nodes, 0.0, ac_mag=mag * multiplier, ac_phase_deg=phase, where=where)
+
+    @staticmethod
+    def is_value(rest: list[Tok], k: int) -> bool:
+        return k < len(rest) and rest[k].value is None and _NUMERIC.match(rest[k].text) is not None
+
+    def source_fields(self, name: str, rest: list[Tok]) -> dict[str, tuple[float, float]]:
+        """The keyword fields of a V or I card after its nodes: ``ac`` (magnitude, phase), ``portnum``, ``z0``."""
+        usage, found, k = USAGE[name[0]], {}, 0
+        seen: set[str] = set()
         while k < len(rest):
             t, word = rest[k], rest[k].text.lower()
             if word in seen:
                 raise self.err(f"{name}: {word.upper()} is given twice; write {usage}", t.line)
-            if word == "dc" and is_value(k + 1):
-                self.value(rest[k + 1], name, "DC value")  # checked, then ignored: the model is small-signal AC
-                seen.add(word)
-                k += 2
+            seen.add(word)
+            k += 1
+            if word == "dc" and self.is_value(rest, k):
+                self.value(rest[k], name, "DC value")  # checked, then ignored: the model is small-signal AC
+                k += 1
             elif word == "ac":
-                seen.add(word)
-                mag, k = 1.0, k + 1
-                if is_value(k):
+                mag, phase = 1.0, 0.0
+                if self.is_value(rest, k):
                     mag, k = self.value(rest[k], name, "AC magnitude"), k + 1
-                    if is_value(k):
+                    if self.is_value(rest, k):
                         phase, k = self.value(rest[k], name, "AC phase"), k + 1
-            elif word in TRANSIENT and k + 1 < len(rest) and rest[k + 1].text.startswith("("):
-                self.note(
-                    f"{name}: transient function {t.text.upper()}(...) ignored: it has no effect on AC analysis", t.line
-                )
-                k += 2
-            elif word in TRANSIENT:
-                raise self.err(
-                    f"{name}: write the transient function's arguments in parentheses, as "
-                    f"{t.text.upper()}(...); crosscheck ignores it for AC analysis",
-                    t.line,
-                )
-            elif word.startswith("distof"):
-                raise self.err(f"{name}: {t.text} (distortion analysis) is not supported; remove it", t.line)
+                found["ac"] = (mag, phase)
+            elif word in ("portnum", "z0") and name[0] == "v" and self.is_value(rest, k):
+                found[word] = (self.value(rest[k], name, word), 0.0)
+                k += 1
+            elif word in TRANSIENT or word in ("distof1", "distof2"):
+                k = self.skip_function(name, rest, k)
             else:
                 raise self.err(f"{name}: unexpected field {show(t.text)}; write {usage}", t.line)
-        return make_element(name, None, nodes, 0.0, ac_mag=mag, ac_phase_deg=phase, where=where)
+        return found
+
+    def skip_function(self, name: str, rest: list[Tok], k: int) -> int:
+        """A transient function or DISTOF1/2 input and its arguments (in parentheses or bare): noted, skipped."""
+        t, distortion = rest[k - 1], rest[k - 1].text.lower().startswith("distof")
+        if k < len(rest) and rest[k].text.startswith("("):
+            k += 1
+        else:
+            limit = k + (2 if distortion else len(rest))
+            while k < limit and self.is_value(rest, k):
+                self.value(rest[k], name, f"{t.text.upper()} argument")
+                k += 1
+        word = t.text.upper()
+        what = f"{word} (a distortion-analysis input)" if distortion else f"transient function {word}(...)"
+        self.note(f"{name}: {what} ignored: it has no effect on AC analysis", t.line)
+        return k
+
+    def port_resistor(
+        self, name: str, card: Card, found: dict[str, tuple[float, float]], nodes: list[str], where: Location
+    ) -> None:
+        """``V n+ n- ... portnum N z0 Z``: ngspice's RF port, a source with the resistance z0 in series.
+
+        Measured with ngspice 39 (two ports driving each other through resistors, and a port into an
+        open circuit): z0 is in series with the source and the AC magnitude is not halved. The source
+        moves to an internal node ``<name>#z0`` and the resistor ``r<name>#z0`` joins n+ to it; the V
+        element keeps its name, so F and H controlled by it see the same current. ngspice 39 crashed
+        (segmentation fault) on a port with no z0, so z0 must be written.
+        """
+        if "portnum" not in found or "z0" not in found:
+            missing = "z0 Z (the port's internal resistance)" if "z0" not in found else "portnum N"
+            raise self.err(f"{name}: an RF port source needs both portnum and z0; add {missing}", card.line)
+        inner = f"{name}#z0"
+        self.port_resistors[card.line] = make_element(
+            f"r{name}#z0", "R", (nodes[0], inner), found["z0"][0], where=where
+        )
+        nodes[0] = inner
+
+    def read_elements(self, cards: list[tuple[Card, list[Tok]]]) -> list[Element | Instance]:
+        """Each card's element, and after a port source its internal resistor."""
+        out: list[Element | Instance] = []
+        for card, toks in cards:
+            out.append(self.element(card, toks))
+            extra = self.port_resistors.pop(card.line, None)
+            if extra is not None:
+                out.append(extra)
+        return out
+
+    # ---- R, L and C with their parameters and models (formulas in ``model.device_models``)
+
+    def passive(self, name: str, card: Card, toks: list[Tok], where: Location) -> Element:
+        """R L C: nodes, a value and/or a model name, and the instance parameters ngspice applies."""
+        kind, usage = name[0].upper(), USAGE[name[0]]
+        given, bare = self.instance_fields(name, toks)
+        if len(bare) < 2:
+            raise self.err(f"{name}: too few fields; write {usage}", card.line)
+        value_tok, model_tok = given.pop("value", None), None
+        for t in bare[2:]:
+            if _NUMERIC.match(t.text) and value_tok is None:
+                value_tok = t
+            elif not _NUMERIC.match(t.text) and model_tok is None and (value_tok is None or kind == "R"):
+                model_tok = t
+            elif model_tok is None and not _NUMERIC.match(t.text):
+                raise self.err(
+                    f"{name}: the model name {show(t.text)} comes after the value; ngspice reads a "
+                    f"{KIND_WORDS[kind]}'s model before its value: write {name.upper()} n+ n- {t.text} value",
+                    t.line,
+                )
+            else:
+                raise self.err(f"{name}: unexpected field {show(t.text)}; write {usage} [key=value ...]", t.line)
+        model = self.model_values(name, kind, model_tok) if model_tok is not None else {}
+        inst = {key: self.value(t, name, f"{key}=") for key, t in given.items()}
+        value = self.value(value_tok, name, usage.rsplit(" ", 1)[1]) if value_tok is not None else None
+        if "temp" in inst and "dtemp" in inst:
+            self.note(f"{name}: dtemp= ignored because temp= is given, as ngspice does", given["dtemp"].line)
+        try:
+            result = passive_value(kind, value, inst, model, self.temps)
+        except ModelProblem as exc:
+            raise self.err(f"{name}: {exc}", given[exc.key].line if exc.key in given else card.line) from None
+        nodes = tuple(self.name(t, f"{name}: node") for t in bare[:2])
+        return make_element(name, None, nodes, result, where=where)
+
+    def instance_fields(self, name: str, toks: list[Tok]) -> tuple[dict[str, Tok], list[Tok]]:
+        """An R, L or C card's key=value fields by canonical name, and its bare fields (nodes, value, model)."""
+        letter, usage = name[0], USAGE[name[0]]
+        keys = {**COMMON_KEYS, **INSTANCE_KEYS[letter]}
+        given: dict[str, Tok] = {}
+        bare: list[Tok] = []
+        for previous, t in zip(toks, toks[1:]):
+            if t.value is None:
+                if (
+                    letter == "r"
+                    and previous.value is not None
+                    and previous.text.lower() == "tc"
+                    and _NUMERIC.match(t.text)
+                ):
+                    given.setdefault("tc2", t)  # ngspice reads "tc=a b" as tc1=a tc2=b
+                else:
+                    bare.append(t)
+                continue
+            key = t.text.lower()
+            if key in INSTANCE_NO_AC_EFFECT and (key != "ic" or letter in "lc"):
+                self.note(f"{name}: {t.text}= ignored: {INSTANCE_NO_AC_EFFECT[key]}", t.line)
+                continue
+            if key not in keys:
+                hint = (
+                    "; ngspice computes it only when no inductance is given: give the inductance" if key == "nt" else ""
+                )
+                raise self.err(
+                    f"{name}: the parameter {t.text}= is not supported{hint}; write {usage} [key=value ...]", t.line
+                )
+            if keys[key] in given:
+                raise self.err(f"{name}: {t.text}= is given twice (or with another spelling); keep one", t.line)
+            given[keys[key]] = t.value
+        return given, bare
+
+    def model_values(self, name: str, kind: str, tok: Tok) -> dict[str, float]:
+        """The parameters of the ``.model`` an element names, evaluated once (errors name the .model line)."""
+        model = self.models.get(tok.text.lower())
+        if model is None:
+            hint = f" (to use the parameter, write {{{tok.text}}})" if tok.text.lower() in self.params else ""
+            raise self.err(
+                f"{name}: no .model card named {show(tok.text)}{hint}; give the value, or define "
+                f".model {tok.text} {kind} (...)",
+                tok.line,
+            )
+        if model.kind != kind:
+            raise self.err(
+                f"{name}: model {model.name!r} (line {model.line}) is a {KIND_WORDS[model.kind]} model; "
+                f"a {KIND_WORDS[kind]} needs a .model of type {kind}",
+                tok.line,
+            )
+        if model.values is None:
+            model.values = {key: self.value(t, f".model {model.name}", f"{key}=") for key, t in model.params.items()}
+        return model.values
+
+    # ---- .model, .temp and the temperatures of .options
+
+    def fields(self, card: Card) -> list[Tok]:
+        """A card's fields; the file-level reader (``model.netlist``) provides the splitting."""
+        raise NotImplementedError
+
+    def model_card(self, card: Card) -> None:
+        """``.model NAME TYPE [(] key=value ... [)]``: R (or RES), C and L are kept; other types are refused."""
+        flat: list[Tok] = []
+        for t in self.fields(card)[1:]:
+            if t.value is None and t.text.startswith("("):
+                flat += self.fields(Card(t.text[1:-1], t.line, [(0, t.line)]))
+            else:
+                flat.append(t)
+        if len(flat) < 2 or flat[0].value is not None or flat[1].value is not None:
+            raise self.err(".model needs a name and a type: .model NAME R (rsh=...)", card.line)
+        name, type_name = self.name(flat[0], ".model name"), flat[1].text
+        kind = MODEL_KINDS.get(type_name.lower())
+        if kind is None:
+            what = other_model_type(type_name)
+            why = f"type {type_name.upper()} is {what}" if what else f"unknown model type {show(type_name)}"
+            raise self.err(
+                f".model {flat[0].text}: {why}; crosscheck reads .model cards of type R (or RES), C and L "
+                f"only ({SUBSET})",
+                flat[1].line,
+            )
+        if name in self.models:
+            raise self.err(
+                f".model {name} is defined twice (first at line {self.models[name].line}); keep one", card.line
+            )
+        params: dict[str, Tok] = {}
+        for t in flat[2:]:
+            if t.value is None:
+                raise self.err(f".model {name}: unexpected field {show(t.text)}; write parameters as key=value", t.line)
+            try:
+                canonical, why_ignored = model_parameter(kind, t.text)
+            except ModelProblem as exc:
+                raise self.err(f".model {name}: {exc}", t.line) from None
+            if canonical is None:
+                self.note(f".model {name}: {t.text}= ignored: {why_ignored}", t.line)
+            elif canonical in params:
+                raise self.err(f".model {name}: {t.text}= is given twice (or with another spelling); keep one", t.line)
+            else:
+                params[canonical] = t.value
+        self.models[name] = DeviceModel(name, kind, card.line, params)
+
+    def temp_card(self, card: Card) -> None:
+        """``.temp T``: the circuit temperature in °C (one value: crosscheck runs one temperature)."""
+        toks = self.fields(card)[1:]
+        if len(toks) != 1 or toks[0].value is not None:
+            raise self.err(
+                ".temp takes one temperature in °C (.temp 50); for several temperatures run one netlist per "
+                "temperature",
+                card.line,
+            )
+        self.set_temperature("temp", toks[0], ".temp")
+
+    def options_temperature(self, card: Card) -> None:
+        """Read ``temp=`` and ``tnom=`` from an ``.options`` card (the other options are the caller's to note)."""
+        for t in self.fields(card)[1:]:
+            if t.value is not None and t.text.lower() in ("temp", "tnom"):
+                self.set_temperature(t.text.lower(), t.value, f".options {t.text.lower()}")
+
+    def set_temperature(self, key: str, tok: Tok, what: str) -> None:
+        if key in self.temp_lines:
+            raise self.err(
+                f"{what}: the {'circuit' if key == 'temp' else 'nominal'} temperature is set twice "
+                f"(first at line {self.temp_lines[key]}); keep one",
+                tok.line,
+            )
+        setattr(self.temps, key, self.value(tok, what, "temperature in °C"))
+        self.temp_lines[key] = tok.line

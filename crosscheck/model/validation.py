@@ -103,7 +103,7 @@ def _elements_look_clean(network: Network) -> bool:
         return False
     refused = (
         ((is_["L"] | is_["C"]) & (value <= 0))
-        | (is_["K"] & ~((value > 0) & (value <= 1)))
+        | (is_["K"] & ~((value != 0) & (np.abs(value) <= 1)))
         | ((is_["V"] | is_["E"] | is_["H"]) & (arrays.a == arrays.b))
     )
     if not network.allow_negative:
@@ -147,8 +147,12 @@ def _check_each_element(network: Network) -> None:
                 f"negative resistance ({e.value} Ω) is refused; allow active models explicitly "
                 "(--allow-negative) if it is intended",
             )
-        if e.kind == "K" and not (0 < e.value <= 1):
-            raise _fail(e, f"coupling coefficient must be in (0, 1] (got {e.value}); k > 1 is not physical")
+        if e.kind == "K" and not (0 < abs(e.value) <= 1):
+            raise _fail(
+                e,
+                f"coupling coefficient must be in [-1, 0) or (0, 1] (got {e.value}); |k| > 1 is not physical "
+                "and k = 0 couples nothing (a negative k reverses one dot)",
+            )
         if e.kind in "VEH" and e.nodes[0] == e.nodes[1]:
             raise _fail(
                 e,
