@@ -338,7 +338,7 @@ class _Reader(CardReader):
         """
         keys = {t.text.lower() for t in self.fields(card)[1:] if t.value is not None}
         matter = [key for key in OPTIONS_THAT_MATTER if key in keys]
-        extra = f"; its {', '.join(k + '=' for k in matter)} not applied: values are taken as written" if matter else ""
+        extra = f"; not applied: {', '.join(k + '=' for k in matter)} (values are taken as written)" if matter else ""
         self.note(f"{first} card ignored ({show(card.text)}): {IGNORED_CARDS[first.lower()]}{extra}", card.line)
 
     def subckt_card(self, card: Card, word: str, current: Subckt | None) -> Subckt | None:
