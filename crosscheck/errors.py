@@ -32,13 +32,35 @@ class ValueSyntaxError(CrosscheckError, ValueError):
 class NetlistError(CrosscheckError, ValueError):
     """The netlist text is malformed or uses a construct outside the supported subset.
 
-    Carries ``location`` (file and line) so the user can go straight to it.
+    Carries ``location`` (file and line) so the user can go straight to it, and ``problems``: every
+    problem found in one pass, each ``(Location, message)`` in line order (one entry for a single
+    problem; ``location`` is always the first one's). ``more`` counts problems found beyond those listed.
     """
 
-    def __init__(self, message: str, location: Location | None = None):
+    def __init__(
+        self,
+        message: str,
+        location: Location | None = None,
+        problems: tuple[tuple[Location, str], ...] = (),
+        more: int = 0,
+    ):
         self.location = location or Location()
         self.bare_message = message
+        self.problems = problems or ((self.location, message),)
+        self.more = more
         super().__init__(f"{self.location}: {message}")
+
+    @classmethod
+    def of_problems(cls, problems: list[tuple[Location, str]], cap: int) -> NetlistError:
+        """One error listing ``problems`` (already in line order), at most ``cap`` of them, each on its own line."""
+        shown, more = tuple(problems[:cap]), max(len(problems) - cap, 0)
+        if len(problems) == 1:
+            return cls(shown[0][1], shown[0][0])
+        lines = [f"the netlist has {len(problems)} problems, in line order:"]
+        lines += [f"  {where}: {message}" for where, message in shown]
+        if more:
+            lines.append(f"  ... and {more} more after these {cap}; fix these and read the netlist again")
+        return cls("\n".join(lines), shown[0][0], shown, more)
 
 
 class NetworkError(CrosscheckError, ValueError):

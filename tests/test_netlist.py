@@ -11,7 +11,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from crosscheck.errors import Location, NetlistError, NetworkError, ValueSyntaxError
-from crosscheck.model.netlist import MAX_SUBCKT_DEPTH, read_netlist, read_netlist_file, read_netlist_file_with_notes, read_netlist_with_notes
+from crosscheck.model.netlist import (MAX_SUBCKT_DEPTH, read_netlist, read_netlist_file, read_netlist_file_with_notes,
+                                      read_netlist_reading, read_netlist_with_notes)
 from crosscheck.model.netlist_writer import format_element, write_netlist
 from crosscheck.model.network import Element, Network, Port, make_element
 from crosscheck.model.validation import validate
@@ -128,12 +129,14 @@ def test_read_netlist_file_names_the_file_in_locations() -> None:
 # ----------------------------------------------------------------------------- lexical rules
 
 
-def test_title_is_always_the_first_line_and_an_element_like_title_gets_a_note() -> None:
-    """SPICE reads line 1 as the title even when it looks like a card; we say so in a note."""
-    net, notes = read_netlist_with_notes("R9 a 0 1k\nV1 a 0 AC 1\nR1 a 0 1k\n")
+def test_title_is_always_the_first_line_and_an_element_like_title_gets_a_warning() -> None:
+    """SPICE reads line 1 as the title even when it looks like a card; we say so in a warning."""
+    net, reading = read_netlist_reading("R9 a 0 1k\nV1 a 0 AC 1\nR1 a 0 1k\n")
     assert net.title == "R9 a 0 1k"
     assert [e.name for e in net.elements] == ["v1", "r1"]
-    assert len(notes) == 1 and notes[0].startswith("<string>:1:") and "title" in notes[0]
+    assert reading.notes == ()
+    (warning,) = reading.warnings
+    assert warning.code == "title-is-element" and str(warning.location) == "<string>:1" and "title" in warning.message
 
 
 def test_comments_continuations_case_and_line_endings() -> None:
@@ -399,7 +402,7 @@ def networks(draw: st.DrawFn) -> Network:
 @given(networks())
 def test_any_valid_network_round_trips(net: Network) -> None:
     """read_netlist(write_netlist(net)) == net for random valid networks, with each card's line recorded."""
-    again, notes = read_netlist_with_notes(write_netlist(net), "w.cir")
+    again, reading = read_netlist_reading(write_netlist(net), "w.cir")
     assert again == net
     assert [e.where for e in again.elements] == [Location("w.cir", i) for i in range(2, len(net.elements) + 2)]
-    assert [n for n in notes if not n.startswith("w.cir:1:")] == []
+    assert reading.notes == ()  # warnings (a network with no AC source, say) are about the network, not the text

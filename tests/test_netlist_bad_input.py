@@ -29,20 +29,17 @@ class Bad(NamedTuple):
 
 CASES = {
     # --- hostile or outside the subset
-    "control_shell": Bad(f"t\n{OK}.control\nshell touch pwned\nwrite out.raw v(a)\n.endc\n", NetlistError, 4,
-                         ".control is not supported"),
-    "stray_endc": Bad(f"t\n{OK}.endc\n", NetlistError, 4, "never runs them"),
+    "control_unclosed": Bad(f"t\n{OK}.control\nshell touch pwned\nwrite out.raw v(a)\n", NetlistError, 4,
+                            "the .control block is not closed"),
+    "control_end_inside": Bad(f"t\n{OK}.control\nrun\n.end\n", NetlistError, 4, "no .endc"),
+    "stray_endc": Bad(f"t\n{OK}.endc\n", NetlistError, 4, "no .control before it"),
     "include_passwd": Bad(f"t\n{OK}.include /etc/passwd\n", NetlistError, 4, "never opens files"),
     "inc": Bad(f"t\n.inc models.cir\n{OK}", NetlistError, 2, ".inc is not supported"),
     "lib": Bad(f"t\n{OK}.lib 'models.lib' tt\n", NetlistError, 4, ".lib is not supported"),
     "model": Bad(f"t\n{OK}.model dmod D(is=1e-14)\n", NetlistError, 4, "type D is a diode"),
     "func": Bad(f"t\n.func twice(x) {{2*x}}\n{OK}", NetlistError, 2, "user-defined functions"),
-    "global": Bad(f"t\n.global vdd\n{OK}", NetlistError, 2, "global nodes"),
-    "meas": Bad(f"t\n{OK}.meas ac vmax max v(a)\n", NetlistError, 4, ".meas is not supported"),
-    "tran": Bad(f"t\n{OK}.tran 1n 1u\n", NetlistError, 4, "remove the .tran card"),
-    "dc_sweep": Bad(f"t\n{OK}.dc V1 0 1 0.1\n", NetlistError, 4, "remove the .dc card"),
-    "noise": Bad(f"t\n{OK}.noise v(a) V1 dec 10 1 1k\n", NetlistError, 4, "remove the .noise card"),
-    "initial_conditions": Bad(f"t\n{OK}.ic v(a)=1\n", NetlistError, 4, "initial conditions"),
+    "global_in_subckt": Bad(f"t\n.global vdd\n.subckt s a\nR1 a vdd 1k\n.ends\nX1 a s\nVdd vdd 0 AC 1\n{OK}",
+                            NetlistError, 2, "global nodes across subcircuits are not implemented"),
     "unknown_card": Bad(f"t\n{OK}.frobnicate 3\n", NetlistError, 4, "unknown card '.frobnicate'"),
     "diode": Bad(f"t\n{OK}D1 a 0 dmod\n", NetlistError, 4, "D1 is a diode"),
     "mosfet": Bad(f"t\n{OK}M1 d g 0 0 nmos w=1u l=1u\n", NetlistError, 4, "M1 is a MOSFET"),
@@ -126,7 +123,9 @@ CASES = {
     # --- files
     "empty_file": Bad(b"", NetlistError, 1, "empty"),
     "binary_with_nul": Bad(b"\x7fELF\x02\x01\x01\x00\x00\x00\nR1 a 0 1k\n", NetlistError, 1, "NUL bytes"),
-    "not_utf8": Bad(b"t\nV1 a 0 AC 1\nR1 a 0 4.7k\xb5\n", NetlistError, 3, "not UTF-8"),
+    "not_utf8_nor_1252": Bad(b"t\nV1 a 0 AC 1\nR1 a 0 4.7k\x81\n", NetlistError, 3, "neither UTF-8 nor Windows-1252"),
+    "mostly_high_bytes": Bad(b"t\n" + bytes(range(0xa0, 0x100)) + b"\n", NetlistError, 2, "neither UTF-8"),
+    "quote_unbalanced": Bad("t\nV1 a 0 AC 1\nR1 a 0 '2*3\n", NetlistError, 3, "unbalanced \"'\""),
 }
 
 
@@ -160,9 +159,9 @@ def test_read_netlist_text_applies_the_file_checks(tmp_path: Path) -> None:
     """read_netlist_text returns a good file's text and refuses a binary one like read_netlist_file does."""
     good, bad = tmp_path / "good.cir", tmp_path / "bad.cir"
     good.write_bytes("t\nR1 a 0 4.7µ\n".encode())
-    bad.write_bytes(b"t\nR1 a 0 1k\n\xff\xfe\n")
+    bad.write_bytes(b"t\nR1 a 0 1k\n\x81\x8d\n")
     assert read_netlist_text(good) == "t\nR1 a 0 4.7µ\n"
-    with pytest.raises(NetlistError, match="not UTF-8") as info:
+    with pytest.raises(NetlistError, match="neither UTF-8 nor Windows-1252") as info:
         read_netlist_text(bad)
     assert f"{bad}:3:" in str(info.value)
 

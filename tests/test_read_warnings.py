@@ -5,8 +5,7 @@ Most tests inject a ``Reading`` into the run (the reader's own warnings are anot
 back with extra warnings and notes, and everything downstream — the result, every report format, the
 command line's exit codes, the pytest plugin — runs unchanged. The end-to-end tests at the bottom use
 netlists that the reader itself warns about (a source with only a DC value; an element on the title
-line); they are marked xfail(strict) until the reader fills its warnings, so they fail loudly the day
-it does and the marker must go.
+line).
 """
 
 from __future__ import annotations
@@ -330,12 +329,6 @@ def test_case_file_refuses_mhz_frequencies(tmp_path, extra, key):
 
 # --------------------------------------------------------------------------- with the reader's own warnings
 
-READER_PENDING = pytest.mark.xfail(
-    strict=True, reason="the reader does not fill Reading.warnings yet; remove this marker when it does"
-)
-
-
-@READER_PENDING
 def test_a_dc_only_netlist_warns_no_ac_source_and_strict_refuses_it(tmp_path, capsys):
     path = tmp_path / "dc.cir"
     path.write_text("supply divider\nV1 in 0 DC 5\nR1 in out 1k\nR2 out 0 1k\n.end\n", encoding="utf-8")
@@ -346,7 +339,6 @@ def test_a_dc_only_netlist_warns_no_ac_source_and_strict_refuses_it(tmp_path, ca
     assert main([*args, "--strict", "--accept-warning", "no-ac-source"]) == EXIT_OK
 
 
-@READER_PENDING
 def test_an_element_on_the_title_line_warns_title_is_element(tmp_path, capsys):
     path = tmp_path / "t.cir"
     path.write_text("R1 in out 1k\nV1 in 0 DC 0 AC 1\nR2 in out 1k\nR3 out 0 1k\n.end\n", encoding="utf-8")

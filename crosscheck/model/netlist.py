@@ -5,26 +5,39 @@ in SPICE), ``*`` comment lines, ``;`` and ``$`` inline comments, ``+``
 continuation lines, names in any case, ``.param`` arithmetic and ``{expr}``
 values, ``.subckt``/``.ends`` with ``X`` instances flattened the way ngspice
 names them (R2 in X1 becomes ``r.x1.r2``, node n3 becomes ``x1.n3``).
-Analysis and output cards (``.ac .op .options .print .plot .save .probe``) are
-ignored with a note; everything that could read other files, run scripts or
-needs a nonlinear or transient model is refused with the file and line
-(the cards and devices are listed in ``model.netlist_subset``; each kind of element card is read
-by ``model.netlist_cards``).
+Analysis and output cards (``netlist_subset.IGNORED_CARDS``) are ignored with a note each;
+``.control`` blocks are skipped, never run (``model.control_blocks``); what could read other
+files or needs a nonlinear model is refused with file and line (``model.netlist_subset``; each
+element card is read by ``model.netlist_cards``). One pass finds every problem: one
+``NetlistError`` lists them in line order. Traps (``model.traps``) become the ``Reading``'s
+warnings; the lines accepted become ``Network.source_lines``.
 """
 
 from __future__ import annotations
 
 import re
+from dataclasses import replace
 from os import PathLike
 
 from crosscheck.errors import Location, NetlistError, ValueSyntaxError
+from crosscheck.model.control_blocks import ControlBlocks
 from crosscheck.model.files import InputFileError, read_regular
-from crosscheck.model.netlist_cards import Card, CardReader, Tok, show
-from crosscheck.model.netlist_subset import CONTROL_CHAR, IGNORED_CARDS, REFUSED_CARDS, SUBSET
-from crosscheck.model.network import GROUND, Network, Port
+from crosscheck.model.netlist_cards import Card, CardReader, ConsequenceError, Tok, show
+from crosscheck.model.netlist_encoding import decode_netlist_bytes, decode_netlist_bytes_with_notes
+from crosscheck.model.netlist_fields import split_fields
+from crosscheck.model.netlist_subset import (
+    CONTROL_CHAR,
+    GLOBAL_REFUSED,
+    IGNORED_CARDS,
+    OPTIONS_THAT_MATTER,
+    REFUSED_CARDS,
+    SUBSET,
+)
+from crosscheck.model.network import GROUND, Element, Network, Port, canonical_node
 from crosscheck.model.params import assignments, evaluate
 from crosscheck.model.reading import Reading
-from crosscheck.model.subcircuits import Subckt, check_local_references, flatten
+from crosscheck.model.subcircuits import Instance, Subckt, check_local_references, flatten
+from crosscheck.model.traps import ValueText, find_traps, value_text
 from crosscheck.model.validation import validate
 
 __all__ = [
@@ -33,8 +46,12 @@ __all__ = [
     "read_netlist_reading",
     "read_netlist_file",
     "read_netlist_file_with_notes",
+    "read_netlist_file_reading",
     "read_netlist_text",
+    "read_netlist_text_with_notes",
     "decode_netlist_bytes",
+    "decode_netlist_bytes_with_notes",
+    "MAX_PROBLEMS",
     "MAX_ELEMENTS",
     "MAX_LINE_CHARS",
     "MAX_SUBCKT_DEPTH",
@@ -45,10 +62,12 @@ MAX_ELEMENTS = 200_000  # elements (and subcircuit instances) after flattening
 MAX_LINE_CHARS = 100_000
 MAX_SUBCKT_DEPTH = 50
 MAX_TEXT_CHARS = 64 * 2**20
+#: Problems listed in one error; the rest are counted ("... and 7 more").
+MAX_PROBLEMS = 20
 
 _DOLLAR_COMMENT = re.compile(r"(?:^|\s)\$(?:\s|$)")
-_FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}=]+|=)|(?P<open>[({])|(?P<close>[)}]))")
-_PLAIN = re.compile(r"^[^,(){}=]*$")
+_OPTIONS = (".options", ".option", ".opt", ".opts")
+_NUMERIC_START = re.compile(r"^[+-]?(?:\d|\.\d|\{)")
 
 
 # --------------------------------------------------------------------------- public API
@@ -57,68 +76,68 @@ _PLAIN = re.compile(r"^[^,(){}=]*$")
 def read_netlist(
     text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
 ) -> Network:
-    """Read a netlist into a validated Network (see ``read_netlist_with_notes`` for what is ignored)."""
-    return read_netlist_with_notes(text, file, allow_negative=allow_negative, port=port)[0]
+    """Read a netlist into a validated Network (see ``read_netlist_reading`` for what is ignored)."""
+    return read_netlist_reading(text, file, allow_negative=allow_negative, port=port)[0]
 
 
 def read_netlist_with_notes(
     text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
 ) -> tuple[Network, list[str]]:
-    """Read a netlist; also return one note per card or field that was accepted but ignored.
+    """Read a netlist; also return its notes and then its warnings as text, each naming file and line.
 
     ``port`` is passed to ``validate``: a part of the network with no ground is accepted
     only when it holds the whole port (a transformer secondary, for example).
     """
-    return _Reader(file).read(text, allow_negative, port)
+    network, reading = read_netlist_reading(text, file, allow_negative=allow_negative, port=port)
+    return network, [*reading.notes, *(str(w) for w in reading.warnings)]
 
 
 def read_netlist_reading(
     text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
 ) -> tuple[Network, Reading]:
-    """Read a netlist; also return its ``Reading``: the notes and the warnings (traps), each naming file and line."""
-    network, notes = read_netlist_with_notes(text, file, allow_negative=allow_negative, port=port)
-    return network, Reading(tuple(notes), ())
+    """Read a netlist; also return its ``Reading``: the notes and the warnings (traps), each naming file and line.
+
+    A netlist with problems raises one ``NetlistError`` listing every problem found (``problems``), in
+    line order; ill-posed networks raise ``NetworkError`` from ``validate`` once every card reads.
+    """
+    return _Reader(file).read(text, allow_negative, port)
 
 
 def read_netlist_file(path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None) -> Network:
-    """Read a netlist file (UTF-8 text; binary data and NUL bytes are refused)."""
-    return read_netlist_file_with_notes(path, allow_negative=allow_negative, port=port)[0]
+    """Read a netlist file (UTF-8, UTF-16 or Windows-1252 text; binary data is refused)."""
+    return read_netlist_file_reading(path, allow_negative=allow_negative, port=port)[0]
 
 
 def read_netlist_file_with_notes(
     path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None
 ) -> tuple[Network, list[str]]:
-    """``read_netlist_with_notes`` for a file, refused before parsing if it is not UTF-8 text."""
-    return read_netlist_with_notes(read_netlist_text(path), str(path), allow_negative=allow_negative, port=port)
+    """``read_netlist_with_notes`` for a file; a note says when the file was not UTF-8."""
+    network, reading = read_netlist_file_reading(path, allow_negative=allow_negative, port=port)
+    return network, [*reading.notes, *(str(w) for w in reading.warnings)]
+
+
+def read_netlist_file_reading(
+    path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None
+) -> tuple[Network, Reading]:
+    """``read_netlist_reading`` for a file; the decoding note (UTF-16, Windows-1252) comes first."""
+    text, decoding = read_netlist_text_with_notes(path)
+    network, reading = read_netlist_reading(text, str(path), allow_negative=allow_negative, port=port)
+    return network, replace(reading, notes=decoding + reading.notes)
 
 
 def read_netlist_text(path: str | PathLike) -> str:
-    """The text of a netlist file; unreadable, oversized, binary (NUL bytes) or non-UTF-8 files are refused."""
+    """The text of a netlist file; unreadable, oversized or binary files are refused (see the notes variant)."""
+    return read_netlist_text_with_notes(path)[0]
+
+
+def read_netlist_text_with_notes(path: str | PathLike) -> tuple[str, tuple[str, ...]]:
+    """The text of a netlist file and a note when it was decoded from UTF-16 or Windows-1252."""
     file = str(path)
     try:
         data = read_regular(path, MAX_TEXT_CHARS)
     except InputFileError as exc:
         raise NetlistError(f"cannot read the netlist: {exc}; check the path", Location(file)) from None
-    return decode_netlist_bytes(data, file)
-
-
-def decode_netlist_bytes(data: bytes, file: str) -> str:
-    """Netlist file bytes as text; binary (NUL bytes) or non-UTF-8 data is refused with the line."""
-    nul = data.find(b"\x00")
-    if nul >= 0:
-        raise NetlistError(
-            "the file contains NUL bytes: it is binary data, not a netlist; give the SPICE text file",
-            Location(file, data.count(b"\n", 0, nul) + 1),
-        )
-    try:
-        return data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        line = data.count(b"\n", 0, exc.start) + 1
-        raise NetlistError(
-            f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x}); "
-            "save it as UTF-8 (a binary file is not a netlist)",
-            Location(file, line),
-        ) from None
+    return decode_netlist_bytes_with_notes(data, file)
 
 
 # --------------------------------------------------------------------------- lines, cards, fields
@@ -131,132 +150,162 @@ def _strip_comment(line: str) -> str:
 
 
 class _Reader(CardReader):
-    """The file-level reader: lines to cards, cards to fields, ``.param`` and ``.subckt`` blocks."""
+    """The file-level reader: lines to cards, cards to fields, ``.param`` and ``.subckt`` blocks.
+
+    Each card's problem is kept (``problem``) and reading goes on, so one pass finds them all.
+    """
 
     def __init__(self, file: str):
         super().__init__(file)
         self.param_lines: dict[str, int] = {}
         self.subckts: dict[str, Subckt] = {}
         self.count = 0
+        self.problems: list[tuple[NetlistError, str | None]] = []  # the error, the card's text
+        self.stripped: dict[int, str] = {}  # each card line without its comment, for ``source_lines``
+        self.accepted: list[Card] = []  # cards that reach the model (elements, .subckt/.ends, .param)
+        self.values: list[ValueText] = []  # value texts as written, for ``traps``
+        self.globals: list[Card] = []
+        self.nested = 0  # .subckt cards refused inside another: their .ends is theirs
+        self.broken_header = False  # a .subckt header was refused: flattening would blame its instances
+
+    def problem(self, exc: NetlistError, card: Card | None = None) -> None:
+        """Keep a problem and go on; ``finish`` raises them together (a consequence of another is dropped)."""
+        if isinstance(exc, ConsequenceError):
+            return
+        self.problems.append((exc, card.text if card is not None else None))
+
+    def finish(self) -> None:
+        """Raise the problems found so far: the one error as it was, or one error listing them in line order."""
+        if not self.problems:
+            return
+        ordered = sorted(self.problems, key=lambda p: p[0].location.line or 0)
+        if len(ordered) == 1:
+            raise ordered[0][0]
+        listed = [
+            (exc.location, f"{show(text)}: {exc.bare_message}" if text else exc.bare_message) for exc, text in ordered
+        ]
+        raise NetlistError.of_problems(listed, MAX_PROBLEMS)
 
     # ---- text to cards
 
-    def cards(self, text: str) -> tuple[str, list[Card], int]:
+    def lines(self, text: str) -> list[str]:
         if len(text) > MAX_TEXT_CHARS:
             raise self.err(f"the netlist is longer than {MAX_TEXT_CHARS} characters; it is refused", 1)
-        lines = text.lstrip("\ufeff").replace("\r\n", "\n").replace("\r", "\n").split("\n")
         if not text.strip():
             raise self.err("the netlist is empty; a netlist is a title line followed by element cards", 1)
+        return text.lstrip("\ufeff").replace("\r\n", "\n").replace("\r", "\n").split("\n")
+
+    def line_problem(self, raw: str, number: int) -> NetlistError | None:
+        if len(raw) > MAX_LINE_CHARS:
+            return self.err(
+                f"line of {len(raw)} characters is longer than the limit ({MAX_LINE_CHARS}); "
+                "split it with + continuation lines",
+                number,
+            )
+        bad = CONTROL_CHAR.search(raw)
+        if bad:
+            return self.err(
+                f"control character {bad.group()!r} in the text: binary data is not a netlist; "
+                "give the SPICE text file",
+                number,
+            )
+        return None
+
+    def cards(self, text: str) -> tuple[str, list[Card], int]:
+        """The title and the cards (continuations joined, comments and .control blocks dropped)."""
+        lines = self.lines(text)
         cards: list[Card] = []
+        blocks = ControlBlocks()
         last = 1
         for number, raw in enumerate(lines, start=1):
-            if len(raw) > MAX_LINE_CHARS:
-                raise self.err(
-                    f"line of {len(raw)} characters is longer than the limit ({MAX_LINE_CHARS}); "
-                    "split it with + continuation lines",
-                    number,
-                )
-            bad = CONTROL_CHAR.search(raw)
-            if bad:
-                raise self.err(
-                    f"control character {bad.group()!r} in the text: binary data is not a netlist; "
-                    "give the SPICE text file",
-                    number,
-                )
-            if number == 1:
+            bad = self.line_problem(raw, number)
+            if bad is not None:
+                self.problem(bad)
                 continue
-            stripped = _strip_comment(raw).strip()
-            if not stripped or stripped.startswith("*"):
+            stripped = _strip_comment(raw).strip() if number > 1 else ""
+            if not stripped or stripped.startswith("*") or blocks.take(number, stripped):
                 continue
             last = number
             if stripped.startswith("+"):
                 if not cards:
-                    raise self.err(
-                        "a + continuation line with no card before it (line 1 is always the title); "
-                        "join it to a card or remove the +",
-                        number,
+                    self.problem(
+                        self.err(
+                            "a + continuation line with no card before it (line 1 is always the title); "
+                            "join it to a card or remove the +",
+                            number,
+                        )
                     )
+                    continue
                 cards[-1].extend(stripped[1:], number)
-                continue
-            if stripped.split(None, 1)[0].lower() == ".end":
+            elif stripped.split(None, 1)[0].lower() == ".end":
                 if any(_strip_comment(rest).strip() for rest in lines[number:]):
                     self.note("text after .end ignored", number)
                 break
-            cards.append(Card(stripped, number, [(0, number)]))
+            else:
+                cards.append(Card(stripped, number, [(0, number)]))
+            self.stripped[number] = stripped
+        self.control_notes(blocks, last)
         for card in cards:
             card.join()
-        title = lines[0].lstrip("\ufeff").strip()
-        if re.match(r"^[rlcvi][a-z_]*\d\w*(\s+\S+){2}\s+([0-9.{]|dc|ac)", title, re.IGNORECASE):
-            self.note(
-                f"the first line {show(title)} is read as the title, as SPICE does; "
-                "if it is an element, add a title line above it",
-                1,
+        return lines[0].lstrip("\ufeff").strip(), cards, last
+
+    def control_notes(self, blocks: ControlBlocks, end: int) -> None:
+        """A note per skipped .control block; a block with no .endc is a problem named at its .control line."""
+        for block in blocks.blocks:
+            self.note(block.note(), block.first)
+        if blocks.open is not None:
+            self.problem(
+                self.err(
+                    f"the .control block is not closed: no .endc before the end of the netlist (line {end}); "
+                    "add .endc after the block's last command (crosscheck skips the block; it never runs it)",
+                    blocks.open.first,
+                )
             )
-        return title, cards, last
 
     def fields(self, card: Card) -> list[Tok]:
-        """Split a card at blanks, commas and '='; a (...) or {...} group is one field; key=value pairs merge."""
-        text, out, pos = card.text, [], 0
-        if len(card.starts) == 1 and _PLAIN.match(text):  # the common card: blank-separated words
-            return [Tok(word, card.line) for word in text.split()]
-        line = card.line_at
-        while (m := _FIELD.match(text, pos)) is not None:
-            opener, closer = m.group("open"), m.group("close")
-            start = m.start(m.lastindex or 0)
-            if closer:
-                raise self.err(f"unbalanced {closer!r} on this card", line(start))
-            pos = m.end()
-            if opener:
-                close, depth = ")" if opener == "(" else "}", 1
-                while depth and pos < len(text):
-                    depth += (text[pos] == opener) - (text[pos] == close)
-                    pos += 1
-                if depth:
-                    raise self.err(f"unbalanced {opener!r}: no matching {close!r} on this card", line(start))
-            out.append(Tok(text[start:pos], line(start)))
-        if "=" not in text:
-            return out
-        merged: list[Tok] = []
-        k = 0
-        while k < len(out):
-            if k + 1 < len(out) and out[k + 1].text == "=":
-                key = out[k]
-                if k + 2 >= len(out) or out[k + 2].text == "=" or not re.match(r"^[a-z_]\w*:?$", key.text, re.I):
-                    raise self.err(f"malformed key=value field near {show(key.text)}", key.line)
-                merged.append(Tok(key.text, key.line, out[k + 2]))
-                k += 3
-            elif out[k].text == "=":
-                raise self.err("'=' with no name before it", out[k].line)
-            else:
-                merged.append(out[k])
-                k += 1
-        return merged
+        """The card's fields (``model.netlist_fields``); a malformed one raises a NetlistError with its line."""
+        return split_fields(card, self.err)
 
     # ---- the whole file
 
-    def read(self, text: str, allow_negative: bool, port: Port | None) -> tuple[Network, list[str]]:
+    def read(self, text: str, allow_negative: bool, port: Port | None) -> tuple[Network, Reading]:
         title, cards, last = self.cards(text)
         top: list[tuple[Card, list[Tok]]] = []
         current: Subckt | None = None
         for card in cards:
             first = card.text.split(None, 1)[0]
-            if first.startswith("."):
-                current = self.dot_card(card, first, current)
-                continue
-            self.count += 1
-            if self.count > MAX_ELEMENTS:
-                raise self.err(f"more than {MAX_ELEMENTS} element cards; a netlist that large is refused", card.line)
-            (current.cards if current else top).append((card, self.fields(card)))
-        if current is not None:
-            raise self.err(
-                f"subcircuit {current.name!r} is never closed; add '.ends {current.name}' after its last card",
-                current.line,
+            if not first.startswith("."):
+                self.count += 1
+                if self.count > MAX_ELEMENTS:  # the limit stops the reading: the one problem to fix first
+                    raise self.err(
+                        f"more than {MAX_ELEMENTS} element cards; a netlist that large is refused", card.line
+                    )
+            try:
+                if first.startswith("."):
+                    current = self.dot_card(card, first, current)
+                else:
+                    (current.cards if current else top).append((card, self.fields(card)))
+                    self.accepted.append(card)
+            except NetlistError as exc:
+                self.problem(exc, card)
+                if first.lower() == ".subckt" and current is None:  # its cards and .ends still belong to it
+                    current, self.broken_header = Subckt("", (), card.line, []), True
+                elif first.lower() == ".ends" and not self.nested:  # a refused .ends still closes its subcircuit
+                    current = None
+        if current is not None and current.name:
+            self.problem(
+                self.err(
+                    f"subcircuit {current.name!r} is never closed; add '.ends {current.name}' after its last card",
+                    current.line,
+                )
             )
         return self.network(title, top, last, allow_negative, port)
 
     def dot_card(self, card: Card, first: str, current: Subckt | None) -> Subckt | None:
         """A card starting with '.': read, ignored with a note, or refused; returns the open subcircuit."""
         word = first.lower()
+        if word in (".subckt", ".ends"):
+            return self.subckt_card(card, word, current)
         if word == ".param":
             if current is not None:
                 raise self.err(
@@ -265,58 +314,152 @@ class _Reader(CardReader):
                     card.line,
                 )
             self.param(card, len(first))
-        elif word == ".subckt":
+            self.values.append(ValueText("text", first, card.text, card.line))
+            self.accepted.append(card)
+        elif word == ".model":
+            self.model_card(card)
+            self.accepted.append(card)
+        elif word == ".temp":
+            self.temp_card(card)
+            self.accepted.append(card)
+        elif word in _OPTIONS:
+            self.options(card, first)
+        elif word == ".global":
+            self.globals.append(card)
+        elif word in IGNORED_CARDS:
+            self.note(f"{first} card ignored ({show(card.text)}): {IGNORED_CARDS[word]}", card.line)
+        elif word in REFUSED_CARDS:
+            raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
+        else:
+            raise self.err(
+                f"unknown card {show(first)}; {SUBSET} with .param, .subckt/.ends and "
+                f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}, .global and .control blocks); remove it",
+                card.line,
+            )
+        return current
+
+    def options(self, card: Card, first: str) -> None:
+        """An .options card: ignored with a note that names any key that would change an answer if applied.
+
+        The hook for reading some keys (temp=, tnom=): a reader that applies one notes what it applied
+        and calls ``self.accepted.append(card)`` so the card reaches ``Network.source_lines``.
+        """
+        toks = self.fields(card)[1:]
+        keys = {t.text.lower() for t in toks if t.value is not None}
+        if "scale" in keys:
+            raise self.err(
+                f"{first} scale=: ngspice scales device lengths and widths by it, which crosscheck does not "
+                "implement; remove scale= and write the lengths and widths scaled",
+                next(t.line for t in toks if t.text.lower() == "scale"),
+            )
+        self.options_temperature(card)
+        applied = [key for key in OPTIONS_THAT_MATTER if key in keys]
+        if applied:
+            self.accepted.append(card)  # the temperatures reach the reading check as written
+        extra = f"; except {', '.join(k + '=' for k in applied)}, which crosscheck applies" if applied else ""
+        self.note(f"{first} card ignored ({show(card.text)}): {IGNORED_CARDS[first.lower()]}{extra}", card.line)
+
+    def subckt_card(self, card: Card, word: str, current: Subckt | None) -> Subckt | None:
+        """.subckt opens a definition, .ends closes it; the card reaches ``source_lines`` when accepted."""
+        if word == ".subckt":
             if current is not None:
+                self.nested += 1
                 raise self.err(
                     f".subckt inside subcircuit {current.name!r} (line {current.line}); "
                     "define each subcircuit at the top level",
                     card.line,
                 )
             current = self.subckt_header(card, self.fields(card))
-        elif word == ".ends":
+            self.values.append(ValueText("text", current.name, card.text, card.line))
+        elif self.nested:
+            self.nested -= 1
+            return current
+        else:
             if current is None:
                 raise self.err(".ends with no .subckt before it; remove it or add the .subckt card", card.line)
             toks = self.fields(card)
-            if len(toks) > 1 and toks[1].text.lower() != current.name:
+            if current.name:
+                self.subckts[current.name] = current
+            if current.name and len(toks) > 1 and toks[1].text.lower() != current.name:
                 raise self.err(
                     f".ends {toks[1].text} closes subcircuit {current.name!r} "
                     f"(line {current.line}); make the names match",
                     card.line,
                 )
-            self.subckts[current.name] = current
             current = None
-        elif word == ".model":
-            self.model_card(card)
-        elif word == ".temp":
-            self.temp_card(card)
-        elif word in IGNORED_CARDS:
-            if word in (".options", ".option"):
-                self.options_temperature(card)
-            self.note(f"{first} card ignored: {IGNORED_CARDS[word]}", card.line)
-        elif word in REFUSED_CARDS:
-            raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
-        else:
-            raise self.err(
-                f"unknown card {show(first)}; {SUBSET} with .param, .subckt/.ends and "
-                f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}); remove it",
-                card.line,
-            )
+        self.accepted.append(card)
         return current
+
+    # ---- cards to the network
+
+    def protos(self, cards: list[tuple[Card, list[Tok]]]) -> list[Element | Instance]:
+        """The elements and instances of ``cards``; a card that cannot be read becomes a problem."""
+        out: list[Element | Instance] = []
+        for card, toks in cards:
+            try:
+                proto = self.element(card, toks)
+            except NetlistError as exc:
+                self.problem(exc, card)
+                continue
+            out.append(proto)
+            self.values.append(value_text(toks, proto, card.text, card.line))
+            port_resistor = self.port_resistors.pop(card.line, None)  # an RF port source's internal z0
+            if port_resistor is not None:
+                out.append(port_resistor)
+        return out
 
     def network(
         self, title: str, top: list[tuple[Card, list[Tok]]], last: int, allow_negative: bool, port: Port | None
-    ) -> tuple[Network, list[str]]:
-        """Every card read: the subcircuits' elements, the flattened network validated, and the notes."""
+    ) -> tuple[Network, Reading]:
+        """Every card read: the subcircuits' elements, the flattened network validated, the notes and warnings.
+
+        Flattening runs unless a .subckt header was refused, and stops at its first problem; validation
+        runs once every card reads (with a card missing it would report consequences, not causes).
+        """
         for sub in self.subckts.values():
-            sub.protos = self.read_elements(sub.cards)
-            check_local_references(sub)
-        protos = self.read_elements(top)
-        elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH)
+            sub.protos = self.protos(sub.cards)
+            try:
+                check_local_references(sub)
+            except NetlistError as exc:
+                self.problem(exc)
+        protos = self.protos(top)
+        self.check_globals()
+        elements = []
+        if not self.broken_header:
+            try:
+                elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH)
+            except NetlistError as exc:
+                self.problem(exc)
+        self.finish()
         if not elements:
             raise self.err("the netlist has no element cards; add the network's elements after the title", last)
-        network = Network(title, tuple(elements), allow_negative=allow_negative)
+        network = Network(title, tuple(elements), allow_negative=allow_negative, source_lines=self.source_lines())
         validate(network, port)
-        return network, [text for _, text in sorted(self.notes, key=lambda note: note[0])]
+        notes = tuple(text for _, text in sorted(self.notes, key=lambda note: note[0]))
+        return network, Reading(notes, find_traps(title, self.values, network, self.file))
+
+    def source_lines(self) -> tuple[str, ...]:
+        """The accepted cards' physical lines in file order, comments removed, + continuations kept."""
+        lines = sorted(number for card in self.accepted for _, number in card.starts)
+        return tuple(self.stripped[number] for number in lines)
+
+    def check_globals(self) -> None:
+        """.global: noted when it names only ground or nodes no subcircuit uses; refused otherwise."""
+        used = {node for sub in self.subckts.values() for node in sub.ports}
+        used.update(node for sub in self.subckts.values() for proto in sub.protos or () for node in proto.nodes)
+        for card in self.globals:
+            nodes = [canonical_node(t.text) for t in self.fields(card)[1:]]
+            clash = [n for n in nodes if n != GROUND and n in used]
+            if clash:
+                self.problem(self.err(f".global {clash[0]}: {GLOBAL_REFUSED.format(node=clash[0])}", card.line), card)
+            elif all(n == GROUND for n in nodes):
+                self.note(f".global card ignored ({show(card.text)}): ground is always global", card.line)
+            else:
+                self.note(
+                    f".global card ignored ({show(card.text)}): no subcircuit uses "
+                    f"{', '.join(n for n in nodes if n != GROUND)}, so it has no effect",
+                    card.line,
+                )
 
     def param(self, card: Card, skip: int) -> None:
         try:

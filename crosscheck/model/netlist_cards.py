@@ -98,6 +98,13 @@ class DeviceModel:
     values: dict[str, float] | None = None
 
 
+class ConsequenceError(NetlistError):
+    """A card that cannot be read only because an earlier card was refused: that problem is reported, not this."""
+
+    def __init__(self, message: str, line: int):
+        super().__init__(message, Location("<consequence>", line))
+
+
 class CardReader:
     """Element cards to elements; errors and notes name the file and the card's line."""
 
@@ -106,6 +113,7 @@ class CardReader:
         self.notes: list[tuple[int, str]] = []
         self.params: dict[str, float] = {}
         self.models: dict[str, DeviceModel] = {}  # .model cards by name, read before any element
+        self.refused_models: set[str] = set()
         self.temps = Temperatures()  # .temp and .options temp= tnom=
         self.temp_lines: dict[str, int] = {}
         self.port_resistors: dict[int, Element] = {}  # a port source's internal resistor, by its card's line
@@ -326,16 +334,6 @@ class CardReader:
         )
         nodes[0] = inner
 
-    def read_elements(self, cards: list[tuple[Card, list[Tok]]]) -> list[Element | Instance]:
-        """Each card's element, and after a port source its internal resistor."""
-        out: list[Element | Instance] = []
-        for card, toks in cards:
-            out.append(self.element(card, toks))
-            extra = self.port_resistors.pop(card.line, None)
-            if extra is not None:
-                out.append(extra)
-        return out
-
     # ---- R, L and C with their parameters and models (formulas in ``model.device_models``)
 
     def passive(self, name: str, card: Card, toks: list[Tok], where: Location) -> Element:
@@ -407,6 +405,8 @@ class CardReader:
     def model_values(self, name: str, kind: str, tok: Tok) -> dict[str, float]:
         """The parameters of the ``.model`` an element names, evaluated once (errors name the .model line)."""
         model = self.models.get(tok.text.lower())
+        if model is None and tok.text.lower() in self.refused_models:
+            raise ConsequenceError(f"{name}: its .model card {show(tok.text)} was refused", tok.line)
         if model is None:
             hint = f" (to use the parameter, write {{{tok.text}}})" if tok.text.lower() in self.params else ""
             raise self.err(
@@ -431,7 +431,18 @@ class CardReader:
         raise NotImplementedError
 
     def model_card(self, card: Card) -> None:
-        """``.model NAME TYPE [(] key=value ... [)]``: R (or RES), C and L are kept; other types are refused."""
+        """``.model NAME TYPE [(] key=value ... [)]``: R (or RES), C and L are kept; other types are refused.
+
+        A refused card's name is remembered, so the elements that use it are not blamed for it again."""
+        try:
+            self.read_model_card(card)
+        except NetlistError:
+            fields = self.fields(card)
+            if len(fields) > 1:
+                self.refused_models.add(fields[1].text.lower())
+            raise
+
+    def read_model_card(self, card: Card) -> None:
         flat: list[Tok] = []
         for t in self.fields(card)[1:]:
             if t.value is None and t.text.startswith("("):

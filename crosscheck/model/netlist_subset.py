@@ -16,40 +16,40 @@ NAME = re.compile(r"^[a-z0-9_.:#+\-\[\]<>!/]+$", re.IGNORECASE)
 NAME_CHARS = "letters, digits and _ . : # + - [ ] < > ! /"
 CONTROL_CHAR = re.compile(r"[\x00-\x08\x0b\x0e-\x1f\x7f]")
 
-#: Cards read and ignored, with the note the reader gives.
+_NO_AC_EFFECT = "it does not change the AC answer"
+#: Cards read and ignored, with the note the reader gives (each note also names the file, line and card).
 IGNORED_CARDS = {
     ".ac": FREQS,
     ".op": "the operating point does not change a linear network",
-    **dict.fromkeys((".options", ".option"), "crosscheck sets the simulator's options itself"),
-    **dict.fromkeys((".print", ".plot", ".save", ".probe"), "crosscheck chooses what to report"),
+    **dict.fromkeys((".options", ".option", ".opt", ".opts"), "crosscheck sets the simulator's options itself"),
+    **dict.fromkeys((".print", ".plot", ".save", ".probe", ".width"), "crosscheck chooses what to report"),
+    **dict.fromkeys((".meas", ".measure"), "crosscheck makes its own measurements at the port"),
+    ".title": "the title is line 1; a .title card only renames the output, " + _NO_AC_EFFECT,
+    ".ic": "initial conditions only affect transient analysis; " + _NO_AC_EFFECT,
+    ".nodeset": "node sets only steer the operating-point search; " + _NO_AC_EFFECT,
+    **{
+        card: f"{card[1:]} analysis is not run: crosscheck runs its own AC analysis ({FREQS})"
+        for card in (".tran", ".dc", ".noise", ".four", ".disto", ".sens", ".tf", ".pz", ".sp", ".pss")
+    },
 }
-_SCRIPT = (
-    "ngspice control blocks are scripts (they can run shell commands and write files) and crosscheck never "
-    "runs them; delete everything from .control to .endc"
-)
+#: Keys of an .options card that could change an answer if they were applied (the note names them).
+OPTIONS_THAT_MATTER = ("temp", "tnom")
 _OTHER_FILES = (
     "crosscheck reads one self-contained file and never opens files named inside it; paste the "
     "subcircuits you need into this netlist"
 )
 #: Cards refused, with the reason and the fix.
 REFUSED_CARDS = {
-    **dict.fromkeys((".control", ".endc"), _SCRIPT),
+    ".endc": "an .endc with no .control before it; remove it (crosscheck skips .control ... .endc blocks)",
     **dict.fromkeys((".include", ".inc", ".lib"), _OTHER_FILES),
-    ".model": "device models belong to nonlinear devices (diodes, transistors, switches); "
-    f"{SUBSET}: replace the device by its small-signal linear model and remove the .model card",
     ".func": "user-defined functions are not supported; write the arithmetic out in {...} or with .param",
-    ".global": "global nodes are not supported; pass the node through the subcircuit's terminals "
-    "(ground, 0, is always global)",
-    **dict.fromkeys((".meas", ".measure"), "measurements are made by crosscheck itself; remove the card"),
-    ".ic": "initial conditions only affect transient analysis; remove the card",
-    ".nodeset": "node sets only steer the operating-point search, which a linear network does not need; "
-    "remove the card",
-    ".temp": "temperature is outside the linear model (components are taken at their stated values); remove the card",
-    **{
-        card: f"{card[1:]} analysis is outside crosscheck's small-signal AC model; remove the {card} card: {FREQS}"
-        for card in (".tran", ".dc", ".noise", ".four", ".disto", ".sens", ".tf", ".pz", ".sp", ".pss")
-    },
 }
+#: Why a .global naming a node other than ground is refused when a subcircuit uses that node.
+GLOBAL_REFUSED = (
+    "global nodes across subcircuits are not implemented (crosscheck would keep {node!r} local to each "
+    "subcircuit, ngspice joins them); pass the node through the subcircuit's terminals instead "
+    "(ground, 0, is always global)"
+)
 
 #: Element letters of devices outside the subset, by what they are.
 DEVICES = {

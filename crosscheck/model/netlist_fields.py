@@ -1,0 +1,79 @@
+"""A card split into fields as ngspice splits it: blanks, commas and '=', with (...), {...} and '...' groups.
+
+Shared by every card the reader reads. A quoted expression ``'2*rb'`` becomes the field ``{2*rb}``:
+ngspice reads single quotes and braces the same way, and the rest of the reader knows braces. Splitting
+only cuts the text; nothing in a field is evaluated here.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+
+from crosscheck.errors import NetlistError
+from crosscheck.model.netlist_cards import Card, Tok, show
+
+__all__ = ["split_fields"]
+
+#: Makes the error for a message and a line (the reader's ``err``, which adds the file).
+Error = Callable[[str, "int | None"], NetlistError]
+
+_FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}=']+|=)|(?P<open>[({'])|(?P<close>[)}]))")
+_PLAIN = re.compile(r"^[^,(){}=']*$")
+_CLOSING = {"(": ")", "{": "}", "'": "'"}
+
+
+def split_fields(card: Card, err: Error) -> list[Tok]:
+    """Split a card at blanks, commas and '='; a (...), {...} or '...' group is one field; key=value pairs merge.
+
+    A quoted expression '2*rb' becomes the field {2*rb}: ngspice reads both the same way.
+    """
+    text, out, pos = card.text, [], 0
+    if len(card.starts) == 1 and _PLAIN.match(text):  # the common card: blank-separated words
+        return [Tok(word, card.line) for word in text.split()]
+    line = card.line_at
+    while (m := _FIELD.match(text, pos)) is not None:
+        opener, closer = m.group("open"), m.group("close")
+        start = m.start(m.lastindex or 0)
+        if closer:
+            raise err(f"unbalanced {closer!r} on this card", line(start))
+        pos = m.end()
+        if opener:
+            pos = _group_end(err, text, opener, start, pos, line(start))
+            if opener == "'":
+                out.append(Tok("{" + text[start + 1 : pos - 1] + "}", line(start)))
+                continue
+        out.append(Tok(text[start:pos], line(start)))
+    return _merge_keys(err, out) if "=" in text else out
+
+
+def _group_end(err: Error, text: str, opener: str, start: int, pos: int, line: int) -> int:
+    """The offset just past the group opened at ``start``: ( and { nest, a quote ends at the next quote."""
+    close, depth = _CLOSING[opener], 1
+    while depth and pos < len(text):
+        if opener == "'":
+            depth -= text[pos] == "'"
+        else:
+            depth += (text[pos] == opener) - (text[pos] == close)
+        pos += 1
+    if depth:
+        raise err(f"unbalanced {opener!r}: no matching {close!r} on this card", line)
+    return pos
+
+
+def _merge_keys(err: Error, out: list[Tok]) -> list[Tok]:
+    merged: list[Tok] = []
+    k = 0
+    while k < len(out):
+        if k + 1 < len(out) and out[k + 1].text == "=":
+            key = out[k]
+            if k + 2 >= len(out) or out[k + 2].text == "=" or not re.match(r"^[a-z_]\w*:?$", key.text, re.I):
+                raise err(f"malformed key=value field near {show(key.text)}", key.line)
+            merged.append(Tok(key.text, key.line, out[k + 2]))
+            k += 3
+        elif out[k].text == "=":
+            raise err("'=' with no name before it", out[k].line)
+        else:
+            merged.append(out[k])
+            k += 1
+    return merged
