@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from functools import cached_property
 
 from crosscheck.judge.hazards import Hazard, assess_case
-from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
+from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck, ReadingCheck
 from crosscheck.model.cases import Case
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import Equivalent
@@ -44,6 +44,9 @@ class CaseResult:
     #: The hazard judgement made where the network is at hand (``judge.hazards.assess_network``); None: made on
     #: first use of ``hazard``, reading the case's netlist again.
     assessed_hazard: Hazard | None = None
+    #: ngspice's reading of the user's own lines against the own route (``judge.reading``); None when the
+    #: network was not read from text (the fuzzer's) or ngspice was not run.
+    reading: ReadingCheck | None = None
 
     @cached_property
     def hazard(self) -> Hazard | None:
@@ -64,7 +67,8 @@ class CaseResult:
         """The first explanation among the judgements that carry the case's verdict."""
         if self.error:
             return self.error
-        parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck] = [
+        parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck | ReadingCheck] = [
+            *([self.reading] if self.reading is not None else []),
             *self.points,
             *self.expectations,
             *self.limits,
@@ -85,6 +89,7 @@ def case_verdict(result: CaseResult) -> Verdict:
             *(e.verdict for e in result.expectations),
             *(lim.verdict for lim in result.limits),
             *(d.verdict for d in result.drift),
+            *([result.reading.verdict] if result.reading is not None else []),
         ]
     )
 
