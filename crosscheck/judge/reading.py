@@ -21,7 +21,7 @@ from crosscheck.spice.reading import ElementDifference, ReadingAnswer
 from crosscheck.vocabulary import Verdict
 
 REF_NAME = "ngspice reading the netlist's own lines"
-_UNITS = {"resistance": "Ω", "capacitance": "F", "inductance": "H"}
+_UNITS = {"resistance": " Ω", "capacitance": " F", "inductance": " H"}
 #: At most this many differing elements are named in the explanation.
 MAX_NAMED = 5
 
@@ -46,7 +46,7 @@ def judge_reading(answer: ReadingAnswer | None, own: Sequence[Equivalent], tol: 
     if worst.verdict == Verdict.PASS:
         return ReadingCheck(Verdict.PASS, worst.err, freq, worst.explanation, worst.cause, compared=len(checks))
     if worst.cause in ROUNDOFF_CAUSES:
-        text = f"the reading check at {format_eng(freq, unit='Hz')}: {worst.explanation}"
+        text = f"the reading check at {format_eng(freq, unit=' Hz')}: {worst.explanation}"
         return ReadingCheck(Verdict.FAIL, worst.err, freq, text, worst.cause, compared=len(checks))
     return _misreading(answer, worst, freq, tol, len(checks))
 
@@ -56,7 +56,7 @@ def _misreading(
 ) -> ReadingCheck:
     """The failing record: where ngspice's reading parts from the model, and which elements say so."""
     size = (
-        f"V(a) − V(b) differs by {worst.err:.3g} relative at {format_eng(freq, unit='Hz')} "
+        f"V(a) − V(b) differs by {worst.err:.3g} relative at {format_eng(freq, unit=' Hz')} "
         f"(tolerance {tol.rel:.3g}; magnitude {worst.mag_err_pct:+.3g} %, phase {worst.phase_err_deg:+.3g}°)"
     )
     if not answer.values_read:

@@ -91,9 +91,7 @@ class SpiceResult:
     elapsed_s: float  # time spent in ngspice and reading its vectors
     notes: tuple[str, ...] = ()
     decks: tuple[str, ...] = field(default=(), repr=False)  # every deck text that was run, to reproduce by hand
-    #: ngspice's V(a) − V(b) from the user's own accepted lines (``spice.reading``); None when the network
-    #: has none (a generated one) or the check was not run.
-    reading: ReadingAnswer | None = None
+    reading: ReadingAnswer | None = None  # ngspice on the user's own lines (``spice.reading``); None: no lines
 
     def _array(self, name: str) -> np.ndarray:
         nan = complex(math.nan, math.nan)
@@ -229,6 +227,7 @@ class Engine:
         self.version = _version_text(banner, self._ng.ngspice_version)
         self._ng.lines.clear()
         self.last_lines: tuple[str, ...] = ()  # every line ngspice printed in the last good run
+        self.broken = False  # ngspice said it cannot recover from a deck: its worker must retire
 
     def _command(self, command: str) -> None:
         from PySpice.Spice.NgSpice.Shared import NgSpiceCommandError
@@ -254,8 +253,8 @@ class Engine:
         try:
             try:
                 ng.load_circuit(deck.text)
-            except NgSpiceCircuitError:
-                pass
+            except (NgSpiceCircuitError, NameError):  # NameError: PySpice's word for a refused deck
+                self.broken = self.broken or any("cannot recover" in text for _, text in ng.lines)
             errors = _failures(ng.lines)
             if errors:
                 raise _RunFailed("ngspice did not accept the deck", errors, deck.text)

@@ -300,14 +300,18 @@ def refusal_finding(network: Network, lines: Sequence[str], first_line: int) -> 
         if found and 0 <= int(found.group(1)) - first_line < len(source):
             index = int(found.group(1)) - first_line
             break
-    if index is None:
-        lowered = {line.strip().lower() for line in lines}
-        index = next((i for i, text in enumerate(source) if text.strip().lower() in lowered), None)
+    if index is None:  # ngspice quotes the line: the longest accepted line its words contain
+        said_lower = [line.strip().lower() for line in lines]
+        quoted = [
+            (len(t), i) for i, t in enumerate(s.strip().lower() for s in source) if any(t in x for x in said_lower)
+        ]
+        index = max(quoted)[1] if quoted else None
     if index is None:
         return "", f"ngspice does not accept the netlist's lines: {said}"
     text = source[index].strip()
-    where = _file_line(network, text) or f"accepted line {index + 1}"
-    return where, f"ngspice does not accept line {where}: {text[:120]!r}: {said}"
+    where = _file_line(network, text)
+    line = where or f"{index + 1} of the lines crosscheck accepted"
+    return where, f"ngspice does not accept line {line}: {text[:120]!r}: {said}"
 
 
 def _file_line(network: Network, text: str) -> str:

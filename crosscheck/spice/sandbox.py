@@ -193,7 +193,8 @@ def _one_case(
         if engine is None:
             assert startup_error is not None
             raise startup_error
-        return ("ok", solve_case(engine, task.network, task.port, task.freqs, task.strategy)), False
+        result = solve_case(engine, task.network, task.port, task.freqs, task.strategy)
+        return ("ok", result), bool(getattr(engine, "broken", False))  # ngspice that cannot recover: retire
     except CrosscheckError as exc:
         return ("error", exc), engine is not None and isinstance(exc, ReferenceEngineError)
     except MemoryError:
