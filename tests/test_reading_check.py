@@ -153,12 +153,14 @@ def test_ngspice_element_values_match_a_model_of_the_effective_values() -> None:
     found: list = []
     deck = build_reading_deck(network, Port("a", "0"), [1e3])
     engine.run(deck, lambda plots: found.append(element_differences(network, engine.instance_parameter, 27.0)))
-    assert found == [[]]
+    assert found == [([], len(network.elements))]
     broken = dataclasses.replace(
         network, elements=tuple(dataclasses.replace(e, value=1e-9) if e.name == "c1" else e for e in network.elements)
     )
     engine.run(deck, lambda plots: found.append(element_differences(broken, engine.instance_parameter, 27.0)))
-    assert [d.name for d in found[1]] == ["c1"] and math.isclose(found[1][0].ngspice.real, 3e-9, rel_tol=1e-12)
+    differences, compared = found[1]
+    assert compared == len(network.elements)
+    assert [d.name for d in differences] == ["c1"] and math.isclose(differences[0].ngspice.real, 3e-9, rel_tol=1e-12)
 
 
 # --------------------------------------------------------------------------- (2) a misreading is caught
@@ -351,7 +353,9 @@ def test_lines_ngspice_cannot_recover_from_cost_the_reading_alone_and_retire_the
         first = pool.submit(broken, port, FREQS).result()
         second = pool.submit(network, port, FREQS).result()
     assert all(p.vth is not None for p in first.points), "the model's decks ran before the reading"
-    assert first.reading is not None and first.reading.failure.startswith("ngspice does not accept line 3 of the lines crosscheck accepted: '.subckt blk p q'")
+    assert first.reading is not None and first.reading.failure.startswith(
+        "ngspice does not accept line 3 of the lines crosscheck accepted: '.subckt blk p q'"
+    )
     assert ".ends" in first.reading.failure or "subckt" in first.reading.failure.lower()
     assert second.reading is not None and second.reading.failure == "" and None not in second.reading.vth
 
@@ -367,3 +371,17 @@ def test_a_worker_whose_ngspice_says_it_cannot_recover_retires_after_the_case() 
         engine = type("FakeEngine", (), {"broken": broken})()
         outcome, retire = _one_case(lambda *args: "the result", engine, None, task, settings)
         assert outcome == ("ok", "the result") and retire is broken
+
+
+def test_element_values_are_read_within_their_time_budget() -> None:
+    network = read_netlist(DEPENDENT)
+    asked: list[tuple[str, str]] = []
+
+    def read(name: str, parameter: str) -> float | None:
+        asked.append((name, parameter))
+        return None  # nothing readable: no difference can be claimed
+
+    assert element_differences(network, read, 27.0) == ([], len(network.elements))
+    assert {name for name, _ in asked} == {e.name for e in network.elements}
+    asked.clear()
+    assert element_differences(network, read, 27.0, budget_s=-1.0) == ([], 0) and asked == []
