@@ -385,3 +385,14 @@ def test_element_values_are_read_within_their_time_budget() -> None:
     assert {name for name, _ in asked} == {e.name for e in network.elements}
     asked.clear()
     assert element_differences(network, read, 27.0, budget_s=-1.0) == ([], 0) and asked == []
+
+
+@pytest.mark.spice
+def test_a_port_node_ngspice_does_not_have_is_named() -> None:
+    """A reader that renamed a node: ngspice's reading has no such node, and the check says so."""
+    network = with_lines(read_netlist(LADDER), LADDER)
+    renamed = tuple(line.replace("n2", "n9") for line in network.source_lines)
+    result = judged_case(dataclasses.replace(network, source_lines=renamed), Port("n2", "0"))
+    check = result.reading
+    assert check is not None and check.verdict == Verdict.FAIL and check.cause == Cause.READING_DIFFERS
+    assert check.explanation.endswith("the port node 'n2' is not a node of its reading")

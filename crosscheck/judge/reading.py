@@ -34,6 +34,10 @@ def judge_reading(answer: ReadingAnswer | None, own: Sequence[Equivalent], tol: 
         return ReadingCheck(Verdict.ERROR, math.nan, None, answer.refused, Cause.READING_UNSAFE)
     if answer.failure:
         return ReadingCheck(Verdict.FAIL, math.nan, None, answer.failure, Cause.READING_REFUSED, answer.failure_line)
+    if answer.missing_nodes:
+        nodes = ", ".join(map(repr, answer.missing_nodes))
+        text = f"ngspice reads this netlist differently from crosscheck: the port node {nodes} is not a node of its reading"
+        return ReadingCheck(Verdict.FAIL, math.nan, None, text, Cause.READING_DIFFERS)
     checks = [
         (eq.freq_hz, compare_quantity("vth", eq.vth, v, tol, eq.condition, eq.vth_scale, ref_name=REF_NAME))
         for eq, v in zip(own, answer.vth)

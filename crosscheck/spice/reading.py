@@ -42,6 +42,7 @@ mutual inductance k·√(L1·L2).
 from __future__ import annotations
 
 import bisect
+import functools
 import math
 import re
 import time
@@ -123,6 +124,7 @@ class ReadingAnswer:
     failure: str = ""
     failure_line: str = ""  # where: "file:line" when known, else the accepted line's text
     refused: str = ""
+    missing_nodes: tuple[str, ...] = ()  # port nodes that are not nodes of ngspice's reading
     values_read: bool = False
     differences: tuple[ElementDifference, ...] = ()
     notes: tuple[str, ...] = ()
@@ -203,6 +205,7 @@ def check_reading(
     if not network.source_lines:
         return None
     requested = tuple(requested)
+    nothing = (None,) * len(requested)
     tie = floating_reference(network, port)
     if tie is not None and (
         "." in tie or not VECTOR_NAME.match(tie) or any(e.name == REFERENCE_TIE for e in network.elements)
@@ -211,50 +214,61 @@ def check_reading(
             "reading check not made: the port's part of the network has no ground and its node b "
             f"({tie!r}) cannot be tied to ground from outside the netlist's lines"
         )
-        return ReadingAnswer(requested, (None,) * len(requested), notes=(note,))
-    got: dict[float, complex] = {}
-    notes: list[str] = []
-    state: dict[str, Any] = {"differences": None}
-    decks: list[str] = []
+        return ReadingAnswer(requested, nothing, notes=(note,))
+    run = _ReadingRun(engine, network, reference)
     for group in groups:
         try:
             deck = build_reading_deck(network, port, group)
         except UnsafeLineError as exc:
-            return ReadingAnswer(requested, (None,) * len(requested), refused=str(exc))
-        decks.append(deck.text)
-
-        def while_loaded(plots: dict[str, dict[str, np.ndarray]], deck: ReadingDeck = deck) -> None:
-            values = _values(deck, plots)
-            got.update(values)
-            if state["differences"] is None and _differs(values, reference, deck.freqs):
-                found, read = element_differences(network, engine.instance_parameter, _tnom(engine.last_lines))
-                state["differences"] = found
-                if read < len(network.elements):
-                    notes.append(
-                        f"reading check: element values compared for the first {read} of {len(network.elements)} "
-                        f"elements (a {VALUE_BUDGET_S:g} s budget)"
-                    )
-
+            return ReadingAnswer(requested, nothing, refused=str(exc))
+        run.decks.append(deck.text)
         try:
-            engine.run(deck, while_loaded)
+            engine.run(deck, functools.partial(run.loaded, deck))
         except CrosscheckError as exc:
-            lines = tuple(getattr(exc, "lines", ()))
             if getattr(exc, "singular", False):
-                notes.append(f"reading check: ngspice finds the network singular at {', '.join(map(repr, group))} Hz")
+                run.notes.append(
+                    f"reading check: ngspice finds the network singular at {', '.join(map(repr, group))} Hz"
+                )
                 continue
-            where, finding = refusal_finding(network, lines or (str(exc),), deck.first_line)
-            return ReadingAnswer(
-                requested, (None,) * len(requested), failure=finding, failure_line=where, deck=decks[-1]
-            )
-    differences = state["differences"]
+            lines = tuple(getattr(exc, "lines", ())) or (str(exc),)
+            where, finding = refusal_finding(network, lines, deck.first_line)
+            return ReadingAnswer(requested, nothing, failure=finding, failure_line=where, deck=deck.text)
     return ReadingAnswer(
         requested,
-        tuple(got.get(f) for f in requested),
-        values_read=differences is not None,
-        differences=tuple(differences or ()),
-        notes=tuple(notes),
-        deck="".join(decks),
+        tuple(run.got.get(f) for f in requested),
+        values_read=run.differences is not None,
+        missing_nodes=tuple(sorted(run.lost)),
+        differences=tuple(run.differences or ()),
+        notes=tuple(run.notes),
+        deck="".join(run.decks),
     )
+
+
+class _ReadingRun:
+    """What the reading decks of one case gave: values, lost port nodes, element differences, notes."""
+
+    def __init__(self, engine: ReadingEngine, network: Network, reference: Mapping[float, complex | None]):
+        self.engine, self.network, self.reference = engine, network, reference
+        self.got: dict[float, complex] = {}
+        self.lost: set[str] = set()  # port nodes that ngspice's reading does not have
+        self.differences: list[ElementDifference] | None = None  # None: the values were not read
+        self.notes: list[str] = []
+        self.decks: list[str] = []
+
+    def loaded(self, deck: ReadingDeck, plots: dict[str, dict[str, np.ndarray]]) -> None:
+        """Read V(a) − V(b); where it differs from the model's deck, the element values (deck still loaded)."""
+        values = _values(deck, plots)
+        self.lost.update(n for n in (deck.plus, deck.minus) if n and not any(n in v for v in plots.values()))
+        self.got.update(values)
+        if self.differences is None and _differs(values, self.reference, deck.freqs):
+            tnom = _tnom(self.engine.last_lines)
+            self.differences, read = element_differences(self.network, self.engine.instance_parameter, tnom)
+            total = len(self.network.elements)
+            if read < total:
+                self.notes.append(
+                    f"reading check: element values compared for the first {read} of {total} elements "
+                    f"(a {VALUE_BUDGET_S:g} s budget)"
+                )
 
 
 def _values(deck: ReadingDeck, plots: Mapping[str, Mapping[str, np.ndarray]]) -> dict[float, complex]:
