@@ -396,3 +396,13 @@ def test_a_port_node_ngspice_does_not_have_is_named() -> None:
     check = result.reading
     assert check is not None and check.verdict == Verdict.FAIL and check.cause == Cause.READING_DIFFERS
     assert check.explanation.endswith("the port node 'n2' is not a node of its reading")
+
+
+@pytest.mark.spice
+def test_a_reader_that_dropped_m_is_caught_with_ngspice_s_effective_value() -> None:
+    """The text says ``R1 in a 1k m=2`` (500 Ω in ngspice); a model that kept 1 kΩ is named as the misreading."""
+    text = "m dropped\nV1 in 0 AC 1 0\nR1 in a 1k m=2\nR2 a 0 1k\nC1 a 0 100n\n"
+    network = dataclasses.replace(read_netlist(text.replace(" m=2", "")), source_lines=accepted_lines(text))
+    check = judged_case(network, Port("a", "0")).reading
+    assert check is not None and check.verdict == Verdict.FAIL and check.elements == ("r1",)
+    assert "r1 (line 3): resistance 500 Ω in ngspice, 1 kΩ in crosscheck's model" in check.explanation
