@@ -13,6 +13,7 @@ from crosscheck.judge.compare import EngineAnswer, compare_point, spice_answer
 from crosscheck.judge.expectations import check_expectations
 from crosscheck.judge.hazards import assess_network
 from crosscheck.judge.limits import check_limits
+from crosscheck.judge.reading import judge_reading
 from crosscheck.judge.records import ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.judge.result import CaseResult, case_verdict
 from crosscheck.model.network import Network
@@ -35,13 +36,18 @@ def judged(
         expectations = tuple(check_expectations(result.case, result.own, network))
         limits = tuple(check_limits(result.case, result.own))
     points: tuple[PointCheck, ...] = ()
+    reading = None
     if compare:
         refs: list[EngineAnswer | None] = (
             [spice_answer(p) for p in result.spice.points] if result.spice is not None else [None] * len(result.own)
         )
         points = tuple(compare_point(o, r, result.tolerance, result.spice_note) for o, r in zip(result.own, refs))
+        if result.spice is not None:
+            reading = judge_reading(result.spice.reading, result.own, result.tolerance)
     hazard = assess_network(network, result.own, result.sources) if network is not None else None
-    new = replace(result, expectations=expectations, limits=limits, points=points, assessed_hazard=hazard)
+    new = replace(
+        result, expectations=expectations, limits=limits, points=points, assessed_hazard=hazard, reading=reading
+    )
     if baseline is not None:
         new = with_baseline(new, baseline)
     return replace(new, verdict=case_verdict(new))

@@ -35,6 +35,10 @@ class Cause(StrEnum):
     NGSPICE_ROUNDOFF = "ngspice-roundoff"  # within ngspice's own attainable accuracy (threshold pivoting)
     NGSPICE_PIVOT_ORDER = "ngspice-pivot-order"  # agrees when ngspice runs the frequency alone
     EXPECTED_FOR_CASE = "expected-for-case"  # the generator's caveat for the case says why
+    # The reading check (ngspice reading the user's own lines, ``judge.reading``):
+    READING_DIFFERS = "reading-differs"  # ngspice reads the netlist's text to another answer than the model's
+    READING_REFUSED = "reading-refused"  # ngspice does not accept a line our reader accepted
+    READING_UNSAFE = "reading-unsafe"  # our own check refused a stored line: nothing was sent (a reader bug)
 
 
 #: Causes that say a failure is the size the arithmetic allows, not a modelling difference.
@@ -121,3 +125,22 @@ class DriftCheck:
     verdict: Verdict  # pass, drift, unavailable
     explanation: str
     cause: Cause = Cause.AGREES
+
+
+@dataclass(frozen=True)
+class ReadingCheck:
+    """ngspice's V(a) − V(b) from the user's own lines against the own route's V_th, over the sweep.
+
+    ``worst_rel_err`` and ``freq_hz`` are the worst compared point's (nan and None when none was compared);
+    ``line`` is where the first differing element or the refused line is ("file:line", or "");
+    ``elements`` names the elements whose values ngspice reads otherwise than the model.
+    """
+
+    verdict: Verdict
+    worst_rel_err: float
+    freq_hz: float | None
+    explanation: str
+    cause: Cause = Cause.AGREES
+    line: str = ""
+    elements: tuple[str, ...] = ()
+    compared: int = 0  # frequencies at which both gave a value

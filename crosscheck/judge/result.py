@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from functools import cached_property
 
 from crosscheck.judge.hazards import Hazard, assess_case
-from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
+from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck, ReadingCheck
 from crosscheck.model.cases import Case
 from crosscheck.model.reading import ReadWarning
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
@@ -49,6 +49,9 @@ class CaseResult:
     #: that has no effect on an AC answer, each naming file and line) and warnings (traps, in line order).
     read_notes: tuple[str, ...] = ()
     warnings: tuple[ReadWarning, ...] = ()
+    #: ngspice's reading of the user's own lines against the own route (``judge.reading``); None when the
+    #: network was not read from text (the fuzzer's) or ngspice was not run.
+    reading: ReadingCheck | None = None
 
     @cached_property
     def hazard(self) -> Hazard | None:
@@ -84,7 +87,8 @@ class CaseResult:
         """The first explanation among the judgements that carry the case's verdict."""
         if self.error:
             return self.error
-        parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck] = [
+        parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck | ReadingCheck] = [
+            *([self.reading] if self.reading is not None else []),
             *self.points,
             *self.expectations,
             *self.limits,
@@ -105,6 +109,7 @@ def case_verdict(result: CaseResult) -> Verdict:
             *(e.verdict for e in result.expectations),
             *(lim.verdict for lim in result.limits),
             *(d.verdict for d in result.drift),
+            *([result.reading.verdict] if result.reading is not None else []),
         ]
     )
 

@@ -115,6 +115,22 @@ def drift_document(d: Any) -> dict[str, Any]:
     }
 
 
+def reading_document(result: CaseResult) -> dict[str, Any] | None:
+    """The reading check (ngspice reading the netlist's own lines against the own route), or None."""
+    r = result.reading
+    if r is None:
+        return None
+    return {
+        "verdict": r.verdict,
+        "cause": r.cause,
+        "worst_rel_err": _num(r.worst_rel_err),
+        "freq_hz": r.freq_hz,
+        "line": r.line or None,
+        "elements": list(r.elements),
+        "explanation": r.explanation or None,
+    }
+
+
 def checks_document(result: CaseResult) -> dict[str, Any]:
     """Hand-calculated expectations, design limits and baseline drift of one case."""
     return {
@@ -172,6 +188,7 @@ def case_document(result: CaseResult) -> dict[str, Any]:
         "verdict": result.verdict,
         "error": result.error,
         "points": points_document(result),
+        "reading": reading_document(result),
         "elapsed_s": {"own": result.elapsed_own_s, "spice": result.elapsed_spice_s},
         **checks_document(result),
         **read_document(result),

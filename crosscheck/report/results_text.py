@@ -213,6 +213,23 @@ def print_checks(console: Console, result: CaseResult, detail: bool) -> None:
     note = getattr(result, "baseline_note", "")
     if note:
         console.print(f"[dim]baseline: {escape(note)}[/]")
+    reading = reading_line(result)
+    if reading is not None:
+        console.print(reading)
+
+
+def reading_line(result: CaseResult) -> str | None:
+    """The reading check in one line (ngspice reading the netlist's own lines), or None when it was not made."""
+    r = result.reading
+    if r is None:
+        return None
+    if r.verdict == "pass":
+        at = f" at {format_eng(r.freq_hz, 4, ' Hz')}" if r.freq_hz is not None else ""
+        text = f"ngspice reads the netlist's own lines alike: worst V_th difference {_err(r.worst_rel_err)}{at}"
+    else:
+        text = r.explanation
+    label = escape(result.name, keep_layout=False)
+    return f"[{STYLE[r.verdict]}]reading check ({label}): {r.verdict}: {escape(text)}[/]"
 
 
 def summary_line(results: Sequence[CaseResult]) -> str:

@@ -28,7 +28,7 @@ import logging
 import math
 import os
 import time
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Literal
 
@@ -38,6 +38,7 @@ from crosscheck.errors import CrosscheckError, EngineUnavailableError, Reference
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import RUNS, Deck, Run, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
+from crosscheck.spice.reading import VECTOR_NAME, ReadingAnswer, ReadingDeck, check_reading
 from crosscheck.vocabulary import same_frequency
 
 INSTALL_COMMAND = "sudo apt-get install -y libngspice0 libngspice0-dev"
@@ -90,6 +91,7 @@ class SpiceResult:
     elapsed_s: float  # time spent in ngspice and reading its vectors
     notes: tuple[str, ...] = ()
     decks: tuple[str, ...] = field(default=(), repr=False)  # every deck text that was run, to reproduce by hand
+    reading: ReadingAnswer | None = None  # ngspice on the user's own lines (``spice.reading``); None: no lines
 
     def _array(self, name: str) -> np.ndarray:
         nan = complex(math.nan, math.nan)
@@ -224,6 +226,8 @@ class Engine:
         banner = [text for _, text in self._ng.lines]
         self.version = _version_text(banner, self._ng.ngspice_version)
         self._ng.lines.clear()
+        self.last_lines: tuple[str, ...] = ()  # every line ngspice printed in the last good run
+        self.broken = False  # ngspice said it cannot recover from a deck: its worker must retire
 
     def _command(self, command: str) -> None:
         from PySpice.Spice.NgSpice.Shared import NgSpiceCommandError
@@ -233,8 +237,13 @@ class Engine:
         except NgSpiceCommandError:
             pass  # PySpice's guess; the captured lines are judged by the caller
 
-    def run(self, deck: Deck) -> tuple[dict[str, dict[str, np.ndarray]], tuple[str, ...]]:
-        """Load and run ``deck``; its plots (vectors as complex128 arrays) and the stderr lines that were not fatal."""
+    def run(
+        self, deck: Deck | ReadingDeck, while_loaded: Callable[[dict[str, dict[str, np.ndarray]]], None] | None = None
+    ) -> tuple[dict[str, dict[str, np.ndarray]], tuple[str, ...]]:
+        """Load and run ``deck``; its plots (vectors as complex128 arrays) and the stderr lines that were not fatal.
+
+        ``while_loaded(plots)`` is called after a good run, with the circuit still loaded (``reading``).
+        """
         from PySpice.Spice.NgSpice.Shared import NgSpiceCircuitError
 
         ng = self._ng
@@ -244,8 +253,8 @@ class Engine:
         try:
             try:
                 ng.load_circuit(deck.text)
-            except NgSpiceCircuitError:
-                pass
+            except (NgSpiceCircuitError, NameError):  # NameError: PySpice's word for a refused deck
+                self.broken = self.broken or any("cannot recover" in text for _, text in ng.lines)
             errors = _failures(ng.lines)
             if errors:
                 raise _RunFailed("ngspice did not accept the deck", errors, deck.text)
@@ -260,10 +269,24 @@ class Engine:
             if errors:
                 raise _RunFailed("ngspice stopped the analysis", errors, deck.text)
             notes = tuple(text for stream, text in ng.lines if stream == "stderr" and text.strip())
+            self.last_lines = tuple(text for _, text in ng.lines)
+            if while_loaded is not None:
+                while_loaded(plots)
             return plots, notes
         finally:
             self._command("remcirc")
             self._command("destroy all")
+
+    def instance_parameter(self, name: str, parameter: str) -> float | None:
+        """The loaded circuit's ``@name[parameter]`` by the vector interface (no command; ``reading.VECTOR_NAME``)."""
+        from PySpice.Spice.NgSpice.Shared import FFI
+
+        if not VECTOR_NAME.match(name) or not parameter.isalnum():
+            return None
+        info = self._ng._ngspice_shared.ngGet_Vec_Info(f"@{name}[{parameter}]".encode("ascii"))
+        if info == FFI.NULL or info.v_length < 1 or info.v_realdata == FFI.NULL:
+            return None
+        return float(info.v_realdata[0])
 
 
 def _failures(lines: Sequence[tuple[str, str]]) -> list[str]:
@@ -318,6 +341,8 @@ def solve(
         used.add(case.solve_group(group, runs, strategy))
     points = [_point(case, f, notes[0] if degenerate else None) for f in requested]
     notes += case.notes
+    model_vth = {f: (None if (v := case.values.get(("open", f))) is None else v[1]) for f in requested}
+    reading = check_reading(engine, network, port, groups, requested, model_vth)
     return SpiceResult(
         points=tuple(points),
         ngspice_version=engine.version,
@@ -325,6 +350,7 @@ def solve(
         elapsed_s=time.perf_counter() - started,
         notes=tuple(dict.fromkeys(notes)),
         decks=tuple(case.decks),
+        reading=reading,
     )
 
 

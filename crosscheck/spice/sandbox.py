@@ -10,8 +10,8 @@ Which function solves a case is a ``CaseSolver`` the parent's ``SpicePool`` send
 settings: ``engine.solve`` unless the code that built the pool named another (the worker tests name
 functions of their own that hang, spin, die or hog memory, to prove the pool survives them). The seam is
 safe because only the pool's constructor chooses it: nothing a case carries (its network, title, port,
-frequencies) is ever read to pick a function, and ngspice sees only the deck our writer made from the
-model. A module named in a ``CaseSolver`` runs with the caller's own rights, as any import the caller
+frequencies) is ever read to pick a function, and ngspice sees only the decks our writers made: from the
+model (``deck``), and for the reading check the user's lines the reader accepted, checked again (``reading``). A module named in a ``CaseSolver`` runs with the caller's own rights, as any import the caller
 makes would.
 """
 
@@ -193,7 +193,8 @@ def _one_case(
         if engine is None:
             assert startup_error is not None
             raise startup_error
-        return ("ok", solve_case(engine, task.network, task.port, task.freqs, task.strategy)), False
+        result = solve_case(engine, task.network, task.port, task.freqs, task.strategy)
+        return ("ok", result), bool(getattr(engine, "broken", False))  # ngspice that cannot recover: retire
     except CrosscheckError as exc:
         return ("error", exc), engine is not None and isinstance(exc, ReferenceEngineError)
     except MemoryError:
