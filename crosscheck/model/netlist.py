@@ -21,10 +21,10 @@ from crosscheck.errors import Location, NetlistError, ValueSyntaxError
 from crosscheck.model.files import InputFileError, read_regular
 from crosscheck.model.netlist_cards import Card, CardReader, Tok, show
 from crosscheck.model.netlist_subset import CONTROL_CHAR, IGNORED_CARDS, REFUSED_CARDS, SUBSET
-from crosscheck.model.network import GROUND, Network, Port
-from crosscheck.model.params import assignments, evaluate
+from crosscheck.model.network import GROUND, Element, Network, Port
+from crosscheck.model.params import Function, Scope, assignments, function_definition, parse, unwrap
 from crosscheck.model.reading import Reading
-from crosscheck.model.subcircuits import Subckt, check_local_references, flatten
+from crosscheck.model.subcircuits import Instance, Subckt, flatten
 from crosscheck.model.validation import validate
 
 __all__ = [
@@ -47,8 +47,8 @@ MAX_SUBCKT_DEPTH = 50
 MAX_TEXT_CHARS = 64 * 2**20
 
 _DOLLAR_COMMENT = re.compile(r"(?:^|\s)\$(?:\s|$)")
-_FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}=]+|=)|(?P<open>[({])|(?P<close>[)}]))")
-_PLAIN = re.compile(r"^[^,(){}=]*$")
+_FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}='][^\s,(){}=]*|=)|(?P<open>[({'])|(?P<close>[)}]))")
+_PLAIN = re.compile(r"^[^,(){}=']*$")
 
 
 # --------------------------------------------------------------------------- public API
@@ -206,7 +206,12 @@ class _Reader(CardReader):
             if closer:
                 raise self.err(f"unbalanced {closer!r} on this card", line(start))
             pos = m.end()
-            if opener:
+            if opener == "'":  # a quoted expression is one field, as {...} is
+                close_at = text.find("'", pos)
+                if close_at < 0:
+                    raise self.err('unbalanced "\'": no closing quote on this card', line(start))
+                pos = close_at + 1
+            elif opener:
                 close, depth = ")" if opener == "(" else "}", 1
                 while depth and pos < len(text):
                     depth += (text[pos] == opener) - (text[pos] == close)
@@ -258,13 +263,9 @@ class _Reader(CardReader):
         """A card starting with '.': read, ignored with a note, or refused; returns the open subcircuit."""
         word = first.lower()
         if word == ".param":
-            if current is not None:
-                raise self.err(
-                    f".param inside subcircuit {current.name!r} is not supported; "
-                    "move it above the .subckt (parameters are global)",
-                    card.line,
-                )
-            self.param(card, len(first))
+            self.param(card, len(first), current)
+        elif word == ".func":
+            self.func(card, len(first), current)
         elif word == ".subckt":
             if current is not None:
                 raise self.err(
@@ -300,43 +301,92 @@ class _Reader(CardReader):
     def network(
         self, title: str, top: list[tuple[Card, list[Tok]]], last: int, allow_negative: bool, port: Port | None
     ) -> tuple[Network, list[str]]:
-        """Every card read: the subcircuits' elements, the flattened network validated, and the notes."""
-        for sub in self.subckts.values():
-            sub.protos = [self.element(card, toks) for card, toks in sub.cards]
-            check_local_references(sub)
+        """Every card read: top-level parameters evaluated, the top level's cards read, each subcircuit's
+        cards read again per instance in its scope while flattening, the network validated, and the notes."""
+        scope = self.global_scope()
+        for name, (_, line) in scope.definitions.items():
+            try:
+                self.params[name] = scope.find(name)  # type: ignore[assignment]  # found: it is defined here
+            except ValueSyntaxError as exc:
+                raise self.err(f".param {name}: {exc}", getattr(exc, "line", None) or line) from None
+        self.scope = scope
         protos = [self.element(card, toks) for card, toks in top]
-        elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH)
+        elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH, self.read_in_scope, scope)
+        for sub in self.subckts.values():
+            if not sub.checked and sub.cards:
+                self.note(f"subcircuit {sub.name!r} is never placed by an X card; its cards were not read", sub.line)
         if not elements:
             raise self.err("the netlist has no element cards; add the network's elements after the title", last)
         network = Network(title, tuple(elements), allow_negative=allow_negative)
         validate(network, port)
-        return network, [text for _, text in sorted(self.notes, key=lambda note: note[0])]
+        return network, list(dict.fromkeys(text for _, text in sorted(self.notes, key=lambda note: note[0])))
 
-    def param(self, card: Card, skip: int) -> None:
+    def read_in_scope(self, card: Card, toks: list[Tok], scope: Scope) -> Element | Instance:
+        """One subcircuit card read with its values evaluated in an instance's parameter scope."""
+        outer, self.scope = self.scope, scope
+        try:
+            return self.element(card, toks)
+        finally:
+            self.scope = outer
+
+    def global_scope(self) -> Scope:
+        """The top level's parameters and functions (made on first use)."""
+        scope = getattr(self, "_globals", None)
+        if scope is None:
+            scope = self._globals = Scope()
+        return scope
+
+    def param(self, card: Card, skip: int, current: Subckt | None = None) -> None:
+        """A ``.param`` card: its expressions parsed now and evaluated when first needed (so, as in ngspice,
+        a parameter may use one defined further down); inside a subcircuit, scoped to its instances."""
         try:
             found = assignments(card.text[skip:])
         except ValueSyntaxError as exc:
             raise self.err(f".param: {exc}", card.line) from None
-        for name, expr, offset in found:
+        for name, text, offset in found:
             line = card.line_at(skip + offset)
-            if name in self.params:
+            first = current.parameter_line(name) if current else self.param_lines.get(name)
+            if first is not None:
                 raise self.err(
-                    f"parameter {name!r} is defined twice (first at line {self.param_lines[name]}); "
-                    "keep one definition",
-                    line,
+                    f"parameter {name!r} is defined twice (first at line {first}); keep one definition", line
                 )
             try:
-                self.params[name] = evaluate(expr, self.params)
+                expr = parse(text)
             except ValueSyntaxError as exc:
                 raise self.err(f".param {name}: {exc}", line) from None
-            self.param_lines[name] = line
+            if current is not None:
+                current.params.append((name, expr, line))
+            else:
+                self.global_scope().definitions[name] = (expr, line)
+                self.param_lines[name] = line
+
+    def func(self, card: Card, skip: int, current: Subckt | None) -> None:
+        """A ``.func name(args) {body}``: plain arithmetic callable in later expressions (recursion is refused
+        when called); inside a subcircuit, it sees that instance's parameters."""
+        try:
+            name, args, body = function_definition(card.text[skip:])
+        except ValueSyntaxError as exc:
+            raise self.err(f".func: {exc}", card.line) from None
+        known = (
+            {f[0]: f[3] for f in current.functions}
+            if current
+            else {n: f.line for n, f in self.global_scope().functions.items()}
+        )
+        if name in known:
+            raise self.err(f".func {name} is defined twice (first at line {known[name]}); keep one", card.line)
+        if current is not None:
+            current.functions.append((name, args, body, card.line))
+        else:
+            scope = self.global_scope()
+            scope.functions[name] = Function(name, args, body, card.line, scope)
 
     def subckt_header(self, card: Card, toks: list[Tok]) -> Subckt:
+        """``.subckt NAME nodes... [params:] [name=default ...]``: terminals, then parameter defaults."""
         if len(toks) < 2:
             raise self.err(".subckt needs a name: .subckt NAME node1 node2 ...", card.line)
-        self.refuse_subckt_params(toks)
         name = self.name(toks[1], "subcircuit name")
-        ports = tuple(self.name(t, f"{name}: node") for t in toks[2:])
+        split = next((i for i, t in enumerate(toks) if i > 1 and (t.value or t.text.lower() == "params:")), len(toks))
+        ports = tuple(self.name(t, f"{name}: node") for t in toks[2:split])
         for i, p in enumerate(ports):
             if p == GROUND:
                 raise self.err(
@@ -351,4 +401,21 @@ class _Reader(CardReader):
                 f"subcircuit {name!r} is defined twice (first at line {self.subckts[name].line}); rename one of them",
                 card.line,
             )
-        return Subckt(name, ports, card.line, [])
+        sub = Subckt(name, ports, card.line, [])
+        for t in toks[split:]:
+            if t.text.lower() == "params:" and t.value is None:
+                continue
+            if t.value is None:
+                raise self.err(
+                    f".subckt {name}: {show(t.text)} after the parameters is not name=value; write "
+                    f".subckt {name} {' '.join(ports)} params: name=default ...",
+                    t.line,
+                )
+            key = t.text.lower().rstrip(":")
+            if sub.parameter_line(key) is not None:
+                raise self.err(f".subckt {name}: parameter {key!r} is given twice; keep one", t.line)
+            try:
+                sub.defaults.append((key, parse(unwrap(t.value.text)), t.line))
+            except ValueSyntaxError as exc:
+                raise self.err(f".subckt {name}: parameter {key}: {exc}", t.value.line) from None
+        return sub
