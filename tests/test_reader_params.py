@@ -15,7 +15,7 @@ import pytest
 
 from crosscheck.api import reduce_netlist
 from crosscheck.errors import NetlistError
-from crosscheck.model.netlist import read_netlist
+from crosscheck.model.netlist import read_netlist, read_netlist_with_notes
 from tests.ngspice_direct import ngspice_ac
 
 REL = 1e-9  # tolerance: both routes solve a tiny network in double precision
@@ -268,3 +268,10 @@ def test_deep_function_calls_are_bounded() -> None:
     funcs = "".join(f".func f{i}(x) {{f{i - 1}(x)+f{i - 1}(x)}}\n" for i in range(1, 40))
     with pytest.raises(NetlistError, match="evaluation steps"):
         read_netlist(one_value("{f39(1)}", ".func f0(x) {x}\n" + funcs))
+
+
+def test_a_subcircuit_never_placed_is_noted_not_read() -> None:
+    """Its cards depend on the parameters of an instance that does not exist, so they are not read."""
+    text = "t\n.subckt spare a\nR1 a 0 {nowhere}\n.ends\nI1 0 n AC 1\nR1 n 0 1k\n"
+    _, notes = read_netlist_with_notes(text, "p.cir")
+    assert any(note.startswith("p.cir:2:") and "'spare' is never placed" in note for note in notes), notes

@@ -85,16 +85,6 @@ class CardReader:
     def note(self, message: str, line: int) -> None:
         self.notes.append((line, f"{Location(self.file, line)}: {message}"))
 
-    def refuse_subckt_params(self, toks: list[Tok]) -> None:
-        """Kept for callers that still refuse parameters: subcircuit parameters are now read (see ``instance``)."""
-        for t in toks[1:]:
-            if t.value is not None or t.text.lower() == "params:":
-                raise self.err(
-                    f"{toks[0].text}: parameters ({show(t.text)}) are not accepted here; "
-                    "define them with .param or on the .subckt line",
-                    t.line,
-                )
-
     def name(self, tok: Tok, what: str) -> str:
         if len(tok.text) > MAX_NAME_CHARS:
             raise self.err(

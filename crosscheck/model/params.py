@@ -240,7 +240,7 @@ def evaluate_expression(expr: Expression, scope: Scope) -> float:
     return float(value)
 
 
-@lru_cache(maxsize=4096)
+@lru_cache(maxsize=1 << 16)
 def parse(text: str) -> Expression:
     """Parse an expression once (cached: a subcircuit's values are the same text in every instance)."""
     expr = text.strip().lower()
