@@ -230,7 +230,7 @@ def test_instances_differ_by_their_parameters() -> None:
         (one_value("{log}"), 3, ("unknown parameter 'log'", "write log(...)")),
         (one_value("'2*3"), 3, ("closing quote",)),
         ("t\n.func sqrt(x) {x}\n" + one_value("1")[6:], 2, ("hide the built-in",)),
-        (f"t\n.subckt blk a rv=1 rv=2\nR1 a 0 {{rv}}\n.ends\nI1 0 n AC 1\nX1 n blk\n", 2, ("given twice",)),
+        ("t\n.subckt blk a rv=1 rv=2\nR1 a 0 {rv}\n.ends\nI1 0 n AC 1\nX1 n blk\n", 2, ("given twice",)),
         (f"t\n{BLOCK}I1 0 n AC 1\nX1 n blk rv=3 rv=4\n", 6, ("given twice",)),
     ],
     ids=[
@@ -275,3 +275,10 @@ def test_a_subcircuit_never_placed_is_noted_not_read() -> None:
     text = "t\n.subckt spare a\nR1 a 0 {nowhere}\n.ends\nI1 0 n AC 1\nR1 n 0 1k\n"
     _, notes = read_netlist_with_notes(text, "p.cir")
     assert any(note.startswith("p.cir:2:") and "'spare' is never placed" in note for note in notes), notes
+
+
+def test_an_unused_subcircuit_parameter_is_still_evaluated() -> None:
+    """A parameter no card uses is evaluated per instance all the same, so its error is not hidden."""
+    text = "t\n.subckt blk a rv=7\n.param spare={rv/0}\nR1 a 0 {rv}\n.ends\nI1 0 n AC 1\nX1 n blk\n"
+    with pytest.raises(NetlistError, match=r"p.cir:3:.*divides by zero.*in instance x1 of 'blk'"):
+        read_netlist(text, "p.cir")

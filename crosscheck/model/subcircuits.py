@@ -18,7 +18,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from typing import Any, NamedTuple
 
-from crosscheck.errors import Location, NetlistError
+from crosscheck.errors import Location, NetlistError, ValueSyntaxError
 from crosscheck.model.network import GROUND, Element
 from crosscheck.model.params import Expression, Function, Scope
 
@@ -170,6 +170,16 @@ class _Flattener:
 
     def cards_of(self, sub: Subckt, scope: Scope, inner: str, p: Instance) -> list[Element | Instance]:
         """The subcircuit's cards read in this instance's scope; an error names the instance too."""
+        # every parameter, used or not: ngspice refuses an unknown name in an unused one (measured); a division
+        # by zero there it lets pass, and crosscheck refuses it, as a value that is not a number
+        for name, (_, line) in scope.definitions.items():
+            try:
+                scope.find(name)
+            except ValueSyntaxError as exc:
+                raise NetlistError(
+                    f"parameter {name}: {exc} (in instance {inner} of {sub.name!r}, placed at line {p.where.line})",
+                    Location(p.where.file, getattr(exc, "line", None) or line),
+                ) from None
         protos: list[Element | Instance] = []
         for index, (card, toks) in enumerate(sub.cards):
             proto = sub.plain.get(index)
