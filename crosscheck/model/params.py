@@ -39,10 +39,6 @@ def _nint(x: float) -> float:
     return float(round(x))  # half to even: ngspice gives nint(2.5) = 2, nint(3.5) = 4, nint(-2.5) = -2
 
 
-def _sgn(x: float) -> float:
-    return float((x > 0) - (x < 0))
-
-
 #: name -> (number of arguments, function); meanings measured with ngspice (see the module docstring).
 BUILTINS: dict[str, tuple[int, Callable[..., float]]] = {
     "sqrt": (1, math.sqrt),
@@ -57,13 +53,14 @@ BUILTINS: dict[str, tuple[int, Callable[..., float]]] = {
     "cos": (1, math.cos),
     "tan": (1, math.tan),
     "atan": (1, math.atan),
+    **{name: (1, getattr(math, name)) for name in ("asin", "acos", "sinh", "cosh", "tanh", "asinh", "acosh", "atanh")},
     "min": (2, min),
     "max": (2, max),
     "floor": (1, math.floor),
     "ceil": (1, math.ceil),
     "int": (1, math.trunc),  # towards zero: int(-2.7) = -2
     "nint": (1, _nint),
-    "sgn": (1, _sgn),
+    "sgn": (1, lambda x: float((x > 0) - (x < 0))),
 }
 
 _TOKEN = re.compile(
