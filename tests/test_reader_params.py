@@ -203,6 +203,10 @@ SCOPING = {
     "X1 a inner rq={rp*2}\n.ends\nI1 0 n AC 1\nXo n outer rp=4\nI2 0 m AC 1\nXp m outer\n",
     "param_order_in_subckt": "t\n.subckt blk a rv=7\n.param p1={p2*2}\n.param p2={rv+1}\nR1 a 0 {p1}\n.ends\n"
     "I1 0 n AC 1\nX1 n blk\n",
+    "override_wins_over_subckt_param": "t\n.subckt blk a\n.param rv=7\nR1 a 0 {rv}\n.ends\nI1 0 n AC 1\nX1 n blk rv=3\n"
+    "I2 0 m AC 1\nX2 m blk\n",
+    "subckt_param_wins_over_default": "t\n.subckt blk a rv=1\n.param rv=7\nR1 a 0 {rv}\n.ends\nI1 0 n AC 1\nX1 n blk\n"
+    "I2 0 m AC 1\nX2 m blk rv=3\n",
     "func_in_subckt": "t\n.subckt blk a rv=7\n.func ff(x) {x*rv}\nR1 a 0 {ff(2)}\n.ends\nI1 0 n AC 1\nX1 n blk rv=3\n",
 }
 

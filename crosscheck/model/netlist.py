@@ -345,7 +345,10 @@ class _Reader(CardReader):
             raise self.err(f".param: {exc}", card.line) from None
         for name, text, offset in found:
             line = card.line_at(skip + offset)
-            first = current.parameter_line(name) if current else self.param_lines.get(name)
+            if current is not None:  # a .param may redefine a header default (it wins, as in ngspice)
+                first = next((at for known, _, at in current.params if known == name), None)
+            else:
+                first = self.param_lines.get(name)
             if first is not None:
                 raise self.err(
                     f"parameter {name!r} is defined twice (first at line {first}); keep one definition", line

@@ -78,12 +78,14 @@ def check_local_references(sub: Subckt, protos: list[Element | Instance]) -> Non
 
 
 def instance_scope(sub: Subckt, p: Instance, caller: Scope) -> Scope:
-    """The scope of one instance: its overrides, the defaults it did not override, its own ``.param`` and
-    ``.func`` cards, then the caller's scope. An override of a parameter the subcircuit does not have is
-    refused (ngspice ignores it silently when the subcircuit has other parameters: a typo would pass)."""
+    """The scope of one instance: its overrides, then its own ``.param`` cards, then the header's defaults,
+    its ``.func`` cards, then the caller's scope (that order measured with ngspice: an override wins over a
+    ``.param`` of the same name, which wins over the default). An override of a parameter the subcircuit
+    does not have is refused (ngspice ignores it silently when the subcircuit has other parameters: a typo
+    would pass)."""
     for name, _, line in p.params:
-        if not any(name == default[0] for default in sub.defaults):
-            declared = " ".join(d[0] for d in sub.defaults) or "none"
+        if sub.parameter_line(name) is None:
+            declared = " ".join(dict.fromkeys(d[0] for d in (*sub.defaults, *sub.params))) or "none"
             raise NetlistError(
                 f"{p.name}: subcircuit {sub.name!r} (line {sub.line}) has no parameter {name!r} to override "
                 f"(its parameters: {declared}); fix the name, or declare it on the .subckt line: "
