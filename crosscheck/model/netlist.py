@@ -19,10 +19,11 @@ from os import PathLike
 
 from crosscheck.errors import Location, NetlistError, ValueSyntaxError
 from crosscheck.model.files import InputFileError, read_regular
+from crosscheck.model.functions import function_definition, recursive_chain
 from crosscheck.model.netlist_cards import Card, CardReader, Tok, show
 from crosscheck.model.netlist_subset import CONTROL_CHAR, IGNORED_CARDS, REFUSED_CARDS, SUBSET
 from crosscheck.model.network import GROUND, Element, Network, Port
-from crosscheck.model.params import Function, Scope, assignments, function_definition, parse, unwrap
+from crosscheck.model.params import Expression, Function, Scope, assignments, parse, unwrap
 from crosscheck.model.reading import Reading
 from crosscheck.model.subcircuits import Instance, Subckt, flatten
 from crosscheck.model.validation import validate
@@ -304,6 +305,9 @@ class _Reader(CardReader):
         """Every card read: top-level parameters evaluated, the top level's cards read, each subcircuit's
         cards read again per instance in its scope while flattening, the network validated, and the notes."""
         scope = self.global_scope()
+        self.refuse_recursion({name: (f.body, f.line) for name, f in scope.functions.items()})
+        for sub in self.subckts.values():
+            self.refuse_recursion({name: (body, line) for name, _, body, line in sub.functions})
         for name, (_, line) in scope.definitions.items():
             try:
                 self.params[name] = scope.find(name)  # type: ignore[assignment]  # found: it is defined here
@@ -320,6 +324,16 @@ class _Reader(CardReader):
         network = Network(title, tuple(elements), allow_negative=allow_negative)
         validate(network, port)
         return network, list(dict.fromkeys(text for _, text in sorted(self.notes, key=lambda note: note[0])))
+
+    def refuse_recursion(self, functions: dict[str, tuple[Expression, int]]) -> None:
+        """A .func that calls itself, directly or through others, is refused even if unused (ngspice crashes on it)."""
+        chain = recursive_chain({name: body for name, (body, _) in functions.items()})
+        if chain:
+            raise self.err(
+                f".func {chain[0]} calls itself ({' -> '.join(chain)}); recursion is not supported: "
+                "write the arithmetic out",
+                functions[chain[0]][1],
+            )
 
     def read_in_scope(self, card: Card, toks: list[Tok], scope: Scope) -> Element | Instance:
         """One subcircuit card read with its values evaluated in an instance's parameter scope."""

@@ -74,20 +74,12 @@ _TOKEN = re.compile(
 )
 _ASSIGN = re.compile(r"([a-z_][a-z0-9_]*)\s*=(?!=)", re.IGNORECASE)
 _BINARY: dict[type[ast.operator], Callable[[float, float], float]] = {
-    ast.Add: operator.add,
-    ast.Sub: operator.sub,
-    ast.Mult: operator.mul,
-    ast.Div: operator.truediv,
-    ast.Pow: math.pow,
-}
+    ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul, ast.Div: operator.truediv, ast.Pow: math.pow
+}  # fmt: skip
 _COMPARE: dict[str, tuple[type[ast.cmpop], Callable[[float, float], bool]]] = {
-    "==": (ast.Eq, operator.eq),
-    "!=": (ast.NotEq, operator.ne),
-    "<": (ast.Lt, operator.lt),
-    "<=": (ast.LtE, operator.le),
-    ">": (ast.Gt, operator.gt),
-    ">=": (ast.GtE, operator.ge),
-}
+    "==": (ast.Eq, operator.eq), "!=": (ast.NotEq, operator.ne), "<": (ast.Lt, operator.lt),
+    "<=": (ast.LtE, operator.le), ">": (ast.Gt, operator.gt), ">=": (ast.GtE, operator.ge),
+}  # fmt: skip
 _COMPARE_FN = dict(_COMPARE.values())
 _ARITH = {"+": ast.Add, "-": ast.Sub, "*": ast.Mult, "/": ast.Div, "^": ast.Pow, "**": ast.Pow}
 #: binary operator levels, loosest first (the ternary is below them, unary and powers above).
@@ -150,9 +142,6 @@ class Scope:
 
     def child(self, values: Mapping[str, float]) -> Scope:
         return Scope(parent=self, values=values, budget=self.budget)
-
-    def owns(self, name: str) -> bool:
-        return name in self.values or name in self.definitions
 
     def find(self, name: str) -> float | None:
         """The value of ``name`` here or outward, evaluating a definition once (None: unknown)."""
@@ -266,35 +255,6 @@ def assignments(text: str) -> list[tuple[str, str, int]]:
     for m, nxt in zip(matches, [*matches[1:], None]):
         out.append((m.group(1).lower(), unwrap(text[m.end() : nxt.start() if nxt else len(text)]), m.start()))
     return out
-
-
-_FUNC = re.compile(r"^\s*([a-z_][a-z0-9_]*)\s*\(([^()]*)\)\s*(?:=\s*)?(.*?)\s*$", re.IGNORECASE | re.DOTALL)
-_ARG = re.compile(r"^[a-z_][a-z0-9_]*$")
-
-
-def function_definition(text: str) -> tuple[str, tuple[str, ...], Expression]:
-    """The body of a ``.func`` card: its name, its argument names and its parsed expression.
-
-    ngspice takes ``.func f(a,b) {a*b}``, ``= a*b``, ``'a*b'`` and the bare ``a*b`` alike (measured).
-
-    >>> name, args, body = function_definition(" half(x) = {x/2}")
-    >>> (name, args, body.text)
-    ('half', ('x',), 'x/2')
-    """
-    usage = "write .func name(a, b) {expression}"
-    m = _FUNC.match(text)
-    if m is None or not m.group(3):
-        raise ValueSyntaxError(f"cannot read the function definition {_show(text.strip())}; {usage}")
-    name = m.group(1).lower()
-    if name in BUILTINS:
-        raise ValueSyntaxError(f".func {name} would hide the built-in function {name}(); choose another name")
-    args = tuple(a.strip().lower() for a in m.group(2).split(",")) if m.group(2).strip() else ()
-    for a in args:
-        if not _ARG.match(a):
-            raise ValueSyntaxError(f".func {name}: argument {_show(a)} is not a name; {usage}")
-    if len(set(args)) != len(args):
-        raise ValueSyntaxError(f".func {name}: an argument name is repeated in ({m.group(2)}); {usage}")
-    return name, args, parse(unwrap(m.group(3)))
 
 
 def unwrap(text: str) -> str:
