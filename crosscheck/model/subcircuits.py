@@ -5,8 +5,9 @@ user would find it in ngspice's output: R2 inside instance X1 becomes ``r.x1.r2`
 becomes ``x1.n3``; ground is global.
 
 A subcircuit keeps its cards, and each instance reads them again in its own parameter scope (its
-overrides, then its defaults, then its ``.param`` and ``.func`` cards, then its caller's scope outward,
-as ngspice does: measured in ``tests/test_reader_params.py``). A card with no expression and no
+overrides, then its ``.param`` cards, then its header's defaults, with its ``.func`` cards, then its
+caller's scope outward, as ngspice does: measured in ``tests/test_reader_params.py``). Only the
+reader's own evaluator sees the values: nothing here reaches ngspice, the shell or the file system. A card with no expression and no
 ``key=value`` field reads the same in every scope, so it is read once per subcircuit. The work stays
 linear in the flattened size, which ``max_elements`` bounds; the expressions' work is bounded by
 ``params.MAX_EVALUATION_STEPS``.
