@@ -68,6 +68,12 @@ R5 out 0 10k
 """
 
 
+def test_the_reader_gives_the_lines_this_file_expects() -> None:
+    """The reader's ``source_lines`` are the lines these tests build by hand for the ladder and the subcircuit."""
+    assert read_netlist(LADDER).source_lines == accepted_lines(LADDER)
+    assert read_netlist(SUBCIRCUIT).source_lines == accepted_lines(SUBCIRCUIT)
+
+
 def accepted_lines(text: str) -> tuple[str, ...]:
     """The lines a reader accepts from ``text``: all but the title, comments, analysis cards and .end."""
     skip = (".ac ", ".op", ".tran ", ".print ", ".options noopac")
@@ -83,6 +89,11 @@ def accepted_lines(text: str) -> tuple[str, ...]:
 
 def with_lines(network: Network, text: str) -> Network:
     return dataclasses.replace(network, source_lines=accepted_lines(text))
+
+
+def without_lines(network: Network) -> Network:
+    """The network with no lines of text, as the fuzzer's networks are."""
+    return dataclasses.replace(network, source_lines=())
 
 
 def judged_case(network: Network, port: Port, freqs=FREQS) -> CaseResult:
@@ -276,13 +287,13 @@ def test_a_refused_line_sends_nothing_and_is_an_error_finding(bad: str) -> None:
 
 
 def test_a_network_without_lines_gets_no_reading_and_no_judgement() -> None:
-    network = read_netlist(LADDER)  # source_lines () until the reader fills them, as for the fuzzer's
+    network = without_lines(read_netlist(LADDER))
     assert check_reading(_NeverRun(), network, Port("n2", "0"), [list(FREQS)], FREQS, {}) is None
     assert judge_reading(None, [], SOLVER_VS_SPICE) is None
 
 
 def test_a_reading_without_values_is_unavailable_not_a_pass() -> None:
-    network = read_netlist(LADDER)
+    network = without_lines(read_netlist(LADDER))
     answer = ReadingAnswer(FREQS, (None,) * len(FREQS), notes=("no rows",))
     check = judge_reading(answer, thevenin(network, Port("n2", "0"), FREQS), SOLVER_VS_SPICE)
     assert check is not None and check.verdict == Verdict.UNAVAILABLE and check.explanation == "no rows"
@@ -314,7 +325,7 @@ class _Counting:
 @pytest.mark.spice
 @pytest.mark.parametrize("freqs", [FREQS, (0.0, *FREQS)], ids=["ac", "with 0 Hz"])
 def test_the_reading_check_costs_one_open_circuit_run_per_frequency_group(freqs) -> None:
-    network = read_netlist(LADDER)
+    network = without_lines(read_netlist(LADDER))
     port = Port("n2", "0")
     without, with_ = _Counting(_engine()), _Counting(_engine())
     solve(without, network, port, freqs)  # type: ignore[arg-type]
@@ -335,7 +346,7 @@ def test_the_reading_runs_in_the_isolated_worker() -> None:
     port = Port("a", "c")
     with SpicePool(workers=1) as pool:
         result = pool.submit(network, port, FREQS).result()
-        plain = pool.submit(read_netlist(SUBCIRCUIT), port, FREQS).result()
+        plain = pool.submit(without_lines(read_netlist(SUBCIRCUIT)), port, FREQS).result()
     assert plain.reading is None
     assert result.reading is not None and result.reading.deck.count("X1 a b blk") == 1
     for f, v in zip(FREQS, result.reading.vth):
@@ -364,7 +375,7 @@ def test_a_worker_whose_ngspice_says_it_cannot_recover_retires_after_the_case() 
     """The case's own result still goes back; the worker is replaced before the next case."""
     from crosscheck.spice.sandbox import Settings, Task, _one_case
 
-    network = read_netlist(LADDER)
+    network = without_lines(read_netlist(LADDER))
     task = Task(network, Port("n2", "0"), FREQS, "combined")
     settings = Settings(directory="unused", library=None, memory_bytes=None, cpu_s=None, cases_per_worker=100)
     for broken in (False, True):

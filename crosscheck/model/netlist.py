@@ -22,9 +22,10 @@ from os import PathLike
 from crosscheck.errors import Location, NetlistError, ValueSyntaxError
 from crosscheck.model.control_blocks import ControlBlocks
 from crosscheck.model.files import InputFileError, read_regular
-from crosscheck.model.netlist_cards import Card, CardReader, ConsequenceError, Tok, show
+from crosscheck.model.netlist_cards import Card, ConsequenceError, Tok, show
 from crosscheck.model.netlist_encoding import decode_netlist_bytes, decode_netlist_bytes_with_notes
 from crosscheck.model.netlist_fields import split_fields
+from crosscheck.model.netlist_params import ParamReader
 from crosscheck.model.netlist_subset import (
     CONTROL_CHAR,
     GLOBAL_REFUSED,
@@ -34,9 +35,9 @@ from crosscheck.model.netlist_subset import (
     SUBSET,
 )
 from crosscheck.model.network import GROUND, Element, Network, Port, canonical_node
-from crosscheck.model.params import assignments, evaluate
+from crosscheck.model.params import Scope
 from crosscheck.model.reading import Reading
-from crosscheck.model.subcircuits import Instance, Subckt, check_local_references, flatten
+from crosscheck.model.subcircuits import Instance, Subckt, flatten
 from crosscheck.model.traps import ValueText, find_traps, value_text
 from crosscheck.model.validation import validate
 
@@ -149,7 +150,7 @@ def _strip_comment(line: str) -> str:
     return line[: dollar.start()] if dollar else line
 
 
-class _Reader(CardReader):
+class _Reader(ParamReader):
     """The file-level reader: lines to cards, cards to fields, ``.param`` and ``.subckt`` blocks.
 
     Each card's problem is kept (``problem``) and reading goes on, so one pass finds them all.
@@ -157,13 +158,12 @@ class _Reader(CardReader):
 
     def __init__(self, file: str):
         super().__init__(file)
-        self.param_lines: dict[str, int] = {}
-        self.subckts: dict[str, Subckt] = {}
         self.count = 0
         self.problems: list[tuple[NetlistError, str | None]] = []  # the error, the card's text
         self.stripped: dict[int, str] = {}  # each card line without its comment, for ``source_lines``
         self.accepted: list[Card] = []  # cards that reach the model (elements, .subckt/.ends, .param)
         self.values: list[ValueText] = []  # value texts as written, for ``traps``
+        self.trap_lines: set[int] = set()  # the lines whose value texts are in ``values``
         self.globals: list[Card] = []
         self.nested = 0  # .subckt cards refused inside another: their .ends is theirs
         self.broken_header = False  # a .subckt header was refused: flattening would blame its instances
@@ -307,14 +307,11 @@ class _Reader(CardReader):
         if word in (".subckt", ".ends"):
             return self.subckt_card(card, word, current)
         if word == ".param":
-            if current is not None:
-                raise self.err(
-                    f".param inside subcircuit {current.name!r} is not supported; "
-                    "move it above the .subckt (parameters are global)",
-                    card.line,
-                )
-            self.param(card, len(first))
+            self.param(card, len(first), current)
             self.values.append(ValueText("text", first, card.text, card.line))
+            self.accepted.append(card)
+        elif word == ".func":
+            self.func(card, len(first), current)
             self.accepted.append(card)
         elif word == ".model":
             self.model_card(card)
@@ -332,7 +329,7 @@ class _Reader(CardReader):
             raise self.err(f"{first} is not supported: {REFUSED_CARDS[word]}", card.line)
         else:
             raise self.err(
-                f"unknown card {show(first)}; {SUBSET} with .param, .subckt/.ends and "
+                f"unknown card {show(first)}; {SUBSET} with .param, .func, .model, .temp, .subckt/.ends and "
                 f".end (and ignores {' '.join(sorted(IGNORED_CARDS))}, .global and .control blocks); remove it",
                 card.line,
             )
@@ -393,49 +390,78 @@ class _Reader(CardReader):
     # ---- cards to the network
 
     def protos(self, cards: list[tuple[Card, list[Tok]]]) -> list[Element | Instance]:
-        """The elements and instances of ``cards``; a card that cannot be read becomes a problem."""
+        """The top level's elements and instances; a card that cannot be read becomes a problem."""
         out: list[Element | Instance] = []
         for card, toks in cards:
             try:
-                proto = self.element(card, toks)
+                out.extend(self.read_card(card, toks))
             except NetlistError as exc:
                 self.problem(exc, card)
-                continue
-            out.append(proto)
-            self.values.append(value_text(toks, proto, card.text, card.line))
-            port_resistor = self.port_resistors.pop(card.line, None)  # an RF port source's internal z0
-            if port_resistor is not None:
-                out.append(port_resistor)
         return out
+
+    def read_card(self, card: Card, toks: list[Tok]) -> tuple[Element | Instance, ...]:
+        """One card's element (an RF port source adds its internal resistor); its value text kept for ``traps``."""
+        proto = self.element(card, toks)
+        if card.line not in self.trap_lines:  # a subcircuit's card is read once per instance: kept once
+            self.trap_lines.add(card.line)
+            self.values.append(value_text(toks, proto, card.text, card.line))
+        port_resistor = self.port_resistors.pop(card.line, None)
+        return (proto,) if port_resistor is None else (proto, port_resistor)
+
+    def read_scoped(self, card: Card, toks: list[Tok], scope: Scope) -> tuple[Element | Instance, ...]:
+        """A subcircuit's card in an instance's scope (``subcircuits.flatten`` calls it)."""
+        outer, self.scope = self.scope, scope
+        try:
+            return self.read_card(card, toks)
+        finally:
+            self.scope = outer
+
+    def global_parameters(self) -> Scope:
+        """The top level's parameters, each evaluated (a problem each that cannot be), and recursion refused."""
+        scope = self.global_scope()
+        functions = [{name: (f.body, f.line) for name, f in scope.functions.items()}]
+        functions += [{name: (body, line) for name, _, body, line in sub.functions} for sub in self.subckts.values()]
+        for table in functions:
+            try:
+                self.refuse_recursion(table)
+            except NetlistError as exc:
+                self.problem(exc)
+        for name, (_, line) in scope.definitions.items():
+            try:
+                self.params[name] = scope.find(name)  # type: ignore[assignment]  # found: it is defined here
+            except ValueSyntaxError as exc:
+                self.problem(self.err(f".param {name}: {exc}", getattr(exc, "line", None) or line))
+        return scope
 
     def network(
         self, title: str, top: list[tuple[Card, list[Tok]]], last: int, allow_negative: bool, port: Port | None
     ) -> tuple[Network, Reading]:
-        """Every card read: the subcircuits' elements, the flattened network validated, the notes and warnings.
+        """Every card read: top-level parameters evaluated, the top level's cards read, each subcircuit's
+        cards read again per instance in its scope while flattening, the network validated, notes and warnings.
 
-        Flattening runs unless a .subckt header was refused, and stops at its first problem; validation
-        runs once every card reads (with a card missing it would report consequences, not causes).
+        Flattening runs unless a .subckt header or a parameter was refused, and stops at its first problem;
+        validation runs once every card reads (with a card missing it would report consequences, not causes).
         """
-        for sub in self.subckts.values():
-            sub.protos = self.protos(sub.cards)
-            try:
-                check_local_references(sub)
-            except NetlistError as exc:
-                self.problem(exc)
+        before = len(self.problems)
+        self.scope = self.global_parameters()
+        parameters_read = len(self.problems) == before
         protos = self.protos(top)
-        self.check_globals()
-        elements = []
-        if not self.broken_header:
+        elements: list[Element] = []
+        if not self.broken_header and parameters_read:
             try:
-                elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH)
+                elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH, self.read_scoped, self.scope)
             except NetlistError as exc:
                 self.problem(exc)
+        self.check_globals(elements)
+        for sub in self.subckts.values():
+            if not sub.checked and sub.cards:
+                self.note(f"subcircuit {sub.name!r} is never placed by an X card; its cards were not read", sub.line)
         self.finish()
         if not elements:
             raise self.err("the netlist has no element cards; add the network's elements after the title", last)
         network = Network(title, tuple(elements), allow_negative=allow_negative, source_lines=self.source_lines())
         validate(network, port)
-        notes = tuple(text for _, text in sorted(self.notes, key=lambda note: note[0]))
+        notes = tuple(dict.fromkeys(text for _, text in sorted(self.notes, key=lambda note: note[0])))
         return network, Reading(notes, find_traps(title, self.values, network, self.file))
 
     def source_lines(self) -> tuple[str, ...]:
@@ -443,13 +469,13 @@ class _Reader(CardReader):
         lines = sorted(number for card in self.accepted for _, number in card.starts)
         return tuple(self.stripped[number] for number in lines)
 
-    def check_globals(self) -> None:
+    def check_globals(self, elements: list[Element]) -> None:
         """.global: noted when it names only ground or nodes no subcircuit uses; refused otherwise."""
-        used = {node for sub in self.subckts.values() for node in sub.ports}
-        used.update(node for sub in self.subckts.values() for proto in sub.protos or () for node in proto.nodes)
+        inside = {node.rsplit(".", 1)[1] for e in elements for node in e.nodes if "." in node}
+        inside.update(node for sub in self.subckts.values() for node in sub.ports)
         for card in self.globals:
             nodes = [canonical_node(t.text) for t in self.fields(card)[1:]]
-            clash = [n for n in nodes if n != GROUND and n in used]
+            clash = [n for n in nodes if n != GROUND and n in inside]
             if clash:
                 self.problem(self.err(f".global {clash[0]}: {GLOBAL_REFUSED.format(node=clash[0])}", card.line), card)
             elif all(n == GROUND for n in nodes):
@@ -460,44 +486,3 @@ class _Reader(CardReader):
                     f"{', '.join(n for n in nodes if n != GROUND)}, so it has no effect",
                     card.line,
                 )
-
-    def param(self, card: Card, skip: int) -> None:
-        try:
-            found = assignments(card.text[skip:])
-        except ValueSyntaxError as exc:
-            raise self.err(f".param: {exc}", card.line) from None
-        for name, expr, offset in found:
-            line = card.line_at(skip + offset)
-            if name in self.params:
-                raise self.err(
-                    f"parameter {name!r} is defined twice (first at line {self.param_lines[name]}); "
-                    "keep one definition",
-                    line,
-                )
-            try:
-                self.params[name] = evaluate(expr, self.params)
-            except ValueSyntaxError as exc:
-                raise self.err(f".param {name}: {exc}", line) from None
-            self.param_lines[name] = line
-
-    def subckt_header(self, card: Card, toks: list[Tok]) -> Subckt:
-        if len(toks) < 2:
-            raise self.err(".subckt needs a name: .subckt NAME node1 node2 ...", card.line)
-        self.refuse_subckt_params(toks)
-        name = self.name(toks[1], "subcircuit name")
-        ports = tuple(self.name(t, f"{name}: node") for t in toks[2:])
-        for i, p in enumerate(ports):
-            if p == GROUND:
-                raise self.err(
-                    f"ground ({toks[2 + i].text}) cannot be a terminal of subcircuit {name!r}; "
-                    "ground is global: use it inside the subcircuit directly",
-                    toks[2 + i].line,
-                )
-            if p in ports[:i]:
-                raise self.err(f"terminal {p!r} is listed twice in subcircuit {name!r}", toks[2 + i].line)
-        if name in self.subckts:
-            raise self.err(
-                f"subcircuit {name!r} is defined twice (first at line {self.subckts[name].line}); rename one of them",
-                card.line,
-            )
-        return Subckt(name, ports, card.line, [])

@@ -32,7 +32,7 @@ from crosscheck.model.device_models import (
 )
 from crosscheck.model.netlist_subset import BEHAVIOURAL, DEVICES, NAME, NAME_CHARS, SUBSET, TRANSIENT, USAGE
 from crosscheck.model.network import Element, make_element
-from crosscheck.model.params import evaluate
+from crosscheck.model.params import Scope, evaluate
 from crosscheck.model.subcircuits import Instance
 from crosscheck.model.values import parse_number
 
@@ -124,15 +124,6 @@ class CardReader:
     def note(self, message: str, line: int) -> None:
         self.notes.append((line, f"{Location(self.file, line)}: {message}"))
 
-    def refuse_subckt_params(self, toks: list[Tok]) -> None:
-        for t in toks[1:]:
-            if t.value is not None or t.text.lower() == "params:":
-                raise self.err(
-                    f"{toks[0].text}: subcircuit parameters ({show(t.text)}) are not supported; write "
-                    "the values inside the subcircuit or define them with .param at the top level",
-                    t.line,
-                )
-
     def name(self, tok: Tok, what: str) -> str:
         if len(tok.text) > MAX_NAME_CHARS:
             raise self.err(
@@ -143,7 +134,11 @@ class CardReader:
             raise self.err(f"{what} {show(tok.text)} is not a valid name; use {NAME_CHARS}", tok.line)
         return tok.text.lower()
 
-    def value(self, tok: Tok, element: str, what: str) -> float:
+    #: The parameter scope values are evaluated in (the reader sets it per subcircuit instance); None: ``params``.
+    scope: Scope | None = None
+
+    def value(self, tok: Tok, element: str, what: str, scope: Scope | None = None) -> float:
+        """A number, ``{expr}`` or ``'expr'``, with names from ``scope`` (default: the reader's current scope)."""
         if tok.value is not None:
             raise self.err(
                 f"{element}: expected the {what}, got the parameter {tok.text}=...; "
@@ -151,13 +146,16 @@ class CardReader:
                 tok.line,
             )
         text = tok.text
+        env: Scope | dict[str, float] = scope or self.scope or self.params
         try:
-            if text.startswith("{"):
-                return evaluate(text[1:-1], self.params)
+            if text[:1] in "{'" and len(text) >= 2:
+                return evaluate(text[1:-1], env)
             return parse_number(text)
         except ValueSyntaxError as exc:
-            hint = f" (to use the parameter, write {{{text}}})" if text.lower() in self.params else ""
-            raise self.err(f"{element}: {what}: {exc}{hint}", tok.line) from None
+            known = env.find(text.lower()) is not None if isinstance(env, Scope) else text.lower() in env
+            hint = f" (to use the parameter, write {{{text}}})" if known else ""
+            line = getattr(exc, "line", None) or tok.line
+            raise self.err(f"{element}: {what}: {exc}{hint}", line) from None
 
     def element(self, card: Card, toks: list[Tok]) -> Element | Instance:
         """The element (or subcircuit instance) of one card; its first letter picks the reader."""
@@ -199,13 +197,27 @@ class CardReader:
                 )
 
     def instance(self, name: str, card: Card, toks: list[Tok], where: Location) -> Instance:
-        """X name node... subckt: the nodes and the subcircuit's name, flattened later."""
-        usage = USAGE[name[0]]
-        self.refuse_subckt_params(toks)
-        if len(toks) < 2:
+        """X name node... subckt [params:] [name=value ...]: the nodes, the subcircuit's name and the
+        overrides, evaluated here in the caller's scope (a bare name is a parameter, as ngspice reads it)."""
+        usage = USAGE[name[0]] + " [params: name=value ...]"
+        split = next((i for i, t in enumerate(toks) if t.value or t.text.lower() == "params:"), len(toks))
+        if split < 2:
             raise self.err(f"{name}: too few fields; write {usage}", card.line)
-        nodes = tuple(self.name(t, f"{name}: node") for t in toks[1:-1])
-        return Instance(name, nodes, self.name(toks[-1], f"{name}: subcircuit"), where)
+        overrides: dict[str, tuple[float, int]] = {}
+        for t in toks[split:]:
+            if t.value is None and t.text.lower() == "params:":
+                continue
+            if t.value is None:
+                raise self.err(f"{name}: {show(t.text)} after the parameters is not name=value; write {usage}", t.line)
+            key = t.text.lower().rstrip(":")
+            if key in overrides:
+                raise self.err(f"{name}: parameter {key!r} is given twice; keep one", t.line)
+            text = t.value.text
+            quoted = text if text[:1] in "{'" else "{" + text + "}"
+            overrides[key] = (self.value(Tok(quoted, t.value.line), name, f"parameter {key}"), t.line)
+        nodes = tuple(self.name(t, f"{name}: node") for t in toks[1 : split - 1])
+        subckt = self.name(toks[split - 1], f"{name}: subcircuit")
+        return Instance(name, nodes, subckt, where, tuple((k, v, line) for k, (v, line) in overrides.items()))
 
     def linear(self, name: str, card: Card, toks: list[Tok], where: Location) -> Element:
         """E F G H and K: nodes (or coupled inductors), a controlling source, one value; m= on G and F."""

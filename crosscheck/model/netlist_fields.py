@@ -56,6 +56,8 @@ def _group_end(err: Error, text: str, opener: str, start: int, pos: int, line: i
         else:
             depth += (text[pos] == opener) - (text[pos] == close)
         pos += 1
+    if depth and opener == "'":
+        raise err("unbalanced \"'\": no closing quote on this card; close the quoted expression with '", line)
     if depth:
         raise err(f"unbalanced {opener!r}: no matching {close!r} on this card", line)
     return pos

@@ -42,7 +42,6 @@ _OTHER_FILES = (
 REFUSED_CARDS = {
     ".endc": "an .endc with no .control before it; remove it (crosscheck skips .control ... .endc blocks)",
     **dict.fromkeys((".include", ".inc", ".lib"), _OTHER_FILES),
-    ".func": "user-defined functions are not supported; write the arithmetic out in {...} or with .param",
 }
 #: Why a .global naming a node other than ground is refused when a subcircuit uses that node.
 GLOBAL_REFUSED = (
