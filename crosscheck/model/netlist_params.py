@@ -9,13 +9,14 @@ from __future__ import annotations
 
 from crosscheck.errors import ValueSyntaxError
 from crosscheck.model.functions import function_definition, recursive_chain
-from crosscheck.model.netlist_cards import Card, CardReader, Tok, show
+from crosscheck.model.netlist_cards import Card, Tok, show
+from crosscheck.model.netlist_models import ModelCardReader
 from crosscheck.model.network import GROUND
 from crosscheck.model.params import Expression, Function, Scope, assignments, parse, unwrap
 from crosscheck.model.subcircuits import Subckt
 
 
-class ParamReader(CardReader):
+class ParamReader(ModelCardReader):
     """``.param``, ``.func`` and ``.subckt`` header cards."""
 
     def __init__(self, file: str):
