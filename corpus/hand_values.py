@@ -454,6 +454,36 @@ def whip_l_match(f_hz: float) -> dict[str, complex]:
     return {"vth": v * z_c / (r0 + z_c), "zth": zth, "series_r": zth.real, "series_l": zth.imag / w}
 
 
+def _weighbridge_values() -> tuple[float, float, float, float, float, float, float, float]:
+    # .temp 45; .model tfr R (rsh=100 defw=10u tc1=25e-6 tnom=25): R = rsh * l / w * (1 + tc1 (T - tnom))
+    tfr = 1.0 + 25e-6 * (45.0 - 25.0)
+    vs = 10e-3  # Vbridge bp 0 DC 0 AC 10m SIN(0 10m 5)
+    rarm = 350.0  # Rarm bp in {rarm}, .param rarm=350
+    r1 = 100.0 * (20 * 10e-6) / 10e-6 * tfr  # X1 ... squares=20: R1 in out tfr l={squares*10u} w=10u
+    c1 = 10e-9  # X1 ... cval={cfilt}, .param cfilt=10n: C1 out 0 {cval}
+    r2 = 100.0 * (40 * 10e-6) / 10e-6 * tfr  # X2 ... params: squares=40
+    c2 = 10e-9 / 2  # X2 ... cval='cfilt/2'
+    cadc = 4.7e-12 * 4  # Cadc adc 0 4.7p m=4
+    rleak = 10e6 * (1.0 - 0.002 * (45.0 - 27.0))  # Rleak adc 0 10meg tc1=-0.002 (ngspice's default tnom, 27 degC)
+    return vs, rarm, r1, c1, r2, c2, cadc, rleak
+
+
+def weighbridge_adc_filter_dc(f_hz: float) -> dict[str, complex]:
+    _dc(f_hz)
+    vs, rarm, r1, _, r2, _, _, rleak = _weighbridge_values()
+    series = rarm + r1 + r2
+    return {"vth": vs * rleak / (series + rleak), "zth": par(series, rleak)}
+
+
+def weighbridge_adc_filter(f_hz: float) -> dict[str, complex]:
+    w = TAU * f_hz
+    vs, rarm, r1, c1, r2, c2, cadc, rleak = _weighbridge_values()
+    z1, zc1 = rarm + r1, zc(c1, w)
+    v1, zs1 = vs * zc1 / (z1 + zc1), par(z1, zc1)  # first pole as a source behind an impedance
+    zs2, zsh = zs1 + r2, par(zc(c2, w), zc(cadc, w), rleak)
+    return {"vth": v1 * zsh / (zs2 + zsh), "zth": par(zs2, zsh)}
+
+
 #: (case file under corpus/, function, frequency in Hz) for every [[expect]], in file order.
 POINTS = (
     ("audio/guitar_pickup_cable", guitar_pickup_cable, 1e3),
@@ -476,6 +506,8 @@ POINTS = (
     ("instrumentation/ph_probe_cable", ph_probe_cable_dc, 0.0),
     ("instrumentation/ph_probe_cable", ph_probe_cable, 50.0),
     ("instrumentation/valve_spool_lvdt", valve_spool_lvdt, 2.5e3),
+    ("instrumentation/weighbridge_adc_filter", weighbridge_adc_filter_dc, 0.0),
+    ("instrumentation/weighbridge_adc_filter", weighbridge_adc_filter, 1e3),
     ("power_distribution/pfc_bank_detuned", pfc_bank_detuned, 50.0),
     ("power_distribution/pfc_bank_detuned", pfc_bank_detuned, 250.0),
     ("power_distribution/switchboard_fault_level", switchboard_fault_level, 50.0),
