@@ -38,5 +38,6 @@ def ngspice_ac(netlist: str, freq: float, nodes: list[str] | tuple[str, ...]) ->
     out = {}
     for node in nodes:
         key = node.lower()
-        out[node] = 0j if key in ("0", "gnd") else complex(plot[key][0])
+        vector = plot.get(key, plot.get(f"v({key})"))  # ngspice names a node that starts with a digit v(3)
+        out[node] = 0j if key in ("0", "gnd") else complex(vector[0])
     return out

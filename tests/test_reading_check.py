@@ -417,3 +417,18 @@ def test_a_reader_that_dropped_m_is_caught_with_ngspice_s_effective_value() -> N
     check = judged_case(network, Port("a", "0")).reading
     assert check is not None and check.verdict == Verdict.FAIL and check.elements == ("r1",)
     assert "r1 (line 3): resistance 500 Ω in ngspice, 1 kΩ in crosscheck's model" in check.explanation
+
+
+@pytest.mark.spice
+def test_numbered_nodes_are_found_in_ngspices_reading() -> None:
+    """ngspice names the vector of a node that starts with a digit v(3), not 3: the check must find both ends.
+
+    A course-style netlist (numbered nodes, unit letters after the suffixes, as ngspice reads them)."""
+    text = "numbered nodes\nvin 1 0 ac 1v\nr1 1 2 1kohm\nc1 2 0 0.1uf\nl1 2 3 10mh\nr2 3 4 50ohms\nr3 4 0 50\n"
+    result = judged_case(read_netlist(text), Port("3", "4"))
+    assert result.reading is not None
+    assert result.reading.verdict == Verdict.PASS, result.reading.explanation
+    assert result.reading.compared == len(FREQS)
+    measured = ngspice_ac(text, FREQS[1], ["3", "4"])  # measured: ngspice on the same text, in this test
+    own = next(e.vth for e in result.own if e.freq_hz == FREQS[1])
+    assert own == pytest.approx(measured["3"] - measured["4"], rel=1e-9)

@@ -258,7 +258,9 @@ class _ReadingRun:
     def loaded(self, deck: ReadingDeck, plots: dict[str, dict[str, np.ndarray]]) -> None:
         """Read V(a) − V(b); where it differs from the model's deck, the element values (deck still loaded)."""
         values = _values(deck, plots)
-        self.lost.update(n for n in (deck.plus, deck.minus) if n and not any(n in v for v in plots.values()))
+        self.lost.update(
+            n for n in (deck.plus, deck.minus) if n and not any(_node_vector(v, n) is not None for v in plots.values())
+        )
         self.got.update(values)
         if self.differences is None and _differs(values, self.reference, deck.freqs):
             tnom = _tnom(self.engine.last_lines)
@@ -284,13 +286,17 @@ def _values(deck: ReadingDeck, plots: Mapping[str, Mapping[str, np.ndarray]]) ->
             match = [f for f in wanted[max(i - 1, 0) : i + 1] if same_frequency(f, at)]
             if len(match) != 1:
                 continue
-            try:
-                plus = complex(vectors[deck.plus][row]) if deck.plus else 0j
-                minus = complex(vectors[deck.minus][row]) if deck.minus else 0j
-            except KeyError:
+            plus, minus = (_node_vector(vectors, n) if n else np.zeros(len(freq)) for n in (deck.plus, deck.minus))
+            if plus is None or minus is None:
                 continue  # the port node is not a node of ngspice's circuit: no value (judged as missing)
-            out[match[0]] = plus - minus
+            out[match[0]] = complex(plus[row]) - complex(minus[row])
     return out
+
+
+def _node_vector(vectors: Mapping[str, np.ndarray], node: str) -> np.ndarray | None:
+    """A node's voltage vector: ngspice names it after the node, or ``v(3)`` when the name starts with a digit."""
+    found = vectors.get(node)
+    return found if found is not None else vectors.get(f"v({node})")
 
 
 def _differs(
