@@ -26,18 +26,21 @@ def _engine() -> Engine:
 def ngspice_ac(netlist: str, freq: float, nodes: list[str] | tuple[str, ...]) -> dict[str, complex]:
     """Each named node's voltage phasor from ngspice's ``.ac`` at ``freq`` on ``netlist`` as written.
 
-    Any ``.end`` card and ``.control`` ... ``.endc`` block is removed (crosscheck never runs those, and
+    Any ``.end`` and ``.save`` card and ``.control`` ... ``.endc`` block is removed (crosscheck never runs those, and
     a ``run`` inside one would add a second analysis), and ``.options noopac`` plus one ``.ac lin 1 f f``
     card are added at the end.
     """
     without_control = re.sub(r"(?ims)^\s*\.control\b.*?^\s*\.endc\b[^\n]*", "", netlist)
-    body = "\n".join(line for line in without_control.splitlines() if not re.match(r"^\s*\.end\s*$", line, re.I))
+    dropped = re.compile(r"^\s*\.(end|save)\b", re.I)  # .save would keep other vectors out of the plot
+    body = "\n".join(line for line in without_control.splitlines() if not dropped.match(line))
     text = f"{body}\n.options noopac\n.ac lin 1 {freq!r} {freq!r}\n.end\n"
     plots, _ = _engine().run(SimpleNamespace(text=text))  # type: ignore[arg-type]
-    (plot,) = [p for p in plots.values() if "frequency" in p]
+    # the netlist's own analysis cards may add plots of their own: ours is the one at exactly ``freq``
+    (plot,) = [p for p in plots.values() if "frequency" in p and p["frequency"].real.tolist() == [freq]]
     out = {}
     for node in nodes:
         key = node.lower()
-        vector = plot.get(key, plot.get(f"v({key})"))  # ngspice names a node that starts with a digit v(3)
+        # ngspice names a node that starts with a digit v(3), and drops the final ')' of net-(r1-pad2)
+        vector = next(plot[k] for k in (key, f"v({key})", key[:-1]) if k in plot)
         out[node] = 0j if key in ("0", "gnd") else complex(vector[0])
     return out

@@ -391,3 +391,33 @@ def test_source_lines_alone_give_ngspice_the_same_answer() -> None:
     measured = ngspice_vth(LINES.split("\n.end\n")[0])
     assert ngspice_vth(alone) == pytest.approx(measured, rel=REL)
     assert own_vth(net) == pytest.approx(measured, rel=REL)
+
+
+# --------------------------------------------------------------------------- a schematic editor's export
+
+SCHEMATIC_EXPORT = (
+    ".title KiCad schematic\n.option TEMP=27\nV1 /in GND DC 0 AC 1 sin(0 1 1k)\nR1 /in Net-(C1-Pad1) 10k\n"
+    "C1 Net-(C1-Pad1) GND 100n\nR2 Net-(C1-Pad1) /out 4.7k\nC2 /out GND 22n\n.save @r1[i]\n.save V(/out)\n"
+    ".ac dec 10 1 100k\n.end\n"
+)
+
+
+@pytest.mark.spice
+@pytest.mark.parametrize("node", ["/out", "Net-(C1-Pad1)"])
+def test_a_schematic_editors_export_runs_as_written(node: str) -> None:
+    """Node names like /out and Net-(C1-Pad1), GND, .title, .option, .save and a transient source function:
+    read as ngspice reads them, the value measured from ngspice on the same text in this test."""
+    network, reading = read_netlist_reading(SCHEMATIC_EXPORT, "export.cir")
+    assert "net-(c1-pad1)" in network.nodes and not reading.warnings
+    from ngspice_direct import ngspice_ac
+
+    measured = ngspice_ac(SCHEMATIC_EXPORT, FREQ, [node.lower()])[node.lower()]
+    assert own_vth(network, node.lower()) == pytest.approx(measured, rel=REL)
+
+
+def test_a_parenthesised_group_after_a_space_is_still_a_group() -> None:
+    """Only a word ending in '-' joins the (...) right after it; SIN(...) and 'Net- (x)' keep their meaning."""
+    with pytest.raises(NetlistError, match="export.cir:3"):
+        read_netlist("t\nV1 a 0 AC 1\nR1 a Net- (C1) 1k\nR2 a 0 1k\n", "export.cir")
+    network, reading = read_netlist_reading("t\nV1 a 0 AC 1 SIN(0 1 1k)\nR1 a 0 1k\n")
+    assert any("SIN(...) ignored" in note for note in reading.notes) and len(network.elements) == 2

@@ -432,3 +432,12 @@ def test_numbered_nodes_are_found_in_ngspices_reading() -> None:
     measured = ngspice_ac(text, FREQS[1], ["3", "4"])  # measured: ngspice on the same text, in this test
     own = next(e.vth for e in result.own if e.freq_hz == FREQS[1])
     assert own == pytest.approx(measured["3"] - measured["4"], rel=1e-9)
+
+
+@pytest.mark.spice
+def test_a_schematic_editors_node_name_is_found_in_ngspices_reading() -> None:
+    """ngspice drops the final ')' of net-(c1-pad1) in its vector's name: the check must still find the node."""
+    text = "export\nV1 /in GND DC 0 AC 1\nR1 /in Net-(C1-Pad1) 10k\nC1 Net-(C1-Pad1) GND 100n\nR2 Net-(C1-Pad1) 0 47k\n"
+    result = judged_case(read_netlist(text), Port("Net-(C1-Pad1)", "0"))
+    assert result.reading is not None and not result.reading.cause == Cause.READING_DIFFERS
+    assert result.reading.verdict == Verdict.PASS, result.reading.explanation

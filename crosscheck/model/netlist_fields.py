@@ -26,12 +26,15 @@ _CLOSING = {"(": ")", "{": "}", "'": "'"}
 def split_fields(card: Card, err: Error) -> list[Tok]:
     """Split a card at blanks, commas and '='; a (...), {...} or '...' group is one field; key=value pairs merge.
 
-    A quoted expression '2*rb' becomes the field {2*rb}: ngspice reads both the same way.
+    A quoted expression '2*rb' becomes the field {2*rb}: ngspice reads both the same way. A word ending in
+    '-' followed at once by a (...) group is one name: schematic editors export nodes as ``Net-(R1-Pad2)``,
+    which ngspice takes as one node (measured with ngspice 39).
     """
     text, out, pos = card.text, [], 0
     if len(card.starts) == 1 and _PLAIN.match(text):  # the common card: blank-separated words
         return [Tok(word, card.line) for word in text.split()]
     line = card.line_at
+    word_end = -1  # where the last plain word ended, to join a schematic editor's Net-(R1-Pad2)
     while (m := _FIELD.match(text, pos)) is not None:
         opener, closer = m.group("open"), m.group("close")
         start = m.start(m.lastindex or 0)
@@ -40,10 +43,14 @@ def split_fields(card: Card, err: Error) -> list[Tok]:
         pos = m.end()
         if opener:
             pos = _group_end(err, text, opener, start, pos, line(start))
+            if opener == "(" and start == word_end and out[-1].text.endswith("-"):
+                out[-1] = Tok(out[-1].text + text[start:pos], out[-1].line)  # one node name, as ngspice reads it
+                continue
             if opener == "'":
                 out.append(Tok("{" + text[start + 1 : pos - 1] + "}", line(start)))
                 continue
         out.append(Tok(text[start:pos], line(start)))
+        word_end = pos if m.group("word") else -1
     return _merge_keys(err, out) if "=" in text else out
 
 

@@ -12,8 +12,8 @@ import re
 SUBSET = "crosscheck reads linear R L C V I E F G H K networks and X subcircuits"
 FREQS = "crosscheck chooses the frequencies from the command line or the case file"
 #: Element, node, subcircuit and inductor names: what SPICE takes and no character that starts a comment or card.
-NAME = re.compile(r"^[a-z0-9_.:#+\-\[\]<>!/]+$", re.IGNORECASE)
-NAME_CHARS = "letters, digits and _ . : # + - [ ] < > ! /"
+NAME = re.compile(r"^[a-z0-9_.:#+\-\[\]<>!/]+(?:-\([a-z0-9_.:#+\-\[\]<>!/]*\))?$", re.IGNORECASE)
+NAME_CHARS = "letters, digits and _ . : # + - [ ] < > ! / (and a schematic editor's -(...) ending: Net-(R1-Pad2))"
 CONTROL_CHAR = re.compile(r"[\x00-\x08\x0b\x0e-\x1f\x7f]")
 
 _NO_AC_EFFECT = "it does not change the AC answer"

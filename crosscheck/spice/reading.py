@@ -294,9 +294,13 @@ def _values(deck: ReadingDeck, plots: Mapping[str, Mapping[str, np.ndarray]]) ->
 
 
 def _node_vector(vectors: Mapping[str, np.ndarray], node: str) -> np.ndarray | None:
-    """A node's voltage vector: ngspice names it after the node, or ``v(3)`` when the name starts with a digit."""
-    found = vectors.get(node)
-    return found if found is not None else vectors.get(f"v({node})")
+    """A node's voltage vector: ngspice names it after the node, ``v(3)`` when the name starts with a digit, and
+    drops the final ')' of a schematic editor's ``net-(r1-pad2)`` (measured with ngspice 39)."""
+    for name in (node, f"v({node})", node[:-1] if node.endswith(")") else None):
+        found = vectors.get(name) if name else None
+        if found is not None:
+            return found
+    return None
 
 
 def _differs(
