@@ -27,7 +27,16 @@ from crosscheck.model.device_models import (
     Temperatures,
     passive_value,
 )
-from crosscheck.model.netlist_subset import BEHAVIOURAL, DEVICES, NAME, NAME_CHARS, SUBSET, TRANSIENT, USAGE
+from crosscheck.model.netlist_subset import (
+    BEHAVIOURAL,
+    DEVICES,
+    NAME,
+    NAME_CHARS,
+    PARASITIC_KEYS,
+    SUBSET,
+    TRANSIENT,
+    USAGE,
+)
 from crosscheck.model.network import Element, make_element
 from crosscheck.model.params import Scope, evaluate
 from crosscheck.model.subcircuits import Instance
@@ -304,6 +313,8 @@ class CardReader:
                 k += 1
             elif word in TRANSIENT or word in ("distof1", "distof2"):
                 k = self.skip_function(name, rest, k)
+            elif word in PARASITIC_KEYS:
+                raise self.err(f"{name}: {t.text}= is not an ngspice parameter; it is {PARASITIC_KEYS[word]}", t.line)
             else:
                 raise self.err(f"{name}: unexpected field {show(t.text)}; write {usage}", t.line)
         return found
@@ -399,6 +410,8 @@ class CardReader:
             if key in INSTANCE_NO_AC_EFFECT and (key != "ic" or letter in "lc"):
                 self.note(f"{name}: {t.text}= ignored: {INSTANCE_NO_AC_EFFECT[key]}", t.line)
                 continue
+            if key in PARASITIC_KEYS:
+                raise self.err(f"{name}: {t.text}= is not an ngspice parameter; it is {PARASITIC_KEYS[key]}", t.line)
             if key not in keys:
                 hint = (
                     "; ngspice computes it only when no inductance is given: give the inductance" if key == "nt" else ""

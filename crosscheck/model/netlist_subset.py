@@ -85,3 +85,11 @@ USAGE = {  # the card's form; its last word names the value
 }
 #: The key=value spellings of an R, L or C value.
 VALUE_KEYS = {"r": ("r", "resistance"), "l": ("l", "inductance"), "c": ("c", "capacitance")}
+
+#: Parasitic keys some simulators take on L, C and V cards; ngspice does not, so they are refused with the fix.
+PARASITIC_KEYS = {
+    "rser": "a series resistance: write it as its own R card in series",
+    "lser": "a series inductance: write it as its own L card in series",
+    "rpar": "a parallel resistance: write it as its own R card across the part",
+    "cpar": "a parallel capacitance: write it as its own C card across the part",
+}
