@@ -40,7 +40,10 @@ def ngspice_ac(netlist: str, freq: float, nodes: list[str] | tuple[str, ...]) ->
     out = {}
     for node in nodes:
         key = node.lower()
+        if key in ("0", "gnd"):
+            out[node] = 0j
+            continue
         # ngspice names a node that starts with a digit v(3), and drops the final ')' of net-(r1-pad2)
         vector = next(plot[k] for k in (key, f"v({key})", key[:-1]) if k in plot)
-        out[node] = 0j if key in ("0", "gnd") else complex(vector[0])
+        out[node] = complex(vector[0])
     return out

@@ -441,3 +441,24 @@ def test_a_schematic_editors_node_name_is_found_in_ngspices_reading() -> None:
     result = judged_case(read_netlist(text), Port("Net-(C1-Pad1)", "0"))
     assert result.reading is not None and not result.reading.cause == Cause.READING_DIFFERS
     assert result.reading.verdict == Verdict.PASS, result.reading.explanation
+
+
+def test_a_long_sweep_is_read_at_eight_spread_frequencies_and_0_hz_keeps_its_own() -> None:
+    from crosscheck.spice.reading import MAX_READING_FREQS, reading_groups
+
+    sweep = [float(f) for f in range(1, 41)]
+    (picked, dc) = reading_groups([sweep, [0.0]])
+    assert len(picked) == MAX_READING_FREQS == 8 and picked[0] == 1.0 and picked[-1] == 40.0
+    assert picked == sorted(set(picked)) and dc == [0.0]
+    assert reading_groups([[1.0, 2.0, 3.0]]) == [[1.0, 2.0, 3.0]]
+
+
+@pytest.mark.spice
+def test_a_misreading_is_still_caught_on_a_long_sweep() -> None:
+    """40 frequencies, the reading made at 8 of them: a misread resistor still fails the case."""
+    network = with_lines(read_netlist(SUBCIRCUIT), SUBCIRCUIT)
+    sweep = tuple(10.0 ** (1 + i / 10) for i in range(40))
+    result = judged_case(_changed(network, "r1", value=2000.0), Port("a", "c"), freqs=sweep)
+    check = result.reading
+    assert check is not None and check.verdict == Verdict.FAIL and check.cause == Cause.READING_DIFFERS
+    assert check.compared == 8 and check.elements == ("r1",)
