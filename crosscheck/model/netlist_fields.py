@@ -30,7 +30,8 @@ def split_fields(card: Card, err: Error) -> list[Tok]:
     '-' followed at once by a (...) group is one name: schematic editors export nodes as ``Net-(R1-Pad2)``,
     which ngspice takes as one node (measured with ngspice 39).
     """
-    text, out, pos = card.text, [], 0
+    text, pos = card.text, 0
+    out: list[Tok] = []
     if len(card.starts) == 1 and _PLAIN.match(text):  # the common card: blank-separated words
         return [Tok(word, card.line) for word in text.split()]
     line = card.line_at
