@@ -360,8 +360,8 @@ class CardReader:
         """R L C: nodes, a value and/or a model name, and the instance parameters ngspice applies."""
         kind, usage = name[0].upper(), USAGE[name[0]]
         if len(toks) == 4 and toks[3].value is None and _NUMERIC.match(toks[3].text):  # the plain card, most of all
-            nodes = (self.name(toks[1], f"{name}: node"), self.name(toks[2], f"{name}: node"))
-            return make_element(name, None, nodes, self.value(toks[3], name, usage.rsplit(" ", 1)[1]), where=where)
+            plain = (self.name(toks[1], f"{name}: node"), self.name(toks[2], f"{name}: node"))
+            return make_element(name, None, plain, self.value(toks[3], name, usage.rsplit(" ", 1)[1]), where=where)
         given, bare = self.instance_fields(name, toks)
         if len(bare) < 2:
             raise self.err(f"{name}: too few fields; write {usage}", card.line)
