@@ -217,3 +217,28 @@ def test_both_routes_agree_and_json_records_the_excitation(tmp_path: Path) -> No
     [case] = doc["cases"]
     assert case["excitation"] == "dc"
     assert [p["freq_hz"] for p in doc["points"]] == [0.0]
+
+
+def test_baseline_records_the_excitation_and_a_change_of_it_is_said(tmp_path: Path) -> None:
+    from crosscheck.api import run_case_files
+    from crosscheck.judge.baseline import compare_with_baseline, updated_baseline
+    from crosscheck.judge.baseline_file import baseline_document, load_baseline, write_baseline
+
+    write(tmp_path, "d.cir", "d\nV1 in 0 DC 12 AC 1\nR1 in out 3.3k\nR2 out 0 6.8k\n")
+    case = write(tmp_path, "d.toml", 'netlist = "d.cir"\nport = ["out", "0"]\nexcitation = "dc"\n')
+    [dc] = run_case_files([case], engine="own")
+    path = tmp_path / "base.json"
+    write_baseline(updated_baseline([dc], path)[0], path)
+    stored = load_baseline(path)
+    [entry] = baseline_document(stored)["cases"].values()
+    assert entry["excitation"] == "dc"
+    assert compare_with_baseline(dc, stored)[0] and all(
+        c.verdict == "pass" for c in compare_with_baseline(dc, stored)[0]
+    )
+    case.write_text('netlist = "d.cir"\nport = ["out", "0"]\nfrequencies = ["0"]\n', encoding="utf-8")
+    [ac] = run_case_files([case], engine="own")
+    checks, _ = compare_with_baseline(ac, stored)
+    drifted = [c for c in checks if c.verdict == "drift"]
+    assert (
+        drifted and "excitation changed since the baseline was written (baseline dc, now ac)" in drifted[0].explanation
+    )
