@@ -36,6 +36,7 @@ def reduce_netlist(
     allow_negative: bool = False,
     accept_warnings: Iterable[str] = (),
     strict: bool = False,
+    excitation: str = "ac",
 ) -> CaseResult:
     """Equivalents of one netlist at ``port`` and ``freqs`` (Hz), compared with ngspice unless ``engine="own"``.
 
@@ -44,12 +45,14 @@ def reduce_netlist(
     ngspice's own answers are in ``spice``; ``spice_equivalents(result)`` gives them as equivalents.
     What reading said is in ``read_notes`` and ``warnings`` (``open_warnings``: those not in ``accept_warnings``);
     ``strict=True`` makes an open warning an ``error``, as ``--strict`` does.
+    ``excitation="dc"``: the sources' DC values drive the network, at 0 Hz only (``freqs`` empty or all 0;
+    ngspice's route uses its operating point); a frequency other than 0 raises ``ValueError``.
     """
     if isinstance(netlist, str):
         name, text = "<string>", netlist
     else:
         name, text = str(netlist), read_netlist_text(netlist)
-    case = case_from_netlist(name, text, port, freqs, tolerance, allow_negative, sources, accept_warnings)
+    case = case_from_netlist(name, text, port, freqs, tolerance, allow_negative, sources, accept_warnings, excitation)
     result = run_case_objects([case], engine=engine)[0]
     return held_strictly(result) if strict else result
 

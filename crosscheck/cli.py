@@ -77,6 +77,22 @@ def _frequencies(texts: Sequence[str]) -> list[float]:
     return list(checked_frequencies((parse_number(t) for t in texts), where="--freq"))
 
 
+def _excitation_frequencies(texts: Sequence[str] | None, excitation: str) -> list[float]:
+    """--freq under --excitation: required under ac; under dc absent means 0 Hz and any other is a usage error."""
+    if excitation == "dc":
+        freqs = _frequencies(texts) if texts else [0.0]
+        other = [t for t, f in zip(texts or (), freqs, strict=False) if f != 0]
+        if other:
+            raise _UsageError(
+                f"--excitation dc with --freq {other[0]}: a DC network is solved at 0 Hz only; "
+                "leave --freq out (or write --freq 0), or use --excitation ac for that frequency"
+            )
+        return freqs
+    if not texts:
+        raise _UsageError("--freq F ... is required (frequencies in Hz), unless --excitation dc (0 Hz)")
+    return _frequencies(texts)
+
+
 def _budget(args: argparse.Namespace) -> Budget:
     """--timeout and --memory as the time and memory each route may take per case (a usage error if unusable)."""
     return Budget(time_s=args.timeout, memory_bytes=parse_memory(args.memory))
@@ -128,9 +144,10 @@ def _reduce(args: argparse.Namespace) -> int:
         run_cases,
     )
 
-    freqs = _frequencies(args.freq)
+    excitation = args.excitation or "ac"
     sources = args.sources or "peak"
     try:
+        freqs = _excitation_frequencies(args.freq, excitation)
         expectations = _expectations(args, freqs)
     except _UsageError as exc:
         print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
@@ -145,6 +162,7 @@ def _reduce(args: argparse.Namespace) -> int:
         args.allow_negative,
         sources,
         args.accept_warning,
+        excitation,
     )
     case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
     if args.engine == "own":
@@ -242,6 +260,12 @@ def _verify(args: argparse.Namespace) -> int:
         )
         return EXIT_USAGE
     budget = _budget(args)  # a usable limit, or a usage error before any work
+    try:
+        if args.excitation == "dc" and args.freq:
+            _excitation_frequencies(args.freq, "dc")  # a frequency other than 0 under dc: a usage error
+    except _UsageError as exc:
+        print(f"crosscheck verify: error: {exc}", file=sys.stderr)
+        return EXIT_USAGE
     items = _verify_items(args)
     if _refuse_outputs_that_are_inputs(args, items):
         return EXIT_USAGE
@@ -284,30 +308,37 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
                 items.append(_overridden(load_case(path, allow_outside=args.allow_outside_paths), args))
                 continue
             netlists += 1
-            if not args.port or not args.freq:
+            excitation = args.excitation or "ac"
+            if not args.port or not (args.freq or excitation == "dc"):
                 raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
             items.append(
                 case_from_netlist(
                     str(path),
                     read_netlist_text(path),
                     tuple(args.port),
-                    _frequencies(args.freq),
+                    _excitation_frequencies(args.freq, excitation),
                     _tolerance(args),
                     args.allow_negative,
                     args.sources or "peak",
                     args.accept_warning,
+                    excitation,
                 )
             )
         except CrosscheckError as exc:
             items.append((str(path), exc))
     if not items:
         raise CrosscheckError(f"no case files (*.toml) found under {', '.join(map(str, args.paths))}")
-    named = {"--port": args.port, "--freq": args.freq, "--allow-negative": args.allow_negative}
+    named = {
+        "--port": args.port,
+        "--freq": args.freq,
+        "--allow-negative": args.allow_negative,
+        "--excitation": args.excitation,
+    }
     unused = [o for o, given in {**named, "--accept-warning": args.accept_warning}.items() if given]
     if unused and not netlists:
         print(
             f"crosscheck verify: note: {', '.join(unused)} appl{'y' if len(unused) > 1 else 'ies'} only to netlists "
-            "named directly; the case files use their own port, frequencies, allow_negative and accept_warnings",
+            "named directly; the case files use their own port, frequencies, allow_negative, excitation and accept_warnings",
             file=sys.stderr,
         )
     return items

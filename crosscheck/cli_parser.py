@@ -50,10 +50,11 @@ def _reduce_parser(sub: Any) -> None:
     reduce.add_argument(
         "--freq",
         nargs="+",
-        required=True,
+        default=None,
         type=_frequency_option,
         metavar="F",
-        help="frequencies in Hz, engineering notation allowed (50 1k 10.7meg; 0 is DC)",
+        help="frequencies in Hz, engineering notation allowed (50 1k 10.7meg; 0 is DC); "
+        "required unless --excitation dc (0 Hz)",
     )
     reduce.add_argument("--format", choices=("text", "json"), default="text")
     reduce.add_argument(
@@ -88,6 +89,7 @@ def _reduce_parser(sub: Any) -> None:
         "complex relative error against --expect-rel instead",
     )
     _common_options(reduce)
+    _excitation_option(reduce, "")
 
 
 def _verify_parser(sub: Any) -> None:
@@ -140,6 +142,7 @@ def _verify_parser(sub: Any) -> None:
     verify.add_argument("--detail", action="store_true", help="show every point of every case")
     _baseline_options(verify)
     _common_options(verify)
+    _excitation_option(verify, " for netlists named directly (case files say excitation = ...)")
 
 
 def _baseline_options(verify: argparse.ArgumentParser) -> None:
@@ -238,6 +241,17 @@ def _common_options(p: argparse.ArgumentParser) -> None:
         help=f"relative tolerance, solver vs SPICE (default 1e-6; from {SMALLEST_REL:.3g}, machine epsilon, to 1)",
     )
     _warning_options(p)
+
+
+def _excitation_option(p: argparse.ArgumentParser, what: str) -> None:
+    p.add_argument(
+        "--excitation",
+        choices=("ac", "dc"),
+        default=None,
+        help=f"what drives the network{what}: ac (default: the sources' AC values, at the --freq "
+        "frequencies) or dc (the sources' DC values, at 0 Hz only: leave --freq out, or give 0; "
+        "ngspice's route then uses its operating point)",
+    )
 
 
 def _warning_options(p: argparse.ArgumentParser) -> None:

@@ -47,3 +47,24 @@ def ngspice_ac(netlist: str, freq: float, nodes: list[str] | tuple[str, ...]) ->
         vector = next(plot[k] for k in (key, f"v({key})", key[:-1]) if k in plot)
         out[node] = complex(vector[0])
     return out
+
+
+def ngspice_op(netlist: str, nodes: list[str] | tuple[str, ...]) -> dict[str, float]:
+    """Each named node's voltage from ngspice's operating point (``.op``) on ``netlist`` as written.
+
+    As ``ngspice_ac``: any ``.end``/``.save`` card and ``.control`` block is removed; one ``.op`` card is added.
+    """
+    without_control = re.sub(r"(?ims)^\s*\.control\b.*?^\s*\.endc\b[^\n]*", "", netlist)
+    dropped = re.compile(r"^\s*\.(end|save)\b", re.I)
+    body = "\n".join(line for line in without_control.splitlines() if not dropped.match(line))
+    plots, _ = _engine().run(SimpleNamespace(text=f"{body}\n.op\n.end\n"))  # type: ignore[arg-type]
+    (plot,) = [p for p in plots.values() if "frequency" not in p and "time" not in p]
+    out = {}
+    for node in nodes:
+        key = node.lower()
+        if key in ("0", "gnd"):
+            out[node] = 0.0
+            continue
+        vector = next(plot[k] for k in (key, f"v({key})", key[:-1]) if k in plot)
+        out[node] = float(vector[0].real)
+    return out

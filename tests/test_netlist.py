@@ -312,10 +312,10 @@ def test_allow_negative_and_port_are_passed_to_validation() -> None:
 
 
 def test_format_element_forms() -> None:
-    """One card per kind; sources always DC 0 AC mag phase; numbers are repr(float)."""
+    """One card per kind; sources always DC value AC mag phase; numbers are repr(float)."""
     assert format_element(make_element("r.x1.r2", None, ("a", "x1.n3"), 4700)) == "r.x1.r2 a x1.n3 4700.0"
     assert format_element(make_element("v1", None, ("a", "0"), ac_mag=1, ac_phase_deg=-30)) == \
-        "v1 a 0 DC 0 AC 1.0 -30.0"
+        "v1 a 0 DC 0.0 AC 1.0 -30.0"
     assert format_element(make_element("g1", None, ("a", "0", "b", "c"), 1e-3)) == "g1 a 0 b c 0.001"
     assert format_element(make_element("h1", None, ("a", "0"), 50, control="vs")) == "h1 a 0 vs 50.0"
     assert format_element(make_element("k1", "K", (), 0.1, coupled=("l1", "l2"))) == "k1 l1 l2 0.1"

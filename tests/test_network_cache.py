@@ -112,7 +112,7 @@ def test_pickle_and_copy_carry_the_fields_only() -> None:
     network = validate(read_netlist(EVERY_KIND))
     _ = network.nodes, network.element_arrays, floating_reference(network, Port("a", "b"))
     state = network.__getstate__()
-    assert set(state) == {"title", "elements", "allow_negative", "source_lines"}
+    assert set(state) == {"title", "elements", "allow_negative", "source_lines", "excitation"}
     assert state["source_lines"] == network.source_lines and network.source_lines  # the reader sets them
     for twin in (pickle.loads(pickle.dumps(network)), copy.copy(network), copy.deepcopy(network)):
         assert twin == network and hash(twin) == hash(network)

@@ -334,6 +334,7 @@ def test_the_suffix_traps_are_what_ngspice_reads() -> None:
 def test_every_code_is_documented() -> None:
     texts = ["R1 a 0 1k\nR2 a 0 1k\n", "t\nV1 a 0 AC 1\nR1 a b 1M\nR2 b 0 10k\nC1 b 0 1F\nC2 b 0 {1/1MHz}\n"]
     found = {w.code for text in texts for w in read_netlist_reading(text)[1].warnings}
+    found |= {w.code for w in read_netlist_reading(texts[0], excitation="dc")[1].warnings}  # no-dc-source
     assert found == set(WARNING_CODES)
 
 

@@ -197,7 +197,8 @@ def stored_case(result: Any) -> StoredCase:
     """A run's own equivalents as the baseline stores them."""
     case_hash, netlist_hash = case_hashes(result.case)
     points = tuple(StoredPoint(eq.freq_hz, {"vth": eq.vth, "zth": eq.zth, "in": eq.in_}) for eq in result.own)
-    return StoredCase(case_hash, netlist_hash, tuple(result.port), points, element_cards(result.case))
+    excitation = getattr(result, "excitation", "ac")
+    return StoredCase(case_hash, netlist_hash, tuple(result.port), points, element_cards(result.case), excitation)
 
 
 def updated_baseline(
@@ -342,7 +343,14 @@ def compare_with_baseline(
     stored = baseline.cases.get(key)
     if stored is None:
         return [], f"not in the baseline {baseline_path} (as {key!r}); add it with --update-baseline"
-    checks, notes = drift_checks(result.own, stored, tolerance, _input_change(stored, result.case))
+    changed = _input_change(stored, result.case)
+    excitation = getattr(result, "excitation", "ac")
+    if stored.excitation != excitation:  # another excitation is another case: its values may all move
+        moved = (
+            f"the excitation changed since the baseline was written (baseline {stored.excitation}, now {excitation})"
+        )
+        changed = f"{moved}; {changed}" if changed else moved
+    checks, notes = drift_checks(result.own, stored, tolerance, changed)
     return checks, "; ".join(notes)
 
 

@@ -137,6 +137,8 @@ class StoredCase:
     #: Element name -> its card as the netlist reader understood it (``baseline.element_cards``), so a drift
     #: report can name what changed; None in entries written before cards were stored (still read).
     elements: dict[str, str] | None = None
+    #: What drove the network when it was stored: "ac" or "dc" (written only when "dc"; absent reads as "ac").
+    excitation: str = "ac"
     index: FrequencyIndex = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -256,7 +258,11 @@ def _case(path: Path, key: str, entry: Any) -> StoredCase:
     if not (isinstance(port, list) and len(port) == 2 and all(isinstance(n, str) for n in port)):
         raise BaselineCorrupt(path, f"{_where(key)}.port must be two node names (got {port!r:.80})")
     points = tuple(_point(path, key, i, p) for i, p in enumerate(entry["points"]))
-    return StoredCase(hashes[0], hashes[1], (port[0], port[1]), points, _elements(path, key, entry.get("elements")))
+    excitation = entry.get("excitation", "ac")
+    if excitation not in ("ac", "dc"):
+        raise BaselineCorrupt(path, f'{_where(key)}.excitation must be "ac" or "dc" (got {excitation!r:.40})')
+    elements = _elements(path, key, entry.get("elements"))
+    return StoredCase(hashes[0], hashes[1], (port[0], port[1]), points, elements, excitation)
 
 
 #: An element card as stored: the reader's names (letters, digits, _ . : # + - [ ] < > ! /), spaces and
@@ -358,6 +364,7 @@ def baseline_document(baseline: Baseline, tolerance: Tolerance = BASELINE) -> di
                 "netlist_sha256": entry.netlist_sha256,
                 "port": list(entry.port),
                 **({} if entry.elements is None else {"elements": dict(sorted(entry.elements.items()))}),
+                **({"excitation": entry.excitation} if entry.excitation != "ac" else {}),
                 "points": [
                     {"freq_hz": p.freq_hz, **{q: phasor_json(p.values.get(q)) for q in STORED}} for p in entry.points
                 ],

@@ -63,6 +63,12 @@ class CaseResult:
         return assess_case(self.case, self.own, self.sources)
 
     @property
+    def excitation(self) -> str:
+        """What drove the network: "ac" (the sources' AC values) or "dc" (their DC values, at 0 Hz); "ac"
+        without a case (the fuzzer's networks)."""
+        return self.case.excitation if self.case is not None else "ac"
+
+    @property
     def stated_caution(self) -> str:
         """The case file's own ``caution`` text (untrusted user text), or ""."""
         return self.case.caution if self.case is not None else ""

@@ -76,6 +76,8 @@ class Case:
     port: tuple[str, str]
     freqs_hz: tuple[float, ...]
     sources: str = "peak"
+    #: "ac" (the sources' AC values, at the frequencies) or "dc" (their DC values, at 0 Hz only).
+    excitation: str = "ac"
     tolerance: Tolerance = SOLVER_VS_SPICE
     expectations: tuple[Expectation, ...] = ()
     limits: tuple[Limit, ...] = ()
@@ -223,6 +225,32 @@ def _port(path: Path, data: dict[str, Any]) -> tuple[str, str]:
     return str(port[0]), str(port[1])
 
 
+def _excitation(path: Path, data: dict[str, Any]) -> str:
+    """``excitation = "ac"`` (the default: the sources' AC values) or ``"dc"`` (their DC values, at 0 Hz)."""
+    excitation = string(path, data, "excitation", "ac").lower()
+    if excitation not in ("ac", "dc"):
+        raise _err(path, "excitation", f'must be "ac" or "dc" (got {excitation[:40]!r})')
+    return excitation
+
+
+def _dc_frequencies(path: Path, data: dict[str, Any], excitation: str, freqs: list[float]) -> None:
+    """Under DC excitation the only frequency is 0 Hz: a sweep or another frequency is refused, naming its key."""
+    if excitation != "dc":
+        return
+    if "sweep" in data:
+        raise _err(
+            path, "sweep", 'a sweep with excitation = "dc"; a DC network is solved at 0 Hz only: remove the sweep'
+        )
+    other = [f for f in freqs if f != 0]
+    if other:
+        raise _err(
+            path,
+            "frequencies",
+            f'{other[0]:g} Hz with excitation = "dc"; a DC network is solved at 0 Hz only: '
+            'write frequencies = ["0"] or leave frequencies out (or use excitation = "ac")',
+        )
+
+
 def _frequencies(path: Path, data: dict[str, Any]) -> list[float]:
     has_list, has_sweep = "frequencies" in data, "sweep" in data
     if has_list == has_sweep:
@@ -327,6 +355,7 @@ _TOP_KEYS = {
     "frequencies",
     "sweep",
     "sources",
+    "excitation",
     "tolerance",
     "expect",
     "limit",
@@ -349,7 +378,9 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
     if unknown:
         raise _err(path, sorted(unknown)[0], f"unknown key; a case file knows {', '.join(sorted(_TOP_KEYS))}")
     text, netlist_file = _netlist(path, data, allow_outside)
-    freqs = _frequencies(path, data)
+    excitation = _excitation(path, data)
+    freqs = [0.0] if excitation == "dc" and not ({"frequencies", "sweep"} & set(data)) else _frequencies(path, data)
+    _dc_frequencies(path, data, excitation, freqs)
     expectations = _expectations(path, data, freqs)
     sources = string(path, data, "sources", "peak").lower()
     if sources not in ("peak", "rms"):
@@ -363,6 +394,7 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         port=_port(path, data),
         freqs_hz=tuple(sorted(freqs)),
         sources=sources,
+        excitation=excitation,
         tolerance=tolerance,
         expectations=tuple(expectations),
         limits=tuple(_limits(path, data)),

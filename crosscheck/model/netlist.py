@@ -34,11 +34,11 @@ from crosscheck.model.netlist_subset import (
     REFUSED_CARDS,
     SUBSET,
 )
-from crosscheck.model.network import GROUND, Element, Network, Port, canonical_node
+from crosscheck.model.network import GROUND, Element, Network, Port, canonical_node, check_excitation
 from crosscheck.model.params import Scope
 from crosscheck.model.reading import Reading
 from crosscheck.model.subcircuits import Instance, Subckt, flatten
-from crosscheck.model.traps import ValueText, find_traps, value_text
+from crosscheck.model.traps import ValueText, find_traps, for_excitation, value_text
 from crosscheck.model.validation import validate
 
 __all__ = [
@@ -94,14 +94,25 @@ def read_netlist_with_notes(
 
 
 def read_netlist_reading(
-    text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
+    text: str,
+    file: str = "<string>",
+    *,
+    allow_negative: bool = False,
+    port: Port | None = None,
+    excitation: str = "ac",
 ) -> tuple[Network, Reading]:
     """Read a netlist; also return its ``Reading``: the notes and the warnings (traps), each naming file and line.
 
     A netlist with problems raises one ``NetlistError`` listing every problem found (``problems``), in
     line order; ill-posed networks raise ``NetworkError`` from ``validate`` once every card reads.
+    ``excitation`` ("ac" or "dc") is set on the network and picks the warnings that concern it
+    (``no-ac-source`` or ``no-dc-source``, ``traps.for_excitation``).
     """
-    return _Reader(file).read(text, allow_negative, port)
+    check_excitation(excitation, (), "excitation")
+    network, reading = _Reader(file).read(text, allow_negative, port)
+    if excitation != network.excitation:
+        network = replace(network, excitation=excitation)
+    return network, replace(reading, warnings=for_excitation(reading.warnings, excitation))
 
 
 def read_netlist_file(path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None) -> Network:
@@ -118,11 +129,13 @@ def read_netlist_file_with_notes(
 
 
 def read_netlist_file_reading(
-    path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None
+    path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None, excitation: str = "ac"
 ) -> tuple[Network, Reading]:
     """``read_netlist_reading`` for a file; the decoding note (UTF-16, Windows-1252) comes first."""
     text, decoding = read_netlist_text_with_notes(path)
-    network, reading = read_netlist_reading(text, str(path), allow_negative=allow_negative, port=port)
+    network, reading = read_netlist_reading(
+        text, str(path), allow_negative=allow_negative, port=port, excitation=excitation
+    )
     return network, replace(reading, notes=decoding + reading.notes)
 
 

@@ -13,6 +13,7 @@ already validated element name (``v1#z0``, ``rv1#z0``), so nothing new from the 
 from __future__ import annotations
 
 import bisect
+import math
 import re
 from dataclasses import dataclass
 from typing import NamedTuple
@@ -44,6 +45,13 @@ from crosscheck.model.values import parse_number
 
 #: The longest element, node or subcircuit name accepted (a case file's port names share the limit).
 MAX_NAME_CHARS = 200
+
+#: Why a source's DC value is unknown: its transient function's value at time 0 is not one we follow.
+UNKNOWN_DC = (
+    "the DC value ngspice's operating point takes from this transient function (SFFM with phases, AM, "
+    "TRNOISE, TRRANDOM, PAT, or arguments that are not plain numbers) is not one crosscheck follows; "
+    "write the DC value on the card (DC v) to solve the network under DC excitation"
+)
 
 _NUMERIC = re.compile(r"^[+-]?(?:\d|\.\d|\{|')")
 
@@ -259,8 +267,12 @@ class CardReader:
         return make_element(name, None, nodes, value, control=control, where=where)
 
     def source(self, name: str, card: Card, toks: list[Tok], where: Location) -> Element:
-        """V and I: the AC phasor; DC, transient and distortion fields are checked and noted, m= scales an
-        I source, and ``portnum N z0 Z`` gives a V source an internal resistance (see ``port_resistor``)."""
+        """V and I: the AC phasor and the DC value; transient and distortion fields are checked and noted, m=
+        scales an I source, and ``portnum N z0 Z`` gives a V source an internal resistance (see ``port_resistor``).
+
+        The DC value (``Element.dc_value``, the excitation under ``excitation = "dc"``) is ``DC v``, ``dc=v`` or a
+        leading bare value; with none of them and a transient function, ngspice's operating point takes the
+        function's value at time 0 (``time_zero_value``); with neither, 0 (as ngspice: "DC 0 assumed")."""
         usage = USAGE[name[0]]
         if len(toks) < 3 or any(t.value is not None for t in toks[:3]):
             raise self.err(f"{name}: too few fields; write {usage}", card.line)
@@ -282,7 +294,22 @@ class CardReader:
         mag, phase = found.get("ac", (0.0, 0.0))
         if "portnum" in found or "z0" in found:
             self.port_resistor(name, card, found, nodes, where)
-        return make_element(name, None, nodes, 0.0, ac_mag=mag * multiplier, ac_phase_deg=phase, where=where)
+        dc, unknown = found.get("dc", (0.0, 0.0))[0], None
+        if "dc" not in found and "time zero" in found:
+            dc = found["time zero"][0]
+            unknown = None if math.isfinite(dc) else UNKNOWN_DC
+            dc = dc if math.isfinite(dc) else 0.0
+        return make_element(
+            name,
+            None,
+            nodes,
+            0.0,
+            ac_mag=mag * multiplier,
+            ac_phase_deg=phase,
+            where=where,
+            dc_value=dc * multiplier,
+            dc_unknown=unknown,
+        )
 
     @staticmethod
     def is_value(rest: list[Tok], k: int) -> bool:
@@ -299,7 +326,7 @@ class CardReader:
             seen.add(word)
             k += 1
             if word == "dc" and self.is_value(rest, k):
-                self.value(rest[k], name, "DC value")  # checked, then ignored: the model is small-signal AC
+                found["dc"] = (self.value(rest[k], name, "DC value"), 0.0)
                 k += 1
             elif word == "ac":
                 mag, phase = 1.0, 0.0
@@ -312,7 +339,9 @@ class CardReader:
                 found[word] = (self.value(rest[k], name, word), 0.0)
                 k += 1
             elif word in TRANSIENT or word in ("distof1", "distof2"):
-                k = self.skip_function(name, rest, k)
+                start, k = k, self.skip_function(name, rest, k)
+                if word in TRANSIENT:
+                    found["time zero"] = (self.time_zero_value(name, word, rest[start:k]), 0.0)
             elif word in PARASITIC_KEYS:
                 raise self.err(f"{name}: {t.text}= is not an ngspice parameter; it is {PARASITIC_KEYS[word]}", t.line)
             else:
@@ -333,6 +362,35 @@ class CardReader:
         what = f"{word} (a distortion-analysis input)" if distortion else f"transient function {word}(...)"
         self.note(f"{name}: {what} ignored: it has no effect on AC analysis", t.line)
         return k
+
+    def time_zero_value(self, name: str, word: str, args: list[Tok]) -> float:
+        """The value ngspice's operating point takes from a transient function when no DC value is written.
+
+        Measured with ngspice's ``.op`` on ``V1 a 0 <function>`` into 1 kΩ (this project, ngspice 39+):
+        SIN(1 2 1k) → 1 (VO), SIN(1 2 1k 0 0 90) → 3 (VO + VA·sin(phase)), PULSE(3 5 ...) → 3 (V1),
+        EXP(2 5) → 2 (V1), PWL(1m 4 2m 6) → 4 and PWL(0 4) → 4 (the first value, also before its time),
+        SFFM(1.5 2 1k 1 1) → 1.5 (VO); an I source alike (PULSE(2m 5m) → 2 mA). SFFM with its phase
+        arguments gave 3.3387 for SFFM(1.5 2 1k 1 1 30 40), which we do not follow; AM, TRNOISE, TRRANDOM
+        and PAT are not followed either. For those (and arguments we cannot read as numbers) the result is
+        NaN and the element's ``dc_unknown`` says so (``UNKNOWN_DC``): a DC run refuses the source (``model.network.dc_view``), an AC run
+        never looks at it. A written DC value always wins (ngspice notes "dc value used for op").
+        """
+        values: list[float] = []
+        fields = args[0].text[1:-1].replace(",", " ").split() if args and args[0].text.startswith("(") else None
+        texts = fields if fields is not None else [t.text for t in args]
+        line = args[0].line if args else 0
+        try:
+            values = [self.value(Tok(text, line), name, f"{word.upper()} argument") for text in texts[:6]]
+        except (NetlistError, ValueSyntaxError):
+            values = []
+        known = {"sin": 1, "pulse": 1, "exp": 1, "pwl": 2, "sffm": 1}
+        if word in known and len(values) >= known[word] and not (word == "sffm" and len(texts) > 5):
+            if word == "pwl":
+                return values[1]
+            if word == "sin" and len(values) >= 6:
+                return values[0] + values[1] * math.sin(math.radians(values[5]))
+            return values[0]
+        return math.nan
 
     def port_resistor(
         self, name: str, card: Card, found: dict[str, tuple[float, float]], nodes: list[str], where: Location

@@ -31,7 +31,7 @@ def format_element(e: Element) -> str:
         )
     head = " ".join((e.name, *e.nodes))
     if e.kind in "VI":
-        return f"{head} DC 0 AC {e.ac_mag!r} {e.ac_phase_deg!r}"
+        return f"{head} DC {e.dc_value!r} AC {e.ac_mag!r} {e.ac_phase_deg!r}"
     if e.kind in "FH":
         return f"{head} {e.control} {e.value!r}"
     if e.kind == "K":

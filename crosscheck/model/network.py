@@ -19,7 +19,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from crosscheck.errors import Location, PortError
+from crosscheck.errors import Location, NetlistError, PortError
 from crosscheck.model.graph import connected_parts
 
 GROUND = "0"
@@ -49,7 +49,9 @@ class Element:
     ``nodes`` is ``(n+, n-)`` for every kind but K, plus ``(nc+, nc-)`` for E and G.
     ``value`` is ohms (R), henries (L), farads (C), gain (E, F), siemens (G),
     ohms (H) or the coupling coefficient (K); unused (0.0) for V and I, whose
-    phasor is ``ac_mag`` at ``ac_phase_deg`` degrees.
+    phasor is ``ac_mag`` at ``ac_phase_deg`` degrees and whose DC value (the excitation of a
+    network read under DC, see ``dc_view``) is ``dc_value``. ``dc_unknown`` says why the reader
+    could not tell the DC value ngspice's operating point would use (None: ``dc_value`` is it).
     ``control`` names the V element whose current controls F and H.
     ``coupled`` names the two inductors of a K element; the dot of each
     inductor is on its first node, as in SPICE.
@@ -64,6 +66,8 @@ class Element:
     control: str | None = None
     coupled: tuple[str, str] | None = None
     where: Location | None = field(default=None, compare=False, repr=False)
+    dc_value: float = 0.0
+    dc_unknown: str | None = field(default=None, compare=False, repr=False)
 
     @property
     def terminals(self) -> tuple[str, str]:
@@ -72,7 +76,11 @@ class Element:
 
     @property
     def phasor(self) -> complex:
-        """The AC phasor of an independent source, as written (peak or RMS is the case's convention)."""
+        """The AC phasor of an independent source, as written (peak or RMS is the case's convention).
+
+        0° and 180° give an exactly real phasor (a DC value carried as a phasor stays real, ``dc_view``)."""
+        if self.ac_phase_deg in (0.0, 180.0):
+            return complex(-self.ac_mag if self.ac_phase_deg else self.ac_mag)
         return self.ac_mag * complex(
             math.cos(math.radians(self.ac_phase_deg)), math.sin(math.radians(self.ac_phase_deg))
         )
@@ -140,6 +148,9 @@ class Network:
     #: The user's own lines the reader accepted (element, subcircuit, parameter and model cards), for the
     #: reading check that ngspice makes from the text itself (``spice.reading``); () when not read from text.
     source_lines: tuple[str, ...] = field(default=(), compare=False, repr=False)
+    #: What excites the network: "ac" (the sources' AC phasors, at any frequency) or "dc" (their DC values,
+    #: at 0 Hz only; every route solves ``dc_view(network)`` and ngspice's route uses ``.op``).
+    excitation: str = "ac"
 
     def __getstate__(self) -> dict:
         return {f.name: self.__dict__[f.name] for f in fields(self)}
@@ -227,7 +238,10 @@ class Network:
 
     def zero_sources(self) -> Network:
         """The same network with every independent source set to zero (dependent ones stay)."""
-        return self.with_elements(replace(e, ac_mag=0.0) if e.kind in SOURCE_KINDS else e for e in self.elements)
+        return self.with_elements(
+            replace(e, ac_mag=0.0, dc_value=0.0, dc_unknown=None) if e.kind in SOURCE_KINDS else e
+            for e in self.elements
+        )
 
 
 def make_element(
@@ -241,6 +255,8 @@ def make_element(
     control: str | None = None,
     coupled: tuple[str, str] | None = None,
     where: Location | None = None,
+    dc_value: float = 0.0,
+    dc_unknown: str | None = None,
 ) -> Element:
     """Build an element with names canonicalised (lower case, ``gnd`` -> ``0``)."""
     name = name.strip().lower()
@@ -255,7 +271,44 @@ def make_element(
         control=control.lower() if control else None,
         coupled=(coupled[0].lower(), coupled[1].lower()) if coupled else None,
         where=where,
+        dc_value=float(dc_value),
+        dc_unknown=dc_unknown,
     )
+
+
+EXCITATIONS = ("ac", "dc")
+
+
+def dc_view(network: Network) -> Network:
+    """The network as its DC excitation drives it: each V/I source's DC value as its (real) phasor.
+
+    Under ``excitation == "dc"`` both routes solve this view at 0 Hz, so the own solver needs no case of
+    its own: a DC value d becomes AC magnitude |d| at 0° (180° when d < 0), which ``Element.phasor``
+    gives back exactly real. The view is idempotent. A source whose DC value the reader could not tell
+    (``Element.dc_unknown``) is refused here, naming its file and line, rather than read as 0.
+    """
+    for e in network.elements:
+        if e.kind in SOURCE_KINDS and e.dc_unknown is not None:
+            raise NetlistError(f"{e.name}: {e.dc_unknown}", e.where)
+    return network.with_elements(
+        replace(e, ac_mag=abs(e.dc_value), ac_phase_deg=180.0 if e.dc_value < 0 else 0.0)
+        if e.kind in SOURCE_KINDS
+        else e
+        for e in network.elements
+    )
+
+
+def check_excitation(excitation: str, freqs: Iterable[float], where: str) -> None:
+    """``excitation`` is "ac" or "dc", and under "dc" every frequency is 0 Hz; ``where`` names the setting."""
+    if excitation not in EXCITATIONS:
+        raise ValueError(f"{where}: excitation must be 'ac' or 'dc' (got {str(excitation)[:40]!r})")
+    if excitation == "dc":
+        other = [f for f in freqs if f != 0]
+        if other:
+            raise ValueError(
+                f"{where}: {other[0]!r} Hz with DC excitation; a DC network is solved at 0 Hz only: "
+                "give no frequency (or 0), or use excitation 'ac'"
+            )
 
 
 def node_parts(network: Network, chosen: np.ndarray) -> tuple[int, np.ndarray]:

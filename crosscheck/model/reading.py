@@ -16,6 +16,7 @@ from crosscheck.errors import Location
 #: Warning codes, each with what it means; a case file acknowledges one by its code.
 WARNING_CODES = {
     "no-ac-source": "no independent source has an AC value, so V_th is zero by construction",
+    "no-dc-source": "under DC excitation: no independent source has a DC value, so V_th is zero by construction",
     "title-is-element": "the first line looks like an element card; SPICE reads it as the title",
     "suffix-milli": "a value ends in M or MHz, which SPICE reads as milli, not mega",
     "suffix-femto": "a capacitor's value ends in F, which SPICE reads as femto, not farad",

@@ -59,6 +59,7 @@ class ValueText(NamedTuple):
 def find_traps(title: str, values: Sequence[ValueText], network: Network, file: str) -> tuple[ReadWarning, ...]:
     """Every trap in one netlist, in line order (the title's first)."""
     found = [w for w in (title_warning(title, file), _source_warning(network, file)) if w is not None]
+    found += [w for w in (_dc_source_warning(network, file),) if w is not None]
     found += _suffix_warnings(values, file)
     return tuple(sorted(found, key=lambda w: w.location.line or 0))
 
@@ -97,6 +98,39 @@ def _source_warning(network: Network, file: str) -> ReadWarning | None:
         f"magnitude to the source that drives the network, e.g. {first.name} ... DC 5 AC 1",
         first.where or Location(file),
     )
+
+
+def _dc_source_warning(network: Network, file: str) -> ReadWarning | None:
+    """``no-dc-source`` when no independent source has a DC value, so V_th is zero under DC excitation.
+
+    Found for every netlist; the run layer keeps it only for a case run under DC excitation (and drops
+    ``no-ac-source`` there), see ``for_excitation``.
+    """
+    sources = network.by_kind("VI")
+    if any(e.dc_value != 0 or e.dc_unknown is not None for e in sources):
+        return None
+    first = sources[0] if sources else None
+    names = ", ".join(e.name for e in sources[:5]) + (" ..." if len(sources) > 5 else "")
+    what = (
+        f"no independent source has a DC value ({names}: AC values only, or DC 0)"
+        if sources
+        else ("the network has no independent source")
+    )
+    example = f"{first.name} ... DC 5" if first is not None else "V1 in 0 DC 5"
+    where = (first.where if first is not None else None) or (network.elements[0].where if network.elements else None)
+    return ReadWarning(
+        "no-dc-source",
+        f"{what}, so under DC excitation V_th is zero by construction (Z_th is still meaningful); "
+        f"to drive it, give the source that drives the network its DC value, e.g. {example}",
+        where or Location(file),
+    )
+
+
+def for_excitation(warnings: Sequence[ReadWarning], excitation: str) -> tuple[ReadWarning, ...]:
+    """The reading's warnings that concern a run under ``excitation``: ``no-ac-source`` under "ac" only,
+    ``no-dc-source`` under "dc" only."""
+    other = "no-dc-source" if excitation == "ac" else "no-ac-source"
+    return tuple(w for w in warnings if w.code != other)
 
 
 def _suffix_warnings(values: Sequence[ValueText], file: str) -> list[ReadWarning]:

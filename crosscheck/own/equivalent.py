@@ -22,7 +22,15 @@ import numpy as np
 
 from crosscheck.errors import SingularNetworkError
 from crosscheck.model.budget import ENTRIES_PER_ELEMENT, NO_DEADLINE, Budget, sweep_bytes
-from crosscheck.model.network import Network, Port, check_port, floating_reference, make_element
+from crosscheck.model.network import (
+    Network,
+    Port,
+    check_excitation,
+    check_port,
+    dc_view,
+    floating_reference,
+    make_element,
+)
 from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps
 from crosscheck.own.solver import DENSE_LIMIT, THREADS_FROM, MnaSystem, default_threads
 
@@ -99,8 +107,12 @@ def thevenin(
     ``budget``: the time and memory this case may use (None: no limit). Its memory limit is held against
     ``model.budget.sweep_bytes`` before assembly (``MemoryBudgetError``); its deadline is checked between
     runs of frequencies (``TimeBudgetError``).
+    Under ``network.excitation == "dc"`` the sources' DC values are the excitation (real phasors, 0 Hz only).
     """
     freqs = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
+    if network.excitation == "dc":  # the sources' DC values excite it, at 0 Hz only (``model.network.dc_view``)
+        check_excitation("dc", freqs.tolist(), "the own route")
+        network = dc_view(network)
     check_port(network, port)
     bad = freqs[~np.isfinite(freqs) | (freqs < 0)]
     if bad.size:

@@ -33,7 +33,12 @@ def own_point(eq: Equivalent) -> dict[str, Any]:
 
 
 def equivalents_document(
-    network: Network, port: Port, points: Sequence[Equivalent], sources: str, source_file: str | None = None
+    network: Network,
+    port: Port,
+    points: Sequence[Equivalent],
+    sources: str,
+    source_file: str | None = None,
+    excitation: str = "ac",
 ) -> dict[str, Any]:
 
     return {
@@ -42,6 +47,7 @@ def equivalents_document(
         "netlist": source_file,
         "port": [port.a, port.b],
         "sources": sources,
+        "excitation": excitation,
         "points": [{"freq_hz": eq.freq_hz, "own": own_point(eq)} for eq in points],
         "caution": CAUTION,
     }

@@ -258,6 +258,7 @@ def _case_section(i: int, r: CaseResult) -> str:
         f"file {_e(r.name)}",
         f"port {_e(r.port[0])} → {_e(r.port[1])}",
         f"sources {_e(r.sources)}",
+        f"excitation {_e(r.excitation)}",
         f"tolerance rel {tol.rel:.3g}"
         + (f", abs {tol.abs:.3g}" if tol.abs else "")
         + (f", phase {tol.phase_deg:g}°" if tol.phase_deg is not None else ""),

@@ -87,6 +87,7 @@ def _summary(result: CaseResult) -> str:
         f"title: {result.title}",
         f"port: {result.port[0]} -> {result.port[1]}",
         f"frequencies: {len(result.freqs_hz)} ({span})" if span else "frequencies: none",
+        f"excitation: {result.excitation}",
         f"verdict: {result.verdict}",
         "worst solver-vs-SPICE error: "
         + ("not compared" if worst is None else f"{worst:.3g} (tolerance {result.tolerance.rel:.3g})"),

@@ -25,10 +25,16 @@ def reduction_document(
         doc.update({"port": list(result.port), "points": case_document(result)["points"], "verdict": result.verdict})
     else:
         doc = equivalents_document(
-            Network(result.title, ()), Port(*result.port), result.own or (), sources, source_file=source_file
+            Network(result.title, ()),
+            Port(*result.port),
+            result.own or (),
+            sources,
+            source_file=source_file,
+            excitation=result.excitation,
         )
     if expectations:
         doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
+    doc.setdefault("excitation", result.excitation)
     doc.update(read_document(result))  # warnings (unacknowledged), accepted_warnings, notes
     if result.error is not None:  # e.g. --strict made a warning an error: the document says so
         doc.update({"error": result.error, "verdict": result.verdict})
@@ -37,7 +43,11 @@ def reduction_document(
 
 def print_reduction(console: Console, result: CaseResult, compared: bool, sources: str, expectations: bool) -> None:
     """The equivalents as text, then the comparison (both routes) or the hand calculations (own route)."""
-    source_note = f"Sources as written in the netlist, taken as {sources.upper()} phasors."
+    source_note = (
+        "Excitation DC: the sources' DC values as written in the netlist, at 0 Hz (ngspice: its operating point)."
+        if result.excitation == "dc"
+        else f"Sources as written in the netlist, taken as {sources.upper()} phasors."
+    )
     print_read_warnings(console, [result])  # first: a warning can make every number below meaningless
     print_equivalents(console, result.title, result.port, result.own or (), source_note, caution=False)
     if compared:

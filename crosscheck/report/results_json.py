@@ -180,6 +180,7 @@ def case_document(result: CaseResult) -> dict[str, Any]:
         "caution": caution_document(result),
         "port": list(result.port),
         "sources": result.sources,
+        "excitation": result.excitation,
         "tolerance": {
             "rel": result.tolerance.rel,
             "abs": result.tolerance.abs,

@@ -68,7 +68,7 @@ def _err(x: float) -> str:
 def comparison_table(result: CaseResult) -> Table:
     table = Table(
         title=f"{escape(result.title)}  [dim]({escape(result.name)}, port {escape(result.port[0])} → "
-        f"{escape(result.port[1])})[/]",
+        f"{escape(result.port[1])}{', DC excitation' if result.excitation == 'dc' else ''})[/]",
         title_justify="left",
     )
     for h in ("f", "qty", "crosscheck", "ngspice", "err", "verdict"):

@@ -25,7 +25,7 @@ from crosscheck.model.budget import Budget
 from crosscheck.model.cases import Case, accepted_warnings
 from crosscheck.model.frequencies import frequency_list
 from crosscheck.model.netlist import read_netlist_reading
-from crosscheck.model.network import Network, Port
+from crosscheck.model.network import Network, Port, check_excitation
 from crosscheck.model.reading import Reading
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
@@ -47,11 +47,16 @@ def load_network_reading(case: Case) -> tuple[Network, Port, Reading]:
     """The case's netlist read and validated, with what reading it said (notes and warnings).
 
     ``read_netlist_reading`` validates the network with the port (elements, loops, connectivity, the
-    port's nodes), so nothing is checked twice here.
+    port's nodes), so nothing is checked twice here. The network carries the case's excitation, and the
+    warnings are those that concern it (``no-dc-source`` under DC, ``no-ac-source`` under AC).
     """
     port = Port(*case.port)
     network, reading = read_netlist_reading(
-        case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative, port=port
+        case.netlist_text,
+        file=case.netlist_file,
+        allow_negative=case.allow_negative,
+        port=port,
+        excitation=case.excitation,
     )
     return network, port, reading
 
@@ -204,17 +209,23 @@ def case_from_netlist(
     allow_negative: bool = False,
     sources: str = "peak",
     accept_warnings: Iterable[str] = (),
+    excitation: str = "ac",
 ) -> Case:
     """A case for a bare netlist named on the command line with its port and frequencies; ``accept_warnings``
-    are the warning codes acknowledged for it (``--accept-warning``), checked as a case file's are."""
+    are the warning codes acknowledged for it (``--accept-warning``), checked as a case file's are.
+    ``excitation`` "dc": the sources' DC values, at 0 Hz only (no frequencies given means 0 Hz)."""
+    freqs = list(freqs)
+    freqs_hz = frequency_list(freqs if freqs or excitation != "dc" else [0.0], where=f"{path}: frequencies")
+    check_excitation(excitation, freqs_hz, f"{path}: excitation")
     return Case(
         path=Path(path),
         title="",
         netlist_text=text,
         netlist_file=path,
         port=port,
-        freqs_hz=frequency_list(freqs, where=f"{path}: frequencies"),
+        freqs_hz=freqs_hz,
         sources=sources,
+        excitation=excitation,
         tolerance=tolerance,
         allow_negative=allow_negative,
         accept_warnings=accepted_warnings(list(accept_warnings), where=f"{path}: accepted warnings"),

@@ -25,11 +25,9 @@ import bisect
 import ctypes
 import importlib.util
 import logging
-import math
 import os
 import time
 from collections.abc import Callable, Iterable, Sequence
-from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
@@ -37,8 +35,10 @@ import numpy as np
 from crosscheck.errors import CrosscheckError, EngineUnavailableError, ReferenceEngineError
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
+from crosscheck.spice.dc import solve_dc
 from crosscheck.spice.deck import RUNS, Deck, Run, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
-from crosscheck.spice.reading import VECTOR_NAME, ReadingAnswer, ReadingDeck, check_reading
+from crosscheck.spice.reading import VECTOR_NAME, ReadingDeck, check_reading
+from crosscheck.spice.results import SpicePoint, SpiceResult, route_mismatch
 from crosscheck.vocabulary import same_frequency
 
 INSTALL_COMMAND = "sudo apt-get install -y libngspice0 libngspice0-dev"
@@ -52,73 +52,6 @@ DEFAULT_STRATEGY: Strategy = "combined"
 
 #: Words in an ngspice stderr line that mean the run did not do what was asked.
 _FAILURE_WORDS = ("error", "not parsed", "singular", "abort", "unknown", "can't find", "cannot", "fatal")
-
-
-# --------------------------------------------------------------------------- results
-
-
-@dataclass(frozen=True)
-class SpicePoint:
-    """ngspice's equivalent at one frequency; a quantity is None when ngspice cannot give it (``notes`` say why).
-
-    ``freq_hz`` is the frequency ngspice reports for the row (sweeps drift by ~1e-15);
-    ``requested_hz`` is the one that was asked for.
-    ``route_mismatch`` is |V_th/Z_th - I_N| / max(|V_th/Z_th|, |I_N|) (0 when both are 0),
-    None when a route is missing.
-    """
-
-    freq_hz: float
-    requested_hz: float
-    vth: complex | None
-    zth: complex | None
-    isc: complex | None
-    route_mismatch: float | None
-    notes: tuple[str, ...] = ()
-
-    @property
-    def in_(self) -> complex | None:
-        """The Norton current under the name the comparer uses."""
-        return self.isc
-
-
-@dataclass(frozen=True)
-class SpiceResult:
-    """ngspice's equivalents at the requested frequencies, in request order, and how they were made."""
-
-    points: tuple[SpicePoint, ...]
-    ngspice_version: str
-    strategy: str  # "combined" or "separate": what produced the numbers
-    elapsed_s: float  # time spent in ngspice and reading its vectors
-    notes: tuple[str, ...] = ()
-    decks: tuple[str, ...] = field(default=(), repr=False)  # every deck text that was run, to reproduce by hand
-    reading: ReadingAnswer | None = None  # ngspice on the user's own lines (``spice.reading``); None: no lines
-
-    def _array(self, name: str) -> np.ndarray:
-        nan = complex(math.nan, math.nan)
-        return np.array(
-            [nan if getattr(p, name) is None else getattr(p, name) for p in self.points], dtype=np.complex128
-        )
-
-    @property
-    def freqs(self) -> np.ndarray:
-        return np.array([p.freq_hz for p in self.points], dtype=float)
-
-    @property
-    def vth(self) -> np.ndarray:
-        """V_th per point (complex128; NaN where unavailable)."""
-        return self._array("vth")
-
-    @property
-    def zth(self) -> np.ndarray:
-        return self._array("zth")
-
-    @property
-    def isc(self) -> np.ndarray:
-        return self._array("isc")
-
-    @property
-    def route_mismatch(self) -> np.ndarray:
-        return np.array([math.nan if p.route_mismatch is None else p.route_mismatch for p in self.points])
 
 
 # --------------------------------------------------------------------------- public entry points
@@ -318,6 +251,8 @@ def solve(
     Frequencies keep their order and repeats. 0 Hz is an AC analysis at ω = 0 (L short, C open, any
     source phase kept), run on its own so that a missing DC path costs only that point.
     """
+    if network.excitation == "dc":  # the sources' DC values, by ngspice's operating point (``spice.dc``)
+        return solve_dc(engine, network, port, freqs)
     validate(network, port)
     requested = check_freqs(freqs)
     if strategy not in ("combined", "separate"):
@@ -379,15 +314,6 @@ def _point(case: _Case, f: float, degenerate: str | None) -> SpicePoint:
         route_mismatch=None if derived else route_mismatch(vth, zth, isc),
         notes=tuple(point_notes),
     )
-
-
-def route_mismatch(vth: complex | None, zth: complex | None, isc: complex | None) -> float | None:
-    """|V_th/Z_th − I_N| relative to the larger of the two; None when a route is missing or Z_th = 0."""
-    if vth is None or zth is None or isc is None or zth == 0:
-        return None
-    norton = vth / zth
-    scale = max(abs(norton), abs(isc))
-    return 0.0 if scale == 0 else abs(norton - isc) / scale
 
 
 class _Case:

@@ -3,8 +3,8 @@
 Both routes solve the one ``Network`` the reader made, so a line the reader reads differently from
 ngspice would be invisible to the route comparison. Here ngspice gets, besides the model's deck,
 a second deck written from ``Network.source_lines`` (the user's lines the reader accepted), runs
-the open-circuit ``.ac`` analysis on it in the same worker task, and V(a) − V(b) at the port goes
-back in ``ReadingAnswer`` for ``judge.reading`` to hold against the own route's V_th.
+the open-circuit ``.ac`` analysis on it (``.op`` under DC excitation) in the same worker task, and
+V(a) − V(b) at the port goes back in ``ReadingAnswer`` for ``judge.reading`` to hold against the own route's V_th.
 
 Why this path is safe (user text reaches ngspice here, and only here):
 
@@ -54,7 +54,7 @@ import numpy as np
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.model.frequencies import frequency_list
-from crosscheck.model.network import GROUND, Element, Network, Port, floating_reference
+from crosscheck.model.network import GROUND, Element, Network, Port, check_excitation, floating_reference
 from crosscheck.spice.deck import analysis_cards
 from crosscheck.vocabulary import same_frequency
 
@@ -118,6 +118,7 @@ class ReadingDeck:
     plus: str | None  # None when a is ground
     minus: str | None
     first_line: int = 2  # the deck line (1-based) of source_lines[0]: after our title
+    operating_point: bool = False  # ``.op`` (DC excitation): its plot has one row and no frequency, read as 0 Hz
 
 
 @dataclass(frozen=True)
@@ -183,7 +184,10 @@ def unsafe_line(line: str) -> str | None:
 
 
 def build_reading_deck(network: Network, port: Port, freqs: Sequence[float], *, save: bool = True) -> ReadingDeck:
-    """The deck: our title, the accepted lines verbatim, our options, ``.save`` and ``.ac`` cards, ``.end``."""
+    """The deck: our title, the accepted lines verbatim, our options, ``.save`` and ``.ac`` cards, ``.end``.
+
+    Under DC excitation (``network.excitation == "dc"``, 0 Hz only) the analysis card is ``.op``: the user's
+    lines carry their own DC values (and transient functions' time-zero values), which ``.op`` reads."""
     for index, line in enumerate(network.source_lines):
         why = unsafe_line(line)
         if why:
@@ -193,6 +197,9 @@ def build_reading_deck(network: Network, port: Port, freqs: Sequence[float], *, 
                 index,
                 line,
             )
+    operating_point = network.excitation == "dc"
+    if operating_point:
+        check_excitation("dc", freqs, "the reading check")
     tie = floating_reference(network, port)
     # A part with no ground holds the whole port (a transformer's secondary): its b node stands in for ground,
     # as in the model's deck; one 0 V source of ours joins it to ground, which carries no current.
@@ -203,7 +210,7 @@ def build_reading_deck(network: Network, port: Port, freqs: Sequence[float], *, 
         *ours,
         OPTIONS,
         *(_save_card(port) if save else []),
-        *analysis_cards(freqs),
+        *((".op",) if operating_point else analysis_cards(freqs)),
         ".end",
     ]
     return ReadingDeck(
@@ -211,6 +218,7 @@ def build_reading_deck(network: Network, port: Port, freqs: Sequence[float], *, 
         freqs=frequency_list(freqs, where="frequencies"),
         plus=None if port.a == GROUND else port.a,
         minus=None if port.b == GROUND else port.b,
+        operating_point=operating_point,
     )
 
 
@@ -325,6 +333,8 @@ def _values(deck: ReadingDeck, plots: Mapping[str, Mapping[str, np.ndarray]]) ->
     wanted = deck.freqs
     for vectors in plots.values():
         freq = vectors.get("frequency")
+        if freq is None and deck.operating_point:  # the operating point: one row, at 0 Hz
+            freq = np.zeros(1)
         if freq is None:
             continue
         for row, at in enumerate(freq.real.tolist()):
