@@ -1,26 +1,30 @@
-"""Large networks of four topology families (ladder, tree, grid, random), for benchmarks and scale tests.
+"""Large networks of five topology families (ladder, tree, grid, random, powergrid), for benchmarks and scale tests.
 
 Each family has a known shape of sparsity: a ladder is near-tridiagonal, a tree has no loops, a grid's
-factors fill in, a random geometric graph has irregular fill. Values are drawn from one seeded generator.
+factors fill in, a random geometric graph has irregular fill, and a power grid is two resistor meshes
+joined by vias (see ``powergrid``). Values are drawn from one seeded generator.
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import fields, replace
 
 import numpy as np
 
 from crosscheck.model.graph import UnionFind
-from crosscheck.model.network import Element, Network, Port
+from crosscheck.model.network import GROUND, Element, Network, Port
 
-FAMILIES = ("ladder", "tree", "grid", "random")
+FAMILIES = ("ladder", "tree", "grid", "random", "powergrid")
 
 
 def build(family: str, nodes: int, seed: int = 1) -> tuple[Network, Port]:
     """A network of ``family`` with ``nodes`` non-ground nodes (a grid rounds to a square), and its port."""
     rng = np.random.default_rng(seed)
     builders: dict[str, Callable] = {"ladder": _ladder, "tree": _tree, "grid": _grid, "random": _random}
+    if family == "powergrid":
+        return powergrid(nodes, seed)
     if family not in builders:
         raise ValueError(f"family {family!r} is unknown; choose from {', '.join(FAMILIES)}")
     elements, port = builders[family](nodes, rng)
@@ -97,3 +101,75 @@ def _random(n: int, rng) -> tuple[list[Element], Port]:
             out.append(_el(f"rj{i}", "R", f"x{i}", "0", 1e4))
             joined.union(f"x{i}", "0")
     return out, Port(f"x{n - 1}", "0")
+
+
+#: Power grid: ohms between neighbours on the lower (thin, high sheet resistance) and the upper metal layer.
+LOWER_OHMS = (0.4, 0.6)
+UPPER_OHMS = (0.02, 0.03)
+#: A via joins the layers every ``VIA_PITCH`` nodes in each direction; a pad sits every ``PAD_PITCH``.
+VIA_PITCH = 4
+PAD_PITCH = 16
+VIA_OHMS = 0.5
+SUPPLY_VOLTS = 1.0
+#: Load current drawn to ground at every second lower-layer node (amperes).
+LOAD_AMPS = (1e-5, 1e-4)
+
+
+def powergrid(nodes: int, seed: int = 1, excitation: str = "dc") -> tuple[Network, Port]:
+    """A power-distribution grid of about ``nodes`` nodes, DC values only, and a port at its centre.
+
+    Two square resistor meshes of side s = round(sqrt(nodes / 2)) (``LOWER_OHMS``, ``UPPER_OHMS`` per
+    segment: different sheet resistances), vias of ``VIA_OHMS`` every ``VIA_PITCH`` nodes, pad voltage
+    sources of ``SUPPLY_VOLTS`` to ground on the upper layer every ``PAD_PITCH`` nodes, load current
+    sources to ground at every second lower-layer node. The port is the lower layer's centre node to
+    ground: an interior node, far from the pads' edges.
+
+    ``excitation="dc"``: the sources carry DC values (``Element.dc_value``) and no AC value, and the
+    network says ``excitation = "dc"`` -- when the model has those fields. Where it does not yet
+    (``_dc_fields``) and for ``excitation="ac"``, each source's AC magnitude is its DC value instead,
+    which gives the same numbers at 0 Hz through the AC route.
+    """
+    rng = np.random.default_rng(seed)
+    side = max(2, round(math.sqrt(nodes / 2)))
+    dc = excitation == "dc" and _dc_fields()
+    out: list[Element] = []
+    for layer, ohms in (("m", LOWER_OHMS), ("t", UPPER_OHMS)):
+        out += _mesh(layer, side, ohms, rng)
+    for r in range(0, side, VIA_PITCH):
+        for c in range(0, side, VIA_PITCH):
+            out.append(_el(f"rv{r}_{c}", "R", f"m{r}_{c}", f"t{r}_{c}", VIA_OHMS))
+    half = PAD_PITCH // 2
+    for r in range(half % side, side, PAD_PITCH):
+        for c in range(half % side, side, PAD_PITCH):
+            out.append(_source(f"vp{r}_{c}", "V", f"t{r}_{c}", GROUND, SUPPLY_VOLTS, dc))
+    for r in range(side):
+        for c in range(r % 2, side, 2):
+            out.append(_source(f"il{r}_{c}", "I", f"m{r}_{c}", GROUND, float(rng.uniform(*LOAD_AMPS)), dc))
+    network = Network(f"bench powergrid {2 * side * side}", tuple(out))
+    if dc:
+        network = replace(network, excitation="dc")  # type: ignore[call-arg]
+    centre = side // 2
+    return network, Port(f"m{centre}_{centre}", GROUND)
+
+
+def _mesh(layer: str, side: int, ohms: tuple[float, float], rng) -> list[Element]:
+    out = []
+    for r in range(side):
+        for c in range(side):
+            if c + 1 < side:
+                out.append(_el(f"r{layer}h{r}_{c}", "R", f"{layer}{r}_{c}", f"{layer}{r}_{c + 1}", rng.uniform(*ohms)))
+            if r + 1 < side:
+                out.append(_el(f"r{layer}v{r}_{c}", "R", f"{layer}{r}_{c}", f"{layer}{r + 1}_{c}", rng.uniform(*ohms)))
+    return out
+
+
+def _dc_fields() -> bool:
+    """True when the model carries DC values (``Element.dc_value``, ``Network.excitation``)."""
+    names = {f.name for f in fields(Element)} | {f.name for f in fields(Network)}
+    return {"dc_value", "excitation"} <= names
+
+
+def _source(name: str, kind: str, a: str, b: str, value: float, dc: bool) -> Element:
+    if dc:
+        return Element(name, kind, (a, b), dc_value=value)  # type: ignore[call-arg]
+    return Element(name, kind, (a, b), ac_mag=value)

@@ -45,6 +45,7 @@ import subprocess
 import sys
 import tempfile
 import threading
+import time
 import weakref
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
@@ -52,16 +53,26 @@ from multiprocessing.connection import Connection
 from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
-from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget
+from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget, limits_rule
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
-from crosscheck.spice.sandbox import ENGINE_SOLVE, WORKER_PREFIX, CaseSolver, Settings, Task, describe_bytes
+from crosscheck.spice.sandbox import (
+    ENGINE_SOLVE,
+    PROGRESS,
+    WORKER_PREFIX,
+    CaseSolver,
+    Settings,
+    Task,
+    describe_bytes,
+)
 
 #: The defaults of every case's budget (``model.budget``, defined there once): 60 s wall clock, 2 GiB.
 DEFAULT_TIMEOUT_S = DEFAULT_TIME_S
 _START_TIMEOUT_S = 60.0  # a worker's interpreter, numpy, PySpice and ngspice: ~0.5 s when well
+#: How often a running case's progress is reported (``SpicePool(on_progress=...)``), in seconds.
+PROGRESS_EVERY_S = 2.0
 
 
 # --------------------------------------------------------------------------- in the parent
@@ -135,18 +146,33 @@ class _Worker:
         except (EOFError, OSError):
             raise _WorkerLost(f"the ngspice worker died while starting ({self._exit_text()})") from None
 
-    def call(self, task: Task, timeout_s: float) -> tuple[tuple[str, Any], bool]:
+    def call(
+        self, task: Task, timeout_s: float, on_progress: Callable[[str, float], None] | None = None
+    ) -> tuple[tuple[str, Any], bool]:
+        """The case's outcome; ``on_progress(analysis, elapsed_s)`` hears of it every ``PROGRESS_EVERY_S`` or so."""
         assert self.conn is not None, "a _Worker that exists has started (or __init__ raised)"
         try:
             self.conn.send(task)
         except (BrokenPipeError, EOFError, OSError):
             raise _WorkerLost(f"the ngspice worker was gone before the case started ({self._exit_text()})") from None
-        if not self.conn.poll(timeout_s):
-            raise _WorkerLost(f"ngspice did not finish this case within {timeout_s:g} s of wall-clock time")
-        try:
-            return self.conn.recv()
-        except (EOFError, OSError):
-            raise _WorkerLost(f"the ngspice worker died while running this case ({self._exit_text()})") from None
+        started = time.monotonic()
+        stage = "loading the deck"
+        while True:
+            left = started + timeout_s - time.monotonic()
+            if left <= 0:
+                raise _WorkerLost(f"ngspice did not finish this case within {timeout_s:g} s of wall-clock time")
+            if not self.conn.poll(min(left, PROGRESS_EVERY_S)):
+                if on_progress is not None:
+                    on_progress(stage, time.monotonic() - started)
+                continue
+            try:
+                message = self.conn.recv()
+            except (EOFError, OSError):
+                raise _WorkerLost(f"the ngspice worker died while running this case ({self._exit_text()})") from None
+            if isinstance(message, tuple) and len(message) == 2 and message[0] == PROGRESS:
+                stage = str(message[1])
+                continue
+            return message
 
     def _exit_text(self) -> str:
         if self.process is None:
@@ -232,6 +258,11 @@ class SpicePool:
 
     ``solve``: the function each worker calls per case (``sandbox.CaseSolver``); ngspice's
     ``engine.solve`` unless a test names one of its own.
+
+    Limits: a case submitted without its own ``timeout_s`` gets ``Budget.for_elements``: the pool's
+    limits, grown by ``model.budget``'s size rule where they are the defaults. ``on_progress(title,
+    analysis, elapsed_s)`` hears of every running case about every ``PROGRESS_EVERY_S`` seconds (from
+    the pool's threads; ``run.batch.terminal_progress`` prints it).
     """
 
     def __init__(
@@ -246,6 +277,7 @@ class SpicePool:
         cases_per_worker: int = 1000,
         start_timeout_s: float = _START_TIMEOUT_S,
         solve: CaseSolver = ENGINE_SOLVE,
+        on_progress: Callable[[str, str, float], None] | None = None,
     ):
         count = (os.cpu_count() or 1) if workers is None else int(workers)
         if count < 1:
@@ -254,8 +286,10 @@ class SpicePool:
         self.workers = count
         self.timeout_s = float(timeout_s)
         self.strategy = strategy
+        self._cpu_given = cpu_s is not None
         self._cpu_s = float(cpu_s) if cpu_s is not None else self.timeout_s
         self._memory_bytes = memory_bytes
+        self._on_progress = on_progress
         # Every worker's settings but its directory (``_settings_for`` adds that).
         self._settings: Callable[[str], Settings] = lambda directory: Settings(
             directory,
@@ -304,11 +338,14 @@ class SpicePool:
                 validate(network, port)
                 if (strategy or self.strategy) not in ("combined", "separate"):
                     raise ValueError(f"strategy must be 'combined' or 'separate' (got {strategy!r})")
-                task = Task(network, port, check_freqs(freqs), strategy or self.strategy)
+                limits = Budget(self.timeout_s, self._memory_bytes).for_elements(len(network.elements))
+                case_time_s = float(timeout_s or limits.time_s or self.timeout_s)
+                cpu_s = self._cpu_s if self._cpu_given else case_time_s
+                task = Task(network, port, check_freqs(freqs), strategy or self.strategy, cpu_s, limits.memory_bytes)
             except (CrosscheckError, ValueError) as exc:
                 future.set_exception(exc)
                 return future
-            self._queue.put((future, task, float(timeout_s or self.timeout_s)))
+            self._queue.put((future, task, case_time_s))
         return future
 
     def map(self, cases: Iterable[tuple[Network, Port, Sequence[float]]]) -> Iterator[SpiceResult | CrosscheckError]:
@@ -391,13 +428,13 @@ class SpicePool:
                 try:
                     if worker is None:
                         worker = _Worker(self._settings_for, self._start_timeout_s, self._worker_process)
-                    (status, value), retire = worker.call(task, timeout_s)
+                    (status, value), retire = worker.call(task, timeout_s, self._progress_of(task))
                 except _WorkerLost as lost:
                     if worker is not None:
                         worker.kill()
                         worker = None
                     self._count("cancelled" if self._cancelled else "finished")
-                    future.set_exception(_interrupted() if self._cancelled else self._lost(lost, task))
+                    future.set_exception(_interrupted() if self._cancelled else self._lost(lost, task, timeout_s))
                     continue
                 except BaseException as exc:  # never leave a future unresolved
                     future.set_exception(ReferenceEngineError(f"the ngspice pool failed: {type(exc).__name__}: {exc}"))
@@ -417,16 +454,25 @@ class SpicePool:
     def _settings_for(self, directory: str) -> Settings:
         return self._settings(directory)
 
-    def _lost(self, lost: _WorkerLost, task: Task) -> ReferenceEngineError:
+    def _progress_of(self, task: Task) -> Callable[[str, float], None] | None:
+        """The pool's ``on_progress`` for this case's title (None when nobody listens)."""
+        report = self._on_progress
+        if report is None:
+            return None
+        return lambda stage, elapsed_s: report(task.network.title, stage, elapsed_s)
+
+    def _lost(self, lost: _WorkerLost, task: Task, timeout_s: float) -> ReferenceEngineError:
+        elements, nodes = len(task.network.elements), len(task.network.nodes)
         limits = (
-            f"limits: {self.timeout_s:g} s wall clock, {self._cpu_s:g} s CPU, "
-            f"{describe_bytes(self._memory_bytes)} memory"
+            f"this case's limits: {timeout_s:g} s wall clock, {task.cpu_s or self._cpu_s:g} s CPU, "
+            f"{describe_bytes(task.memory_bytes or self._memory_bytes)} memory"
         )
         return ReferenceEngineError(
             f"{lost}; the worker was stopped and replaced, and the other cases go on "
-            f"(network {task.network.title!r}, {len(task.network.elements)} elements, {limits}). "
-            "A linear network of this kind takes milliseconds in ngspice: if it is very large, raise the limits; "
-            "otherwise report the network."
+            f"(network {task.network.title!r}: {elements:,} elements, {nodes:,} nodes; {limits}; "
+            f"{limits_rule()}, unless --timeout/--memory set them). ngspice's time grows about as the "
+            "square of the element count (ordering its matrix): if the network is this large, raise the limits "
+            "with --timeout and --memory; if it is small, report the network."
         )
 
 
