@@ -312,17 +312,16 @@ def library_has_klu(path: str) -> bool:
     ngspice hides its internal symbols). The packaged library here has neither (checked with ``strings``
     and ``ldd``), and timing agreed: the option changed nothing (``deck``'s docstring).
     """
+    real = os.path.realpath(path if os.sep in path else (_loaded_path(path) or path))
     try:
-        if hasattr(ctypes.CDLL(path), "klu_z_factor"):
-            return True
-        real = os.path.realpath(path if os.sep in path else (_loaded_path(path) or path))
-        if not os.path.isfile(real) or os.path.getsize(real) > _LIBRARY_SCAN_BYTES:
-            return False
-        with open(real, "rb") as fh:
-            data = fh.read()
+        if os.path.isfile(real) and os.path.getsize(real) <= _LIBRARY_SCAN_BYTES:
+            with open(real, "rb") as fh:
+                data = fh.read()
+            if b"klu_" in data or b"KLU" in data:
+                return True
+        return hasattr(ctypes.CDLL(path), "klu_z_factor")
     except OSError:
         return False
-    return b"klu_" in data or b"KLU" in data
 
 
 def _loaded_path(name: str) -> str | None:
