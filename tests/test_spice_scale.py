@@ -148,3 +148,20 @@ def test_powergrid_netlist_reads_back_to_the_same_network(tmp_path: Path) -> Non
     path.write_text(write_netlist(network))
     again = read_netlist_file(path)
     assert again.elements == network.elements
+
+
+@pytest.mark.spice
+def test_large_networks_run_as_separate_decks_and_the_version_names_the_solver() -> None:
+    from crosscheck.spice.engine import COMBINED_LIMIT_ELEMENTS
+    from crosscheck.spice.workers import spice_equivalent
+
+    small, small_port = build("ladder", 20)
+    large, large_port = build("ladder", COMBINED_LIMIT_ELEMENTS // 3 + 10)
+    assert len(small.elements) <= COMBINED_LIMIT_ELEMENTS < len(large.elements)
+    assert spice_equivalent(small, small_port, [1e3]).strategy == "combined"
+    result = spice_equivalent(large, large_port, [1e3])
+    assert result.strategy == "separate"
+    assert "solver" in result.ngspice_version and result.ngspice_version.startswith("ngspice")
+    own = thevenin(large, large_port, [1e3])[0]
+    assert own.vth is not None and result.points[0].vth is not None
+    assert abs(own.vth - result.points[0].vth) <= SOLVER_VS_SPICE.rel * abs(result.points[0].vth)
