@@ -35,11 +35,7 @@ LABELS = (
     "growth with node count (fitted exponent, log-log least squares)",
     "condition estimate cost",
     "sparse LU back ends and orderings",
-    "COLAMD",
-    "MMD_AT_PLUS_A",
-    "MMD_ATA",
-    "NATURAL",
-    "KLU",
+    "COLAMD", "MMD_AT_PLUS_A", "MMD_ATA", "NATURAL", "KLU",
     "batch throughput",
     "verify, local default",
     "verify, process pool of 2 whole-case tasks",
@@ -56,9 +52,8 @@ LABELS = (
 @pytest.mark.spice
 def test_quick_benchmark_prints_every_figure():
     """Every section and column label appears, with a number on each family's rows."""
-    done = subprocess.run(
-        [sys.executable, str(BENCH), "--quick", "--cases", "40"], capture_output=True, text=True, timeout=900
-    )
+    done = subprocess.run([sys.executable, str(BENCH), "--quick", "--cases", "40"],
+                          capture_output=True, text=True, timeout=900)
     assert done.returncode == 0, done.stderr[-3000:]
     out = done.stdout
     missing = [label for label in LABELS if label not in out]
@@ -84,5 +79,5 @@ def test_benchmark_networks_are_valid_and_sized(family):
 def test_fitted_exponent_recovers_a_power_law():
     """The log-log least-squares slope of t = c·n^1.5 is 1.5 (to rounding: 1e-9, common practice)."""
     nodes = np.array([100, 1_000, 10_000, 100_000], dtype=float)
-    assert abs(fitted_exponent(nodes, 3e-6 * nodes**1.5) - 1.5) <= 1e-9
+    assert abs(fitted_exponent(nodes, 3e-6 * nodes ** 1.5) - 1.5) <= 1e-9
     assert np.isnan(fitted_exponent([100.0], [1.0]))

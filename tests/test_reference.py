@@ -49,14 +49,11 @@ R_DIV, C_DIV, VIN = 1_000.0, 1e-6, 5.0
 
 def rc_divider() -> tuple[Network, Port]:
     """V_in in series with R, C across the output."""
-    net = Network(
-        "rc divider",
-        (
-            el("V1", "V", ("in", "0"), ac_mag=VIN),
-            el("R1", "R", ("in", "out"), R_DIV),
-            el("C1", "C", ("out", "0"), C_DIV),
-        ),
-    )
+    net = Network("rc divider", (
+        el("V1", "V", ("in", "0"), ac_mag=VIN),
+        el("R1", "R", ("in", "out"), R_DIV),
+        el("C1", "C", ("out", "0"), C_DIV),
+    ))
     return net, Port("out", "0")
 
 
@@ -72,16 +69,13 @@ C_VCCS = 1 / (2 * math.pi * F_VCCS * 10.0)  # -j10 Ω at 1 kHz
 
 def vccs_example() -> tuple[Network, Port]:
     """100∠0° V; 20 Ω to a; -j10 Ω from a to ground; 0.02·Vx into a with Vx = 100 - Va."""
-    net = Network(
-        "vccs",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=100.0),
-            el("R1", "R", ("s", "a"), 20.0),
-            el("C1", "C", ("a", "0"), C_VCCS),
-            # G drives gm·V(nc+, nc-) from n+ through itself to n-: from ground into a.
-            el("G1", "G", ("0", "a", "s", "a"), 0.02),
-        ),
-    )
+    net = Network("vccs", (
+        el("V1", "V", ("s", "0"), ac_mag=100.0),
+        el("R1", "R", ("s", "a"), 20.0),
+        el("C1", "C", ("a", "0"), C_VCCS),
+        # G drives gm·V(nc+, nc-) from n+ through itself to n-: from ground into a.
+        el("G1", "G", ("0", "a", "s", "a"), 0.02),
+    ))
     return net, Port("a", "0")
 
 
@@ -95,19 +89,16 @@ def transformer(grounded: bool, reversed_dot: bool = False) -> tuple[Network, Po
     secondary = ("sb", "x") if reversed_dot else ("x", "sb")
     if grounded:
         secondary = tuple("0" if n == "sb" else n for n in secondary)
-    net = Network(
-        "linear transformer",
-        (
-            el("Vs", "V", ("p1", "0"), ac_mag=300.0),
-            el("Rs", "R", ("p1", "p2"), 500.0),
-            el("Ls", "L", ("p2", "p3"), 100.0 / W_XFMR),  # j100 Ω at ω = 400 rad/s
-            el("R1", "R", ("p3", "p4"), 200.0),
-            el("L1", "L", ("p4", "0"), 9.0),
-            el("L2", "L", secondary, 4.0),
-            el("K1", "K", (), 0.5, coupled=("L1", "L2")),
-            el("R2", "R", ("x", "out"), 100.0),
-        ),
-    )
+    net = Network("linear transformer", (
+        el("Vs", "V", ("p1", "0"), ac_mag=300.0),
+        el("Rs", "R", ("p1", "p2"), 500.0),
+        el("Ls", "L", ("p2", "p3"), 100.0 / W_XFMR),  # j100 Ω at ω = 400 rad/s
+        el("R1", "R", ("p3", "p4"), 200.0),
+        el("L1", "L", ("p4", "0"), 9.0),
+        el("L2", "L", secondary, 4.0),
+        el("K1", "K", (), 0.5, coupled=("L1", "L2")),
+        el("R2", "R", ("x", "out"), 100.0),
+    ))
     return net, Port("out", b)
 
 
@@ -119,16 +110,13 @@ def transformer_expected() -> tuple[complex, complex]:
 
 
 def ideal_short() -> tuple[Network, Port]:
-    net = Network(
-        "r0",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=10.0),
-            el("R1", "R", ("s", "m"), 100.0),
-            el("R0", "R", ("m", "a"), 0.0),
-            el("R2", "R", ("a", "0"), 100.0),
-            el("R3", "R", ("m", "0"), 1e-3),
-        ),
-    )
+    net = Network("r0", (
+        el("V1", "V", ("s", "0"), ac_mag=10.0),
+        el("R1", "R", ("s", "m"), 100.0),
+        el("R0", "R", ("m", "a"), 0.0),
+        el("R2", "R", ("a", "0"), 100.0),
+        el("R3", "R", ("m", "0"), 1e-3),
+    ))
     return net, Port("a", "0")
 
 
@@ -136,72 +124,57 @@ C1_ONLY, C2_ONLY = 1e-6, 3e-6
 
 
 def capacitor_only_node() -> tuple[Network, Port]:
-    net = Network(
-        "c only",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=4.0),
-            el("C1", "C", ("s", "x"), C1_ONLY),
-            el("C2", "C", ("x", "0"), C2_ONLY),
-        ),
-    )
+    net = Network("c only", (
+        el("V1", "V", ("s", "0"), ac_mag=4.0),
+        el("C1", "C", ("s", "x"), C1_ONLY),
+        el("C2", "C", ("x", "0"), C2_ONLY),
+    ))
     return net, Port("x", "0")
 
 
 def inductor_across_source() -> tuple[Network, Port]:
-    net = Network(
-        "l across v",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=2.0, ac_phase_deg=-45.0),
-            el("L1", "L", ("s", "0"), 1e-3),
-            el("R1", "R", ("s", "a"), 30.0),
-            el("R2", "R", ("a", "0"), 60.0),
-        ),
-    )
+    net = Network("l across v", (
+        el("V1", "V", ("s", "0"), ac_mag=2.0, ac_phase_deg=-45.0),
+        el("L1", "L", ("s", "0"), 1e-3),
+        el("R1", "R", ("s", "a"), 30.0),
+        el("R2", "R", ("a", "0"), 60.0),
+    ))
     return net, Port("a", "0")
 
 
 def floating_port() -> tuple[Network, Port]:
     """A port in a part with no ground, driven by a VCVS that senses the grounded part."""
-    net = Network(
-        "floating",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=1.0),
-            el("R1", "R", ("s", "m"), 1e3),
-            el("R2", "R", ("m", "0"), 1e3),
-            el("E1", "E", ("x", "y", "m", "0"), 4.0),
-            el("R3", "R", ("x", "a"), 250.0),
-            el("C3", "C", ("a", "y"), 1e-6),
-        ),
-    )
+    net = Network("floating", (
+        el("V1", "V", ("s", "0"), ac_mag=1.0),
+        el("R1", "R", ("s", "m"), 1e3),
+        el("R2", "R", ("m", "0"), 1e3),
+        el("E1", "E", ("x", "y", "m", "0"), 4.0),
+        el("R3", "R", ("x", "a"), 250.0),
+        el("C3", "C", ("a", "y"), 1e-6),
+    ))
     return net, Port("a", "y")
 
 
 def current_controlled() -> tuple[Network, Port]:
-    net = Network(
-        "cccs",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=1.0),
-            el("Vsense", "V", ("s", "k"), 0.0),
-            el("R1", "R", ("k", "0"), 10.0),  # I(Vsense) = 0.1 A from s to k
-            el("F1", "F", ("0", "a"), 5.0, control="Vsense"),  # 0.5 A into a
-            el("H1", "H", ("a", "h"), 20.0, control="Vsense"),  # V(a) − V(h) = 2 V
-            el("R2", "R", ("h", "0"), 100.0),
-        ),
-    )
+    net = Network("cccs", (
+        el("V1", "V", ("s", "0"), ac_mag=1.0),
+        el("Vsense", "V", ("s", "k"), 0.0),
+        el("R1", "R", ("k", "0"), 10.0),                    # I(Vsense) = 0.1 A from s to k
+        el("F1", "F", ("0", "a"), 5.0, control="Vsense"),  # 0.5 A into a
+        el("H1", "H", ("a", "h"), 20.0, control="Vsense"),  # V(a) − V(h) = 2 V
+        el("R2", "R", ("h", "0"), 100.0),
+    ))
     return net, Port("a", "0")
 
 
 def dc_network() -> tuple[Network, Port]:
-    net = Network(
-        "dc",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=6.0, ac_phase_deg=30.0),
-            el("L1", "L", ("s", "m"), 1e-3),
-            el("R1", "R", ("m", "a"), 10.0),
-            el("R2", "R", ("a", "0"), 10.0),
-            el("C1", "C", ("a", "0"), 1e-6),
-        ),
-    )
+    net = Network("dc", (
+        el("V1", "V", ("s", "0"), ac_mag=6.0, ac_phase_deg=30.0),
+        el("L1", "L", ("s", "m"), 1e-3),
+        el("R1", "R", ("m", "a"), 10.0),
+        el("R2", "R", ("a", "0"), 10.0),
+        el("C1", "C", ("a", "0"), 1e-6),
+    ))
     return net, Port("a", "0")
 
 
@@ -210,52 +183,27 @@ def dc_network() -> tuple[Network, Port]:
 
 def test_deck_never_contains_user_names():
     """Node and element names from the user never reach ngspice; only our n<k>, kind+index and port sources do."""
-    net = Network(
-        "weird names",
-        (
-            el("Vsrc.main", "V", ("x1.n3", "gnd"), ac_mag=1.0),
-            el("Rload+", "R", ("x1.n3", "out+"), 50.0),
-            el("Lcoil", "L", ("out+", "mid-1"), 1e-3),
-            el("Lpick", "L", ("mid-1", "0"), 2e-3),
-            el("Kxfmr", "K", (), 0.3, coupled=("Lcoil", "Lpick")),
-            el("Fmirror", "F", ("out+", "0"), 2.0, control="Vsrc.main"),
-            el("Hsense", "H", ("h.node", "0"), 10.0, control="Vsrc.main"),
-            el("Rh", "R", ("h.node", "0"), 1e3),
-            el("Eamp", "E", ("e$1", "0", "out+", "0"), 3.0),
-            el("Re", "R", ("e$1", "0"), 1e3),
-            el("Rzero", "R", ("out+", "tap"), 0.0),
-            el("Ctap", "C", ("tap", "0"), 1e-9),
-        ),
-    )
+    net = Network("weird names", (
+        el("Vsrc.main", "V", ("x1.n3", "gnd"), ac_mag=1.0),
+        el("Rload+", "R", ("x1.n3", "out+"), 50.0),
+        el("Lcoil", "L", ("out+", "mid-1"), 1e-3),
+        el("Lpick", "L", ("mid-1", "0"), 2e-3),
+        el("Kxfmr", "K", (), 0.3, coupled=("Lcoil", "Lpick")),
+        el("Fmirror", "F", ("out+", "0"), 2.0, control="Vsrc.main"),
+        el("Hsense", "H", ("h.node", "0"), 10.0, control="Vsrc.main"),
+        el("Rh", "R", ("h.node", "0"), 1e3),
+        el("Eamp", "E", ("e$1", "0", "out+", "0"), 3.0),
+        el("Re", "R", ("e$1", "0"), 1e3),
+        el("Rzero", "R", ("out+", "tap"), 0.0),
+        el("Ctap", "C", ("tap", "0"), 1e-9),
+    ))
     port = Port("out+", "0")
     element = re.compile(r"^([RLCVIEFGHK]\d+|VPORT|ITEST)$")
     node = re.compile(r"^(n\d+|0)$")
-    user_words = {
-        "x1.n3",
-        "out+",
-        "mid-1",
-        "h.node",
-        "e$1",
-        "tap",
-        "vsrc",
-        "main",
-        "rload",
-        "lcoil",
-        "lpick",
-        "kxfmr",
-        "fmirror",
-        "hsense",
-        "eamp",
-        "rzero",
-        "ctap",
-        "weird",
-        "+",
-        "$",
-        "-1",
-    }
+    user_words = {"x1.n3", "out+", "mid-1", "h.node", "e$1", "tap", "vsrc", "main", "rload", "lcoil", "lpick",
+                  "kxfmr", "fmirror", "hsense", "eamp", "rzero", "ctap", "weird", "+", "$", "-1"}
     for deck in [build_deck(net, port, [1e3], run) for run in ("open", "short", "test")] + [
-        build_combined_deck(net, port, [1e3, 2e3])
-    ]:
+            build_combined_deck(net, port, [1e3, 2e3])]:
         lowered = deck.text.lower()
         assert not [w for w in user_words if w in lowered], deck.text
         for line in deck.text.splitlines()[1:]:
@@ -270,25 +218,22 @@ def test_deck_never_contains_user_names():
                 assert all(node.match(w) for w in words[1:3]) and re.match(r"^V\d+$", words[3]), line
             else:
                 n = 4 if kind in "EG" else 2
-                assert all(node.match(w) for w in words[1 : 1 + n]), line
+                assert all(node.match(w) for w in words[1:1 + n]), line
         # every deck name maps back to a model name
         assert set(deck.names.values()) >= {"x1.n3", "out+", "rload+", "rzero"}
 
 
 def test_deck_writes_sources_shorts_and_couplings_in_spice_form():
     """R = 0 becomes a 0 V source, sources carry DC 0, K names renamed inductors, F names the renamed V."""
-    net = Network(
-        "forms",
-        (
-            el("V1", "V", ("a", "0"), ac_mag=2.0, ac_phase_deg=30.0),
-            el("R1", "R", ("a", "b"), 0.0),
-            el("L1", "L", ("b", "0"), 1e-3),
-            el("L2", "L", ("c", "0"), 4e-3),
-            el("K1", "K", (), 0.5, coupled=("L1", "L2")),
-            el("F1", "F", ("c", "0"), 2.0, control="V1"),
-            el("I1", "I", ("0", "c"), ac_mag=1e-3),
-        ),
-    )
+    net = Network("forms", (
+        el("V1", "V", ("a", "0"), ac_mag=2.0, ac_phase_deg=30.0),
+        el("R1", "R", ("a", "b"), 0.0),
+        el("L1", "L", ("b", "0"), 1e-3),
+        el("L2", "L", ("c", "0"), 4e-3),
+        el("K1", "K", (), 0.5, coupled=("L1", "L2")),
+        el("F1", "F", ("c", "0"), 2.0, control="V1"),
+        el("I1", "I", ("0", "c"), ac_mag=1e-3),
+    ))
     text = build_deck(net, Port("c", "0"), [50.0], "open").text.splitlines()
     assert "V1 n1 0 DC 0 AC 2.0 30.0" in text
     assert "V2 n1 n2 DC 0 AC 0.0 0.0" in text  # the ideal short, never a 1 mΩ resistor
@@ -328,7 +273,7 @@ def test_combined_deck_holds_disjoint_copies_sharing_only_ground():
     deck = build_combined_deck(net, port, [1e3])
     nodes_per_copy = []
     for first, last in ((0, 3), (3, 7), (7, 11)):  # open: 3 lines, short: 3 + VPORT, test: 3 + ITEST
-        lines = deck.text.splitlines()[2 + first : 2 + last]
+        lines = deck.text.splitlines()[2 + first:2 + last]
         nodes_per_copy.append({w for line in lines for w in line.split()[1:3] if w != "0"})
     assert nodes_per_copy == [{"n1", "n2"}, {"n3", "n4"}, {"n5", "n6"}]
     assert deck.runs == ("open", "short", "test")
@@ -342,12 +287,9 @@ def test_analysis_cards_use_one_sweep_card_only_for_exact_grids():
     # ngspice 39 turns ".ac lin 2 f1 f2" into one point, so two frequencies are two cards
     assert analysis_cards([100.0, 300.0]) == (".ac lin 1 100.0 100.0", ".ac lin 1 300.0 300.0")
     assert analysis_cards([300.0, 100.0, 100.0, 7.5]) == (
-        ".ac lin 1 7.5 7.5",
-        ".ac lin 1 100.0 100.0",
-        ".ac lin 1 300.0 300.0",
-    )
+        ".ac lin 1 7.5 7.5", ".ac lin 1 100.0 100.0", ".ac lin 1 300.0 300.0")
     assert len(analysis_cards([10.0, 100.0, 1000.0, 10001.0])) == 4
-    assert analysis_cards([0.1 * 3**0.5]) == (f".ac lin 1 {0.1 * 3**0.5!r} {0.1 * 3**0.5!r}",)
+    assert analysis_cards([0.1 * 3 ** 0.5]) == (f".ac lin 1 {0.1 * 3 ** 0.5!r} {0.1 * 3 ** 0.5!r}",)
 
 
 @pytest.mark.parametrize("bad", [-1.0, math.nan, math.inf, "ten"])
@@ -359,14 +301,11 @@ def test_bad_frequencies_are_refused(bad):
 
 def test_port_across_voltage_path_is_recognised():
     """Voltage sources and ideal shorts joining a and b mean Z_th = 0 everywhere: no Norton form."""
-    net = Network(
-        "v across port",
-        (
-            el("V1", "V", ("a", "m"), ac_mag=1.0),
-            el("R0", "R", ("m", "0"), 0.0),
-            el("R1", "R", ("a", "0"), 10.0),
-        ),
-    )
+    net = Network("v across port", (
+        el("V1", "V", ("a", "m"), ac_mag=1.0),
+        el("R0", "R", ("m", "0"), 0.0),
+        el("R1", "R", ("a", "0"), 10.0),
+    ))
     assert port_is_voltage_defined(net, Port("a", "0"))
     assert not port_is_voltage_defined(*rc_divider())
 
@@ -382,9 +321,8 @@ def test_route_mismatch_is_relative_and_none_without_a_route():
 
 def test_result_arrays_mark_missing_values_with_nan():
     """SpiceResult's arrays are complex128 with NaN where ngspice gave no value."""
-    result = SpiceResult(
-        points=(SpicePoint(1.0, 1.0, 1 + 1j, 2.0, None, None),), ngspice_version="x", strategy="combined", elapsed_s=0.0
-    )
+    result = SpiceResult(points=(SpicePoint(1.0, 1.0, 1 + 1j, 2.0, None, None),), ngspice_version="x",
+                         strategy="combined", elapsed_s=0.0)
     assert result.vth.dtype == np.complex128
     assert result.vth[0] == 1 + 1j
     assert np.isnan(result.isc[0])
@@ -510,15 +448,10 @@ def test_ideal_short_is_a_short(pool):
 def test_port_with_zero_impedance_has_no_norton_form(pool, across):
     """Z_th = 0 (a voltage source or R = 0 across the port): I_N is None with the reason, not an error."""
     v = cmath.rect(3.0, math.radians(20.0))
-    first = (
-        el("V1", "V", ("a", "0"), ac_mag=3.0, ac_phase_deg=20.0)
-        if across == "voltage source"
-        else el("R0", "R", ("a", "0"), 0.0)
-    )
-    net = Network(
-        "zth zero",
-        (first, el("R1", "R", ("a", "b"), 10.0), el("I1", "I", ("0", "b"), ac_mag=1.0), el("R2", "R", ("b", "0"), 5.0)),
-    )
+    first = (el("V1", "V", ("a", "0"), ac_mag=3.0, ac_phase_deg=20.0) if across == "voltage source"
+             else el("R0", "R", ("a", "0"), 0.0))
+    net = Network("zth zero", (first, el("R1", "R", ("a", "b"), 10.0), el("I1", "I", ("0", "b"), ac_mag=1.0),
+                               el("R2", "R", ("b", "0"), 5.0)))
     result = pool.submit(net, Port("a", "0"), [50.0, 0.0]).result()
     for p in result.points:
         assert p.isc is None
@@ -580,14 +513,11 @@ def test_dc_point_keeps_the_phasor_of_each_source(pool):
 @pytest.mark.spice
 def test_inductor_shorting_the_port_at_dc_leaves_no_norton_form_there(pool):
     """At 0 Hz an inductor from a source to the port makes Z_th = 0: I_N is None at 0 Hz only."""
-    net = Network(
-        "l to port",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=1.0),
-            el("L1", "L", ("s", "a"), 1e-3),
-            el("R1", "R", ("a", "0"), 10.0),
-        ),
-    )
+    net = Network("l to port", (
+        el("V1", "V", ("s", "0"), ac_mag=1.0),
+        el("L1", "L", ("s", "a"), 1e-3),
+        el("R1", "R", ("a", "0"), 10.0),
+    ))
     dc, ac = pool.submit(net, Port("a", "0"), [0.0, 1e3]).result().points
     assert_close(dc.vth, 1.0, what="vth at 0 Hz")
     assert abs(dc.zth) <= 1e-12, dc.zth
@@ -669,14 +599,11 @@ def test_combined_and_separate_runs_agree(pool):
 
 def test_invalid_network_arrives_through_the_future(pool):
     """An ill-posed network is refused before ngspice sees it; the error comes from the case's future."""
-    net = Network(
-        "floating part",
-        (
-            el("V1", "V", ("s", "0"), ac_mag=1.0),
-            el("R1", "R", ("s", "0"), 1.0),
-            el("R2", "R", ("p", "q"), 1.0),
-        ),
-    )
+    net = Network("floating part", (
+        el("V1", "V", ("s", "0"), ac_mag=1.0),
+        el("R1", "R", ("s", "0"), 1.0),
+        el("R2", "R", ("p", "q"), 1.0),
+    ))
     with pytest.raises(NetworkError, match="floating part"):
         pool.submit(net, Port("s", "0"), [1.0]).result()
 
@@ -711,14 +638,8 @@ def test_ngspice_errors_carry_ngspice_words(tmp_path):
             print("RAISED", exc.ngspice_lines)
             print(exc)
     """)
-    out = subprocess.run(
-        [sys.executable, "-c", script],
-        cwd=tmp_path,
-        capture_output=True,
-        text=True,
-        timeout=120,
-        env={"PATH": "/usr/bin:/bin", "HOME": str(tmp_path)},
-    )
+    out = subprocess.run([sys.executable, "-c", script], cwd=tmp_path, capture_output=True, text=True,
+                         timeout=120, env={"PATH": "/usr/bin:/bin", "HOME": str(tmp_path)})
     assert "RAISED" in out.stdout, out.stdout + out.stderr
     assert "ngspice could not do the open run" in out.stdout
     assert re.search(r"unknown parameter|Error", out.stdout), out.stdout
@@ -726,9 +647,7 @@ def test_ngspice_errors_carry_ngspice_words(tmp_path):
 
 def test_importing_the_reference_modules_does_not_import_pyspice():
     """PySpice is imported only inside functions, so crosscheck imports where ngspice is absent."""
-    script = (
-        "import sys, crosscheck, crosscheck.spice.engine, crosscheck.spice.workers, crosscheck.spice.deck; "
-        "print(sorted(m for m in sys.modules if m.lower().startswith('pyspice')))"
-    )
+    script = ("import sys, crosscheck, crosscheck.spice.engine, crosscheck.spice.workers, crosscheck.spice.deck; "
+              "print(sorted(m for m in sys.modules if m.lower().startswith('pyspice')))")
     out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, timeout=120, check=True)
     assert out.stdout.strip() == "[]", out.stdout + out.stderr
