@@ -27,10 +27,9 @@ from crosscheck.model.netlist import read_netlist_file
 from crosscheck.model.netlist_writer import write_netlist
 from crosscheck.model.tolerance import SOLVER_VS_SPICE
 from crosscheck.own.equivalent import thevenin
-from crosscheck.run.batch import terminal_progress
 from crosscheck.spice.deck import build_combined_deck, deck_options
 from crosscheck.spice.engine import library_has_klu, solver_text
-from crosscheck.spice.workers import SpicePool
+from crosscheck.spice.workers import SpicePool, terminal_progress
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from misbehaving_solve import MISBEHAVING  # noqa: E402
@@ -60,13 +59,13 @@ def test_klu_detection_reads_the_library_bytes(tmp_path: Path) -> None:
 
 def test_limits_grow_with_the_network_unless_set() -> None:
     assert scaled_time_s(100) == DEFAULT_TIME_S  # small networks keep the 60 s floor
-    assert scaled_time_s(50_000) == pytest.approx(3.0 * 10**2)  # 3 s x (50,000 / 5,000)^2
+    assert scaled_time_s(52_000) == pytest.approx(60.0 * 2**3)  # 60 s x (52,000 / 26,000)^3
     assert scaled_memory_bytes(10) == DEFAULT_MEMORY_BYTES
     assert scaled_memory_bytes(1_000_000) == 1_000_000 * (16 << 10)
     grown = Budget().for_elements(227_000)
-    assert grown.time_s == pytest.approx(3.0 * (227_000 / 5_000) ** 2) and grown.memory_bytes > DEFAULT_MEMORY_BYTES
+    assert grown.time_s == pytest.approx(60.0 * (227_000 / 26_000) ** 3) and grown.memory_bytes > DEFAULT_MEMORY_BYTES
     assert Budget(time_s=10.0, memory_bytes=1 << 30).for_elements(227_000) == Budget(10.0, 1 << 30)
-    assert "5,000" in limits_rule() and "per element" in limits_rule()
+    assert "26,000" in limits_rule() and "^3" in limits_rule() and "per element" in limits_rule()
 
 
 def test_progress_is_off_when_the_stream_is_not_a_terminal() -> None:
@@ -84,9 +83,13 @@ def test_progress_line_names_the_case_the_analysis_and_the_time() -> None:
     assert show is not None
     show("grid\x1b[2J", "open at 1 frequency", 1.0)  # under 2 s: nothing yet
     show("grid\x1b[2J", "open at 1 frequency", 4.2)
+    show("grid\x1b[2J", "open at 1 frequency", 6.2)  # the same analysis within 10 s: not repeated
     line = out.getvalue()
     assert line.count("\n") == 1 and "open at 1 frequency" in line and "4 s so far" in line
     assert "\x1b" not in line  # the user's title is shown through repr
+    show("grid\x1b[2J", "test at 1 frequency", 7.0)  # a new analysis: shown at once
+    show("grid\x1b[2J", "test at 1 frequency", 17.5)  # 10 s later: shown again
+    assert out.getvalue().count("\n") == 3 and "18 s so far" in out.getvalue()
 
 
 @pytest.mark.spice
@@ -127,19 +130,24 @@ def test_seed_1001640_agrees_with_the_chosen_options() -> None:
             assert abs(ours - ref) <= SOLVER_VS_SPICE.rel * abs(ref), (name, mine.freq_hz, ours, ref)
 
 
-def test_powergrid_family_is_two_layers_with_pads_loads_and_an_interior_port() -> None:
+def test_powergrid_family_is_rails_and_straps_with_pads_loads_and_an_interior_port() -> None:
     assert "powergrid" in FAMILIES
     network, port = powergrid(1000, seed=3)
-    side = round((1000 / 2) ** 0.5)
-    nodes = set(network.nodes)
-    assert len(nodes) == 2 * side * side
+    side = round((1000 / 1.25) ** 0.5)  # s rails of s nodes, a strap over every 4th column
+    straps = len(range(0, side, 4))
+    assert len(set(network.nodes)) == side * (side + straps)
     kinds = {k: sum(e.kind == k for e in network.elements) for k in "RVI"}
     assert kinds["V"] >= 1 and kinds["I"] == (side * side + 1) // 2  # a load at every second lower node
     vias = [e for e in network.elements if e.name.startswith("rv")]
-    assert vias and all({n[0] for n in e.nodes} == {"m", "t"} for e in vias)
+    assert len(vias) == side * straps and all({n[0] for n in e.nodes} == {"m", "t"} for e in vias)
     assert all(n[0] == "t" for e in network.elements if e.kind == "V" for n in e.nodes if n != "0")
+    lower = [e.value for e in network.elements if e.name.startswith("rmh")]
+    upper = [e.value for e in network.elements if e.name.startswith("rtv")]
+    assert min(lower) > 10 * max(upper)  # two sheet resistances
     assert port.a == f"m{side // 2}_{side // 2}" and port.b == "0"
     assert build("powergrid", 1000, 3) == (network, port)  # the family is reachable by name, seeded
+    meshed, _ = powergrid(1000, seed=3, mesh=True)
+    assert len(meshed.elements) > len(network.elements)
 
 
 def test_powergrid_netlist_reads_back_to_the_same_network(tmp_path: Path) -> None:

@@ -13,12 +13,17 @@ workers use the same. A limit is never the reason a real network cannot run: the
 Limits that grow with the network (``scaled_time_s``, ``scaled_memory_bytes``, ``Budget.for_elements``):
 a limit left at its default becomes max(default, rule(elements)); a limit given any other value
 (``--timeout``, ``--memory``, ``Budget(...)``) is used as given. The rule follows ngspice, the slower
-route: with its Sparse 1.3 solver (the packaged library has no KLU) ordering the matrix costs about
-elements^2. Measured on the power-grid family (``fuzz.large.powergrid``), one case at 0 Hz, separate
-runs, on this 2-core machine shared with other work: 2,127 elements 0.17 s, 6,793 elements 1.6 s, 11,228
-elements 8.1 s, 22,741 elements 17.9 s (ngspice's peak RSS 146 MiB). The time rule
-``TIME_PER_UNIT_S`` * (elements / ``TIME_UNIT_ELEMENTS``)^2 = 3 s * (elements / 5,000)^2 is 3.5x
-those times (60 s up to 22,000 elements, 555 s at 68,000, 6,200 s at 227,000).
+route, whose Sparse 1.3 solver (the packaged library has no KLU) spends nearly all of a large run
+ordering the matrix. Measured, one case at 0 Hz, three separate runs, on this 2-core machine shared with
+other work (``fuzz.large.powergrid``; ngspice's peak RSS in brackets):
+
+* rails and straps: 1,537 elements 0.03 s, 4,823: 0.09 s, 15,900: 0.73 s, 48,034: 9.0 s (204 MiB);
+* both layers full meshes (the hardest for ngspice's ordering): 2,127 elements 0.17 s, 6,793: 1.6 s,
+  22,741: 17.9 s (146 MiB), 67,515: 503 s (339 MiB) -- growing as elements^3.
+
+The time rule is the worst of these, doubled: ``TIME_UNIT_S`` * (elements / ``TIME_UNIT_ELEMENTS``)^3 =
+60 s * (elements / 26,000)^3 (60 s up to 26,000 elements, 1,050 s at 67,500, 14,000 s at 160,000). The
+memory rule, 16 KiB per element over the 2 GiB floor, is many times the peak RSS measured.
 """
 
 from __future__ import annotations
@@ -36,16 +41,17 @@ DEFAULT_TIME_S = 60.0
 #: Bytes of memory one case may use by default (2 GiB).
 DEFAULT_MEMORY_BYTES = 2 << 30
 
-#: The size-scaled time limit: TIME_PER_UNIT_S seconds per (elements / TIME_UNIT_ELEMENTS) squared.
-TIME_PER_UNIT_S = 3.0
-TIME_UNIT_ELEMENTS = 5_000
+#: The size-scaled time limit: TIME_UNIT_S seconds * (elements / TIME_UNIT_ELEMENTS) ** TIME_EXPONENT.
+TIME_UNIT_S = 60.0
+TIME_UNIT_ELEMENTS = 26_000
+TIME_EXPONENT = 3
 #: The size-scaled memory limit: MEMORY_PER_ELEMENT bytes per element over the default's floor.
 MEMORY_PER_ELEMENT = 16 << 10
 
 
 def scaled_time_s(elements: int) -> float:
-    """The default wall-clock limit for a network of ``elements`` elements: max(60 s, 3 s * (elements/5,000)^2)."""
-    return max(DEFAULT_TIME_S, TIME_PER_UNIT_S * (elements / TIME_UNIT_ELEMENTS) ** 2)
+    """The default wall-clock limit for a network of ``elements`` elements: max(60 s, 60 s * (elements/26,000)^3)."""
+    return max(DEFAULT_TIME_S, TIME_UNIT_S * (elements / TIME_UNIT_ELEMENTS) ** TIME_EXPONENT)
 
 
 def scaled_memory_bytes(elements: int) -> int:
@@ -56,8 +62,8 @@ def scaled_memory_bytes(elements: int) -> int:
 def limits_rule() -> str:
     """The size rule in words, for messages and the README."""
     return (
-        f"default limits grow with the network: max({DEFAULT_TIME_S:g} s, {TIME_PER_UNIT_S:g} s x "
-        f"(elements / {TIME_UNIT_ELEMENTS:,})^2) and max({describe_memory(DEFAULT_MEMORY_BYTES)}, "
+        f"default limits grow with the network: max({DEFAULT_TIME_S:g} s, {TIME_UNIT_S:g} s x "
+        f"(elements / {TIME_UNIT_ELEMENTS:,})^{TIME_EXPONENT}) and max({describe_memory(DEFAULT_MEMORY_BYTES)}, "
         f"{MEMORY_PER_ELEMENT >> 10} KiB per element)"
     )
 

@@ -23,14 +23,13 @@ numbers and verdicts as a local run of the same cases.
 from __future__ import annotations
 
 import atexit
-import sys
 import threading
 from collections import deque
 from collections.abc import Callable, Generator, Iterable, Iterator, Sequence
 from concurrent.futures import Executor, Future
 from contextlib import contextmanager
 from dataclasses import replace
-from typing import Any, TextIO
+from typing import Any
 
 from crosscheck.errors import CrosscheckError, EngineUnavailableError
 from crosscheck.judge.baseline import Baseline
@@ -66,40 +65,7 @@ def worker_pool(budget: Budget = DEFAULT_BUDGET, solve: CaseSolver = ENGINE_SOLV
 def _pool(workers: int | None, budget: Budget, solve: CaseSolver) -> SpicePool:
     """An ngspice pool held to the budget (its time limit defaults to the budget's when the budget has none)."""
     time_s = budget.time_s if budget.time_s is not None else DEFAULT_TIME_S
-    return SpicePool(
-        workers=workers,
-        timeout_s=time_s,
-        memory_bytes=budget.memory_bytes,
-        solve=solve,
-        on_progress=terminal_progress(),
-    )
-
-
-#: A reference run shows its progress once it has taken this long (seconds).
-PROGRESS_AFTER_S = 2.0
-
-
-def terminal_progress(stream: TextIO | None = None) -> Callable[[str, str, float], None] | None:
-    """A ``SpicePool`` ``on_progress`` that prints a line for each reference run past ``PROGRESS_AFTER_S``,
-    or None when ``stream`` (standard error by default, where the own route's progress bar goes) is not a
-    terminal: a log or a pipe gets no progress lines.
-
-    The line names the case's title, the analysis ngspice is running (open, short, test) and the elapsed
-    time. The title is the user's, so it is printed through ``repr``: a control character in it cannot act
-    on the terminal; the analysis names are the engine's own fixed words.
-    """
-    out = sys.stderr if stream is None else stream
-    if not out.isatty():
-        return None
-    lock = threading.Lock()
-
-    def show(title: str, stage: str, elapsed_s: float) -> None:
-        if elapsed_s < PROGRESS_AFTER_S:
-            return
-        with lock:
-            print(f"ngspice: case {title[:60]!r}: {stage}, {elapsed_s:.0f} s so far", file=out, flush=True)
-
-    return show
+    return SpicePool(workers=workers, timeout_s=time_s, memory_bytes=budget.memory_bytes, solve=solve)
 
 
 def check_case(

@@ -36,6 +36,7 @@ die or hog memory.
 from __future__ import annotations
 
 import atexit
+import math
 import os
 import queue
 import shutil
@@ -50,7 +51,7 @@ import weakref
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
 from multiprocessing.connection import Connection
-from typing import Any
+from typing import Any, TextIO
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget, limits_rule
@@ -262,7 +263,7 @@ class SpicePool:
     Limits: a case submitted without its own ``timeout_s`` gets ``Budget.for_elements``: the pool's
     limits, grown by ``model.budget``'s size rule where they are the defaults. ``on_progress(title,
     analysis, elapsed_s)`` hears of every running case about every ``PROGRESS_EVERY_S`` seconds (from
-    the pool's threads; ``run.batch.terminal_progress`` prints it).
+    the pool's threads); by default ``terminal_progress`` prints it when standard error is a terminal.
     """
 
     def __init__(
@@ -289,7 +290,7 @@ class SpicePool:
         self._cpu_given = cpu_s is not None
         self._cpu_s = float(cpu_s) if cpu_s is not None else self.timeout_s
         self._memory_bytes = memory_bytes
-        self._on_progress = on_progress
+        self._on_progress = on_progress if on_progress is not None else terminal_progress()
         # Every worker's settings but its directory (``_settings_for`` adds that).
         self._settings: Callable[[str], Settings] = lambda directory: Settings(
             directory,
@@ -474,6 +475,41 @@ class SpicePool:
             "square of the element count (ordering its matrix): if the network is this large, raise the limits "
             "with --timeout and --memory; if it is small, report the network."
         )
+
+
+#: A reference run shows its progress once it has taken this long (seconds).
+PROGRESS_AFTER_S = 2.0
+#: ... and again every this many seconds while it stays in the same analysis.
+PROGRESS_REPEAT_S = 10.0
+
+
+def terminal_progress(stream: TextIO | None = None) -> Callable[[str, str, float], None] | None:
+    """A ``SpicePool`` ``on_progress`` that prints a line for each reference run past ``PROGRESS_AFTER_S``,
+    or None when ``stream`` (standard error by default, where the own route's progress bar goes) is not a
+    terminal: a log or a pipe gets no progress lines.
+
+    The line names the case's title, the analysis ngspice is running (open, short, test) and the elapsed
+    time. The title is the user's, so it is printed through ``repr``: a control character in it cannot act
+    on the terminal; the analysis names are the engine's own fixed words. Printed lines go above the
+    command line's progress bar (rich redirects standard error while its bar is shown).
+    """
+    out = sys.stderr if stream is None else stream
+    if not out.isatty():
+        return None
+    lock = threading.Lock()
+    shown: dict[str, tuple[str, float]] = {}  # per case title: the stage and elapsed time last printed
+
+    def show(title: str, stage: str, elapsed_s: float) -> None:
+        if elapsed_s < PROGRESS_AFTER_S:
+            return
+        with lock:
+            last_stage, last_s = shown.get(title, ("", -math.inf))
+            if stage == last_stage and elapsed_s - last_s < PROGRESS_REPEAT_S and elapsed_s >= last_s:
+                return  # a new stage at once, the same stage every PROGRESS_REPEAT_S
+            shown[title] = (stage, elapsed_s)
+            print(f"ngspice: case {title[:60]!r}: {stage}, {elapsed_s:.0f} s so far", file=out, flush=True)
+
+    return show
 
 
 def _interrupted() -> ReferenceEngineError:
