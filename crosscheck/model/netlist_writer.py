@@ -31,7 +31,9 @@ def format_element(e: Element) -> str:
         )
     head = " ".join((e.name, *e.nodes))
     if e.kind in "VI":
-        return f"{head} DC 0 AC {e.ac_mag!r} {e.ac_phase_deg!r}"
+        # The DC value once the model carries it (``Element.dc_value``); "0" when it is zero, as before.
+        dc = float(getattr(e, "dc_value", 0.0))
+        return f"{head} DC {repr(dc) if dc else '0'} AC {e.ac_mag!r} {e.ac_phase_deg!r}"
     if e.kind in "FH":
         return f"{head} {e.control} {e.value!r}"
     if e.kind == "K":

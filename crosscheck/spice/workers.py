@@ -549,9 +549,15 @@ def shared_pool() -> SpicePool:
 
 
 def spice_equivalent(
-    network: Network, port: Port, freqs: Iterable[float], timeout_s: float = 60.0, strategy: Strategy = DEFAULT_STRATEGY
+    network: Network,
+    port: Port,
+    freqs: Iterable[float],
+    timeout_s: float | None = None,
+    strategy: Strategy = DEFAULT_STRATEGY,
 ) -> SpiceResult:
     """ngspice's equivalent of ``network`` at ``port``, computed in an isolated worker process.
+
+    ``timeout_s``: the wall-clock limit; None: the default, grown with the network (``model.budget``).
 
     For one-off calls (it uses ``shared_pool``); a batch should use a ``SpicePool`` directly.
     Raises ``ReferenceEngineError`` (ngspice's own words) or ``EngineUnavailableError``.
