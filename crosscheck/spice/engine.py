@@ -49,13 +49,14 @@ Strategy = Literal["combined", "separate"]
 #: and the same on large ones. Both give the same numbers (to ~1e-15); a combined run that fails is
 #: repeated as separate runs, so the choice never changes an answer.
 DEFAULT_STRATEGY: Strategy = "combined"
-#: Above this many elements the combined deck runs as separate decks: ngspice's ordering costs about n^2,
-#: so one matrix of three copies costs more than three matrices of one. Measured on the power-grid family
-#: at 0 Hz (separate vs combined), rails and straps: 1,537 elements 0.03 vs 0.03 s, 4,823: 0.09 vs 0.13 s,
-#: 15,900: 0.73 vs 1.11 s, 48,034: 9.0 vs 15.8 s; two full meshes: 2,127 elements 0.17 vs 0.23 s,
-#: 6,793: 1.6 vs 3.0 s, 11,228: 8.1 vs 16.2 s, 22,741: 17.9 vs 38.0 s. One parse with ``alter`` between runs saves nothing here: the second
-#: analysis of a loaded circuit orders its matrix again (10k grid: open 18.6 s, then test after altering
-#: the sources 17.3 s), and the short run needs a different topology, hence its own deck anyway.
+#: Above this many elements the combined deck runs as separate decks: ngspice's ordering costs between
+#: n^2 and n^3, so one matrix of three copies costs more than three matrices of one. Measured on the
+#: power-grid family at 0 Hz (separate vs combined), rails and straps: 1,537 elements 0.03 vs 0.03 s,
+#: 4,823: 0.09 vs 0.13 s, 15,900: 0.73 vs 1.11 s, 48,034: 9.0 vs 15.8 s; two full meshes: 2,127 elements
+#: 0.17 vs 0.23 s, 6,793: 1.6 vs 3.0 s, 11,228: 8.1 vs 16.2 s, 22,741: 17.9 vs 38.0 s. One parse with
+#: ``alter`` between the runs saves nothing: the second analysis of a loaded circuit orders its matrix
+#: again (22,741-element mesh grid: open 18.6 s, then test after altering every source 17.3 s; the 2,537
+#: ``alter`` commands took 0.02 s), and the short run needs another topology, hence its own deck anyway.
 COMBINED_LIMIT_ELEMENTS = 1_000
 
 #: Words in an ngspice stderr line that mean the run did not do what was asked.
