@@ -54,12 +54,12 @@ def own_errors(n: int) -> dict[str, float]:
     return errors
 
 
-def spice_errors(n: int) -> dict[str, float]:
+def spice_errors(n: int, timeout_s: float = 120.0) -> dict[str, float]:
     from crosscheck.spice.workers import spice_equivalent
 
     network, errors = square_grid(n), {}
     for name, port in central_ports(n).items():
-        zth = spice_equivalent(network, port, [0.0], timeout_s=120.0).points[0].zth
+        zth = spice_equivalent(network, port, [0.0], timeout_s=timeout_s).points[0].zth
         assert zth is not None
         errors[name] = abs(zth.real - {"adjacent": ADJACENT, "diagonal": DIAGONAL}[name]) / abs(zth.real)
     return errors
@@ -86,4 +86,4 @@ def test_ngspice_route_converges_to_the_infinite_grid() -> None:
 @pytest.mark.spice
 def test_both_routes_at_161() -> None:
     assert max(own_errors(161).values()) <= TOLERANCE_161
-    assert max(spice_errors(161).values()) <= TOLERANCE_161
+    assert max(spice_errors(161, timeout_s=3600.0).values()) <= TOLERANCE_161  # a 51,520-element mesh: minutes
