@@ -22,11 +22,8 @@ The engine functions here are meant to run inside an isolated worker
 from __future__ import annotations
 
 import bisect
-import ctypes
-import importlib.util
 import logging
 import math
-import os
 import time
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
@@ -38,11 +35,18 @@ from crosscheck.errors import CrosscheckError, EngineUnavailableError, Reference
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import RUNS, Deck, Run, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
+from crosscheck.spice.library import (
+    INSTALL_COMMAND,
+    library_has_klu,
+    library_path,
+    solver_text,
+    version_text,
+)
+from crosscheck.spice.library import (
+    ngspice_available as ngspice_available,  # re-exported: callers ask the engine module whether ngspice is there
+)
 from crosscheck.spice.reading import VECTOR_NAME, ReadingAnswer, ReadingDeck, check_reading
 from crosscheck.vocabulary import same_frequency
-
-INSTALL_COMMAND = "sudo apt-get install -y libngspice0 libngspice0-dev"
-_LIBRARY_CANDIDATES = ("libngspice.so", "libngspice.so.0")
 
 Strategy = Literal["combined", "separate"]
 #: One combined deck per case costs ngspice about half the time of separate runs on small and medium networks
@@ -130,50 +134,6 @@ class SpiceResult:
         return np.array([math.nan if p.route_mismatch is None else p.route_mismatch for p in self.points])
 
 
-# --------------------------------------------------------------------------- public entry points
-
-
-def ngspice_available(library: str | None = None) -> str | None:
-    """None when PySpice is installed and ngspice's shared library loads; otherwise why not, and the fix.
-
-    Loads the library without starting an engine, so it is safe in any process.
-    """
-    if importlib.util.find_spec("PySpice") is None:
-        return "PySpice is not installed in this Python environment; install it with: pip install 'PySpice>=1.5'"
-    try:
-        _library_path(library)
-    except EngineUnavailableError as exc:
-        return str(exc)
-    return None
-
-
-def _library_path(library: str | None = None) -> str:
-    """The shared library to load: an explicit one, $NGSPICE_LIBRARY_PATH, or the system's.
-
-    Debian's ``libngspice0`` alone provides only ``libngspice.so.0``; ``-dev`` adds ``libngspice.so``.
-    """
-    candidates = (
-        [library]
-        if library
-        else (
-            [os.environ["NGSPICE_LIBRARY_PATH"]]
-            if os.environ.get("NGSPICE_LIBRARY_PATH")
-            else list(_LIBRARY_CANDIDATES)
-        )
-    )
-    reasons = []
-    for path in candidates:
-        try:
-            ctypes.CDLL(path)
-        except OSError as exc:
-            reasons.append(str(exc))
-            continue
-        return path
-    raise EngineUnavailableError(
-        f"ngspice's shared library could not be loaded ({'; '.join(reasons)}); install it with: {INSTALL_COMMAND}"
-    )
-
-
 # --------------------------------------------------------------------------- the engine adapter
 
 
@@ -224,7 +184,7 @@ class Engine:
         # we read the lines ourselves.
         logging.getLogger("PySpice").setLevel(logging.CRITICAL + 1)
         cls = _engine_class()
-        path = _library_path(library)
+        path = library_path(library)
         cls.LIBRARY_PATH = path
         try:
             self._ng = cls.new_instance()
@@ -236,7 +196,7 @@ class Engine:
         self._ng.lines.clear()
         #: The library has ngspice's KLU solver (``library_has_klu``); decks then ask for it (``deck_options``).
         self.klu = library_has_klu(path)
-        self.version = f"{_version_text(banner, self._ng.ngspice_version)}; {solver_text(self.klu)}"
+        self.version = f"{version_text(banner, self._ng.ngspice_version)}; {solver_text(self.klu)}"
         self.last_lines: tuple[str, ...] = ()  # every line ngspice printed in the last good run
         self.broken = False  # ngspice said it cannot recover from a deck: its worker must retire
 
@@ -300,50 +260,6 @@ class Engine:
         return float(info.v_realdata[0])
 
 
-#: How big a library may be for the KLU scan (a real libngspice is 5-15 MB).
-_LIBRARY_SCAN_BYTES = 64 << 20
-
-
-def library_has_klu(path: str) -> bool:
-    """True when ngspice's shared library at ``path`` was built with KLU, so ``.options klu`` selects it.
-
-    Why not ask ngspice: the packaged ngspice 39 accepts ``.options klu`` (and any unknown option) in
-    silence and prints the same lines and ``option`` listing either way, so its words cannot tell. A
-    KLU build carries KLU's code and its messages: either the symbol ``klu_z_factor`` resolves through
-    the library (KLU linked as its own library) or the library's bytes name ``klu`` (KLU compiled in;
-    ngspice hides its internal symbols). The packaged library here has neither (checked with ``strings``
-    and ``ldd``), and timing agreed: the option changed nothing (``deck``'s docstring).
-    """
-    real = os.path.realpath(path if os.sep in path else (_loaded_path(path) or path))
-    try:
-        if os.path.isfile(real) and os.path.getsize(real) <= _LIBRARY_SCAN_BYTES:
-            with open(real, "rb") as fh:
-                data = fh.read()
-            if b"klu_" in data or b"KLU" in data:
-                return True
-        return hasattr(ctypes.CDLL(path), "klu_z_factor")
-    except OSError:
-        return False
-
-
-def _loaded_path(name: str) -> str | None:
-    """Where the dynamic loader found the library ``name`` (a bare name like ``libngspice.so.0``)."""
-    try:
-        with open("/proc/self/maps", encoding="utf-8", errors="replace") as maps:
-            for line in maps:
-                where = line.rstrip("\n").split(maxsplit=5)[-1]
-                if os.path.basename(where).startswith(name):
-                    return where
-    except OSError:
-        return None
-    return None
-
-
-def solver_text(klu: bool) -> str:
-    """The matrix solver ngspice uses, for the version line every report shows."""
-    return "KLU solver" if klu else "Sparse 1.3 solver (this library has no KLU)"
-
-
 def _failures(lines: Sequence[tuple[str, str]]) -> list[str]:
     """ngspice's stderr lines when one reports a failure (all of them, for context), else [].
 
@@ -354,12 +270,6 @@ def _failures(lines: Sequence[tuple[str, str]]) -> list[str]:
     if any(word in line.lower() for line in err for word in _FAILURE_WORDS):
         return err
     return []
-
-
-def _version_text(banner: Sequence[str], number: int | None) -> str:
-    build = next((line.split(":", 1)[1].strip() for line in banner if "Creation Date" in line), None)
-    name = f"ngspice-{number}" if number is not None else "ngspice (version not reported)"
-    return f"{name} shared library, built {build}" if build else f"{name} shared library"
 
 
 # --------------------------------------------------------------------------- solving one case

@@ -227,7 +227,7 @@ def enter_sandbox(settings: Settings) -> str | None:
     """Resource limits, and the working directory and environment the parent prepared. Returns the library path.
 
     The parent already started this process in an empty directory with a private HOME and no
-    SPICE_* / NGSPICE_* variables but the library path (``workers._worker_environment``).
+    SPICE_* / NGSPICE_* variables but the library path (``worker_environment``).
     """
     os.chdir(os.path.join(settings.directory, "work"))
     resource.setrlimit(resource.RLIMIT_CORE, (0, 0))
@@ -255,3 +255,21 @@ def limit_cpu(cpu_s: float | None) -> None:
     if hard != resource.RLIM_INFINITY:
         soft = min(soft, hard)
     resource.setrlimit(resource.RLIMIT_CPU, (soft, hard))
+
+
+def worker_environment(directory: str, library: str | None) -> dict[str, str]:
+    """The parent's environment less every SPICE_* and NGSPICE_* variable, with a private HOME.
+
+    The package's own location goes first on PYTHONPATH so the worker imports the same crosscheck.
+    """
+    env = {k: v for k, v in os.environ.items() if not k.upper().startswith(("SPICE_", "NGSPICE_"))}
+    home = os.path.join(directory, "home")
+    os.makedirs(home, exist_ok=True)
+    env["HOME"] = home
+    env["OMP_NUM_THREADS"] = "1"  # ngspice's OpenMP serves transistor models we never use
+    if library:
+        env["NGSPICE_LIBRARY_PATH"] = library
+    package_root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))  # the folder holding crosscheck/
+    env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
+    env.pop("PYTHONSTARTUP", None)
+    return env

@@ -36,7 +36,6 @@ die or hog memory.
 from __future__ import annotations
 
 import atexit
-import math
 import os
 import queue
 import shutil
@@ -51,23 +50,17 @@ import weakref
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
 from multiprocessing.connection import Connection
-from typing import Any, TextIO
+from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
-from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget, limits_rule
+from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget
 from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
-from crosscheck.spice.sandbox import (
-    ENGINE_SOLVE,
-    PROGRESS,
-    WORKER_PREFIX,
-    CaseSolver,
-    Settings,
-    Task,
-    describe_bytes,
-)
+from crosscheck.spice.pool_text import stopped_case_text, terminal_progress
+from crosscheck.spice.sandbox import ENGINE_SOLVE, PROGRESS, WORKER_PREFIX, CaseSolver, Settings, Task
+from crosscheck.spice.sandbox import worker_environment as _worker_environment
 
 #: The defaults of every case's budget (``model.budget``, defined there once): 60 s wall clock, 2 GiB.
 DEFAULT_TIMEOUT_S = DEFAULT_TIME_S
@@ -227,24 +220,6 @@ class _Worker:
             self.conn.close()
         shutil.rmtree(self.directory, ignore_errors=True)
         self._on_process(self, False)
-
-
-def _worker_environment(directory: str, library: str | None) -> dict[str, str]:
-    """The parent's environment less every SPICE_* and NGSPICE_* variable, with a private HOME.
-
-    The package's own location goes first on PYTHONPATH so the worker imports the same crosscheck.
-    """
-    env = {k: v for k, v in os.environ.items() if not k.upper().startswith(("SPICE_", "NGSPICE_"))}
-    home = os.path.join(directory, "home")
-    os.makedirs(home, exist_ok=True)
-    env["HOME"] = home
-    env["OMP_NUM_THREADS"] = "1"  # ngspice's OpenMP serves transistor models we never use
-    if library:
-        env["NGSPICE_LIBRARY_PATH"] = library
-    package_root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
-    env.pop("PYTHONSTARTUP", None)
-    return env
 
 
 class SpicePool:
@@ -463,53 +438,8 @@ class SpicePool:
         return lambda stage, elapsed_s: report(task.network.title, stage, elapsed_s)
 
     def _lost(self, lost: _WorkerLost, task: Task, timeout_s: float) -> ReferenceEngineError:
-        elements, nodes = len(task.network.elements), len(task.network.nodes)
-        limits = (
-            f"this case's limits: {timeout_s:g} s wall clock, {task.cpu_s or self._cpu_s:g} s CPU, "
-            f"{describe_bytes(task.memory_bytes or self._memory_bytes)} memory"
-        )
-        return ReferenceEngineError(
-            f"{lost}; the worker was stopped and replaced, and the other cases go on "
-            f"(network {task.network.title!r}: {elements:,} elements, {nodes:,} nodes; {limits}; "
-            f"{limits_rule()}, unless --timeout/--memory set them). ngspice's time grows about as the "
-            "square of the element count (ordering its matrix): if the network is this large, raise the limits "
-            "with --timeout and --memory; if it is small, report the network."
-        )
-
-
-#: A reference run shows its progress once it has taken this long (seconds).
-PROGRESS_AFTER_S = 2.0
-#: ... and again every this many seconds while it stays in the same analysis.
-PROGRESS_REPEAT_S = 10.0
-
-
-def terminal_progress(stream: TextIO | None = None) -> Callable[[str, str, float], None] | None:
-    """A ``SpicePool`` ``on_progress`` that prints a line for each reference run past ``PROGRESS_AFTER_S``,
-    or None when ``stream`` (standard error by default, where the own route's progress bar goes) is not a
-    terminal: a log or a pipe gets no progress lines.
-
-    The line names the case's title, the analysis ngspice is running (open, short, test) and the elapsed
-    time. The title is the user's, so it is printed through ``repr``: a control character in it cannot act
-    on the terminal; the analysis names are the engine's own fixed words. Printed lines go above the
-    command line's progress bar (rich redirects standard error while its bar is shown).
-    """
-    out = sys.stderr if stream is None else stream
-    if not out.isatty():
-        return None
-    lock = threading.Lock()
-    shown: dict[str, tuple[str, float]] = {}  # per case title: the stage and elapsed time last printed
-
-    def show(title: str, stage: str, elapsed_s: float) -> None:
-        if elapsed_s < PROGRESS_AFTER_S:
-            return
-        with lock:
-            last_stage, last_s = shown.get(title, ("", -math.inf))
-            if stage == last_stage and elapsed_s - last_s < PROGRESS_REPEAT_S and elapsed_s >= last_s:
-                return  # a new stage at once, the same stage every PROGRESS_REPEAT_S
-            shown[title] = (stage, elapsed_s)
-            print(f"ngspice: case {title[:60]!r}: {stage}, {elapsed_s:.0f} s so far", file=out, flush=True)
-
-    return show
+        cpu_s, memory = task.cpu_s or self._cpu_s, task.memory_bytes or self._memory_bytes
+        return ReferenceEngineError(stopped_case_text(str(lost), task.network, timeout_s, cpu_s, memory))
 
 
 def _interrupted() -> ReferenceEngineError:
