@@ -285,6 +285,12 @@ def report_progress_to(sink: Callable[[str], None] | None) -> None:
     _progress_sink = sink
 
 
+def tell_progress(stage: str) -> None:
+    """Say which analysis starts now (our own words: "open at 1 frequency"), to whoever listens."""
+    if _progress_sink is not None:
+        _progress_sink(stage)
+
+
 def solve(
     engine: Engine, network: Network, port: Port, freqs: Iterable[float], strategy: Strategy = DEFAULT_STRATEGY
 ) -> SpiceResult:
@@ -419,9 +425,8 @@ class _Case:
 
     def _run(self, deck: Deck) -> dict[str, dict[str, np.ndarray]]:
         self.decks.append(deck.text)
-        if _progress_sink is not None:
-            count = len(deck.freqs)
-            _progress_sink(f"{' + '.join(deck.runs)} at {count} frequenc{'y' if count == 1 else 'ies'}")
+        count = len(deck.freqs)
+        tell_progress(f"{' + '.join(deck.runs)} at {count} frequenc{'y' if count == 1 else 'ies'}")
         plots, notes = self.engine.run(deck)
         self.notes += [f"ngspice: {n}" for n in notes]
         return plots
