@@ -4,7 +4,9 @@
     python benchmarks/bench.py --quick    # small sizes only: a smoke test that every figure is printed
 
 Not part of CI: timings belong to this machine at this moment (the load average is printed with them).
-Networks come from four topology families (``crosscheck.fuzz.large``), at 100 to 100,000 non-ground nodes:
+Networks come from four topology families (``crosscheck.fuzz.large``), at 100 to 100,000 non-ground nodes
+(the fifth, the power grid, has its own section: ``reference_scale``, the SPICE route at 1k/10k/100k nodes
+beside the own route, AC and DC):
 
 * ladder: series R, shunt C or L and a shunt R at every node (a cable or filter chain);
 * tree: each node hangs from a random one of the 50 before it, R up, C or L down (a distribution feeder);
@@ -41,7 +43,10 @@ import numpy as np
 from crosscheck.fuzz.large import FAMILIES, build
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))  # this script's own folder: its batch sections
-from throughput import report_dask, report_throughput  # noqa: E402  (after the line above, which finds it)
+from reference_scale import QUICK_SIZES as SCALE_QUICK_SIZES  # noqa: E402  (after the line above, which finds it)
+from reference_scale import SIZES as SCALE_SIZES  # noqa: E402
+from reference_scale import report_reference_scale  # noqa: E402
+from throughput import report_dask, report_throughput  # noqa: E402
 from timing import section, timed  # noqa: E402
 
 from crosscheck.model.network import Network
@@ -375,7 +380,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         "--quick", action="store_true", help=f"sizes {', '.join(map(str, QUICK_SIZES))} only, fewer cases: a smoke test"
     )
     parser.add_argument("--sizes", type=int, nargs="+", metavar="N", help="node counts (default 100 1000 10000 100000)")
-    parser.add_argument("--families", nargs="+", choices=FAMILIES, default=list(FAMILIES))
+    parser.add_argument(
+        "--families", nargs="+", choices=FAMILIES, default=[f for f in FAMILIES if f != "powergrid"]
+    )  # the power grid (DC values) has its own section, at 0 Hz: reference_scale
     parser.add_argument(
         "--spice-limit",
         type=float,
@@ -403,6 +410,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     spice_ok = ngspice_available()
     rows = run_routes(args.families, sizes, args.spice_limit, spice_ok)
+    report_reference_scale(SCALE_QUICK_SIZES if args.quick else SCALE_SIZES, None, spice_ok)
     report_growth(rows)
     report_condition_cost(rows)
     report_backends(args.families, [n for n in sizes if n <= 10_000] + ([100_000] if 100_000 in sizes else []))

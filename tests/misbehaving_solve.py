@@ -2,7 +2,7 @@
 
 A pool runs these only when the test builds it with ``solve=MISBEHAVING`` (``SpicePool``'s constructor);
 then a network whose title is in ``TITLES`` makes its worker hang (sleep), spin (burn CPU), die (SIGKILL)
-or hog memory instead of running ngspice, and every other case goes to ngspice as usual. Nothing in the
+or hog memory instead of running ngspice (or, "slow", hold ngspice's answer back for 2.5 s), and every other case goes to ngspice as usual. Nothing in the
 package imports this module, so no netlist can select it.
 """
 
@@ -23,6 +23,7 @@ TITLES = {
     "crosscheck-test-fault:spin": "spin",
     "crosscheck-test-fault:die": "die",
     "crosscheck-test-fault:hog": "hog",
+    "crosscheck-test-fault:slow": "slow",
 }
 
 #: This module's ``solve``, for ``SpicePool(..., solve=MISBEHAVING)``: the worker imports it from this directory.
@@ -43,4 +44,7 @@ def solve(engine: Engine, network: Network, port: Port, freqs: tuple[float, ...]
     elif kind == "hog":
         hoard = [bytearray(1 << 28) for _ in range(64)]  # 16 GiB: past any sane memory limit
         raise AssertionError(f"the memory limit did not stop an allocation of {len(hoard) >> 2} GiB")
-    return engine_solve(engine, network, port, freqs, strategy)
+    result = engine_solve(engine, network, port, freqs, strategy)
+    if kind == "slow":  # ngspice's answer, held back past the progress interval
+        time.sleep(2.5)
+    return result

@@ -44,6 +44,8 @@ LABELS = (
     "same verdicts: yes",
     "overhead per case",
     "total benchmark time",
+    "the SPICE route at scale: power grid",
+    "limit per SPICE run: default limits grow with the network",
 )
 
 
@@ -56,7 +58,8 @@ def test_quick_benchmark_prints_every_figure():
     out = done.stdout
     missing = [label for label in LABELS if label not in out]
     assert not missing, f"labels not printed: {missing}\n{out}"
-    for family in FAMILIES:
+    assert re.search(r"^\s+980\s+1537\s+ac\s+\S+ m?s\s+\S+ m?s\s+\S+ s\s+\d\.\de-\d\d", out, re.MULTILINE), out
+    for family in (f for f in FAMILIES if f != "powergrid"):  # the power grid has its own section, above
         rows = re.findall(rf"^{family}\s+(100|1000)\s+\d+\s+30\s+\S+ m?s\s+\S+ m?s\s+\S+x", out, re.MULTILINE)
         assert len(rows) == 2, f"{family}: expected rows at 100 and 1000 nodes with both routes timed\n{out}"
         assert re.search(rf"^{family}\s+own k = -?\d+\.\d\d", out, re.MULTILINE), f"{family}: no fitted exponent"
@@ -69,7 +72,8 @@ def test_benchmark_networks_are_valid_and_sized(family):
     """Each family builds a valid network with the asked number of nodes (a grid rounds to a square)."""
     network, port = build(family, 400)
     validate(network, port)
-    assert len(network.nodes) == 400
+    # The power grid: 18 rails of 18 nodes and 5 straps of 18 (round(sqrt(400 / 1.25)) = 18).
+    assert len(network.nodes) == (18 * (18 + 5) if family == "powergrid" else 400)
 
 
 def test_fitted_exponent_recovers_a_power_law():

@@ -9,6 +9,21 @@ before allocating anything large; during the sweep it checks the deadline betwee
 The defaults are defined here once (60 s of wall-clock time, 2 GiB of memory per case) and the ngspice
 workers use the same. A limit is never the reason a real network cannot run: the command line's
 ``--timeout`` and ``--memory`` raise it, and every refusal names the flag.
+
+Limits that grow with the network (``scaled_time_s``, ``scaled_memory_bytes``, ``Budget.for_elements``):
+a limit left at its default becomes max(default, rule(elements)); a limit given any other value
+(``--timeout``, ``--memory``, ``Budget(...)``) is used as given. The rule follows ngspice, the slower
+route, whose Sparse 1.3 solver (the packaged library has no KLU) spends nearly all of a large run
+ordering the matrix. Measured, one case at 0 Hz, three separate runs, on this 2-core machine shared with
+other work (``fuzz.large.powergrid``; ngspice's peak RSS in brackets):
+
+* rails and straps: 1,537 elements 0.03 s, 4,823: 0.09 s, 15,900: 0.73 s, 48,034: 9.0 s (204 MiB);
+* both layers full meshes (the hardest for ngspice's ordering): 2,127 elements 0.17 s, 6,793: 1.6 s,
+  22,741: 17.9 s (146 MiB), 67,515: 503 s (339 MiB) -- growing as elements^3.
+
+The time rule is the worst of these, doubled: ``TIME_UNIT_S`` * (elements / ``TIME_UNIT_ELEMENTS``)^3 =
+60 s * (elements / 26,000)^3 (60 s up to 26,000 elements, 1,050 s at 67,500, 14,000 s at 160,000). The
+memory rule, 16 KiB per element over the 2 GiB floor, is many times the peak RSS measured.
 """
 
 from __future__ import annotations
@@ -25,6 +40,33 @@ from crosscheck.errors import CrosscheckError
 DEFAULT_TIME_S = 60.0
 #: Bytes of memory one case may use by default (2 GiB).
 DEFAULT_MEMORY_BYTES = 2 << 30
+
+#: The size-scaled time limit: TIME_UNIT_S seconds * (elements / TIME_UNIT_ELEMENTS) ** TIME_EXPONENT.
+TIME_UNIT_S = 60.0
+TIME_UNIT_ELEMENTS = 26_000
+TIME_EXPONENT = 3
+#: The size-scaled memory limit: MEMORY_PER_ELEMENT bytes per element over the default's floor.
+MEMORY_PER_ELEMENT = 16 << 10
+
+
+def scaled_time_s(elements: int) -> float:
+    """The default wall-clock limit for a network of ``elements`` elements: max(60 s, 60 s * (elements/26,000)^3)."""
+    return max(DEFAULT_TIME_S, TIME_UNIT_S * (elements / TIME_UNIT_ELEMENTS) ** TIME_EXPONENT)
+
+
+def scaled_memory_bytes(elements: int) -> int:
+    """The default memory limit for ``elements`` elements: max(2 GiB, 16 KiB per element)."""
+    return max(DEFAULT_MEMORY_BYTES, MEMORY_PER_ELEMENT * elements)
+
+
+def limits_rule() -> str:
+    """The size rule in words, for messages and the README."""
+    return (
+        f"default limits grow with the network: max({DEFAULT_TIME_S:g} s, {TIME_UNIT_S:g} s x "
+        f"(elements / {TIME_UNIT_ELEMENTS:,})^{TIME_EXPONENT}) and max({describe_memory(DEFAULT_MEMORY_BYTES)}, "
+        f"{MEMORY_PER_ELEMENT >> 10} KiB per element)"
+    )
+
 
 #: Upper bound on the stored matrix entries one element writes (an E or H source's branch row and incidence).
 ENTRIES_PER_ELEMENT = 8
@@ -115,6 +157,13 @@ class Budget:
                 )
             object.__setattr__(self, "time_s", float(t))
         _checked_memory(self.memory_bytes)
+
+    def for_elements(self, elements: int) -> Budget:
+        """This budget for a network of ``elements`` elements: a limit left at its default grows by the size
+        rule (``scaled_time_s``, ``scaled_memory_bytes``); a limit set to anything else stays as set."""
+        time_s = scaled_time_s(elements) if self.time_s == DEFAULT_TIME_S else self.time_s
+        memory = scaled_memory_bytes(elements) if self.memory_bytes == DEFAULT_MEMORY_BYTES else self.memory_bytes
+        return Budget(time_s, memory)
 
     def deadline(self) -> Deadline:
         """A deadline ``time_s`` from now (never, with no time limit)."""

@@ -165,7 +165,8 @@ def _finish(
     own, error = None, None
     try:
         with quiet_numpy() as caught:
-            own = tuple(thevenin(network, Port(*head.port), head.freqs_hz, budget=budget))
+            limits = None if budget is None else budget.for_elements(len(network.elements))  # the size rule
+            own = tuple(thevenin(network, Port(*head.port), head.freqs_hz, budget=limits))
     except CrosscheckError as exc:
         error = f"own solver: {exc}"
     except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:

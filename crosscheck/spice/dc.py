@@ -25,6 +25,7 @@ from crosscheck.model.network import Network, Port, check_excitation, dc_view
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import RUNS, Deck, Run, check_freqs, port_is_voltage_defined
 from crosscheck.spice.op_deck import build_op_deck
+from crosscheck.spice.progress import COMBINED_LIMIT_ELEMENTS, tell_progress
 from crosscheck.spice.reading import check_reading
 from crosscheck.spice.results import SpicePoint, SpiceResult, route_mismatch
 
@@ -92,15 +93,18 @@ class _OperatingPoint:
         self.strategy = "combined"
 
     def solve(self, runs: tuple[Run, ...]) -> None:
-        if len(runs) > 1:
+        klu = bool(getattr(self.engine, "klu", False))
+        if len(runs) > 1 and len(self.network.elements) <= COMBINED_LIMIT_ELEMENTS:
             try:
-                self._read(self._run(build_op_deck(self.network, self.port, runs)))
+                tell_progress(f"{' + '.join(runs)} (operating point)")
+                self._read(self._run(build_op_deck(self.network, self.port, runs, klu=klu)))
                 return
             except CrosscheckError as exc:
                 self.notes.append(f"the combined operating point failed ({_said(exc)}); the runs were repeated alone")
         self.strategy = "separate"
         for run in runs:
-            deck = build_op_deck(self.network, self.port, (run,))
+            tell_progress(f"{run} (operating point)")
+            deck = build_op_deck(self.network, self.port, (run,), klu=klu)
             try:
                 self._read(self._run(deck))
             except CrosscheckError as exc:

@@ -26,6 +26,23 @@ column, as partial pivoting does: with its default (1e-3) ngspice keeps the
 pivot order of the analysis it ran before, and on a network whose pivots
 change size with frequency that cost 1e-5 relative accuracy at condition 164
 (fuzz seed 1001640); with pivrel=1 the same point agrees to 1e-11.
+
+Which options a deck gets is ``deck_options`` (measured with the packaged ngspice 39 shared library,
+Sparse 1.3, no KLU compiled in, on this 2-core machine shared with other work, so times are +-30 %):
+
+* the loss above comes from reusing a pivot order along a sweep: the same three frequencies of seed
+  1001640 run one per deck with the default pivrel agree with the own solver to 9e-10 (V_th 1.2e-10,
+  I_N 9.1e-10, Z_th 4e-19), so ``pivrel=1`` is kept for decks that sweep several frequencies only;
+* its cost at scale depends on the network: a power grid of two full meshes (``fuzz.large.powergrid``,
+  ``mesh=True``; 10,082 nodes, 22,741 elements) at one frequency in the combined deck took 38.0 s
+  with the default pivrel and 92.1 s with pivrel=1 (ordering the matrix is nearly all of it: ngspice's
+  ``rusage`` says "Matrix reorder time"); a grid of rails and straps (30,070 nodes, 48,034 elements,
+  separate decks) 9.0 s with the default and 8.4 s with pivrel=1;
+* ``.options klu`` is written only when the loaded library has KLU (``Engine.klu``): this library
+  accepts the option silently and ignores it (10k mesh grid: 40.6 s with it, 38.0 s without; 30k
+  rails-and-straps grid: 8.7 s with it, 9.0 s without; the library holds no KLU code), so the option
+  alone says nothing about the solver used. Whether ``pivrel=1`` is still needed with KLU could not
+  be measured here for want of a KLU build; the rule above keeps it along sweeps either way.
 """
 
 from __future__ import annotations
@@ -132,17 +149,42 @@ def _linear_grid(fs: Sequence[float]) -> bool:
     )
 
 
-def build_deck(network: Network, port: Port, freqs: Sequence[float], run: Run, *, grids: bool = True) -> Deck:
+def deck_options(*, klu: bool = False, sweep: bool = True) -> str:
+    """The ``.options`` card of every deck crosscheck writes (AC decks here, ``.op`` decks too).
+
+    ``klu``: the loaded library has KLU (``Engine.klu``); ``sweep``: the deck's analysis factors the
+    matrix at more than one frequency, where ngspice reuses its pivot order (then ``pivrel=1``; see
+    the module's docstring for the measurements behind both). ``noopac``: no operating point before
+    an AC analysis (a linear network needs none; it is harmless in an ``.op`` deck).
+    """
+    words = ["noopac"]
+    if klu:
+        words.append("klu")
+    if sweep:
+        words.append("pivrel=1")
+    return ".options " + " ".join(words)
+
+
+def build_deck(
+    network: Network, port: Port, freqs: Sequence[float], run: Run, *, grids: bool = True, klu: bool = False
+) -> Deck:
     """The deck for one run (``open``, ``short`` or ``test``) at ``freqs``."""
-    return build_combined_deck(network, port, freqs, (run,), grids=grids)
+    return build_combined_deck(network, port, freqs, (run,), grids=grids, klu=klu)
 
 
 def build_combined_deck(
-    network: Network, port: Port, freqs: Sequence[float], runs: Sequence[Run] = RUNS, *, grids: bool = True
+    network: Network,
+    port: Port,
+    freqs: Sequence[float],
+    runs: Sequence[Run] = RUNS,
+    *,
+    grids: bool = True,
+    klu: bool = False,
 ) -> Deck:
     """One deck holding a disjoint copy of the network per run; the copies share only ground.
 
     One load and one analysis then give all the runs. With a single run this is the plain deck.
+    ``klu``: ask for ngspice's KLU solver (only when the loaded library has it, ``Engine.klu``).
     """
     validate(network, port)
     runs = tuple(runs)
@@ -153,7 +195,11 @@ def build_combined_deck(
         raise ValueError(f"a run is repeated in {runs!r}; name each run once")
     cards = analysis_cards(freqs, grids=grids)
     kinds = " ".join(runs)
-    lines = [f"crosscheck deck for the {kinds} run{'s' if len(runs) > 1 else ''}", ".options noopac pivrel=1"]
+    distinct = frequency_list(freqs, where="frequencies")
+    lines = [
+        f"crosscheck deck for the {kinds} run{'s' if len(runs) > 1 else ''}",
+        deck_options(klu=klu, sweep=len(distinct) > 1),
+    ]
     names: dict[str, str] = {}
     probes: dict[str, Probe] = {}
     nodes = network.nodes
@@ -180,7 +226,7 @@ def build_combined_deck(
         text="\n".join(lines) + "\n",
         runs=runs,
         probes=probes,
-        freqs=frequency_list(freqs, where="frequencies"),
+        freqs=distinct,
         cards=cards,
         names=names,
     )

@@ -22,10 +22,7 @@ The engine functions here are meant to run inside an isolated worker
 from __future__ import annotations
 
 import bisect
-import ctypes
-import importlib.util
 import logging
-import os
 import time
 from collections.abc import Callable, Iterable, Sequence
 from typing import Literal
@@ -37,12 +34,21 @@ from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.dc import solve_dc
 from crosscheck.spice.deck import RUNS, Deck, Run, build_combined_deck, build_deck, check_freqs, port_is_voltage_defined
+from crosscheck.spice.library import (
+    INSTALL_COMMAND,
+    library_has_klu,
+    library_path,
+    solver_text,
+    version_text,
+)
+from crosscheck.spice.library import (
+    ngspice_available as ngspice_available,  # re-exported: callers ask the engine module whether ngspice is there
+)
+from crosscheck.spice.progress import COMBINED_LIMIT_ELEMENTS, tell_progress
+from crosscheck.spice.progress import report_progress_to as report_progress_to  # re-exported for the worker
 from crosscheck.spice.reading import VECTOR_NAME, ReadingDeck, check_reading
 from crosscheck.spice.results import SpicePoint, SpiceResult, route_mismatch
 from crosscheck.vocabulary import same_frequency
-
-INSTALL_COMMAND = "sudo apt-get install -y libngspice0 libngspice0-dev"
-_LIBRARY_CANDIDATES = ("libngspice.so", "libngspice.so.0")
 
 Strategy = Literal["combined", "separate"]
 #: One combined deck per case costs ngspice about half the time of separate runs on small and medium networks
@@ -52,50 +58,6 @@ DEFAULT_STRATEGY: Strategy = "combined"
 
 #: Words in an ngspice stderr line that mean the run did not do what was asked.
 _FAILURE_WORDS = ("error", "not parsed", "singular", "abort", "unknown", "can't find", "cannot", "fatal")
-
-
-# --------------------------------------------------------------------------- public entry points
-
-
-def ngspice_available(library: str | None = None) -> str | None:
-    """None when PySpice is installed and ngspice's shared library loads; otherwise why not, and the fix.
-
-    Loads the library without starting an engine, so it is safe in any process.
-    """
-    if importlib.util.find_spec("PySpice") is None:
-        return "PySpice is not installed in this Python environment; install it with: pip install 'PySpice>=1.5'"
-    try:
-        _library_path(library)
-    except EngineUnavailableError as exc:
-        return str(exc)
-    return None
-
-
-def _library_path(library: str | None = None) -> str:
-    """The shared library to load: an explicit one, $NGSPICE_LIBRARY_PATH, or the system's.
-
-    Debian's ``libngspice0`` alone provides only ``libngspice.so.0``; ``-dev`` adds ``libngspice.so``.
-    """
-    candidates = (
-        [library]
-        if library
-        else (
-            [os.environ["NGSPICE_LIBRARY_PATH"]]
-            if os.environ.get("NGSPICE_LIBRARY_PATH")
-            else list(_LIBRARY_CANDIDATES)
-        )
-    )
-    reasons = []
-    for path in candidates:
-        try:
-            ctypes.CDLL(path)
-        except OSError as exc:
-            reasons.append(str(exc))
-            continue
-        return path
-    raise EngineUnavailableError(
-        f"ngspice's shared library could not be loaded ({'; '.join(reasons)}); install it with: {INSTALL_COMMAND}"
-    )
 
 
 # --------------------------------------------------------------------------- the engine adapter
@@ -148,7 +110,7 @@ class Engine:
         # we read the lines ourselves.
         logging.getLogger("PySpice").setLevel(logging.CRITICAL + 1)
         cls = _engine_class()
-        path = _library_path(library)
+        path = library_path(library)
         cls.LIBRARY_PATH = path
         try:
             self._ng = cls.new_instance()
@@ -157,8 +119,10 @@ class Engine:
                 f"ngspice's shared library {path!r} could not be started ({exc}); install it with: {INSTALL_COMMAND}"
             ) from None
         banner = [text for _, text in self._ng.lines]
-        self.version = _version_text(banner, self._ng.ngspice_version)
         self._ng.lines.clear()
+        #: The library has ngspice's KLU solver (``library_has_klu``); decks then ask for it (``deck_options``).
+        self.klu = library_has_klu(path)
+        self.version = f"{version_text(banner, self._ng.ngspice_version)}; {solver_text(self.klu)}"
         self.last_lines: tuple[str, ...] = ()  # every line ngspice printed in the last good run
         self.broken = False  # ngspice said it cannot recover from a deck: its worker must retire
 
@@ -234,12 +198,6 @@ def _failures(lines: Sequence[tuple[str, str]]) -> list[str]:
     return []
 
 
-def _version_text(banner: Sequence[str], number: int | None) -> str:
-    build = next((line.split(":", 1)[1].strip() for line in banner if "Creation Date" in line), None)
-    name = f"ngspice-{number}" if number is not None else "ngspice (version not reported)"
-    return f"{name} shared library, built {build}" if build else f"{name} shared library"
-
-
 # --------------------------------------------------------------------------- solving one case
 
 
@@ -272,6 +230,8 @@ def solve(
     # 0 Hz matrix singular and would otherwise stop the whole sweep.
     groups = [g for g in (sorted({f for f in requested if f > 0}), [0.0] if 0.0 in requested else []) if g]
     used = set()
+    if strategy == "combined" and len(network.elements) > COMBINED_LIMIT_ELEMENTS:
+        strategy = "separate"
     for group in groups:
         used.add(case.solve_group(group, runs, strategy))
     points = [_point(case, f, notes[0] if degenerate else None) for f in requested]
@@ -321,6 +281,7 @@ class _Case:
 
     def __init__(self, engine: Engine, network: Network, port: Port):
         self.engine = engine
+        self.klu = bool(getattr(engine, "klu", False))
         self.network = network
         self.port = port
         self.values: dict[tuple[str, float], tuple[float, complex] | None] = {}
@@ -330,7 +291,7 @@ class _Case:
 
     def solve_group(self, freqs: list[float], runs: tuple[Run, ...], strategy: Strategy) -> str:
         if strategy == "combined" and len(runs) > 1:
-            deck = build_combined_deck(self.network, self.port, freqs, runs)
+            deck = build_combined_deck(self.network, self.port, freqs, runs, klu=self.klu)
             try:
                 self._read(deck, self._run(deck))
                 return "combined"
@@ -341,7 +302,7 @@ class _Case:
         return "separate"
 
     def _solve_run(self, run: str, freqs: list[float]) -> None:
-        deck = build_deck(self.network, self.port, freqs, run)  # type: ignore[arg-type]
+        deck = build_deck(self.network, self.port, freqs, run, klu=self.klu)  # type: ignore[arg-type]
         try:
             self._read(deck, self._run(deck))
             return
@@ -367,6 +328,8 @@ class _Case:
 
     def _run(self, deck: Deck) -> dict[str, dict[str, np.ndarray]]:
         self.decks.append(deck.text)
+        count = len(deck.freqs)
+        tell_progress(f"{' + '.join(deck.runs)} at {count} frequenc{'y' if count == 1 else 'ies'}")
         plots, notes = self.engine.run(deck)
         self.notes += [f"ngspice: {n}" for n in notes]
         return plots

@@ -18,14 +18,13 @@ from collections.abc import Sequence
 
 from crosscheck.model.network import GROUND, Network, Port, floating_reference
 from crosscheck.model.validation import validate
-from crosscheck.spice.deck import PORT_SOURCE, RUNS, TEST_SOURCE, Deck, Probe, Run
+from crosscheck.spice.deck import PORT_SOURCE, RUNS, TEST_SOURCE, Deck, Probe, Run, deck_options
 
 #: Today's options line of ``deck`` (noopac has no effect on ``.op``; pivrel=1 as there). When ``deck``
 #: exposes its options as a function (KLU where the library has it), this line is to come from it.
-OPTIONS = ".options noopac pivrel=1"
 
 
-def build_op_deck(network: Network, port: Port, runs: Sequence[Run] = RUNS) -> Deck:
+def build_op_deck(network: Network, port: Port, runs: Sequence[Run] = RUNS, *, klu: bool = False) -> Deck:
     """One ``.op`` deck holding a disjoint copy of ``network`` per run (its sources at their DC values).
 
     ``network`` is the DC view (``model.network.dc_view``'s input is fine too: only ``dc_value`` is written).
@@ -35,7 +34,10 @@ def build_op_deck(network: Network, port: Port, runs: Sequence[Run] = RUNS) -> D
     runs = tuple(runs)
     if any(run not in RUNS for run in runs) or len(set(runs)) != len(runs):
         raise ValueError(f"runs must be distinct names from {', '.join(RUNS)} (got {runs!r})")
-    lines = [f"crosscheck operating-point deck for the {' '.join(runs)} run{'s' if len(runs) > 1 else ''}", OPTIONS]
+    lines = [
+        f"crosscheck operating-point deck for the {' '.join(runs)} run{'s' if len(runs) > 1 else ''}",
+        deck_options(klu=klu, sweep=False),  # one factorisation per run: ngspice's default pivoting is right
+    ]
     names: dict[str, str] = {}
     probes: dict[str, Probe] = {}
     reference = floating_reference(network, port)

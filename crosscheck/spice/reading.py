@@ -18,7 +18,7 @@ Why this path is safe (user text reaches ngspice here, and only here):
   letter, ``+`` or ``.``, and any line holding a backtick (ngspice's shell substitution), a control
   character or ``.control``/``.endc``/``.include``/``.inc``/``.lib`` anywhere is refused with an
   error finding and the deck is never sent;
-* the deck's title, options and analysis cards are ours (``TITLE``, ``OPTIONS``, ``deck.analysis_cards``);
+* the deck's title, options and analysis cards are ours (``TITLE``, ``deck.deck_options``, ``deck.analysis_cards``);
   no control command carries user text: the element values for the explanation are read through the
   shared library's vector interface (``ngGet_Vec_Info("@name[param]")``), never by a command, and only
   for element names of the model that match ``VECTOR_NAME``;
@@ -55,11 +55,10 @@ import numpy as np
 from crosscheck.errors import CrosscheckError
 from crosscheck.model.frequencies import frequency_list
 from crosscheck.model.network import GROUND, Element, Network, Port, check_excitation, floating_reference
-from crosscheck.spice.deck import analysis_cards
+from crosscheck.spice.deck import analysis_cards, deck_options
 from crosscheck.vocabulary import same_frequency
 
 TITLE = "crosscheck reading check: the netlist's own accepted lines"
-OPTIONS = ".options noopac pivrel=1"
 #: ngspice's reading and its run of the model's deck are the same engine on the same network when the
 #: reader is right; a relative difference above this makes the worker read the element values.
 TRIGGER_REL = 1e-9
@@ -183,7 +182,9 @@ def unsafe_line(line: str) -> str | None:
     return "it starts with neither a letter, '+' nor '.'"
 
 
-def build_reading_deck(network: Network, port: Port, freqs: Sequence[float], *, save: bool = True) -> ReadingDeck:
+def build_reading_deck(
+    network: Network, port: Port, freqs: Sequence[float], *, save: bool = True, klu: bool = False
+) -> ReadingDeck:
     """The deck: our title, the accepted lines verbatim, our options, ``.save`` and ``.ac`` cards, ``.end``.
 
     Under DC excitation (``network.excitation == "dc"``, 0 Hz only) the analysis card is ``.op``: the user's
@@ -208,7 +209,7 @@ def build_reading_deck(network: Network, port: Port, freqs: Sequence[float], *, 
         TITLE,
         *network.source_lines,
         *ours,
-        OPTIONS,
+        deck_options(klu=klu, sweep=not operating_point and len(freqs) > 1),
         *(_save_card(port) if save else []),
         *((".op",) if operating_point else analysis_cards(freqs)),
         ".end",
@@ -265,7 +266,7 @@ def check_reading(
     run = _ReadingRun(engine, network, reference)
     for group in reading_groups(groups):
         try:
-            deck = build_reading_deck(network, port, group)
+            deck = build_reading_deck(network, port, group, klu=bool(getattr(engine, "klu", False)))
         except UnsafeLineError as exc:
             return ReadingAnswer(requested, nothing, refused=str(exc))
         run.decks.append(deck.text)
@@ -275,7 +276,7 @@ def check_reading(
             except CrosscheckError:  # ngspice aborts a run whose .save names a node it lacks: keep every node
                 if not _save_card(port):
                     raise
-                deck = build_reading_deck(network, port, group, save=False)
+                deck = build_reading_deck(network, port, group, save=False, klu=bool(getattr(engine, "klu", False)))
                 run.decks[-1] = deck.text
                 engine.run(deck, functools.partial(run.loaded, deck))
         except CrosscheckError as exc:

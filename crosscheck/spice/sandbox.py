@@ -4,7 +4,11 @@ A worker is a fresh interpreter started by ``crosscheck.spice.workers`` (``child
 parent over a socket pair. Before loading ngspice it enters the directory and environment the parent
 prepared (an empty directory, a private empty ``HOME``: ngspice executes a ``.spiceinit`` found in
 either), limits its address space (``RLIMIT_AS``) and its CPU time per case (``RLIMIT_CPU``), and writes
-no core files.
+no core files. Both limits are set again for each case from the case's own (``Task``), which grow with
+the network's size by ``model.budget``'s rule unless the caller set them.
+
+While it solves a case the worker tells its parent which analysis it starts (``PROGRESS`` messages,
+``engine.report_progress_to``): fixed words of ours and a count, never text from the case.
 
 Which function solves a case is a ``CaseSolver`` the parent's ``SpicePool`` sends once, in the worker's
 settings: ``engine.solve`` unless the code that built the pool named another (the worker tests name
@@ -33,7 +37,7 @@ from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.network import Network, Port
-from crosscheck.spice.engine import Engine, SpiceResult, Strategy
+from crosscheck.spice.engine import Engine, SpiceResult, Strategy, report_progress_to
 
 
 @dataclass(frozen=True)
@@ -64,6 +68,10 @@ WORKER_PREFIX = "crosscheck-ngspice-"
 #: Linux ``prctl`` option that sends this process a signal when the thread that started it ends.
 _PR_SET_PDEATHSIG = 1
 
+#: The first item of a progress message from a worker: (PROGRESS, which analysis started). A case's outcome
+#: is ((status, value), retire), whose first item is a tuple, so the two never mix.
+PROGRESS = "progress"
+
 #: ngspice's own solve: what every pool uses unless its constructor is told otherwise.
 ENGINE_SOLVE = CaseSolver()
 
@@ -88,6 +96,9 @@ class Task:
     port: Port
     freqs: tuple[float, ...]
     strategy: Strategy
+    #: This case's own limits (``Budget.for_elements``, the pool's ``submit``); None: the worker's settings.
+    cpu_s: float | None = None
+    memory_bytes: int | None = None
 
 
 def describe_bytes(n: int | None) -> str:
@@ -160,6 +171,8 @@ def worker_main(conn: Any, settings: Settings) -> None:
     except CrosscheckError as exc:
         startup_error = exc
     conn.send(("ready", engine.version if engine else None))
+    # Which analysis starts, for the parent's progress line (``workers``); our own words, never a case's.
+    report_progress_to(lambda stage: conn.send((PROGRESS, stage)))
     done = 0
     while True:
         try:
@@ -169,7 +182,8 @@ def worker_main(conn: Any, settings: Settings) -> None:
             return
         if task is None:
             return
-        limit_cpu(settings.cpu_s)
+        limit_cpu(task.cpu_s or settings.cpu_s)
+        limit_memory(task.memory_bytes or settings.memory_bytes)
         outcome, retire = _one_case(solve_case, engine, startup_error, task, settings)
         done += 1
         retire = retire or done >= settings.cases_per_worker
@@ -213,15 +227,22 @@ def enter_sandbox(settings: Settings) -> str | None:
     """Resource limits, and the working directory and environment the parent prepared. Returns the library path.
 
     The parent already started this process in an empty directory with a private HOME and no
-    SPICE_* / NGSPICE_* variables but the library path (``workers._worker_environment``).
+    SPICE_* / NGSPICE_* variables but the library path (``worker_environment``).
     """
     os.chdir(os.path.join(settings.directory, "work"))
     resource.setrlimit(resource.RLIMIT_CORE, (0, 0))
-    if settings.memory_bytes:
-        _, hard = resource.getrlimit(resource.RLIMIT_AS)
-        limit = settings.memory_bytes if hard == resource.RLIM_INFINITY else min(hard, settings.memory_bytes)
-        resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
+    limit_memory(settings.memory_bytes)
     return settings.library or os.environ.get("NGSPICE_LIBRARY_PATH") or None
+
+
+def limit_memory(memory_bytes: int | None) -> None:
+    """Hold this process's address space to ``memory_bytes`` (the soft ``RLIMIT_AS``; the hard limit stays,
+    so a later, larger case may raise it again: ``Task.memory_bytes``, from the size rule of ``model.budget``)."""
+    if not memory_bytes:
+        return
+    _, hard = resource.getrlimit(resource.RLIMIT_AS)
+    limit = memory_bytes if hard == resource.RLIM_INFINITY else min(hard, memory_bytes)
+    resource.setrlimit(resource.RLIMIT_AS, (limit, hard))
 
 
 def limit_cpu(cpu_s: float | None) -> None:
@@ -234,3 +255,21 @@ def limit_cpu(cpu_s: float | None) -> None:
     if hard != resource.RLIM_INFINITY:
         soft = min(soft, hard)
     resource.setrlimit(resource.RLIMIT_CPU, (soft, hard))
+
+
+def worker_environment(directory: str, library: str | None) -> dict[str, str]:
+    """The parent's environment less every SPICE_* and NGSPICE_* variable, with a private HOME.
+
+    The package's own location goes first on PYTHONPATH so the worker imports the same crosscheck.
+    """
+    env = {k: v for k, v in os.environ.items() if not k.upper().startswith(("SPICE_", "NGSPICE_"))}
+    home = os.path.join(directory, "home")
+    os.makedirs(home, exist_ok=True)
+    env["HOME"] = home
+    env["OMP_NUM_THREADS"] = "1"  # ngspice's OpenMP serves transistor models we never use
+    if library:
+        env["NGSPICE_LIBRARY_PATH"] = library
+    package_root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))  # the folder holding crosscheck/
+    env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
+    env.pop("PYTHONSTARTUP", None)
+    return env

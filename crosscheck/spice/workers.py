@@ -45,6 +45,7 @@ import subprocess
 import sys
 import tempfile
 import threading
+import time
 import weakref
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
@@ -57,11 +58,15 @@ from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
-from crosscheck.spice.sandbox import ENGINE_SOLVE, WORKER_PREFIX, CaseSolver, Settings, Task, describe_bytes
+from crosscheck.spice.pool_text import stopped_case_text, terminal_progress
+from crosscheck.spice.sandbox import ENGINE_SOLVE, PROGRESS, WORKER_PREFIX, CaseSolver, Settings, Task
+from crosscheck.spice.sandbox import worker_environment as _worker_environment
 
 #: The defaults of every case's budget (``model.budget``, defined there once): 60 s wall clock, 2 GiB.
 DEFAULT_TIMEOUT_S = DEFAULT_TIME_S
 _START_TIMEOUT_S = 60.0  # a worker's interpreter, numpy, PySpice and ngspice: ~0.5 s when well
+#: How often a running case's progress is reported (``SpicePool(on_progress=...)``), in seconds.
+PROGRESS_EVERY_S = 2.0
 
 
 # --------------------------------------------------------------------------- in the parent
@@ -135,18 +140,33 @@ class _Worker:
         except (EOFError, OSError):
             raise _WorkerLost(f"the ngspice worker died while starting ({self._exit_text()})") from None
 
-    def call(self, task: Task, timeout_s: float) -> tuple[tuple[str, Any], bool]:
+    def call(
+        self, task: Task, timeout_s: float, on_progress: Callable[[str, float], None] | None = None
+    ) -> tuple[tuple[str, Any], bool]:
+        """The case's outcome; ``on_progress(analysis, elapsed_s)`` hears of it every ``PROGRESS_EVERY_S`` or so."""
         assert self.conn is not None, "a _Worker that exists has started (or __init__ raised)"
         try:
             self.conn.send(task)
         except (BrokenPipeError, EOFError, OSError):
             raise _WorkerLost(f"the ngspice worker was gone before the case started ({self._exit_text()})") from None
-        if not self.conn.poll(timeout_s):
-            raise _WorkerLost(f"ngspice did not finish this case within {timeout_s:g} s of wall-clock time")
-        try:
-            return self.conn.recv()
-        except (EOFError, OSError):
-            raise _WorkerLost(f"the ngspice worker died while running this case ({self._exit_text()})") from None
+        started = time.monotonic()
+        stage = "loading the deck"
+        while True:
+            left = started + timeout_s - time.monotonic()
+            if left <= 0:
+                raise _WorkerLost(f"ngspice did not finish this case within {timeout_s:g} s of wall-clock time")
+            if not self.conn.poll(min(left, PROGRESS_EVERY_S)):
+                if on_progress is not None:
+                    on_progress(stage, time.monotonic() - started)
+                continue
+            try:
+                message = self.conn.recv()
+            except (EOFError, OSError):
+                raise _WorkerLost(f"the ngspice worker died while running this case ({self._exit_text()})") from None
+            if isinstance(message, tuple) and len(message) == 2 and message[0] == PROGRESS:
+                stage = str(message[1])
+                continue
+            return message
 
     def _exit_text(self) -> str:
         if self.process is None:
@@ -202,24 +222,6 @@ class _Worker:
         self._on_process(self, False)
 
 
-def _worker_environment(directory: str, library: str | None) -> dict[str, str]:
-    """The parent's environment less every SPICE_* and NGSPICE_* variable, with a private HOME.
-
-    The package's own location goes first on PYTHONPATH so the worker imports the same crosscheck.
-    """
-    env = {k: v for k, v in os.environ.items() if not k.upper().startswith(("SPICE_", "NGSPICE_"))}
-    home = os.path.join(directory, "home")
-    os.makedirs(home, exist_ok=True)
-    env["HOME"] = home
-    env["OMP_NUM_THREADS"] = "1"  # ngspice's OpenMP serves transistor models we never use
-    if library:
-        env["NGSPICE_LIBRARY_PATH"] = library
-    package_root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
-    env.pop("PYTHONSTARTUP", None)
-    return env
-
-
 class SpicePool:
     """ngspice in ``workers`` isolated processes; ``submit`` returns a ``Future[SpiceResult]``.
 
@@ -232,6 +234,11 @@ class SpicePool:
 
     ``solve``: the function each worker calls per case (``sandbox.CaseSolver``); ngspice's
     ``engine.solve`` unless a test names one of its own.
+
+    Limits: a case submitted without its own ``timeout_s`` gets ``Budget.for_elements``: the pool's
+    limits, grown by ``model.budget``'s size rule where they are the defaults. ``on_progress(title,
+    analysis, elapsed_s)`` hears of every running case about every ``PROGRESS_EVERY_S`` seconds (from
+    the pool's threads); by default ``terminal_progress`` prints it when standard error is a terminal.
     """
 
     def __init__(
@@ -246,6 +253,7 @@ class SpicePool:
         cases_per_worker: int = 1000,
         start_timeout_s: float = _START_TIMEOUT_S,
         solve: CaseSolver = ENGINE_SOLVE,
+        on_progress: Callable[[str, str, float], None] | None = None,
     ):
         count = (os.cpu_count() or 1) if workers is None else int(workers)
         if count < 1:
@@ -254,8 +262,10 @@ class SpicePool:
         self.workers = count
         self.timeout_s = float(timeout_s)
         self.strategy = strategy
+        self._cpu_given = cpu_s is not None
         self._cpu_s = float(cpu_s) if cpu_s is not None else self.timeout_s
         self._memory_bytes = memory_bytes
+        self._on_progress = on_progress if on_progress is not None else terminal_progress()
         # Every worker's settings but its directory (``_settings_for`` adds that).
         self._settings: Callable[[str], Settings] = lambda directory: Settings(
             directory,
@@ -304,11 +314,14 @@ class SpicePool:
                 validate(network, port)
                 if (strategy or self.strategy) not in ("combined", "separate"):
                     raise ValueError(f"strategy must be 'combined' or 'separate' (got {strategy!r})")
-                task = Task(network, port, check_freqs(freqs), strategy or self.strategy)
+                limits = Budget(self.timeout_s, self._memory_bytes).for_elements(len(network.elements))
+                case_time_s = float(timeout_s or limits.time_s or self.timeout_s)
+                cpu_s = self._cpu_s if self._cpu_given else case_time_s
+                task = Task(network, port, check_freqs(freqs), strategy or self.strategy, cpu_s, limits.memory_bytes)
             except (CrosscheckError, ValueError) as exc:
                 future.set_exception(exc)
                 return future
-            self._queue.put((future, task, float(timeout_s or self.timeout_s)))
+            self._queue.put((future, task, case_time_s))
         return future
 
     def map(self, cases: Iterable[tuple[Network, Port, Sequence[float]]]) -> Iterator[SpiceResult | CrosscheckError]:
@@ -391,13 +404,13 @@ class SpicePool:
                 try:
                     if worker is None:
                         worker = _Worker(self._settings_for, self._start_timeout_s, self._worker_process)
-                    (status, value), retire = worker.call(task, timeout_s)
+                    (status, value), retire = worker.call(task, timeout_s, self._progress_of(task))
                 except _WorkerLost as lost:
                     if worker is not None:
                         worker.kill()
                         worker = None
                     self._count("cancelled" if self._cancelled else "finished")
-                    future.set_exception(_interrupted() if self._cancelled else self._lost(lost, task))
+                    future.set_exception(_interrupted() if self._cancelled else self._lost(lost, task, timeout_s))
                     continue
                 except BaseException as exc:  # never leave a future unresolved
                     future.set_exception(ReferenceEngineError(f"the ngspice pool failed: {type(exc).__name__}: {exc}"))
@@ -417,17 +430,16 @@ class SpicePool:
     def _settings_for(self, directory: str) -> Settings:
         return self._settings(directory)
 
-    def _lost(self, lost: _WorkerLost, task: Task) -> ReferenceEngineError:
-        limits = (
-            f"limits: {self.timeout_s:g} s wall clock, {self._cpu_s:g} s CPU, "
-            f"{describe_bytes(self._memory_bytes)} memory"
-        )
-        return ReferenceEngineError(
-            f"{lost}; the worker was stopped and replaced, and the other cases go on "
-            f"(network {task.network.title!r}, {len(task.network.elements)} elements, {limits}). "
-            "A linear network of this kind takes milliseconds in ngspice: if it is very large, raise the limits; "
-            "otherwise report the network."
-        )
+    def _progress_of(self, task: Task) -> Callable[[str, float], None] | None:
+        """The pool's ``on_progress`` for this case's title (None when nobody listens)."""
+        report = self._on_progress
+        if report is None:
+            return None
+        return lambda stage, elapsed_s: report(task.network.title, stage, elapsed_s)
+
+    def _lost(self, lost: _WorkerLost, task: Task, timeout_s: float) -> ReferenceEngineError:
+        cpu_s, memory = task.cpu_s or self._cpu_s, task.memory_bytes or self._memory_bytes
+        return ReferenceEngineError(stopped_case_text(str(lost), task.network, timeout_s, cpu_s, memory))
 
 
 def _interrupted() -> ReferenceEngineError:
@@ -467,9 +479,15 @@ def shared_pool() -> SpicePool:
 
 
 def spice_equivalent(
-    network: Network, port: Port, freqs: Iterable[float], timeout_s: float = 60.0, strategy: Strategy = DEFAULT_STRATEGY
+    network: Network,
+    port: Port,
+    freqs: Iterable[float],
+    timeout_s: float | None = None,
+    strategy: Strategy = DEFAULT_STRATEGY,
 ) -> SpiceResult:
     """ngspice's equivalent of ``network`` at ``port``, computed in an isolated worker process.
+
+    ``timeout_s``: the wall-clock limit; None: the default, grown with the network (``model.budget``).
 
     For one-off calls (it uses ``shared_pool``); a batch should use a ``SpicePool`` directly.
     Raises ``ReferenceEngineError`` (ngspice's own words) or ``EngineUnavailableError``.
