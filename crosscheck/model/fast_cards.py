@@ -241,15 +241,16 @@ def trap_values(careful: Sequence[ValueText], plain: PlainCards) -> list[ValueTe
     """The fast path's value texts that ``model.traps.find_traps`` needs besides the card path's ``careful``
     ones: the same warnings as with every text, with few texts to scan.
 
-    Every rule on an R, L or C value looks at its scale suffix: a numeral with no letter after it cannot
-    set one off. Such texts only enter ``suffix-mega-mixed``'s median of the other resistors, which is
-    looked at only when some resistor's text has an ``m`` or ``M`` (the milli rule's letter): then every
-    text is passed. A new rule on numerals without letters must be added to this test.
+    Every rule on an R, L or C value needs an ``m`` or ``M`` in its text (``1MHz``, ``1M`` among kilohms)
+    or a text ending in ``F`` or ``f`` (femto): no other text can set one off. Other texts only enter
+    ``suffix-mega-mixed``'s median of the other resistors, which is looked at only when some resistor's
+    text has an ``m``: then every text is passed. A new rule must be added to this test.
     """
-    lettered = plain.value_texts(k for k, text in enumerate(plain.texts) if text[-1:].isalpha())
-    if any("m" in v.text.lower() for v in (*careful, *lettered) if v.kind == "r"):
-        return plain.value_texts(range(len(plain.texts)))
-    return lettered
+    texts = plain.texts
+    marked = plain.value_texts(k for k, text in enumerate(texts) if "m" in text.lower() or text[-1:] in ("f", "F"))
+    if any("m" in v.text.lower() for v in (*careful, *marked) if v.kind == "r"):
+        return plain.value_texts(range(len(texts)))
+    return marked
 
 
 @contextmanager
