@@ -15,16 +15,21 @@ warnings; the lines accepted become ``Network.source_lines``.
 
 from __future__ import annotations
 
-import re
 from dataclasses import replace
 from os import PathLike
 
-from crosscheck.errors import Location, NetlistError, ValueSyntaxError
+from crosscheck.errors import NetlistError, ValueSyntaxError
 from crosscheck.model.control_blocks import ControlBlocks
-from crosscheck.model.files import InputFileError, read_regular
+from crosscheck.model.fast_cards import PlainCards, PlainLines, merge_by_line, no_cyclic_gc, trap_values, walk
 from crosscheck.model.netlist_cards import Card, ConsequenceError, Tok, show
-from crosscheck.model.netlist_encoding import decode_netlist_bytes, decode_netlist_bytes_with_notes
-from crosscheck.model.netlist_fields import split_fields
+from crosscheck.model.netlist_encoding import (
+    MAX_NETLIST_CHARS,
+    decode_netlist_bytes,
+    decode_netlist_bytes_with_notes,
+    read_netlist_text,
+    read_netlist_text_with_notes,
+)
+from crosscheck.model.netlist_fields import split_fields, strip_comment
 from crosscheck.model.netlist_params import ParamReader
 from crosscheck.model.netlist_subset import (
     CONTROL_CHAR,
@@ -62,13 +67,11 @@ __all__ = [
 MAX_ELEMENTS = 200_000  # elements (and subcircuit instances) after flattening
 MAX_LINE_CHARS = 100_000
 MAX_SUBCKT_DEPTH = 50
-MAX_TEXT_CHARS = 64 * 2**20
+MAX_TEXT_CHARS = MAX_NETLIST_CHARS
 #: Problems listed in one error; the rest are counted ("... and 7 more").
 MAX_PROBLEMS = 20
 
-_DOLLAR_COMMENT = re.compile(r"(?:^|\s)\$(?:\s|$)")
 _OPTIONS = (".options", ".option", ".opt", ".opts")
-_NUMERIC_START = re.compile(r"^[+-]?(?:\d|\.\d|\{)")
 
 
 # --------------------------------------------------------------------------- public API
@@ -109,7 +112,8 @@ def read_netlist_reading(
     (``no-ac-source`` or ``no-dc-source``, ``traps.for_excitation``).
     """
     check_excitation(excitation, (), "excitation")
-    network, reading = _Reader(file).read(text, allow_negative, port)
+    with no_cyclic_gc():
+        network, reading = _Reader(file).read(text, allow_negative, port)
     if excitation != network.excitation:
         network = replace(network, excitation=excitation)
     return network, replace(reading, warnings=for_excitation(reading.warnings, excitation))
@@ -139,28 +143,7 @@ def read_netlist_file_reading(
     return network, replace(reading, notes=decoding + reading.notes)
 
 
-def read_netlist_text(path: str | PathLike) -> str:
-    """The text of a netlist file; unreadable, oversized or binary files are refused (see the notes variant)."""
-    return read_netlist_text_with_notes(path)[0]
-
-
-def read_netlist_text_with_notes(path: str | PathLike) -> tuple[str, tuple[str, ...]]:
-    """The text of a netlist file and a note when it was decoded from UTF-16 or Windows-1252."""
-    file = str(path)
-    try:
-        data = read_regular(path, MAX_TEXT_CHARS)
-    except InputFileError as exc:
-        raise NetlistError(f"cannot read the netlist: {exc}; check the path", Location(file)) from None
-    return decode_netlist_bytes_with_notes(data, file)
-
-
 # --------------------------------------------------------------------------- lines, cards, fields
-
-
-def _strip_comment(line: str) -> str:
-    line = line.split(";", 1)[0]
-    dollar = _DOLLAR_COMMENT.search(line)
-    return line[: dollar.start()] if dollar else line
 
 
 class _Reader(ParamReader):
@@ -169,8 +152,10 @@ class _Reader(ParamReader):
     Each card's problem is kept (``problem``) and reading goes on, so one pass finds them all.
     """
 
-    def __init__(self, file: str):
+    def __init__(self, file: str, fast: bool = True):
         super().__init__(file)
+        self.fast = fast  # plain R L C lines read in bulk (``model.fast_cards``); False: every line as a card
+        self.plain = PlainCards([], [], [])
         self.count = 0
         self.problems: list[tuple[NetlistError, str | None]] = []  # the error, the card's text
         self.stripped: dict[int, str] = {}  # each card line without its comment, for ``source_lines``
@@ -225,42 +210,54 @@ class _Reader(ParamReader):
         return None
 
     def cards(self, text: str) -> tuple[str, list[Card], int]:
-        """The title and the cards (continuations joined, comments and .control blocks dropped)."""
+        """The title and the cards (continuations joined, comments and .control blocks dropped); plain
+        R L C lines at the top level are read in bulk into ``self.plain`` (``model.fast_cards``)."""
         lines = self.lines(text)
-        cards: list[Card] = []
-        blocks = ControlBlocks()
-        last = 1
-        for number, raw in enumerate(lines, start=1):
-            bad = self.line_problem(raw, number)
-            if bad is not None:
-                self.problem(bad)
-                continue
-            stripped = _strip_comment(raw).strip() if number > 1 else ""
-            if not stripped or stripped.startswith("*") or blocks.take(number, stripped):
-                continue
-            last = number
-            if stripped.startswith("+"):
-                if not cards:
-                    self.problem(
-                        self.err(
-                            "a + continuation line with no card before it (line 1 is always the title); "
-                            "join it to a card or remove the +",
-                            number,
-                        )
-                    )
-                    continue
-                cards[-1].extend(stripped[1:], number)
-            elif stripped.split(None, 1)[0].lower() == ".end":
-                if any(_strip_comment(rest).strip() for rest in lines[number:]):
-                    self.note("text after .end ignored", number)
-                break
-            else:
-                cards.append(Card(stripped, number, [(0, number)]))
-            self.stripped[number] = stripped
-        self.control_notes(blocks, last)
-        for card in cards:
+        self.all_lines, self.blocks, self.last, self.depth = lines, ControlBlocks(), 1, 0
+        self.card_list: list[Card] = []
+        plain = PlainLines(lines) if self.fast and len(lines) <= MAX_ELEMENTS else None  # else the limit's line
+        walk(lines, plain, self.card_line, lambda: self.blocks.open is None and not self.depth)
+        if plain is not None:
+            self.plain = plain.cards(self.file)
+            self.stripped.update(zip(self.plain.numbers, self.plain.stripped))
+            self.last = max([self.last, *self.plain.numbers[-1:]])
+        self.control_notes(self.blocks, self.last)
+        for card in self.card_list:
             card.join()
-        return lines[0].lstrip("\ufeff").strip(), cards, last
+        return lines[0].lstrip("\ufeff").strip(), self.card_list, self.last
+
+    def card_line(self, number: int) -> bool:
+        """One physical line into the cards (``self.depth`` counts open .subckt cards); True at ``.end``."""
+        raw, cards = self.all_lines[number - 1], self.card_list
+        bad = self.line_problem(raw, number)
+        if bad is not None:
+            self.problem(bad)
+            return False
+        stripped = strip_comment(raw).strip() if number > 1 else ""
+        if not stripped or stripped.startswith("*") or self.blocks.take(number, stripped):
+            return False
+        self.last = number
+        word = stripped.split(None, 1)[0].lower()
+        if stripped.startswith("+"):
+            if not cards:
+                self.problem(
+                    self.err(
+                        "a + continuation line with no card before it (line 1 is always the title); "
+                        "join it to a card or remove the +",
+                        number,
+                    )
+                )
+                return False
+            cards[-1].extend(stripped[1:], number)
+        elif word == ".end":
+            if any(strip_comment(rest).strip() for rest in self.all_lines[number:]):
+                self.note("text after .end ignored", number)
+            return True
+        else:
+            cards.append(Card(stripped, number, [(0, number)]))
+            self.depth = self.depth + 1 if word == ".subckt" else max(self.depth - (word == ".ends"), 0)
+        self.stripped[number] = stripped
+        return False
 
     def control_notes(self, blocks: ControlBlocks, end: int) -> None:
         """A note per skipped .control block; a block with no .endc is a problem named at its .control line."""
@@ -404,13 +401,13 @@ class _Reader(ParamReader):
 
     def protos(self, cards: list[tuple[Card, list[Tok]]]) -> list[Element | Instance]:
         """The top level's elements and instances; a card that cannot be read becomes a problem."""
-        out: list[Element | Instance] = []
+        out: list[tuple[int, tuple[Element | Instance, ...]]] = []
         for card, toks in cards:
             try:
-                out.extend(self.read_card(card, toks))
+                out.append((card.line, self.read_card(card, toks)))
             except NetlistError as exc:
                 self.problem(exc, card)
-        return out
+        return merge_by_line(self.plain.numbers, self.plain.elements, out)
 
     def read_card(self, card: Card, toks: list[Tok]) -> tuple[Element | Instance, ...]:
         """One card's element (an RF port source adds its internal resistor); its value text kept for ``traps``."""
@@ -475,11 +472,13 @@ class _Reader(ParamReader):
         network = Network(title, tuple(elements), allow_negative=allow_negative, source_lines=self.source_lines())
         validate(network, port)
         notes = tuple(dict.fromkeys(text for _, text in sorted(self.notes, key=lambda note: note[0])))
-        return network, Reading(notes, find_traps(title, self.values, network, self.file))
+        return network, Reading(
+            notes, find_traps(title, self.values + trap_values(self.values, self.plain), network, self.file)
+        )
 
     def source_lines(self) -> tuple[str, ...]:
         """The accepted cards' physical lines in file order, comments removed, + continuations kept."""
-        lines = sorted(number for card in self.accepted for _, number in card.starts)
+        lines = sorted([*(number for card in self.accepted for _, number in card.starts), *self.plain.numbers])
         return tuple(self.stripped[number] for number in lines)
 
     def check_globals(self, elements: list[Element]) -> None:

@@ -11,8 +11,13 @@ control characters and everything outside its whitelist, so this path adds no ne
 from __future__ import annotations
 
 import codecs
+from os import PathLike
 
 from crosscheck.errors import Location, NetlistError
+from crosscheck.model.files import InputFileError, read_regular
+
+#: The longest netlist file read (``model.netlist.MAX_TEXT_CHARS`` is the same limit on text).
+MAX_NETLIST_CHARS = 64 * 2**20
 
 __all__ = ["decode_netlist_bytes", "decode_netlist_bytes_with_notes"]
 
@@ -91,3 +96,18 @@ def _windows_1252(data: bytes, start: int, file: str) -> tuple[str, tuple[str, .
         f"on this line was read as {text[start]!r}, and the whole file as Windows-1252 (Latin-1); "
         "save it as UTF-8 to be sure each character is what you meant",
     )
+
+
+def read_netlist_text(path: str | PathLike) -> str:
+    """The text of a netlist file; unreadable, oversized or binary files are refused (see the notes variant)."""
+    return read_netlist_text_with_notes(path)[0]
+
+
+def read_netlist_text_with_notes(path: str | PathLike) -> tuple[str, tuple[str, ...]]:
+    """The text of a netlist file and a note when it was decoded from UTF-16 or Windows-1252."""
+    file = str(path)
+    try:
+        data = read_regular(path, MAX_NETLIST_CHARS)
+    except InputFileError as exc:
+        raise NetlistError(f"cannot read the netlist: {exc}; check the path", Location(file)) from None
+    return decode_netlist_bytes_with_notes(data, file)

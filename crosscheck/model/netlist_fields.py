@@ -13,14 +13,22 @@ from collections.abc import Callable
 from crosscheck.errors import NetlistError
 from crosscheck.model.netlist_cards import Card, Tok, show
 
-__all__ = ["split_fields"]
+__all__ = ["split_fields", "strip_comment"]
 
 #: Makes the error for a message and a line (the reader's ``err``, which adds the file).
 Error = Callable[[str, "int | None"], NetlistError]
 
+_DOLLAR_COMMENT = re.compile(r"(?:^|\s)\$(?:\s|$)")
 _FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}=']+|=)|(?P<open>[({'])|(?P<close>[)}]))")
 _PLAIN = re.compile(r"^[^,(){}=']*$")
 _CLOSING = {"(": ")", "{": "}", "'": "'"}
+
+
+def strip_comment(line: str) -> str:
+    """The line without its ``;`` comment or ``$`` comment (a ``$`` with blanks or the line's ends around it)."""
+    line = line.split(";", 1)[0]
+    dollar = _DOLLAR_COMMENT.search(line)
+    return line[: dollar.start()] if dollar else line
 
 
 def split_fields(card: Card, err: Error) -> list[Tok]:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import io
 import math
+import threading
 from collections.abc import Sequence
 from typing import Any
 
@@ -163,7 +164,7 @@ def _expectation_points(axes: dict, result: CaseResult) -> None:
 
 
 def _error_panel(ax, result: CaseResult, freqs: np.ndarray, keep: np.ndarray) -> None:
-    ax.set_title("solver vs SPICE: judged relative error")
+    ax.set_title("solver vs SPICE: judged relative error", y=1.0)  # y given: no title placement pass
     ax.set_xscale("log")
     ax.set_xlabel("frequency (Hz)")
     if not result.points:
@@ -189,7 +190,7 @@ def _error_panel(ax, result: CaseResult, freqs: np.ndarray, keep: np.ndarray) ->
 
 
 def _other_limits_panel(ax, result: CaseResult, checks: list[LimitCheck]) -> None:
-    ax.set_title("other limited quantities")
+    ax.set_title("other limited quantities", y=1.0)
     ax.set_xscale("log")
     ax.set_xlabel("frequency (Hz)")
     for c in checks:
@@ -223,7 +224,7 @@ def _draw_routes(
         ax.set_xscale("log")
         if key.endswith("mag"):
             _magnitude_axis(ax, own[quantity], *([] if reference is None else [reference]))
-        ax.set_title(titles[key][0])
+        ax.set_title(titles[key][0], y=1.0)
         ax.set_ylabel(titles[key][1])
         ax.set_xlabel("frequency (Hz)")
         ax.grid(True, which="both", alpha=0.25)
@@ -232,12 +233,31 @@ def _draw_routes(
 def case_figure(result: CaseResult) -> Any:
     """The case's matplotlib ``Figure`` (not rendered), or None when the case is not a sweep (fewer than 3
     frequencies > 0). Every panel's y range holds its data and its limits (``fit_y``)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-    from matplotlib.ticker import LogLocator, NullFormatter
-
     if not is_swept(result):
         return None
+    other = any((c.function, c.quantity) not in _PANELS for c in result.limits)
+    return _draw_case(_new_figure(other), result)
+
+
+def _new_figure(other: bool) -> Any:
+    """The empty figure: four route panels, the error panel, and the other limits' panel when ``other``."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(10, 9.5))
+    FigureCanvasAgg(fig)
+    grid = fig.add_gridspec(3, 2)
+    for spec in (grid[0, 0], grid[0, 1], grid[1, 0], grid[1, 1], grid[2, 0] if other else grid[2, :]):
+        fig.add_subplot(spec)
+    if other:
+        fig.add_subplot(grid[2, 1])
+    return fig
+
+
+def _draw_case(fig: Any, result: CaseResult) -> Any:
+    """Draw the case on an empty figure from ``_new_figure`` (or a ``_template`` emptied)."""
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
     own_points = result.own or ()
     freqs_all = np.array([eq.freq_hz for eq in own_points])
     keep = freqs_all > 0  # DC cannot sit on a log axis; it stays in the points table
@@ -245,24 +265,16 @@ def case_figure(result: CaseResult) -> Any:
     own = {"vth": _series([eq.vth for eq in own_points])[keep], "zth": _series([eq.zth for eq in own_points])[keep]}
     ref = {q: (None if (s := _spice_values(result, q)) is None else s[keep]) for q in ("vth", "zth")}
 
-    fig = Figure(figsize=(10, 9.5))
-    FigureCanvasAgg(fig)
-    grid = fig.add_gridspec(3, 2)
-    axes = {
-        "zmag": fig.add_subplot(grid[0, 0]),
-        "vmag": fig.add_subplot(grid[0, 1]),
-        "zph": fig.add_subplot(grid[1, 0]),
-        "vph": fig.add_subplot(grid[1, 1]),
-    }
+    axes = dict(zip(("zmag", "vmag", "zph", "vph"), fig.axes[:4]))
     other = [c for c in result.limits if (c.function, c.quantity) not in _PANELS]
-    error_ax = fig.add_subplot(grid[2, 0] if other else grid[2, :])
+    error_ax = fig.axes[4]
     _draw_routes(axes, freqs, own, ref, result.sources)
     _expectation_points(axes, result)
     _limits_on_panels(axes, result, freqs)
     _error_panel(error_ax, result, freqs, keep)
     error_ax.grid(True, which="both", alpha=0.25)
     if other:
-        _other_limits_panel(fig.add_subplot(grid[2, 1]), result, other)
+        _other_limits_panel(fig.axes[5], result, other)
     fig.suptitle(f"{result.title}  (port {result.port[0]} → {result.port[1]})", fontsize=11)
     # Fixed margins: a layout engine measures every tick label and costs seconds per figure.
     fig.subplots_adjust(left=0.08, right=0.98, bottom=0.06, top=0.93, hspace=0.45, wspace=0.22)
@@ -271,6 +283,7 @@ def case_figure(result: CaseResult) -> Any:
         for axis in (ax.xaxis, ax.yaxis):
             if axis.get_scale() == "log":
                 axis.set_minor_locator(LogLocator(subs=(2.0, 5.0)))
+                axis.set_major_formatter(FuncFormatter(_decade_label))
             axis.set_minor_formatter(NullFormatter())
     return fig
 
@@ -295,15 +308,75 @@ def _limits_on_panels(axes: dict[str, Any], result: CaseResult, freqs: np.ndarra
         ax.legend(fontsize=8, loc="best")
 
 
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def _decade_label(x: float, pos: int | None = None) -> str:
+    """A log axis's tick label in plain text: 10³ for a decade (as matplotlib's own labels, which go
+    through its slow math-text parser), the number itself between decades."""
+    if not x > 0 or not math.isfinite(x):
+        return ""
+    exponent = round(math.log10(x))
+    if abs(math.log10(x) - exponent) < 1e-9:
+        return "10" + str(exponent).translate(_SUPERSCRIPT)
+    return f"{x:g}"
+
+
+#: One emptied figure per layout and thread, drawn on again for each case (``case_figure_png``).
+_TEMPLATES = threading.local()
+
+
+def _template(other: bool) -> Any:
+    """A figure of this layout to draw on, emptied (``_empty``) of the last case drawn on it."""
+    figures = getattr(_TEMPLATES, "figures", None)
+    if figures is None:
+        figures = _TEMPLATES.figures = {}
+    fig = figures.get(other)
+    if fig is None:
+        fig = figures[other] = _new_figure(other)
+    else:
+        _empty(fig)
+    return fig
+
+
+def _empty(fig: Any) -> None:
+    """Back to what ``_new_figure`` gives: every artist a case added removed, scales, limits and
+    autoscaling as on new axes. The tick and grid artists stay: making them is most of a figure's cost.
+    ``tests/test_plot_template.py`` checks that a figure drawn on a template is the same PNG as on a new one."""
+    from matplotlib.transforms import Bbox
+
+    for ax in fig.axes:
+        for artist in (*ax.lines, *ax.collections, *ax.texts, *ax.patches):
+            artist.remove()
+        if ax.legend_ is not None:
+            ax.legend_.remove()
+        ax.set_title("")
+        ax.set_xlabel("")
+        ax.set_ylabel("")
+        ax.grid(False, which="both")
+        ax.set_xscale("linear")
+        ax.set_yscale("linear")
+        ax.relim()  # no data: the data limits as on new axes
+        ax.set_autoscale_on(True)
+        ax.viewLim.set_points(Bbox.unit().get_points())  # new axes show 0 … 1 until data asks for more
+        ax._stale_viewlims = dict.fromkeys(ax._stale_viewlims, False)
+    if fig._suptitle is not None:
+        fig._suptitle.set_text("")
+
+
 def _panel_values(ax) -> list[float]:
     return [float(y) for line in ax.lines for y in np.asarray(line.get_ydata(), dtype=float)]
 
 
 def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
-    """The case's figure (``case_figure``) as PNG bytes, or None when the case is not a sweep."""
-    fig = case_figure(result)
-    if fig is None:
+    """The case's figure (``case_figure``) as PNG bytes, or None when the case is not a sweep.
+
+    Drawn on a figure kept from the last case of the same layout (``_template``): its axes, ticks and
+    text measurements are reused, which takes most of the time out of a figure."""
+    if not is_swept(result):
         return None
+    other = any((c.function, c.quantity) not in _PANELS for c in result.limits)
+    fig = _draw_case(_template(other), result)
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
     return buffer.getvalue()
