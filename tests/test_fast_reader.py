@@ -15,6 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from crosscheck.errors import CrosscheckError
+from crosscheck.model.traps import for_excitation
 from crosscheck.model import fast_cards, netlist
 from crosscheck.model.values import parse_number
 
@@ -30,7 +31,8 @@ def _read(text: str, fast: bool) -> object:
     except CrosscheckError as exc:
         return ("error", type(exc).__name__, str(exc), getattr(exc, "problems", None))
     wheres = [e.where for e in network.elements]
-    return (network, network.title, wheres, network.source_lines, reading.notes, reading.warnings)
+    warnings = for_excitation(reading.warnings, "ac")  # as read_netlist_reading keeps them for an AC run
+    return (network, network.title, wheres, network.source_lines, reading.notes, warnings)
 
 
 def _both(text: str) -> tuple[object, object]:
