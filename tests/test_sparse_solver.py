@@ -16,6 +16,7 @@ from crosscheck.own.refinement import backward_error
 from crosscheck.fuzz.large import FAMILIES, build
 from crosscheck.errors import SingularNetworkError
 from crosscheck.fuzz.generate import Knobs, generate_case
+from crosscheck.model.network import dc_view
 from crosscheck.model.network import Element, floating_reference
 from crosscheck.own.assembly import Stamps
 from crosscheck.own.solver import DENSE_LIMIT, REFINE_ABOVE, SWEEP_CHUNK, THREADS_FROM, THREADS_VAR, MnaSystem, default_threads
@@ -33,6 +34,8 @@ class OneByOne(Stamps):
 
 def _system(family: str, nodes: int, backend: str | None) -> tuple[MnaSystem, np.ndarray]:
     network, port = build(family, nodes)
+    if network.excitation == "dc":  # the power grid: its sources carry DC values, which excite it
+        network = dc_view(network)
     system = MnaSystem(network)
     system.sparse_backend = backend
     rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
