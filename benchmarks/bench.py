@@ -29,10 +29,7 @@ import argparse
 import json
 import math
 import os
-import shutil
-import subprocess
 import sys
-import tempfile
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
@@ -47,7 +44,7 @@ from reference_scale import QUICK_SIZES as SCALE_QUICK_SIZES  # noqa: E402  (aft
 from reference_scale import SIZES as SCALE_SIZES  # noqa: E402
 from reference_scale import report_reference_scale  # noqa: E402
 from throughput import report_dask, report_throughput  # noqa: E402
-from timing import section, timed  # noqa: E402
+from timing import run_child, section, timed  # noqa: E402
 
 from crosscheck.model.network import Network
 
@@ -140,33 +137,7 @@ def _repeats(nodes: int) -> int:
 
 def _run_child(job: dict, limit_s: float | None) -> dict:
     """``_child(job)`` in a fresh interpreter; for ngspice, in a sandbox like the pool's workers."""
-    work = tempfile.mkdtemp(prefix="crosscheck-bench-")
-    env = dict(os.environ)
-    if job["route"] == "spice":
-        env = {k: v for k, v in env.items() if not k.upper().startswith(("SPICE_", "NGSPICE_"))}
-        if os.environ.get("NGSPICE_LIBRARY_PATH"):
-            env["NGSPICE_LIBRARY_PATH"] = os.environ["NGSPICE_LIBRARY_PATH"]
-        env["HOME"] = os.path.join(work, "home")
-        os.makedirs(env["HOME"])
-    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    env["PYTHONPATH"] = os.pathsep.join(p for p in (root, env.get("PYTHONPATH")) if p)
-    try:
-        done = subprocess.run(
-            [sys.executable, str(Path(__file__).resolve()), "--child", json.dumps(job)],
-            cwd=work,
-            env=env,
-            capture_output=True,
-            text=True,
-            timeout=limit_s,
-        )
-    except subprocess.TimeoutExpired:
-        return {"stopped": f"> {limit_s:g} s (stopped)"}
-    finally:
-        shutil.rmtree(work, ignore_errors=True)
-    if done.returncode != 0:
-        tail = " | ".join(done.stderr.strip().splitlines()[-2:])
-        return {"stopped": f"failed (exit {done.returncode}: {tail})"}
-    return json.loads(done.stdout.strip().splitlines()[-1])
+    return run_child(__file__, job, limit_s, sandboxed=job["route"] == "spice")
 
 
 # --------------------------------------------------------------------------- the report

@@ -17,15 +17,12 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import os
-import shutil
-import subprocess
 import sys
-import tempfile
 import time
 from collections.abc import Sequence
 from dataclasses import fields
-from pathlib import Path
+
+from timing import run_child
 
 SIZES = (1_000, 10_000, 100_000)
 QUICK_SIZES = (1_000,)
@@ -67,30 +64,7 @@ def _child(job: dict) -> dict:
 
 def _run_child(job: dict, limit_s: float | None) -> dict:
     """``_child(job)`` in a fresh interpreter, in an empty directory with a private HOME and no SPICE_* variables."""
-    work = tempfile.mkdtemp(prefix="crosscheck-bench-")
-    env = {k: v for k, v in os.environ.items() if not k.upper().startswith(("SPICE_", "NGSPICE_"))}
-    if os.environ.get("NGSPICE_LIBRARY_PATH"):
-        env["NGSPICE_LIBRARY_PATH"] = os.environ["NGSPICE_LIBRARY_PATH"]
-    env["HOME"] = os.path.join(work, "home")
-    os.makedirs(env["HOME"])
-    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    env["PYTHONPATH"] = os.pathsep.join(p for p in (root, env.get("PYTHONPATH")) if p)
-    try:
-        done = subprocess.run(
-            [sys.executable, str(Path(__file__).resolve()), "--child", json.dumps(job)],
-            cwd=work,
-            env=env,
-            capture_output=True,
-            text=True,
-            timeout=limit_s,
-        )
-    except subprocess.TimeoutExpired:
-        return {"stopped": f"> {limit_s:g} s (stopped at the limit)"}
-    finally:
-        shutil.rmtree(work, ignore_errors=True)
-    if done.returncode != 0:
-        return {"stopped": "failed: " + " | ".join(done.stderr.strip().splitlines()[-2:])}
-    return json.loads(done.stdout.strip().splitlines()[-1])
+    return run_child(__file__, job, limit_s)
 
 
 def _agreement(own: dict, spice: dict) -> float:

@@ -1,10 +1,17 @@
-"""Timing helpers shared by the benchmark's scripts: the best of several runs, and section headings."""
+"""Timing helpers shared by the benchmark's scripts: the best of several runs, section headings, child runs."""
 
 from __future__ import annotations
 
+import json
 import math
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
 import time
 from collections.abc import Callable
+from pathlib import Path
 
 
 def timed(fn: Callable[[], object], repeat: int) -> tuple[float, object]:
@@ -19,3 +26,38 @@ def timed(fn: Callable[[], object], repeat: int) -> tuple[float, object]:
 
 def section(title: str) -> None:
     print(f"\n== {title} ==", flush=True)
+
+
+def run_child(script: str, job: dict, limit_s: float | None, *, sandboxed: bool = True) -> dict:
+    """``script --child JOB`` in a fresh interpreter; its last stdout line is the JSON result.
+
+    ``sandboxed``: an empty directory with a private HOME and no SPICE_*/NGSPICE_* variables but the
+    library path, as the pool's workers run ngspice.
+    """
+    work = tempfile.mkdtemp(prefix="crosscheck-bench-")
+    env = dict(os.environ)
+    if sandboxed:
+        env = {k: v for k, v in env.items() if not k.upper().startswith(("SPICE_", "NGSPICE_"))}
+        if os.environ.get("NGSPICE_LIBRARY_PATH"):
+            env["NGSPICE_LIBRARY_PATH"] = os.environ["NGSPICE_LIBRARY_PATH"]
+        env["HOME"] = os.path.join(work, "home")
+        os.makedirs(env["HOME"])
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    env["PYTHONPATH"] = os.pathsep.join(p for p in (root, env.get("PYTHONPATH")) if p)
+    try:
+        done = subprocess.run(
+            [sys.executable, str(Path(script).resolve()), "--child", json.dumps(job)],
+            cwd=work,
+            env=env,
+            capture_output=True,
+            text=True,
+            timeout=limit_s,
+        )
+    except subprocess.TimeoutExpired:
+        return {"stopped": f"> {limit_s:g} s (stopped at the limit)"}
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+    if done.returncode != 0:
+        tail = " | ".join(done.stderr.strip().splitlines()[-2:])
+        return {"stopped": f"failed (exit {done.returncode}: {tail})"}
+    return json.loads(done.stdout.strip().splitlines()[-1])
