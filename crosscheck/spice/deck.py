@@ -48,13 +48,13 @@ Sparse 1.3, no KLU compiled in, on this 2-core machine shared with other work, s
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Literal
 
 from crosscheck.model.frequencies import checked_frequencies, frequency_list
 from crosscheck.model.graph import UnionFind
-from crosscheck.model.network import GROUND, Network, Port, floating_reference
+from crosscheck.model.network import GROUND, Element, Network, Port, floating_reference
 from crosscheck.model.validation import validate
 
 Run = Literal["open", "short", "test"]
@@ -236,6 +236,46 @@ def _save_name(vector: str) -> str:
     return f"i({vector[: -len('#branch')]})" if vector.endswith("#branch") else f"v({vector})"
 
 
+def copy_names(
+    network: Network, nodes: Sequence[str], reference: str | None, node_offset: int, element_offset: int
+) -> tuple[dict[str, str], dict[str, str], dict[str, str]]:
+    """One copy's deck names: model node -> ``n<k>``, model element -> kind letter and number (an ideal
+    short is a 0 V source), and deck name -> model name. ``reference``: the b node of a port whose part
+    has no ground, written as ground (as the own solver refers it), so the matrix is not singular."""
+    node_of: dict[str, str] = {GROUND: GROUND}
+    for i, n in enumerate(nodes, start=1):
+        node_of[n] = f"n{node_offset + i}"
+    if reference is not None:
+        node_of[reference] = GROUND
+    element_of = {
+        e.name: f"{'V' if e.is_short else e.kind}{element_offset + i}" for i, e in enumerate(network.elements, 1)
+    }
+    names = {deck: model for model, deck in node_of.items() if deck != GROUND}
+    names.update({deck: model for model, deck in element_of.items()})
+    return node_of, element_of, names
+
+
+def element_cards(
+    network: Network, node_of: Mapping[str, str], element_of: Mapping[str, str], source: Callable[[Element], str]
+) -> list[str]:
+    """The deck card of each element under its deck names; ``source(e)`` writes what follows the nodes of a
+    V or I source or an ideal short (its values for this deck's analysis and run)."""
+    lines: list[str] = []
+    for e in network.elements:
+        name, nodes = element_of[e.name], [node_of[n] for n in e.nodes]
+        if e.kind == "K":
+            assert e.coupled is not None
+            lines.append(f"{name} {element_of[e.coupled[0]]} {element_of[e.coupled[1]]} {e.value!r}")
+        elif e.is_short or e.kind in "VI":
+            lines.append(f"{name} {nodes[0]} {nodes[1]} {source(e)}")
+        elif e.kind in "FH":
+            assert e.control is not None
+            lines.append(f"{name} {nodes[0]} {nodes[1]} {element_of[e.control]} {e.value!r}")
+        else:  # R L C E G: nodes then value
+            lines.append(f"{name} {' '.join(nodes)} {e.value!r}")
+    return lines
+
+
 def _copy(
     network: Network,
     port: Port,
@@ -247,40 +287,12 @@ def _copy(
     element_offset: int,
 ) -> tuple[list[str], Probe, dict[str, str]]:
     """Element lines of one copy of the network, renamed, with the extra source its run needs."""
-    node_of: dict[str, str] = {GROUND: GROUND}
-    for i, n in enumerate(nodes, start=1):
-        node_of[n] = f"n{node_offset + i}"
-    if reference is not None:
-        # The port sits in a part with no ground (a transformer secondary): its b node stands in
-        # for ground, exactly as the own solver refers it, so the matrix is not singular.
-        node_of[reference] = GROUND
-    names = {deck: model for model, deck in node_of.items() if deck != GROUND}
+    node_of, element_of, names = copy_names(network, nodes, reference, node_offset, element_offset)
 
-    element_of: dict[str, str] = {}
-    for i, e in enumerate(network.elements, start=1):
-        letter = "V" if e.is_short else e.kind
-        element_of[e.name] = f"{letter}{element_offset + i}"
-    names.update({deck: model for model, deck in element_of.items()})
+    def source(e: Element) -> str:  # an ideal short, and in the test run every source, is 0
+        return "DC 0 AC 0.0 0.0" if e.is_short or run == "test" else f"DC 0 AC {e.ac_mag!r} {e.ac_phase_deg!r}"
 
-    zero_sources = run == "test"
-    lines: list[str] = []
-    for e in network.elements:
-        name = element_of[e.name]
-        nodes = [node_of[n] for n in e.nodes]
-        if e.kind == "K":
-            assert e.coupled is not None
-            lines.append(f"{name} {element_of[e.coupled[0]]} {element_of[e.coupled[1]]} {e.value!r}")
-        elif e.is_short:
-            lines.append(f"{name} {nodes[0]} {nodes[1]} DC 0 AC 0.0 0.0")
-        elif e.kind in "VI":
-            mag = 0.0 if zero_sources else e.ac_mag
-            phase = 0.0 if zero_sources else e.ac_phase_deg
-            lines.append(f"{name} {nodes[0]} {nodes[1]} DC 0 AC {mag!r} {phase!r}")
-        elif e.kind in "FH":
-            assert e.control is not None
-            lines.append(f"{name} {nodes[0]} {nodes[1]} {element_of[e.control]} {e.value!r}")
-        else:  # R L C E G: nodes then value
-            lines.append(f"{name} {' '.join(nodes)} {e.value!r}")
+    lines = element_cards(network, node_of, element_of, source)
 
     a, b = node_of[port.a], node_of[port.b]
     if run == "short":

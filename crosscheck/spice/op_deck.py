@@ -16,9 +16,19 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from crosscheck.model.network import GROUND, Network, Port, floating_reference
+from crosscheck.model.network import GROUND, Element, Network, Port, floating_reference
 from crosscheck.model.validation import validate
-from crosscheck.spice.deck import PORT_SOURCE, RUNS, TEST_SOURCE, Deck, Probe, Run, deck_options
+from crosscheck.spice.deck import (
+    PORT_SOURCE,
+    RUNS,
+    TEST_SOURCE,
+    Deck,
+    Probe,
+    Run,
+    copy_names,
+    deck_options,
+    element_cards,
+)
 
 #: Today's options line of ``deck`` (noopac has no effect on ``.op``; pivrel=1 as there). When ``deck``
 #: exposes its options as a function (KLU where the library has it), this line is to come from it.
@@ -58,30 +68,13 @@ def _op_copy(
     network: Network, port: Port, run: Run, reference: str | None, copy: int
 ) -> tuple[list[str], Probe, dict[str, str]]:
     """Element lines of one copy of the network for ``run``, renamed, with the extra source its run needs."""
-    node_offset, element_offset = copy * len(network.nodes), copy * len(network.elements)
-    node_of = {GROUND: GROUND} | {n: f"n{node_offset + i}" for i, n in enumerate(network.nodes, start=1)}
-    if reference is not None:  # the port's part has no ground: its b node stands in for it (as ``deck``)
-        node_of[reference] = GROUND
-    element_of = {
-        e.name: f"{'V' if e.is_short else e.kind}{element_offset + i}" for i, e in enumerate(network.elements, 1)
-    }
-    names = {deck: model for model, deck in node_of.items() if deck != GROUND}
-    names.update({deck: model for model, deck in element_of.items()})
-    lines: list[str] = []
-    for e in network.elements:
-        name, nodes = element_of[e.name], [node_of[n] for n in e.nodes]
-        if e.kind == "K":
-            assert e.coupled is not None
-            lines.append(f"{name} {element_of[e.coupled[0]]} {element_of[e.coupled[1]]} {e.value!r}")
-        elif e.is_short:
-            lines.append(f"{name} {nodes[0]} {nodes[1]} DC 0")
-        elif e.kind in "VI":
-            lines.append(f"{name} {nodes[0]} {nodes[1]} DC {0.0 if run == 'test' else e.dc_value!r}")
-        elif e.kind in "FH":
-            assert e.control is not None
-            lines.append(f"{name} {nodes[0]} {nodes[1]} {element_of[e.control]} {e.value!r}")
-        else:  # R L C E G: nodes then value
-            lines.append(f"{name} {' '.join(nodes)} {e.value!r}")
+    offsets = copy * len(network.nodes), copy * len(network.elements)
+    node_of, element_of, names = copy_names(network, network.nodes, reference, *offsets)
+
+    def source(e: Element) -> str:  # an operating point: DC values only (independent sources zeroed in test)
+        return "DC 0" if e.is_short else f"DC {0.0 if run == 'test' else e.dc_value!r}"
+
+    lines = element_cards(network, node_of, element_of, source)
     a, b = node_of[port.a], node_of[port.b]
     if run == "short":
         lines.append(f"{PORT_SOURCE}{copy} {a} {b} DC 0")

@@ -338,15 +338,14 @@ def _values(deck: ReadingDeck, plots: Mapping[str, Mapping[str, np.ndarray]]) ->
             freq = np.zeros(1)
         if freq is None:
             continue
+        plus, minus = (_node_vector(vectors, n) if n else np.zeros(len(freq)) for n in (deck.plus, deck.minus))
+        if plus is None or minus is None:
+            continue  # the port node is not a node of ngspice's circuit: no value (judged as missing)
         for row, at in enumerate(freq.real.tolist()):
             i = bisect.bisect_left(wanted, at)
             match = [f for f in wanted[max(i - 1, 0) : i + 1] if same_frequency(f, at)]
-            if len(match) != 1:
-                continue
-            plus, minus = (_node_vector(vectors, n) if n else np.zeros(len(freq)) for n in (deck.plus, deck.minus))
-            if plus is None or minus is None:
-                continue  # the port node is not a node of ngspice's circuit: no value (judged as missing)
-            out[match[0]] = complex(plus[row]) - complex(minus[row])
+            if len(match) == 1:
+                out[match[0]] = complex(plus[row]) - complex(minus[row])
     return out
 
 
