@@ -1,0 +1,148 @@
+"""Touchstone export read back by an outside RF library, against crosscheck's own matrices.
+
+The outside reader is scikit-rf (``skrf``, from the package registry; a test extra in pyproject.toml). Each
+check compares to the file's printed precision: ``SIGNIFICANT_DIGITS`` = 12 figures per entry, so the
+relative error of an entry read back is at most ~5e-12 of the entry and, after scikit-rf's own
+Z/Y/S conversions (a solve of a well-conditioned matrix, condition < 100 here), at most ~1e-10 of the
+matrix's norm: the tolerance below, RTOL_MATRIX.
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from crosscheck.report.touchstone import (
+    SIGNIFICANT_DIGITS,
+    TouchstoneError,
+    s_from_z,
+    touchstone_text,
+    write_touchstone,
+)
+
+skrf = pytest.importorskip("skrf", reason="scikit-rf is a test extra: pip install -e '.[test]'")
+
+FREQS = [0.0, 50.0, 1.0e3, 2.5e6]
+Z0 = 75.0
+#: Relative to the largest entry of the matrix (see the module docstring).
+RTOL_MATRIX = 1e-10
+
+
+def _impedances(n: int, seed: int) -> np.ndarray:
+    """A non-reciprocal, well-conditioned Z per frequency (Z != Z^T, so a swapped N12/N21 shows)."""
+    rng = np.random.default_rng(seed)
+    z = rng.normal(size=(len(FREQS), n, n)) * 30 + 1j * rng.normal(size=(len(FREQS), n, n)) * 20
+    return z + np.eye(n) * 250.0
+
+
+def _kind_matrices(z: np.ndarray, kind: str) -> np.ndarray:
+    return {"Z": z, "Y": np.linalg.inv(z), "S": s_from_z(z, Z0)}[kind]
+
+
+def _read_back(path: Path, kind: str, version: str) -> np.ndarray:
+    """The matrices of ``kind`` as scikit-rf reads the file.
+
+    scikit-rf 2.2 de-normalises every non-S kind of a version 1.x file by multiplying by R; for Y the
+    standard's normalisation is Y*R, so scikit-rf's Y is R^2 too large and is divided back here (its own
+    writer does write Y*R: ``test_normalised_y_matches_scikit_rf_s_own_writer`` holds our numbers to it)."""
+    net = skrf.Network(str(path))
+    got = {"Z": net.z, "Y": net.y, "S": net.s}[kind]
+    if kind == "Y" and version == "1.1":
+        got = got / Z0**2
+    np.testing.assert_allclose(net.f, FREQS, rtol=10.0 ** -(SIGNIFICANT_DIGITS - 1), atol=0)
+    return got
+
+
+@pytest.mark.parametrize("version", ["1.1", "2.0"])
+@pytest.mark.parametrize("kind", ["Z", "Y", "S"])
+@pytest.mark.parametrize("ports", [1, 2, 3, 4])
+def test_scikit_rf_reads_back_what_was_written(tmp_path: Path, ports: int, kind: str, version: str) -> None:
+    """Outside check (scikit-rf reads the file): every entry agrees to the printed precision."""
+    z = _impedances(ports, seed=10 * ports + len(kind))
+    expected = _kind_matrices(z, kind)
+    path = tmp_path / f"net.s{ports}p"
+    write_touchstone(path, FREQS, expected, kind, z0=Z0, version=version, comments=["test"])  # type: ignore[arg-type]
+    got = _read_back(path, kind, version)
+    for f, e, g in zip(FREQS, expected, got, strict=True):
+        err = np.max(np.abs(g - e)) / np.max(np.abs(e))
+        assert err <= RTOL_MATRIX, f"{ports}-port {kind} v{version} at {f} Hz: relative error {err:.2e} > {RTOL_MATRIX}"
+
+
+def test_normalised_y_matches_scikit_rf_s_own_writer(tmp_path: Path) -> None:
+    """Outside check: scikit-rf's writer, given the same network, prints the same version-1 Y numbers (Y*R)."""
+    z = _impedances(2, seed=3)
+    ours = tmp_path / "ours.s2p"
+    write_touchstone(ours, FREQS[1:], np.linalg.inv(z[1:]), "Y", z0=Z0, version="1.1")
+    net = skrf.Network(frequency=skrf.Frequency.from_f(FREQS[1:], unit="hz"), s=s_from_z(z[1:], Z0), z0=Z0, name="pair")
+    theirs = net.write_touchstone(return_string=True, form="ri", parameter="Y", r_ref=Z0)
+    numbers = [_numbers(text) for text in (ours.read_text(), theirs)]
+    np.testing.assert_allclose(numbers[0], numbers[1], rtol=1e-9, atol=1e-12)
+
+
+def _numbers(text: str) -> np.ndarray:
+    rows = [line.split("!")[0] for line in text.splitlines() if line.strip() and line.strip()[0] not in "!#["]
+    return np.array([float(x) for row in rows for x in row.split()])
+
+
+def test_layout_follows_the_standard() -> None:
+    """Option line, 2.0 keywords in order, N21 before N12 for 2 ports, at most four pairs per line for n > 2."""
+    z2 = np.array([[[1.0, 2.0], [3.0, 4.0]]], dtype=complex)
+    text = touchstone_text([1e3], z2, "Z", version="2.0", comments=["Kläranlage\x1b[31m"])
+    lines = text.splitlines()
+    keywords = [ln.split("]")[0] + "]" for ln in lines if ln.startswith("[")]
+    assert keywords == [
+        "[Version]",
+        "[Number of Ports]",
+        "[Two-Port Data Order]",
+        "[Number of Frequencies]",
+        "[Reference]",
+        "[Network Data]",
+        "[End]",
+    ]
+    assert "# Hz Z RI R 50" in lines and "[Two-Port Data Order] 21_12" in lines
+    data = [float(x) for x in lines[lines.index("[Network Data]") + 1].split()]
+    assert data[1::2] == [1.0, 3.0, 2.0, 4.0], "2-port order is N11 N21 N12 N22"
+    assert all(32 <= ord(c) <= 126 for c in text.replace("\n", "")), "only printable ASCII"
+    z5 = np.ones((1, 5, 5), dtype=complex)
+    rows = [ln for ln in touchstone_text([1.0], z5, "Z").splitlines() if not ln.startswith(("!", "#"))]
+    # per matrix row: 4 pairs then 1 pair; the first line of a frequency also starts with the frequency
+    assert [len(r.split()) for r in rows] == [9, 2] + [8, 2] * 4
+
+
+def test_version_1_normalises_z_and_y_by_the_reference() -> None:
+    """1.1 holds Z/R and Y*R; 2.0 holds ohms and siemens (both read in the standard's text)."""
+    z = np.array([[[100.0 + 0j]]])
+    for version, kind, m, printed in [
+        ("1.1", "Z", z, 2.0),
+        ("2.0", "Z", z, 100.0),
+        ("1.1", "Y", 1 / z, 0.5),
+        ("2.0", "Y", 1 / z, 0.01),
+    ]:
+        text = touchstone_text([1.0], m, kind, version=version)  # type: ignore[arg-type]
+        line = next(ln for ln in text.splitlines() if re.match(r"^\d", ln))
+        assert float(line.split()[1]) == pytest.approx(printed, rel=1e-12), (version, kind)
+
+
+def test_s_from_z_matches_the_one_port_reflection_coefficient() -> None:
+    """s_from_z of a 1x1 Z is (Z - z0)/(Z + z0) (common practice), to 1e-15 relative."""
+    z = np.array([[[30.0 + 40.0j]]])
+    assert s_from_z(z, 50.0)[0, 0, 0] == pytest.approx((z[0, 0, 0] - 50) / (z[0, 0, 0] + 50), rel=1e-15)
+
+
+def test_refusals_say_what_to_do(tmp_path: Path) -> None:
+    """Wrong extension, unsorted frequencies, a missing form and writing over an input are refused."""
+    z = _impedances(2, seed=1)
+    with pytest.raises(TouchstoneError, match=r"\.s2p"):
+        write_touchstone(tmp_path / "x.s3p", FREQS, z, "Z")
+    with pytest.raises(TouchstoneError, match="increasing"):
+        touchstone_text(FREQS[::-1], z, "Z")
+    with pytest.raises(TouchstoneError, match="no Y form|infinite"):
+        touchstone_text(FREQS, np.full_like(z, np.inf), "Y")
+    netlist = tmp_path / "net.s2p"
+    netlist.write_text("keep me\n")
+    with pytest.raises(TouchstoneError, match="input of this run"):
+        write_touchstone(netlist, FREQS, z, "Z", inputs=[netlist])
+    assert netlist.read_text() == "keep me\n"
