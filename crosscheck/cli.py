@@ -185,6 +185,8 @@ def _reduce(args: argparse.Namespace) -> int:
         print()
     else:
         print_reduction(report_console(), result, compared, sources, bool(expectations))
+    if not _touchstone(args, [result], "reduce"):
+        return EXIT_ERROR
     return exit_code([result.verdict])
 
 
@@ -290,10 +292,34 @@ def _verify(args: argparse.Namespace) -> int:
         interrupt.finished = finished  # type: ignore[attr-defined]
         raise
     results = _strict(args, results)
-    written = _write_reports(args, results)
+    written = _write_reports(args, results) and _touchstone(args, results, "verify")
     if args.update_baseline:
         _update_baseline(args, results)
     return exit_code([r.verdict for r in results]) if written else EXIT_ERROR
+
+
+def _touchstone(args: argparse.Namespace, results: Sequence[CaseResult], command: str) -> bool:
+    """``--touchstone``: write the files (report/touchstone.py); False, with the reasons on stderr, when one
+    could not be written."""
+    if args.touchstone is None:
+        return True
+    from crosscheck.report.touchstone import export_cases  # start-up time: loaded only when asked for
+
+    written, problems = export_cases(
+        args.touchstone,
+        results,
+        args.touchstone_kind,
+        args.touchstone_z0,
+        args.touchstone_version,
+        one_file=command == "reduce",
+    )
+    for problem in problems:
+        print(f"crosscheck {command}: error: {terminal_text(problem)}", file=sys.stderr)
+    if written:
+        print(
+            f"Touchstone: {len(written)} file(s) written under {terminal_text(str(args.touchstone))}", file=sys.stderr
+        )
+    return not problems
 
 
 def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, CrosscheckError]]:

@@ -90,6 +90,7 @@ def _reduce_parser(sub: Any) -> None:
     )
     _common_options(reduce)
     _excitation_option(reduce, "")
+    _touchstone_options(reduce, "a file (.sNp, n = number of ports; .ts also for 2.0)")
 
 
 def _verify_parser(sub: Any) -> None:
@@ -140,6 +141,7 @@ def _verify_parser(sub: Any) -> None:
         "--allow-outside-paths", action="store_true", help="let case files name netlists outside their own folder"
     )
     verify.add_argument("--detail", action="store_true", help="show every point of every case")
+    _touchstone_options(verify, "a folder, one <case>.sNp per case (or a file when there is one case)")
     _baseline_options(verify)
     _common_options(verify)
     _excitation_option(verify, " for netlists named directly (case files say excitation = ...)")
@@ -223,6 +225,39 @@ def _fuzz_parser(sub: Any) -> None:
     )
     fuzz.add_argument("--format", choices=("text", "json"), default="text", help="summary on standard output")
     fuzz.add_argument("--no-shrink", action="store_true", help="report failures without shrinking them")
+
+
+def _touchstone_options(p: argparse.ArgumentParser, target: str) -> None:
+    """``--touchstone`` and its kind, reference and version (report/touchstone.py writes the file)."""
+    p.add_argument(
+        "--touchstone",
+        type=Path,
+        metavar="PATH",
+        help=f"also write the own route's matrices as Touchstone to {target}",
+    )
+    p.add_argument(
+        "--touchstone-kind",
+        type=str.upper,
+        choices=("Z", "Y", "S"),
+        default="Z",
+        help="parameters written: Z (default), Y, or S relative to --touchstone-z0",
+    )
+    p.add_argument(
+        "--touchstone-z0",
+        type=_z0_option,
+        default=50.0,
+        metavar="OHMS",
+        help="reference resistance of the file, one for every port (default 50); version 1.1 also "
+        "normalises Z and Y by it",
+    )
+    p.add_argument("--touchstone-version", choices=("1.1", "2.0"), default="1.1", help="Touchstone version (1.1)")
+
+
+def _z0_option(text: str) -> float:
+    value = _finite(text, "--touchstone-z0")
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"--touchstone-z0 {text!r} is not above 0 ohm: give a resistance, e.g. 50")
+    return value
 
 
 def _common_options(p: argparse.ArgumentParser) -> None:

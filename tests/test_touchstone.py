@@ -146,3 +146,41 @@ def test_refusals_say_what_to_do(tmp_path: Path) -> None:
     with pytest.raises(TouchstoneError, match="input of this run"):
         write_touchstone(netlist, FREQS, z, "Z", inputs=[netlist])
     assert netlist.read_text() == "keep me\n"
+
+
+RC_NETLIST = "rc divider\nV1 in 0 AC 1\nR1 in out 1k\nC1 out 0 100n\n.end\n"
+
+
+def _rc_impedance(f_hz: float) -> complex:
+    """1k in parallel with 100 nF (common practice: the divider's source impedance seen from out)."""
+    return 1.0 / (1.0 / 1e3 + 2j * np.pi * f_hz * 100e-9)
+
+
+@pytest.mark.parametrize(("kind", "version"), [("Z", "1.1"), ("S", "2.0"), ("Y", "2.0")])
+def test_reduce_writes_a_one_port_file_scikit_rf_reads(tmp_path: Path, kind: str, version: str) -> None:
+    """``reduce --touchstone out.s1p``: scikit-rf reads Z_th of the RC divider at each frequency, to 1e-10."""
+    from crosscheck.cli import main
+
+    netlist = tmp_path / "rc.cir"
+    netlist.write_text(RC_NETLIST)
+    out = tmp_path / "out.s1p"
+    argv = ["reduce", str(netlist), "--port", "out", "0", "--freq", "100", "1k", "10k", "--engine", "own"]
+    code = main([*argv, "--touchstone", str(out), "--touchstone-kind", kind.lower(), "--touchstone-version", version])
+    assert code == 0 and out.exists()
+    net = skrf.Network(str(out))
+    z = np.array([_rc_impedance(f) for f in (100.0, 1e3, 10e3)])
+    np.testing.assert_allclose(net.f, [100.0, 1e3, 10e3], rtol=1e-11)
+    np.testing.assert_allclose(net.z[:, 0, 0], z, rtol=1e-10)
+    assert "crosscheck" in out.read_text().splitlines()[0] and "rc divider" in out.read_text()
+
+
+def test_reduce_refuses_to_write_over_its_netlist(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """A --touchstone path that is the netlist itself is refused and the netlist is left as it was."""
+    from crosscheck.cli import main
+
+    netlist = tmp_path / "rc.s1p"
+    netlist.write_text(RC_NETLIST)
+    code = main(["reduce", str(netlist), "--port", "out", "0", "--freq", "1k", "--engine", "own",
+                 "--touchstone", str(netlist)])  # fmt: skip
+    assert code != 0 and "input of this run" in capsys.readouterr().err
+    assert netlist.read_text() == RC_NETLIST

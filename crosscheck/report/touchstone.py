@@ -249,3 +249,50 @@ def export_from_result(
     ]
     write_touchstone(path, freqs, matrices, kind, z0=z0, version=version, comments=comments, inputs=inputs)
     return Path(path)
+
+
+def _ports_of(result: CaseResult) -> int:
+    multiport = getattr(result, "multiport", None)
+    return len(multiport.port_names) if multiport is not None else 1
+
+
+def _file_name(result: CaseResult, taken: set[str]) -> str:
+    """``<case name>.sNp``, the name with anything but letters, digits, ``.``, ``-``, ``_`` made ``_``; a name
+    already ``taken`` (two cases of one name in different folders) gets ``-2``, ``-3``..."""
+    stem = re.sub(r"[^A-Za-z0-9._-]", "_", result.name.replace("\\", "/").split("/")[-1]).lstrip(".") or "case"
+    name, k = f"{stem}.s{_ports_of(result)}p", 1
+    while name.lower() in taken:
+        k += 1
+        name = f"{stem}-{k}.s{_ports_of(result)}p"
+    taken.add(name.lower())
+    return name
+
+
+def export_cases(
+    target: Path | str,
+    results: Sequence[CaseResult],
+    kind: Kind,
+    z0: float,
+    version: Version,
+    *,
+    one_file: bool = False,
+) -> tuple[list[Path], list[str]]:
+    """The command line's ``--touchstone``: one file (``one_file``, or a path ending ``.sNp``/``.ts``, for one
+    case) or a folder holding one ``<case>.sNp`` per case. Returns the files written and, per case not
+    written, why not."""
+    where = Path(target)
+    as_file = one_file or _EXTENSION.match(where.suffix) is not None or where.suffix.lower() == ".ts"
+    if as_file and len(results) != 1:
+        return [], [f"--touchstone {str(where)!r} names one file for {len(results)} cases: name a folder instead"]
+    if not as_file and where.exists() and not where.is_dir():
+        return [], [f"--touchstone {str(where)!r} is a file, and several cases need a folder: name a folder"]
+    written: list[Path] = []
+    problems: list[str] = []
+    taken: set[str] = set()
+    for result in results:
+        path = where if as_file else where / _file_name(result, taken)
+        try:
+            written.append(export_from_result(path, result, kind, z0, version))
+        except (TouchstoneError, OSError) as exc:
+            problems.append(f"case {result.name!r}: Touchstone not written: {exc}")
+    return written, problems
