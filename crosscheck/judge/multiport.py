@@ -61,6 +61,7 @@ class MultiportResult:
     checks: tuple[MatrixPointCheck, ...] = ()
     expectations: tuple[ExpectationCheck, ...] = ()
     limits: tuple[LimitCheck, ...] = ()
+    ngspice_version: str = ""
 
     @property
     def judgements(self) -> tuple[MatrixPointCheck | ExpectationCheck | LimitCheck, ...]:

@@ -61,6 +61,7 @@ def finish_multiport(
         own=own,
         spice=spice.points if spice is not None else None,
         spice_note=note if spice is None else "; ".join(spice.notes),
+        ngspice_version=spice.ngspice_version if spice is not None else "",
     )
     with np.errstate(all="ignore"):
         part = judge_multiport(part, spec, head.tolerance, compare=engine != "own")
