@@ -22,6 +22,7 @@ from crosscheck.model.cases import Case, find_case_files, load_case
 from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.netlist import read_netlist_text
+from crosscheck.model.port_spec import MultiportSpec, ports_from_pairs
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import unknown_extensions, verify_format, write_reports
@@ -152,11 +153,15 @@ def _reduce(args: argparse.Namespace) -> int:
     except _UsageError as exc:
         print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
+    if len(args.port) > 1 and expectations:
+        print("crosscheck reduce: error: --expect takes one-port values (vth, zth ...); with several --port "
+              "state z11, voc1 ... in a case file's [[expect]]", file=sys.stderr)  # fmt: skip
+        return EXIT_USAGE
     extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
     case = case_from_netlist(
         str(args.netlist),
         read_netlist_text(args.netlist),
-        tuple(args.port),
+        tuple(args.port[0]),
         freqs,
         _tolerance(args),
         args.allow_negative,
@@ -165,6 +170,8 @@ def _reduce(args: argparse.Namespace) -> int:
         excitation,
     )
     case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
+    if len(args.port) > 1:  # several ports: voc, Z, isc and Y (``run.multiport``)
+        case = replace(case, multiport=MultiportSpec(ports_from_pairs(args.port)))
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
@@ -172,6 +179,8 @@ def _reduce(args: argparse.Namespace) -> int:
 
         with SpicePool(workers=1) as pool:
             [result] = run_cases([case], engine=args.engine, pool=pool)
+    if result.multiport is not None:
+        return _reduce_multiport(args, result)
     if args.engine == "spice":
         return _spice_alone(args, result, sources, bool(expectations))
     result = _strict(args, [result])[0]
@@ -187,6 +196,22 @@ def _reduce(args: argparse.Namespace) -> int:
         print_reduction(report_console(), result, compared, sources, bool(expectations))
     if not _touchstone(args, [result], "reduce"):
         return EXIT_ERROR
+    return exit_code([result.verdict])
+
+
+def _reduce_multiport(args: argparse.Namespace, result: CaseResult) -> int:
+    """`reduce` with several --port: the matrices per frequency (both routes unless --engine own)."""
+    from crosscheck.report.multiport_reduction import (  # start-up time: loaded only by the commands that use it
+        multiport_reduction_document,
+        print_multiport,
+    )
+
+    result = _strict(args, [result])[0]
+    if args.format == "json":
+        json.dump(multiport_reduction_document(result, str(args.netlist)), sys.stdout, indent=2, ensure_ascii=False)
+        print()
+    else:
+        print_multiport(report_console(), result)
     return exit_code([result.verdict])
 
 

@@ -46,7 +46,14 @@ def parser() -> argparse.ArgumentParser:
 def _reduce_parser(sub: Any) -> None:
     reduce = sub.add_parser("reduce", help="equivalents of one netlist at a port and frequencies")
     reduce.add_argument("netlist", type=Path, help="SPICE netlist file (R L C V I E F G H K, .subckt, .param)")
-    reduce.add_argument("--port", nargs=2, metavar=("A", "B"), required=True, help="port nodes: V_th = V(A) - V(B)")
+    reduce.add_argument(
+        "--port",
+        nargs=2,
+        action="append",
+        metavar=("A", "B"),
+        required=True,
+        help="port nodes: V_th = V(A) - V(B); repeat for several ports (voc, Z, isc and Y; ports numbered 1, 2, ...)",
+    )
     reduce.add_argument(
         "--freq",
         nargs="+",

@@ -8,8 +8,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
+from typing import Any
 
 from crosscheck.judge.hazards import Hazard, assess_case
+from crosscheck.judge.multiport import MultiportResult
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck, ReadingCheck
 from crosscheck.model.cases import Case
 from crosscheck.model.reading import ReadWarning
@@ -52,6 +54,9 @@ class CaseResult:
     #: ngspice's reading of the user's own lines against the own route (``judge.reading``); None when the
     #: network was not read from text (the fuzzer's) or ngspice was not run.
     reading: ReadingCheck | None = None
+    #: A case with several ports (``judge.multiport``): both routes' matrices and their judgements; ``own`` is
+    #: then empty and ``port`` the first port. None: the usual one-port case.
+    multiport: MultiportResult | None = None
 
     @cached_property
     def hazard(self) -> Hazard | None:
@@ -93,12 +98,13 @@ class CaseResult:
         """The first explanation among the judgements that carry the case's verdict."""
         if self.error:
             return self.error
-        parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck | ReadingCheck] = [
+        parts: list[Any] = [  # every judgement: each has a verdict and an explanation
             *([self.reading] if self.reading is not None else []),
             *self.points,
             *self.expectations,
             *self.limits,
             *self.drift,
+            *(self.multiport.judgements if self.multiport is not None else ()),
         ]
         notes = [p.explanation for p in parts if p.verdict == self.verdict and p.explanation]
         return notes[0] if notes else ""
@@ -116,6 +122,7 @@ def case_verdict(result: CaseResult) -> Verdict:
             *(lim.verdict for lim in result.limits),
             *(d.verdict for d in result.drift),
             *([result.reading.verdict] if result.reading is not None else []),
+            *(result.multiport.verdicts if result.multiport is not None else []),
         ]
     )
 

@@ -27,6 +27,7 @@ from crosscheck.model.files import InputFileError, check_path_text, read_regular
 from crosscheck.model.frequencies import FrequencyError, frequency_list, misread_frequency_text
 from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
+from crosscheck.model.port_spec import MultiportSpec, multiport_from_case
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
@@ -87,6 +88,9 @@ class Case:
     #: Reading-warning codes (``model.reading.WARNING_CODES``) the author has acknowledged: reports keep them
     #: silent (JSON lists them as accepted) and ``--strict`` does not make them errors.
     accept_warnings: tuple[str, ...] = ()
+    #: Several ports (``ports = [...]``, ``model.port_spec``): the matrices, their hand values and limits; ``port``
+    #: is then the first port. None: the usual one-port case.
+    multiport: MultiportSpec | None = None
 
     @property
     def name(self) -> str:
@@ -352,6 +356,7 @@ _TOP_KEYS = {
     "title",
     "netlist",
     "port",
+    "ports",
     "frequencies",
     "sweep",
     "sources",
@@ -381,7 +386,8 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
     excitation = _excitation(path, data)
     freqs = [0.0] if excitation == "dc" and not ({"frequencies", "sweep"} & set(data)) else _frequencies(path, data)
     _dc_frequencies(path, data, excitation, freqs)
-    expectations = _expectations(path, data, freqs)
+    multiport = multiport_from_case(path, data, freqs)  # None without ``ports``
+    expectations = _expectations(path, data, freqs) if multiport is None else []
     sources = string(path, data, "sources", "peak").lower()
     if sources not in ("peak", "rms"):
         raise _err(path, "sources", f'must be "peak" or "rms" (got {sources[:40]!r})')
@@ -391,17 +397,18 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         title=string(path, data, "title", path.stem),
         netlist_text=text,
         netlist_file=netlist_file,
-        port=_port(path, data),
+        port=_port(path, data) if multiport is None else (multiport.ports[0].port.a, multiport.ports[0].port.b),
         freqs_hz=tuple(sorted(freqs)),
         sources=sources,
         excitation=excitation,
         tolerance=tolerance,
         expectations=tuple(expectations),
-        limits=tuple(_limits(path, data)),
+        limits=tuple(_limits(path, data)) if multiport is None else (),
         allow_negative=boolean(path, data, "allow_negative", False),
         tags=_tags(path, data),
         caution=string(path, data, "caution", "").strip(),
         accept_warnings=accepted_warnings(data.get("accept_warnings", []), where=f"{path}: key 'accept_warnings'"),
+        multiport=multiport,
     )
 
 

@@ -31,7 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from crosscheck.model.network import Port
+from crosscheck.model.network import GROUND, Network, Port, node_parts
 
 
 @dataclass(frozen=True)
@@ -56,6 +56,21 @@ def port_list(pairs: Sequence[tuple[str, str]], names: Sequence[str | None] | No
         NamedPort(name=name if name else str(k + 1), port=Port(a, b))
         for k, ((a, b), name) in enumerate(zip(pairs, given, strict=True))
     )
+
+
+def floating_references(network: Network, ports: Sequence[Port]) -> list[str]:
+    """One node per ground-less part that holds a port: that port's b node, held at 0 V as the one-port route
+    refers a floating port (the first port met in a part chooses; two references in one part would short it).
+    Both routes use it, so they refer the same nodes."""
+    every = node_parts(network, network.element_arrays.kind != ord("K"))[1]
+    chosen: dict[int, str] = {}
+    for port in ports:
+        if port.b == GROUND or port.b not in network.node_index:
+            continue
+        part = int(every[network.node_index[port.b]])
+        if part != int(every[-1]):
+            chosen.setdefault(part, port.b)
+    return list(chosen.values())
 
 
 @dataclass(frozen=True)

@@ -20,17 +20,8 @@ import numpy as np
 
 from crosscheck.errors import PortError, SingularNetworkError
 from crosscheck.model.budget import ENTRIES_PER_ELEMENT, NO_DEADLINE, Budget, sweep_bytes
-from crosscheck.model.network import (
-    GROUND,
-    Network,
-    Port,
-    check_excitation,
-    check_port,
-    dc_view,
-    make_element,
-    node_parts,
-)
-from crosscheck.model.port_matrices import MatrixPoint, NamedPort
+from crosscheck.model.network import Network, Port, check_excitation, check_port, dc_view, make_element
+from crosscheck.model.port_matrices import MatrixPoint, NamedPort, floating_references
 from crosscheck.own.assembly import STAMPS, Stamps
 from crosscheck.own.equivalent import _ZERO_ROUNDOFF
 from crosscheck.own.solver import DENSE_LIMIT, THREADS_FROM, MnaSystem, default_threads
@@ -42,20 +33,6 @@ _NULL_SHARE = 0.1
 def plain_ports(ports: Sequence[Port | NamedPort]) -> tuple[Port, ...]:
     """The node pairs of ``ports``, named or not."""
     return tuple(p.port if isinstance(p, NamedPort) else p for p in ports)
-
-
-def floating_references(network: Network, ports: Sequence[Port]) -> list[str]:
-    """One node per ground-less part that holds a port: that port's b node, held at 0 V like the one-port
-    route's reference (the first port met in a part chooses; two ties in one part would short it)."""
-    every = node_parts(network, network.element_arrays.kind != ord("K"))[1]
-    chosen: dict[int, str] = {}
-    for port in ports:
-        if port.b == GROUND or port.b not in network.node_index:
-            continue
-        part = int(every[network.node_index[port.b]])
-        if part != int(every[-1]):
-            chosen.setdefault(part, port.b)
-    return list(chosen.values())
 
 
 def reduce_ports(
@@ -116,8 +93,10 @@ def _check_memory(network: Network, ties: int, frequencies: int, columns: int, b
     estimate = sweep_bytes(unknowns, nonzeros, frequencies, columns, dense=dense, threads=threads)
     budget.check_memory(
         estimate,
-        lambda: f"this multi-port sweep (at most {unknowns:,} unknowns, {frequencies:,} frequencies x {columns} "
-        "right-hand sides)",
+        lambda: (
+            f"this multi-port sweep (at most {unknowns:,} unknowns, {frequencies:,} frequencies x {columns} "
+            "right-hand sides)"
+        ),
     )
 
 

@@ -18,7 +18,8 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck
+from crosscheck.judge.multiport import MatrixPointCheck
+from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.vocabulary import QUANTITIES, Verdict, quantity_unit
@@ -86,7 +87,8 @@ def limit_unit(check: LimitCheck) -> str:
 
 def _spice_rows(r: CaseResult) -> list[dict]:
     rows = []
-    for p in r.points:
+    checks: list[PointCheck | MatrixPointCheck] = [*r.points, *(r.multiport.checks if r.multiport else ())]
+    for p in checks:  # with several ports, a row per matrix element too
         for q in p.quantities:
             rows.append(
                 dict(
@@ -176,6 +178,8 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
             rows.append(head | dict(check="input", freq_hz=math.nan, quantity="", verdict="error", explanation=r.error))
         body = _spice_rows(r) + [_expect_row(e) for e in r.expectations] + [_limit_row(c) for c in r.limits]
         body += [_drift_row(d) for d in r.drift]
+        if r.multiport is not None:
+            body += [_expect_row(e) for e in r.multiport.expectations] + [_limit_row(c) for c in r.multiport.limits]
         rows.extend(head | row for row in body)
     return pd.DataFrame(rows, columns=COLUMNS)
 

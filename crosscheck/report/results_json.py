@@ -17,6 +17,7 @@ from crosscheck.judge.hazards import Level
 from crosscheck.judge.result import CaseResult
 from crosscheck.report.caution import CAUTION, case_caution, case_cautions
 from crosscheck.report.equivalents_json import own_point
+from crosscheck.report.multiport_json import multiport_document
 from crosscheck.report.read_warnings import warned, warning_document
 from crosscheck.version import __version__
 from crosscheck.vocabulary import Verdict
@@ -196,7 +197,21 @@ def case_document(result: CaseResult) -> dict[str, Any]:
     }
     if result.spice is not None:
         doc["spice_strategy"] = result.spice.strategy
+    if result.multiport is not None:  # several ports: the matrices and their judgements (``multiport_json``)
+        doc["multiport"] = multiport_case_document(result)
     return doc
+
+
+def multiport_case_document(result: CaseResult) -> dict[str, Any] | None:
+    """The ``multiport`` object: ports, points (own, spice, element verdicts), hand values and limits."""
+    part = result.multiport
+    if part is None:
+        return None
+    return {
+        **multiport_document(part),
+        "expectations": [expectation_document(e) for e in part.expectations],
+        "limits": [limit_document(lim) for lim in part.limits],
+    }
 
 
 def read_document(result: CaseResult) -> dict[str, Any]:

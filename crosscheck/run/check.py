@@ -29,6 +29,7 @@ from crosscheck.model.network import Network, Port, check_excitation
 from crosscheck.model.reading import Reading
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
+from crosscheck.run.multiport import finish_multiport
 from crosscheck.spice.engine import SpiceResult
 from crosscheck.spice.workers import SpicePool
 from crosscheck.vocabulary import Verdict
@@ -122,7 +123,8 @@ def _stage(item: Case, engine: str, pool: SpicePool | None) -> tuple[CaseResult,
         read_notes=reading.notes,
         warnings=reading.warnings,
     )
-    future = pool.submit(network, port, item.freqs_hz) if pool is not None and engine != "own" else None
+    ports = [p.port for p in item.multiport.ports] if item.multiport is not None else []  # several: run.multiport
+    future = pool.submit(network, port, item.freqs_hz, ports=ports) if pool is not None and engine != "own" else None
     return head, network, future
 
 
@@ -161,6 +163,8 @@ def _finish(
     budget: Budget | None = None,
 ) -> CaseResult:
     """Both routes' answers for one case, then its judgement."""
+    if head.case is not None and head.case.multiport is not None:
+        return finish_multiport(head, head.case.multiport, network, future, engine, budget)
     started = time.perf_counter()
     own, error = None, None
     try:

@@ -38,6 +38,7 @@ from typing import Any
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.network import Network, Port
 from crosscheck.spice.engine import Engine, SpiceResult, Strategy, report_progress_to
+from crosscheck.spice.multiport import MultiportSpiceResult, solve_multiport
 
 
 @dataclass(frozen=True)
@@ -99,6 +100,8 @@ class Task:
     #: This case's own limits (``Budget.for_elements``, the pool's ``submit``); None: the worker's settings.
     cpu_s: float | None = None
     memory_bytes: int | None = None
+    #: A multi-port case (``SpicePool.submit_multiport``): its ports, solved by ``spice.multiport``; () for one port.
+    ports: tuple[Port, ...] = ()
 
 
 def describe_bytes(n: int | None) -> str:
@@ -207,7 +210,11 @@ def _one_case(
         if engine is None:
             assert startup_error is not None
             raise startup_error
-        result = solve_case(engine, task.network, task.port, task.freqs, task.strategy)
+        result: SpiceResult | MultiportSpiceResult
+        if task.ports:  # a multi-port case: ngspice's runs assembled into matrices (``spice.multiport``)
+            result = solve_multiport(engine, task.network, task.ports, task.freqs, task.strategy)
+        else:
+            result = solve_case(engine, task.network, task.port, task.freqs, task.strategy)
         return ("ok", result), bool(getattr(engine, "broken", False))  # ngspice that cannot recover: retire
     except CrosscheckError as exc:
         return ("error", exc), engine is not None and isinstance(exc, ReferenceEngineError)
