@@ -212,6 +212,8 @@ def _reduce_multiport(args: argparse.Namespace, result: CaseResult) -> int:
         print()
     else:
         print_multiport(report_console(), result)
+    if not _touchstone(args, [result], "reduce"):
+        return EXIT_ERROR
     return exit_code([result.verdict])
 
 

@@ -184,3 +184,24 @@ def test_reduce_refuses_to_write_over_its_netlist(tmp_path: Path, capsys: pytest
                  "--touchstone", str(netlist)])  # fmt: skip
     assert code != 0 and "input of this run" in capsys.readouterr().err
     assert netlist.read_text() == RC_NETLIST
+
+
+PI_NETLIST = "pi pad\nVs s 0 AC 1\nRs s p1 50\nRa p1 0 220\nRb p2 0 470\nRc p1 p2 100\n.end\n"
+
+
+@pytest.mark.parametrize("version", ["1.1", "2.0"])
+def test_reduce_with_two_ports_writes_an_s2p_scikit_rf_reads(tmp_path: Path, version: str) -> None:
+    """``reduce --port p1 0 --port p2 0 --touchstone pi.s2p``: scikit-rf reads the Pi network's Z
+    (Ra || (Rc + Rb) etc., with Rs in parallel at port 1 since Vs is zeroed; common practice), to 1e-10."""
+    from crosscheck.cli import main
+
+    netlist = tmp_path / "pi.cir"
+    netlist.write_text(PI_NETLIST)
+    out = tmp_path / "pi.s2p"
+    argv = ["reduce", str(netlist), "--port", "p1", "0", "--port", "p2", "0", "--freq", "1k", "--engine", "own"]
+    assert main([*argv, "--touchstone", str(out), "--touchstone-version", version]) == 0
+    ra, rb, rc = 1 / (1 / 220 + 1 / 50), 470.0, 100.0  # Rs (Vs zeroed) lies across port 1 with Ra
+    total = ra + rb + rc
+    z = np.array([[ra * (rb + rc), ra * rb], [ra * rb, rb * (ra + rc)]]) / total
+    np.testing.assert_allclose(skrf.Network(str(out)).z[0], z, rtol=1e-10)
+    assert "1 = 1 (p1, 0), 2 = 2 (p2, 0)" in out.read_text()

@@ -203,7 +203,10 @@ def result_matrices(result: CaseResult, kind: Kind, z0: float) -> tuple[list[flo
     multiport = getattr(result, "multiport", None)
     if multiport is not None:
         points = list(multiport.own)
-        names = [str(name) for name in multiport.port_names]
+        nodes = list(getattr(multiport, "port_nodes", ())) or [None] * len(multiport.port_names)
+        names = [
+            f"{name}" + (f" ({pair[0]}, {pair[1]})" if pair else "") for name, pair in zip(multiport.port_names, nodes)
+        ]
         zs = [p.z for p in points]
         ys = [p.y for p in points]
     elif result.own:
