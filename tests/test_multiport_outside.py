@@ -122,3 +122,56 @@ def test_matched_attenuator_s_parameters(pad, db: float, z0: float) -> None:
     s = s_from_z(z, z0)
     through = 10 ** (-db / 20)
     np.testing.assert_allclose(s, [[0, through], [through, 0]], rtol=0, atol=RTOL)
+
+
+# ---------------------------------------------------------------- the same closed forms through ngspice
+
+#: ngspice's AC analysis is a direct complex solve of a linear network (its iteration tolerances govern
+#: nonlinear convergence only), so its Z agrees with the closed forms near rounding; 1e-8 leaves room for the
+#: values passing through its output vectors and still fails on a wrong port, sign or coupling.
+RTOL_SPICE = 1e-8
+
+
+def _spice_z(tmp_path, capsys, netlist: str, ports: list[tuple[str, str]], f_hz: float) -> np.ndarray:
+    """ngspice's Z from ``crosscheck reduce --port ... --format json`` (the SPICE multi-port route)."""
+    import json
+
+    from crosscheck.cli import main
+
+    path = tmp_path / "net.cir"
+    path.write_text(netlist)
+    argv = ["reduce", str(path), "--freq", str(f_hz), "--format", "json"]
+    for a, b in ports:
+        argv += ["--port", a, b]
+    main(argv)
+    (point,) = json.loads(capsys.readouterr().out)["points"]
+    assert point["spice"] is not None, "ngspice gave no answer"
+    return np.array([[e["re"] + 1j * e["im"] for e in row] for row in point["spice"]["z"]])
+
+
+@pytest.mark.spice
+def test_ngspice_agrees_with_the_closed_forms(tmp_path, capsys) -> None:
+    """The T network, the three-phase line's sequence impedances and a 10 dB Pi pad, through ngspice's runs."""
+    r1, r2, r3 = 33.0, 68.0, 150.0
+    z = _spice_z(
+        tmp_path, capsys, f"T\nR1 p1 m {r1}\nR2 m p2 {r2}\nR3 m 0 {r3}\n.end\n", [("p1", "0"), ("p2", "0")], 1e3
+    )
+    err = np.max(np.abs(z - [[r1 + r3, r3], [r3, r2 + r3]])) / (r2 + r3)
+    assert err <= RTOL_SPICE, f"T network through ngspice: relative error {err:.2e}"
+
+    r, l_h, k, rg, f = 0.08, 0.9e-3, 0.35, 0.5, 50.0
+    net = (
+        "line\n"
+        f"Ra a xa {r}\nLa xa n {l_h}\nRb b xb {r}\nLb xb n {l_h}\nRc c xc {r}\nLc xc n {l_h}\n"
+        f"Kab La Lb {k}\nKbc Lb Lc {k}\nKca Lc La {k}\nRg n 0 {rg}\n.end\n"
+    )
+    w = 2 * math.pi * f
+    zs, zm = r + rg + 1j * w * l_h, rg + 1j * w * k * l_h
+    sequence = _fortescue(_spice_z(tmp_path, capsys, net, [("a", "0"), ("b", "0"), ("c", "0")], f))
+    expected = np.diag([zs + 2 * zm, zs - zm, zs - zm])
+    err = np.max(np.abs(sequence - expected)) / abs(zs + 2 * zm)
+    assert err <= RTOL_SPICE, f"sequence impedances through ngspice: relative error {err:.2e}\n{sequence}"
+
+    s = s_from_z(_spice_z(tmp_path, capsys, _pi_attenuator(10.0, 50.0), [("p1", "0"), ("p2", "0")], 1e6), 50.0)
+    through = 10 ** (-10.0 / 20)
+    np.testing.assert_allclose(s, [[0, through], [through, 0]], rtol=0, atol=RTOL_SPICE)
