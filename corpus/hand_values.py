@@ -484,8 +484,41 @@ def weighbridge_adc_filter(f_hz: float) -> dict[str, complex]:
     return {"vth": v1 * zsh / (zs2 + zsh), "zth": par(zs2, zsh)}
 
 
+# ------------------------------------------------------------------ multi-port cases
+
+
+def chapel_mic_input(f_hz: float) -> dict[str, complex]:
+    """A symmetric pair seen from its two legs: the half circuits (differential mode: the phantom node and the
+    middle of Rin and of Cx sit at 0 V; common mode: Rin and Cx carry no current)."""
+    w = TAU * f_hz
+    rph = 6.81e3  # Rph2 hot p48 6.81k, Rph3 cold p48 6.81k
+    cdec, esr = 47e-6, 0.5  # Cdec p48 esr 47u, Resr esr 0 0.5
+    crf = 470e-12  # Crf2 hot 0 470p, Crf3 cold 0 470p
+    cx = 100e-12  # Cx hot cold 100p
+    rin = 2.4e3  # Rin hot cold 2.4k
+    zdiff = 2 * par(rph, zc(crf, w), rin / 2, zc(2 * cx, w))
+    zcomm = par(zc(2 * crf, w), rph / 2 + esr + zc(cdec, w))
+    # symmetric Z: zdiff = 2 (z11 - z21), zcomm = (z11 + z21)/2
+    return {"zdiff": zdiff, "zcomm": zcomm, "z11": zcomm + zdiff / 4, "z21": zcomm - zdiff / 4}
+
+
+def cold_store_feeder(f_hz: float) -> dict[str, complex]:
+    """Balanced phases with a common return: Zs = Zphase + Zret, Zm = jwM + Zret; Z0 = Zs + 2 Zm, Z1 = Z2 = Zs - Zm."""
+    w = TAU * f_hz
+    length = 120.0  # .param len=120 (m)
+    r = 0.193 * length / 1000  # Ra/Rb/Rc {r_km*len/1000}, r_km=0.193
+    ell = 0.40e-3 * length / 1000  # La/Lb/Lc {l_km*len/1000}, l_km=0.40m
+    m = 0.4 * ell  # Kab/Kbc/Kca {k_ph}, k_ph=0.4: M = k L
+    zret = 0.193 * length / 1000 + 1j * w * 0.25e-3 * length / 1000  # Rret {r_km*len/1000}, Lret {l_ret_km*len/1000}
+    zs = r + 1j * w * ell + zret
+    zm = 1j * w * m + zret
+    return {"z11": zs, "z21": zm, "z0": zs + 2 * zm, "z1": zs - zm, "z2": zs - zm}
+
+
 #: (case file under corpus/, function, frequency in Hz) for every [[expect]], in file order.
 POINTS = (
+    ("audio/chapel_mic_input", chapel_mic_input, 1e3),
+    ("audio/chapel_mic_input", chapel_mic_input, 20e3),
     ("audio/guitar_pickup_cable", guitar_pickup_cable, 1e3),
     ("audio/guitar_pickup_cable", guitar_pickup_cable, 3.3e3),
     ("audio/headphone_output", headphone_output, 20e3),
@@ -508,6 +541,8 @@ POINTS = (
     ("instrumentation/valve_spool_lvdt", valve_spool_lvdt, 2.5e3),
     ("instrumentation/weighbridge_adc_filter", weighbridge_adc_filter_dc, 0.0),
     ("instrumentation/weighbridge_adc_filter", weighbridge_adc_filter, 1e3),
+    ("power_distribution/cold_store_feeder", cold_store_feeder, 50.0),
+    ("power_distribution/cold_store_feeder", cold_store_feeder, 50.0),
     ("power_distribution/pfc_bank_detuned", pfc_bank_detuned, 50.0),
     ("power_distribution/pfc_bank_detuned", pfc_bank_detuned, 250.0),
     ("power_distribution/switchboard_fault_level", switchboard_fault_level, 50.0),

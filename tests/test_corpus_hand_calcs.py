@@ -25,10 +25,12 @@ import numpy as np
 import pytest
 
 from crosscheck.model.cases import Case, load_case
-from crosscheck.own.equivalent import Equivalent, thevenin
 from crosscheck.model.netlist import read_netlist
-from crosscheck.model.values import parse_number
 from crosscheck.model.network import GROUND, Network, Port, floating_reference
+from crosscheck.model.port_matrices import MatrixPoint
+from crosscheck.model.values import parse_number
+from crosscheck.own.equivalent import Equivalent, thevenin
+from crosscheck.own.multiport import reduce_ports
 
 ROOT = Path(__file__).resolve().parent.parent
 CORPUS = ROOT / "corpus"
@@ -45,6 +47,44 @@ def _network(case: Case) -> tuple[Network, Port]:
     port = Port(*case.port)
     return read_netlist(case.netlist_text, file=case.netlist_file, port=port,
                         allow_negative=case.allow_negative), port
+
+
+def _expectations_of(case: Case) -> tuple:
+    """The case's [[expect]]: one-port ``Expectation``s, or a multi-port case's ``MatrixExpectation``s."""
+    return case.multiport.expectations if case.multiport is not None else case.expectations
+
+
+def _limits_of(case: Case) -> tuple:
+    return case.multiport.limits if case.multiport is not None else case.limits
+
+
+def _points(case: Case, freqs: list[float]) -> dict[float, MatrixPoint]:
+    network, _ = _network(case)
+    assert case.multiport is not None
+    return dict(zip(freqs, reduce_ports(network, case.multiport.ports, freqs)))
+
+
+_A = complex(-0.5, math.sqrt(3) / 2)  # e^(j 120 deg)
+#: Fortescue's matrix: phase quantities = FORTESCUE @ sequence quantities (common practice).
+FORTESCUE = np.array([[1, 1, 1], [1, _A * _A, _A], [1, _A, _A * _A]])
+
+
+def _matrix_quantity(point: MatrixPoint, key: str) -> complex | None:
+    """``key`` of a multi-port point, written here apart from the judge: z<i><j>, y<i><j>, voc<k>, isc<k>, the pair's
+    zdiff = z11 - z12 - z21 + z22 and zcomm = (z11 + z12 + z21 + z22)/4, and z0 z1 z2 from A^-1 Z A."""
+    if key in ("zdiff", "zcomm") and point.z is not None:
+        z = point.z
+        return complex(z[0, 0] - z[0, 1] - z[1, 0] + z[1, 1] if key == "zdiff" else z.sum() / 4)
+    if key in ("z0", "z1", "z2") and point.z is not None:
+        k = int(key[1])
+        return complex(np.linalg.solve(FORTESCUE, point.z @ FORTESCUE)[k, k])
+    m = re.fullmatch(r"(z|y)(\d)(\d)|(voc|isc)(\d)", key)
+    assert m is not None, f"no such quantity {key!r}"
+    if m.group(1):
+        matrix = point.z if m.group(1) == "z" else point.y
+        return None if matrix is None else complex(matrix[int(m.group(2)) - 1, int(m.group(3)) - 1])
+    vector = point.voc if m.group(4) == "voc" else point.isc
+    return None if vector is None else complex(vector[int(m.group(5)) - 1])
 
 
 def _phase_diff_deg(a: complex, b: complex) -> float:
@@ -95,15 +135,20 @@ def _mismatch(key: str, expected: complex, obtained: complex | float | None, rel
 def test_hand_calculations_agree_with_the_solver(path: Path) -> None:
     """Every [[expect]] value of the case agrees with crosscheck's own solver to the tolerance the case states."""
     case = load_case(path)
-    assert case.expectations, f"{path}: no [[expect]]"
+    assert _expectations_of(case), f"{path}: no [[expect]]"
     network, port = _network(case)
-    freqs = sorted({e.at_hz for e in case.expectations})
-    equivalents = dict(zip(freqs, thevenin(network, port, freqs)))
+    freqs = sorted({e.at_hz for e in _expectations_of(case)})
+    if case.multiport is not None:
+        points = _points(case, freqs)
+        obtained = {f: (lambda key, f=f: _matrix_quantity(points[f], key)) for f in freqs}
+    else:
+        equivalents = dict(zip(freqs, thevenin(network, port, freqs)))
+        obtained = {f: (lambda key, f=f: _obtained(equivalents[f], key)) for f in freqs}
     problems = []
-    for e in case.expectations:
+    for e in _expectations_of(case):
         tol = e.tolerance
         for key, expected in e.values.items():
-            why = _mismatch(key, expected, _obtained(equivalents[e.at_hz], key), tol.rel, tol.abs, tol.phase_deg)
+            why = _mismatch(key, expected, obtained[e.at_hz](key), tol.rel, tol.abs, tol.phase_deg)
             if why:
                 problems.append(f"expect[{e.index}] at {e.at_hz:g} Hz: {why}")
     assert not problems, f"{path}:\n  " + "\n  ".join(problems)
@@ -172,7 +217,7 @@ def test_stated_values_are_the_scripts_values_rounded_as_stated(path: Path, hand
     case = load_case(path)
     raw = tomllib.loads(path.read_text(encoding="utf-8"))["expect"]
     problems = []
-    for e, table in zip(case.expectations, raw, strict=True):
+    for e, table in zip(_expectations_of(case), raw, strict=True):
         where = f"expect[{e.index}] at {e.at_hz:g} Hz"
         function, digits = _FUNCTION.search(e.how), _DIGITS.search(e.how)
         if function is None or digits is None:
@@ -197,7 +242,7 @@ def test_the_script_covers_every_expectation_and_nothing_else(hand_values) -> No
     frequency), in file order: no stated value without a source, no script value without a case."""
     in_corpus = []
     for path in CASE_FILES:
-        for e in load_case(path).expectations:
+        for e in _expectations_of(load_case(path)):
             found = _FUNCTION.search(e.how)
             in_corpus.append((_case_id(path), found.group(1) if found else None, e.at_hz))
     in_script = [(case, function.__name__, f_hz) for case, function, f_hz in hand_values.POINTS]
@@ -222,14 +267,19 @@ def _limit_value(function: str, q: complex) -> float:
 def _limit_violations(case: Case) -> list[str]:
     """Each (limit, frequency) at which a limit of the case is not met, by our own reading of the limit."""
     network, port = _network(case)
-    eqs = thevenin(network, port, list(case.freqs_hz))
+    if case.multiport is not None:
+        eqs = list(_points(case, list(case.freqs_hz)).values())
+        value_of = _matrix_quantity
+    else:
+        eqs = thevenin(network, port, list(case.freqs_hz))
+        value_of = _obtained
     out = []
-    for lim in case.limits:
+    for lim in _limits_of(case):
         lo, hi = lim.band if lim.band is not None else (-math.inf, math.inf)
         in_band = [eq for eq in eqs if lo * (1 - 1e-12) <= eq.freq_hz <= hi * (1 + 1e-12)]
         assert in_band, f"{case.path}: limit[{lim.index}] {lim.text} has no computed frequency in its band"
         for eq in in_band:
-            q = _obtained(eq, lim.quantity)
+            q = value_of(eq, lim.quantity)
             assert q is not None, f"{case.path}: limit[{lim.index}] {lim.text}: no {lim.quantity} at {eq.freq_hz:g} Hz"
             v = _limit_value(lim.function, complex(q))
             if (lim.minimum is not None and v < lim.minimum) or (lim.maximum is not None and v > lim.maximum):
@@ -312,9 +362,9 @@ def test_every_case_has_a_documented_expectation_and_a_limit(corpus) -> None:
     for path, case, raw, _, _ in corpus:
         assert case.title and case.title != path.stem, f"{path}: no title"
         assert path.read_text(encoding="utf-8").startswith("#"), f"{path}: should open with a comment block"
-        assert case.expectations, f"{path}: no [[expect]]"
-        assert all(e.how.strip() for e in case.expectations), f"{path}: an [[expect]] without how"
-        assert case.limits, f"{path}: no [[limit]]"
+        assert _expectations_of(case), f"{path}: no [[expect]]"
+        assert all(e.how.strip() for e in _expectations_of(case)), f"{path}: an [[expect]] without how"
+        assert _limits_of(case), f"{path}: no [[limit]]"
         assert all(str(item.get("why", "")).strip() for item in raw["limit"]), f"{path}: a [[limit]] without why"
 
 
@@ -323,7 +373,8 @@ def test_corpus_covers_the_features_it_claims(corpus) -> None:
     kinds: dict[str, list[str]] = {}
     found: dict[str, list[str]] = {k: [] for k in (
         "subckt", "nested subckt", "param", "inline netlist", "floating port", "floating transformer secondary",
-        "sweep", "sweep with a limit over a band", "DC point", "rms sources", "Norton expectation", "series form")}
+        "sweep", "sweep with a limit over a band", "DC point", "rms sources", "Norton expectation", "series form",
+        "three-phase sequence-impedance limits", "differential-pair mode limits")}
     for path, case, raw, network, port in corpus:
         name = _case_id(path)
         for e in network.elements:
@@ -353,6 +404,11 @@ def test_corpus_covers_the_features_it_claims(corpus) -> None:
             found["Norton expectation"].append(name)
         if any(k.startswith("series_") for e in case.expectations for k in e.values):
             found["series form"].append(name)
+        limited = {lim.quantity for lim in _limits_of(case)}
+        if case.multiport is not None and {"z0", "z1", "z2"} <= limited:
+            found["three-phase sequence-impedance limits"].append(name)
+        if case.multiport is not None and {"zdiff", "zcomm"} <= limited:
+            found["differential-pair mode limits"].append(name)
     for kind in ("E", "G", "F", "H", "K"):
         assert kinds.get(kind), f"no case uses a {kind} element"
     assert len(set(kinds["K"])) >= 2, "coupled inductors should appear in a transformer and in a coupled-inductor filter"
@@ -390,7 +446,10 @@ def test_corpus_passes_solver_against_spice() -> None:
 
     with SpicePool(workers=2) as pool:
         results = run_cases([load_case(p) for p in CASE_FILES], engine="both", pool=pool)
+    def compared(r) -> tuple:
+        return r.multiport.checks if r.multiport is not None else r.points
+
     bad = [(r.name, r.verdict, r.error or r.explanation) for r in results
-           if r.error or not r.points or any(p.verdict != "pass" for p in r.points)]
+           if r.error or not compared(r) or any(p.verdict != "pass" for p in compared(r))]
     assert not bad, bad
     assert [r.verdict for r in results] == ["pass"] * len(results), [(r.name, r.verdict) for r in results]

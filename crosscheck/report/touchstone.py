@@ -260,9 +260,10 @@ def _ports_of(result: CaseResult) -> int:
 
 
 def _file_name(result: CaseResult, taken: set[str]) -> str:
-    """``<case name>.sNp``, the name with anything but letters, digits, ``.``, ``-``, ``_`` made ``_``; a name
+    """``<case file's stem>.sNp``, the stem with anything but letters, digits, ``.``, ``-``, ``_`` made ``_``; a name
     already ``taken`` (two cases of one name in different folders) gets ``-2``, ``-3``..."""
-    stem = re.sub(r"[^A-Za-z0-9._-]", "_", result.name.replace("\\", "/").split("/")[-1]).lstrip(".") or "case"
+    base = Path(result.name.replace("\\", "/").split("/")[-1]).stem
+    stem = re.sub(r"[^A-Za-z0-9._-]", "_", base).lstrip(".") or "case"
     name, k = f"{stem}.s{_ports_of(result)}p", 1
     while name.lower() in taken:
         k += 1
