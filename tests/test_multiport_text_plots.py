@@ -58,3 +58,21 @@ def test_figure_is_a_png_with_and_without_spice() -> None:
         assert z_magnitude_figure(f, z, spice, ["a", "b"]).startswith(PNG_MAGIC)
     z[0, 0, 1] = np.nan
     assert z_magnitude_figure(f[:1], z[:1], None, ["a", "b"]).startswith(PNG_MAGIC)
+
+
+def test_case_figure_from_a_multiport_result() -> None:
+    """A three-port case run by the own route gives a PNG; a one-port result gives None."""
+    from pathlib import Path
+
+    from crosscheck.model.cases import load_case
+    from crosscheck.report.multiport_plots import case_z_figure
+    from crosscheck.run.check import run_cases
+
+    corpus = Path(__file__).resolve().parent.parent / "corpus"
+    three, one = run_cases(
+        [load_case(corpus / "power_distribution/cold_store_feeder.toml"), load_case(corpus / "rf/whip_l_match.toml")],
+        engine="own",
+    )
+    png = case_z_figure(three)
+    assert png is not None and png.startswith(PNG_MAGIC)
+    assert case_z_figure(one) is None

@@ -11,8 +11,14 @@ from __future__ import annotations
 
 import io
 from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+from crosscheck.model.port_matrices import MatrixPoint
+
+if TYPE_CHECKING:
+    from crosscheck.judge.result import CaseResult
 
 #: Okabe & Ito's colour-blind-safe palette ("Color Universal Design", Okabe and Ito 2008), as in report/plots.
 PALETTE = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#000000", "#F0E442")
@@ -85,3 +91,26 @@ def z_magnitude_figure(
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
     return buffer.getvalue()
+
+
+def _stacked(points: Sequence[MatrixPoint] | None, n: int) -> np.ndarray | None:
+    """(F, n, n) Z of the points, NaN where a point has no Z."""
+    if points is None:
+        return None
+    blank = np.full((n, n), np.nan, dtype=complex)
+    return np.array([blank if p.z is None else p.z for p in points], dtype=complex)
+
+
+def case_z_figure(result: CaseResult, dpi: int = 72) -> bytes | None:
+    """The figure of a ``CaseResult`` with a multi-port part (``result.multiport``), or None without one or when
+    the own route gave no Z at any frequency. The HTML report calls this once per case."""
+    multiport = result.multiport
+    if multiport is None or not multiport.own:
+        return None
+    n = len(multiport.port_names)
+    own = _stacked(multiport.own, n)
+    if own is None or np.all(np.isnan(own)):
+        return None
+    spice = _stacked(multiport.spice, n) if multiport.spice and len(multiport.spice) == len(multiport.own) else None
+    freqs = [p.freq_hz for p in multiport.own]
+    return z_magnitude_figure(freqs, own, spice, [str(name) for name in multiport.port_names], dpi=dpi)

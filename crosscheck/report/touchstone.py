@@ -200,23 +200,22 @@ def _same_file(a: Path, b: Path) -> bool:
 
 def result_matrices(result: CaseResult, kind: Kind, z0: float) -> tuple[list[float], np.ndarray, list[str]]:
     """Frequencies, matrices of ``kind`` and port names from the own route of ``result`` (one or N ports)."""
-    multiport = getattr(result, "multiport", None)
+    multiport = result.multiport
+    zs: list[np.ndarray | None]
+    ys: list[np.ndarray | None]
     if multiport is not None:
-        points = list(multiport.own)
-        nodes = list(getattr(multiport, "port_nodes", ())) or [None] * len(multiport.port_names)
-        names = [
-            f"{name}" + (f" ({pair[0]}, {pair[1]})" if pair else "") for name, pair in zip(multiport.port_names, nodes)
-        ]
-        zs = [p.z for p in points]
-        ys = [p.y for p in points]
+        freqs = [float(p.freq_hz) for p in multiport.own]
+        nodes: list[tuple[str, str] | None] = [*multiport.port_nodes] or [None] * len(multiport.port_names)
+        names = [f"{name}" + (f" ({p[0]}, {p[1]})" if p else "") for name, p in zip(multiport.port_names, nodes)]
+        zs = [p.z for p in multiport.own]
+        ys = [p.y for p in multiport.own]
     elif result.own:
-        points = list(result.own)
+        freqs = [float(e.freq_hz) for e in result.own]
         names = [f"{result.port[0]}-{result.port[1]}"]
-        zs = [None if _bad(e.zth) else np.array([[e.zth]]) for e in points]
-        ys = [None if _bad(e.yn) else np.array([[e.yn]]) for e in points]
+        zs = [None if _bad(e.zth) else np.array([[e.zth]]) for e in result.own]
+        ys = [None if _bad(e.yn) else np.array([[e.yn]]) for e in result.own]
     else:
         raise TouchstoneError(f"case {result.name!r} has no own-route answer to export: {result.error or 'none'}")
-    freqs = [float(p.freq_hz) for p in points]
     missing = [f for f, z, y in zip(freqs, zs, ys, strict=True) if (y if kind == "Y" else z) is None]
     if missing:
         what = "admittance (Norton) form" if kind == "Y" else "impedance (Thevenin) form"
@@ -255,7 +254,7 @@ def export_from_result(
 
 
 def _ports_of(result: CaseResult) -> int:
-    multiport = getattr(result, "multiport", None)
+    multiport = result.multiport
     return len(multiport.port_names) if multiport is not None else 1
 
 
