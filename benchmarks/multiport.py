@@ -60,7 +60,9 @@ def main() -> int:
         one = min(one, best_of(lambda: thevenin(network, port, freqs), 1))
         many = min(many, best_of(lambda: reduce_ports(network, ports, freqs), 1))
     ratio = many / one
-    print(f"network: {args.family}, {len(network.nodes):,} nodes, {len(network.elements):,} elements; {len(freqs)} freqs")
+    print(
+        f"network: {args.family}, {len(network.nodes):,} nodes, {len(network.elements):,} elements; {len(freqs)} freqs"
+    )
     print(f"one port  (thevenin):     {one * 1e3:9.1f} ms")
     print(f"three ports (reduce_ports): {many * 1e3:7.1f} ms")
     print(f"ratio three/one: {ratio:.2f} (goal < {GOAL_RATIO:g}: {'met' if ratio < GOAL_RATIO else 'NOT met'})")
