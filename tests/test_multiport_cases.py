@@ -1,0 +1,163 @@
+"""Multi-port cases end to end: case-file ``ports`` and their errors, ngspice's matrices against the own
+route's on random networks, hand values and limits on matrices, and `reduce --port ... --port ...`."""
+
+from __future__ import annotations
+
+import json
+import textwrap
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+from test_multiport import random_network, random_ports
+
+from crosscheck.cli import main
+from crosscheck.errors import CaseFileError
+from crosscheck.judge.multiport import element_names
+from crosscheck.model.cases import load_case
+from crosscheck.own.multiport import reduce_ports
+from crosscheck.report.csv_out import csv_report
+from crosscheck.report.junit import junit_xml
+from crosscheck.report.markdown import markdown_report
+from crosscheck.report.results_json import results_document
+from crosscheck.run.check import run_cases
+from crosscheck.spice.workers import SpicePool
+
+DIVIDER = "V1 in 0 AC 1\nR1 in a 100\nR2 a 0 200\nR3 a b 50\nR4 b 0 300\nG1 b 0 a 0 0.01\n"
+
+
+def _case(tmp_path: Path, body: str) -> Path:
+    path = tmp_path / "case.toml"
+    path.write_text(f'netlist = """\n* two ports\n{DIVIDER}.end\n"""\nfrequencies = ["1k"]\n' + textwrap.dedent(body))
+    return path
+
+
+def test_ports_in_both_forms(tmp_path: Path) -> None:
+    plain = load_case(_case(tmp_path, 'ports = [["a", "0"], ["b", "0"]]\n'))
+    named = load_case(_case(tmp_path, 'ports = [{name = "left", nodes = ["a", "0"]}, {nodes = ["b", "0"]}]\n'))
+    assert plain.multiport is not None and [p.name for p in plain.multiport.ports] == ["1", "2"]
+    assert named.multiport is not None and [p.name for p in named.multiport.ports] == ["left", "2"]
+    assert named.port == ("a", "0") and named.multiport.ports[1].port.a == "b"
+
+
+@pytest.mark.parametrize(
+    ("body", "key"),
+    [
+        ('ports = [["a", "0"]]\n', "ports"),
+        ('ports = [["a", "0"], ["b"]]\n', "ports[2]"),
+        ('ports = [["a", "0"], ["b", "b"]]\n', "ports[2]"),
+        ('ports = [["a", "0"], {name = "x"}]\n', "ports[2]"),
+        ('port = ["a", "0"]\nports = [["a", "0"], ["b", "0"]]\n', "port"),
+        ('ports = [{name = "p", nodes = ["a", "0"]}, {name = "p", nodes = ["b", "0"]}]\n', "ports"),
+        ('ports = [["a", "0"], ["b", "0"]]\n[[expect]]\nat = "1k"\nz13 = "5"\n', "expect[1].z13"),
+        ('ports = [["a", "0"], ["b", "0"]]\n[[expect]]\nat = "1k"\nz0 = "5"\n', "expect[1].z0"),
+        ('ports = [["a", "0"], ["b", "0"]]\n[[limit]]\nquantity = "abs(z3)"\nmax = 1\n', "limit[1].quantity"),
+    ],
+)
+def test_case_file_errors_name_the_key(tmp_path: Path, body: str, key: str) -> None:
+    with pytest.raises(CaseFileError) as caught:
+        load_case(_case(tmp_path, body))
+    assert f"'{key}'" in str(caught.value) or f"key {key}" in str(caught.value) or key in str(caught.value)
+
+
+def test_hand_values_and_limits_on_matrices(tmp_path: Path) -> None:
+    """By hand (nodal analysis of DIVIDER at a and b): z11 = 37.84, z21 = 16.22, z12 = 32.43; isc1 = 10 mA."""
+    body = """
+    ports = [["a", "0"], ["b", "0"]]
+    [[expect]]
+    at = "1k"
+    z11 = "37.84"
+    z21 = "16.22"
+    isc1 = "10m"
+    [[expect]]
+    at = "1k"
+    z12 = "16.22"
+    [[limit]]
+    quantity = "abs(z21)"
+    max = 20
+    [[limit]]
+    quantity = "re(zdiff)"
+    min = 100
+    """
+    [result] = run_cases([load_case(_case(tmp_path, body))], engine="own")
+    part = result.multiport
+    assert part is not None
+    verdicts = {(e.index, e.quantity): e.verdict for e in part.expectations}
+    assert verdicts == {(1, "z11"): "pass", (1, "z21"): "pass", (1, "isc1"): "pass", (2, "z12"): "fail"}
+    # zdiff = z11 - z12 - z21 + z22 = 37.84 - 32.43 - 16.22 + 56.76 = 45.95 < 100
+    assert [x.verdict for x in part.limits] == ["pass", "fail"]
+    assert result.verdict == "fail" and "z12" in result.explanation
+    doc = results_document([result])["cases"][0]["multiport"]
+    assert [e["verdict"] for e in doc["expectations"]] == ["pass", "pass", "pass", "fail"]
+    assert "failure" in junit_xml([result]) and "z12" in markdown_report([result])
+    assert "z12" in csv_report([result])
+
+
+@pytest.mark.spice
+def test_own_route_matches_ngspice_on_random_multiports() -> None:
+    """Every element of voc, Z, isc and Y within the default 1e-6 tolerance, with the element verdicts."""
+    from crosscheck.model.cases import Case
+    from crosscheck.model.netlist_writer import write_netlist
+    from crosscheck.model.port_matrices import port_list
+    from crosscheck.model.port_spec import MultiportSpec
+
+    cases = []
+    for seed in range(6):
+        network = random_network(seed, controlled=seed % 2 == 1)
+        ports = random_ports(seed, 2 + seed % 2)
+        pairs = [(p.a, p.b) for p in ports]
+        case = Case(Path(f"random{seed}"), "", write_netlist(network), f"random{seed}.cir", pairs[0], (0.0, 1e3, 1e5))
+        cases.append(replace(case, multiport=MultiportSpec(port_list(pairs))))
+    with SpicePool(workers=2) as pool:
+        results = run_cases(cases, engine="both", pool=pool)
+    for result in results:
+        part = result.multiport
+        assert result.error is None and part is not None and part.spice is not None, result.error
+        for check in part.checks:
+            assert [q.quantity for q in check.quantities] == element_names(len(part.port_names))
+            assert check.verdict == "pass", check.explanation
+            assert check.z_norm_error is not None and check.z_norm_error <= 1e-9
+        for own, spice in zip(part.own, part.spice, strict=True):
+            assert own.isc is not None and spice.isc is not None  # ngspice's own short-circuit run
+            assert np.linalg.norm(own.isc - spice.isc) <= 1e-9 * np.linalg.norm(own.isc)
+
+
+@pytest.mark.spice
+def test_ngspice_degenerate_ports_agree() -> None:
+    """Two ports joined by a voltage source: ngspice makes no short run either, and gives no Norton form."""
+    from crosscheck.model.netlist import read_netlist
+    from crosscheck.model.network import Port
+    from crosscheck.spice.multiport import shorts_close_a_loop
+
+    network = read_netlist("j\nV1 a b AC 1\nR1 a 0 100\nR2 b 0 200\n.end\n")
+    ports = [Port("a", "0"), Port("b", "0")]
+    assert shorts_close_a_loop(network, ports)
+    with SpicePool(workers=1) as pool:
+        spice = pool.submit(network, ports[0], [1e3], ports=ports).result()
+    [point] = spice.points
+    [own] = reduce_ports(network, ports, [1e3])
+    assert point.y is None and point.isc is None and own.y is None
+    assert point.z is not None and own.z is not None and np.allclose(point.z, own.z, rtol=1e-9)
+
+
+def test_reduce_with_two_ports_gives_matrices_in_json(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    net = tmp_path / "net.cir"
+    net.write_text(f"two ports\n{DIVIDER}.end\n")
+    code = main(["reduce", str(net), "--port", "a", "0", "--port", "b", "0", "--freq", "1k", "--engine", "own",
+                 "--format", "json"])  # fmt: skip
+    doc = json.loads(capsys.readouterr().out)
+    assert code == 0 and [p["name"] for p in doc["ports"]] == ["1", "2"]
+    [point] = doc["points"]
+    z = point["own"]["z"]
+    assert len(z) == 2 and len(z[0]) == 2 and set(z[1][0]) == {"re", "im"}
+    assert abs(z[1][0]["re"] - 16.216216216216) <= 1e-9 and abs(z[0][1]["re"] - 32.432432432432) <= 1e-9
+    assert len(point["own"]["voc"]) == 2 and point["own"]["isc"] is not None and point["own"]["y"] is not None
+    assert point["own"]["reciprocity"] > 0.1
+
+
+def test_reduce_refuses_one_port_expect_with_several_ports(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    net = tmp_path / "net.cir"
+    net.write_text(f"two ports\n{DIVIDER}.end\n")
+    code = main(["reduce", str(net), "--port", "a", "0", "--port", "b", "0", "--freq", "1k", "--expect", "zth=5"])
+    assert code == 2 and "[[expect]]" in capsys.readouterr().err
