@@ -17,6 +17,7 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.model.port_matrices import MatrixPoint
 from crosscheck.model.values import format_eng, format_rect
 from crosscheck.report.caution import CAUTION
+from crosscheck.report.multiport_text import matrix_lines as folded_matrix_lines
 from crosscheck.report.results_json import multiport_case_document, read_document, results_document
 from crosscheck.report.untrusted import terminal_text
 
@@ -35,7 +36,7 @@ def plain_matrix_lines(label: str, matrix: np.ndarray, port_names: Sequence[str]
     return lines
 
 
-matrix_lines = plain_matrix_lines
+matrix_lines = folded_matrix_lines
 #: Reciprocity figure above which the text says "not reciprocal": far above rounding (~1e-16), far below any
 #: controlled source that matters.
 RECIPROCAL_BELOW = 1e-9
