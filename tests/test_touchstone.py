@@ -205,3 +205,27 @@ def test_reduce_with_two_ports_writes_an_s2p_scikit_rf_reads(tmp_path: Path, ver
     z = np.array([[ra * (rb + rc), ra * rb], [ra * rb, rb * (ra + rc)]]) / total
     np.testing.assert_allclose(skrf.Network(str(out)).z[0], z, rtol=1e-10)
     assert "1 = 1 (p1, 0), 2 = 2 (p2, 0)" in out.read_text()
+
+
+@pytest.mark.spice
+def test_verify_writes_one_file_per_case_into_a_folder(tmp_path: Path) -> None:
+    """``verify A.toml B.toml --touchstone DIR``: one <stem>.sNp per case (3 and 2 ports), each read back by
+    scikit-rf equal to the own route's Z to 1e-10 (the printed precision, see the module docstring)."""
+    from crosscheck.cli import main
+    from crosscheck.model.cases import load_case
+    from crosscheck.model.netlist import read_netlist
+    from crosscheck.own.multiport import reduce_ports
+
+    corpus = Path(__file__).resolve().parent.parent / "corpus"
+    cases = [corpus / "power_distribution" / "cold_store_feeder.toml", corpus / "audio" / "chapel_mic_input.toml"]
+    out = tmp_path / "touchstone"
+    assert main(["verify", *map(str, cases), "--touchstone", str(out), "--format", "json"]) == 0
+    assert sorted(p.name for p in out.iterdir()) == ["chapel_mic_input.s2p", "cold_store_feeder.s3p"]
+    for path in cases:
+        case = load_case(path)
+        assert case.multiport is not None
+        network = read_netlist(case.netlist_text, file=case.netlist_file)
+        own = np.array([p.z for p in reduce_ports(network, case.multiport.ports, case.freqs_hz)])
+        got = skrf.Network(str(out / f"{path.stem}.s{len(case.multiport.ports)}p")).z
+        err = np.max(np.abs(got - own)) / np.max(np.abs(own))
+        assert err <= RTOL_MATRIX, f"{path.stem}: relative error {err:.2e}"
