@@ -161,3 +161,32 @@ def test_reduce_refuses_one_port_expect_with_several_ports(tmp_path: Path, capsy
     net.write_text(f"two ports\n{DIVIDER}.end\n")
     code = main(["reduce", str(net), "--port", "a", "0", "--port", "b", "0", "--freq", "1k", "--expect", "zth=5"])
     assert code == 2 and "[[expect]]" in capsys.readouterr().err
+
+
+@pytest.mark.spice
+def test_floating_secondary_as_second_port(tmp_path: Path) -> None:
+    """A transformer whose secondary has no ground, across port 2: both routes refer it to its b node and agree."""
+    path = tmp_path / "xfmr.toml"
+    path.write_text(
+        textwrap.dedent('''
+        netlist = """
+        * isolating transformer
+        V1 in 0 AC 10
+        R1 in p 5
+        L1 p 0 10m
+        L2 s1 s2 40m
+        K1 L1 L2 0.98
+        R2 s1 s2 2k
+        """
+        ports = [{name = "primary", nodes = ["p", "0"]}, {name = "secondary", nodes = ["s1", "s2"]}]
+        frequencies = ["50", "1k"]
+        ''')
+    )
+    with SpicePool(workers=1) as pool:
+        [result] = run_cases([load_case(path)], engine="both", pool=pool)
+    part = result.multiport
+    assert result.error is None and part is not None and part.spice is not None, result.error
+    assert [c.verdict for c in part.checks] == ["pass", "pass"], [c.explanation for c in part.checks]
+    assert part.port_names == ("primary", "secondary")
+    own = part.own[1]
+    assert own.z is not None and abs(own.z[1, 0] - own.z[0, 1]) <= 1e-9 * abs(own.z[0, 1])  # reciprocal coupling

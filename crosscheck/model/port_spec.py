@@ -16,17 +16,20 @@ from __future__ import annotations
 import math
 import re
 import sys
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from crosscheck.errors import CrosscheckError
+from crosscheck.errors import CrosscheckError, NetworkError
 from crosscheck.model.case_file import MAX_FREQUENCY_HZ, entries, string
 from crosscheck.model.case_file import err as _err
 from crosscheck.model.frequencies import frequency_list
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
+from crosscheck.model.network import Network, Port, check_port
 from crosscheck.model.port_matrices import PortList, port_list
 from crosscheck.model.tolerance import HAND_CALCULATION, Tolerance
+from crosscheck.model.validation import validate
 from crosscheck.model.values import parse_number, parse_phasor
 
 #: More ports than this in one case is refused: the matrices grow as the square, the SPICE route by N+2 runs.
@@ -86,6 +89,27 @@ def quantity_index(quantity: str, ports: int) -> tuple[str, int, int] | None:
         k = int(m.group(2))
         return (m.group(1), k - 1, -1) if 1 <= k <= ports else None
     return None
+
+
+def validating_port(network: Network, ports: Sequence[Port]) -> Port:
+    """The first of ``ports`` with which ``network`` validates, every port's nodes checked.
+
+    A part of the network with no ground is accepted when it holds the port validated with (a transformer
+    secondary across port 2, say); the multi-port routes refer each such part to a port's b node. Two such
+    parts in one network are refused as they are for one port (the first port's error is raised).
+    """
+    first: NetworkError | None = None
+    for port in ports:
+        try:
+            validate(network, port)
+        except NetworkError as exc:
+            first = first or exc
+            continue
+        for other in ports:
+            check_port(network, other)
+        return port
+    assert first is not None, "at least one port is given"
+    raise first
 
 
 def _known_words(ports: int) -> str:

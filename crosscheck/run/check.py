@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from crosscheck.errors import CrosscheckError, EngineUnavailableError
+from crosscheck.errors import CrosscheckError, EngineUnavailableError, NetworkError
 from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import judged
 from crosscheck.judge.result import CaseResult, error_result
@@ -51,15 +51,22 @@ def load_network_reading(case: Case) -> tuple[Network, Port, Reading]:
     port's nodes), so nothing is checked twice here. The network carries the case's excitation, and the
     warnings are those that concern it (``no-dc-source`` under DC, ``no-ac-source`` under AC).
     """
-    port = Port(*case.port)
-    network, reading = read_netlist_reading(
-        case.netlist_text,
-        file=case.netlist_file,
-        allow_negative=case.allow_negative,
-        port=port,
-        excitation=case.excitation,
-    )
-    return network, port, reading
+    ports = [p.port for p in case.multiport.ports] if case.multiport is not None else [Port(*case.port)]
+    first: NetworkError | None = None
+    for port in ports:  # several ports: validated with the first that a ground-less part may hold
+        try:
+            network, reading = read_netlist_reading(
+                case.netlist_text,
+                file=case.netlist_file,
+                allow_negative=case.allow_negative,
+                port=port,
+                excitation=case.excitation,
+            )
+            return network, port, reading
+        except NetworkError as exc:
+            first = first or exc
+    assert first is not None
+    raise first
 
 
 def run_cases(
@@ -112,10 +119,11 @@ def run_cases(
 def _stage(item: Case, engine: str, pool: SpicePool | None) -> tuple[CaseResult, Network, Future | None]:
     """The case's network read, its result's head, and its ngspice task submitted (when asked for)."""
     network, port, reading = load_network_reading(item)
+    first = Port(*item.port)  # the validating port of a multi-port case may be another
     head = CaseResult(
         item.name,
         item.title if item.title else network.title,
-        (port.a, port.b),
+        (first.a, first.b),
         item.freqs_hz,
         item.tolerance,
         item.sources,

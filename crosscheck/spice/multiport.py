@@ -31,7 +31,7 @@ from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.graph import UnionFind
 from crosscheck.model.network import GROUND, Element, Network, Port
 from crosscheck.model.port_matrices import MatrixPoint, floating_references
-from crosscheck.model.validation import validate
+from crosscheck.model.port_spec import validating_port
 from crosscheck.spice.deck import Deck, analysis_cards, check_freqs, copy_names, deck_options, element_cards
 from crosscheck.spice.engine import Engine, Strategy
 from crosscheck.spice.progress import COMBINED_LIMIT_ELEMENTS, tell_progress
@@ -190,7 +190,7 @@ def solve_multiport(
     """ngspice's multi-port forms at ``freqs`` (in a worker; callers use ``SpicePool.submit_multiport``)."""
     if network.excitation == "dc":
         raise ReferenceEngineError("the multi-port reference runs AC analyses only; use excitation 'ac' (0 Hz is DC)")
-    validate(network, ports[0])
+    validating_port(network, ports)
     requested = check_freqs(freqs)
     started = time.perf_counter()
     loop = shorts_close_a_loop(network, ports)
