@@ -76,3 +76,21 @@ def test_case_figure_from_a_multiport_result() -> None:
     png = case_z_figure(three)
     assert png is not None and png.startswith(PNG_MAGIC)
     assert case_z_figure(one) is None
+
+
+def test_html_report_holds_the_multiport_figure_and_port_names_stay_text() -> None:
+    """The HTML report of a multi-port case embeds one |Z_ij| PNG; a port name with $ draws (no math mode)."""
+    from pathlib import Path
+
+    from crosscheck.model.cases import load_case
+    from crosscheck.report.html import html_report
+    from crosscheck.report.multiport_plots import CAPTION
+    from crosscheck.run.check import run_cases
+
+    corpus = Path(__file__).resolve().parent.parent / "corpus"
+    (result,) = run_cases([load_case(corpus / "audio/chapel_mic_input.toml")], engine="own")
+    page = html_report([result])
+    assert page.count(CAPTION) == 1 and page.count("data:image/png;base64,") == 1
+    f = np.array([10.0, 100.0, 1000.0])
+    z = np.ones((3, 2, 2), dtype=complex)
+    assert z_magnitude_figure(f, z, None, ["$\\frac{", "b$"]).startswith(PNG_MAGIC)

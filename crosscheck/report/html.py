@@ -23,6 +23,7 @@ from crosscheck.model.values import format_eng, format_polar
 from crosscheck.report.caution import CAUTION, CaseCaution, case_caution, case_cautions
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
+from crosscheck.report.multiport_plots import case_figure_html as multiport_figure
 from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_png, is_swept
 from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version
@@ -278,6 +279,7 @@ def _case_section(i: int, r: CaseResult) -> str:
     elif r.verdict != "pass":
         out.append(f'<p class="why">{_e(case_reason(r))}</p>')
     out.append(_figures(r))
+    out.append(multiport_figure(r))
     out.append(_judgements_table(r))
     if r.points or r.own:
         state = " open" if r.verdict != "pass" else ""

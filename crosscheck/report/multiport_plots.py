@@ -9,6 +9,7 @@ pyplot) straight to PNG bytes, at a low resolution, so a figure costs a few tens
 
 from __future__ import annotations
 
+import base64
 import io
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
@@ -43,7 +44,8 @@ def _entries(own: np.ndarray, n: int) -> list[tuple[int, int]]:
 
 
 def _label(names: Sequence[str], i: int, j: int) -> str:
-    short = [str(n)[:10] for n in names]
+    """The legend text of Z_ij; port names are user text: a ``$`` would start matplotlib's math mode."""
+    short = [str(n)[:10].replace("\\", "\\\\").replace("$", r"\$") for n in names]
     return f"|Z({short[i]},{short[j]})|"
 
 
@@ -114,3 +116,21 @@ def case_z_figure(result: CaseResult, dpi: int = 72) -> bytes | None:
     spice = _stacked(multiport.spice, n) if multiport.spice and len(multiport.spice) == len(multiport.own) else None
     freqs = [p.freq_hz for p in multiport.own]
     return z_magnitude_figure(freqs, own, spice, [str(name) for name in multiport.port_names], dpi=dpi)
+
+
+CAPTION = (
+    "|Z_ij| of the multi-port reduction against frequency: crosscheck as lines, ngspice as open circles of the "
+    "same colour; a reciprocal Z shows the entries on and above the diagonal only."
+)
+
+
+def case_figure_html(result: CaseResult) -> str:
+    """The HTML report's ``<figure>`` for a multi-port case (PNG as a data URI, fixed caption), or ""."""
+    png = case_z_figure(result)
+    if png is None:
+        return ""
+    uri = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+    return (
+        f'<div class="figures"><figure class="sweep"><img class="plot" src="{uri}" '
+        f'alt="|Z_ij| against frequency from both engines"><figcaption>{CAPTION}</figcaption></figure></div>'
+    )
