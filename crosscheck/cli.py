@@ -153,6 +153,12 @@ def _reduce(args: argparse.Namespace) -> int:
     except _UsageError as exc:
         print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
+    if args.touchstone is not None and args.engine == "spice":
+        print(
+            "crosscheck reduce: error: --touchstone writes the own route's matrices; use --engine own or both",
+            file=sys.stderr,
+        )
+        return EXIT_USAGE
     if len(args.port) > 1 and expectations:
         print("crosscheck reduce: error: --expect takes one-port values (vth, zth ...); with several --port "
               "state z11, voc1 ... in a case file's [[expect]]", file=sys.stderr)  # fmt: skip

@@ -229,3 +229,15 @@ def test_verify_writes_one_file_per_case_into_a_folder(tmp_path: Path) -> None:
         got = skrf.Network(str(out / f"{path.stem}.s{len(case.multiport.ports)}p")).z
         err = np.max(np.abs(got - own)) / np.max(np.abs(own))
         assert err <= RTOL_MATRIX, f"{path.stem}: relative error {err:.2e}"
+
+
+def test_reduce_refuses_touchstone_with_spice_alone(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """--engine spice computes no own matrices: --touchstone with it is a usage error (exit 2), nothing written."""
+    from crosscheck.cli import EXIT_USAGE, main
+
+    netlist = tmp_path / "rc.cir"
+    netlist.write_text(RC_NETLIST)
+    out = tmp_path / "x.s1p"
+    argv = ["reduce", str(netlist), "--port", "out", "0", "--freq", "1k", "--engine", "spice", "--touchstone", str(out)]
+    assert main(argv) == EXIT_USAGE and not out.exists()
+    assert "--engine own or both" in capsys.readouterr().err
