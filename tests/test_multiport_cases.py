@@ -190,3 +190,23 @@ def test_floating_secondary_as_second_port(tmp_path: Path) -> None:
     assert part.port_names == ("primary", "secondary")
     own = part.own[1]
     assert own.z is not None and abs(own.z[1, 0] - own.z[0, 1]) <= 1e-9 * abs(own.z[0, 1])  # reciprocal coupling
+
+
+@pytest.mark.spice
+def test_text_reports_show_the_matrices_and_the_degenerate_note(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """`reduce` text with an inductor joining the ports at DC: both routes say Z is singular for ports 1 and 2,
+    and agree element by element (DC excitation: ngspice's AC analysis at 0 Hz with the DC values)."""
+    net = tmp_path / "dc.cir"
+    net.write_text("dc two ports\nV1 in 0 DC 12\nR1 in a 100\nR2 a 0 200\nL1 a b 1m\nR4 b 0 300\nC1 b 0 1u\n.end\n")
+    code = main(["reduce", str(net), "--port", "a", "0", "--port", "b", "0", "--excitation", "dc"])
+    out = capsys.readouterr().out
+    assert code == 0 and "own Z (Ω)" in out and "ngspice Z (Ω)" in out and "own vs ngspice: pass" in out
+    assert "ports 1 and 2 together" in out and "own Y (S)" not in out  # 1 m H is a short at DC: no Norton form
+    case = tmp_path / "pair.toml"
+    case.write_text(_case(tmp_path, 'ports = [{name = "p", nodes = ["a", "0"]}, {name = "m", nodes = ["b", "0"]}]\n')
+                    .read_text())  # fmt: skip
+    assert main(["verify", str(case), "--detail"]) == 0
+    out = capsys.readouterr().out
+    assert "2 ports: p = (a, 0), m = (b, 0)" in out and "(not reciprocal)" in out
