@@ -27,9 +27,9 @@ from crosscheck.judge.limits import evaluate, margin
 from crosscheck.judge.records import Cause, ExpectationCheck, LimitCheck, QuantityCheck
 from crosscheck.judge.stated import deviation
 from crosscheck.model.port_matrices import MatrixPoint
-from crosscheck.model.port_spec import MatrixExpectation, MatrixLimit, MultiportSpec, quantity_index
+from crosscheck.model.port_spec import MODE_QUANTITIES, MatrixExpectation, MatrixLimit, MultiportSpec, quantity_index
 from crosscheck.model.tolerance import Tolerance
-from crosscheck.vocabulary import Verdict, same_frequency, worst
+from crosscheck.vocabulary import Verdict, quantity_unit, same_frequency, worst
 
 #: The one-port quantity whose unit and rule each kind of element shares.
 _KIND = {"voc": "vth", "z": "zth", "isc": "in", "y": "yn"}
@@ -72,6 +72,15 @@ class MultiportResult:
     def verdicts(self) -> list[Verdict]:
         """Every verdict this part of the case contributes to ``case_verdict``."""
         return [j.verdict for j in self.judgements]
+
+
+def element_unit(quantity: str) -> str:
+    """The unit of a multi-port quantity (``voc1`` V, ``isc1`` A, ``z21`` and the mode impedances Ω, ``y12`` S),
+    or "" for a name that is none."""
+    kind = quantity.rstrip("0123456789_")
+    if kind in _KIND:
+        return quantity_unit(_KIND[kind])
+    return quantity_unit("zth") if quantity in MODE_QUANTITIES else ""
 
 
 def element_names(n: int, point: MatrixPoint | None = None) -> list[str]:
