@@ -210,3 +210,21 @@ def test_text_reports_show_the_matrices_and_the_degenerate_note(
     assert main(["verify", str(case), "--detail"]) == 0
     out = capsys.readouterr().out
     assert "2 ports: p = (a, 0), m = (b, 0)" in out and "(not reciprocal)" in out
+
+
+def test_multiport_deck_carries_no_user_names() -> None:
+    """The deck is written from the model under our own names (n<k>, kind + number, VPORT, ITEST): no node or
+    element name, title or comment of the user's reaches ngspice; every run is one copy with its own nodes."""
+    from crosscheck.model.netlist import read_netlist
+    from crosscheck.model.network import Port
+    from crosscheck.spice.multiport import multiport_deck
+
+    text = "* title shell_out\nVsecret in 0 AC 1\nRuser in tap_left 100\nRx tap_left 0 200\nRy tap_left tap_right 50\n"
+    network = read_netlist(text + "Rz tap_right 0 300\n.end\n")
+    ports = [Port("tap_left", "0"), Port("tap_right", "tap_left")]
+    deck, wanted = multiport_deck(network, ports, [1e3, 2e3], ["open", "test0", "test1", "short"])
+    lowered = deck.text.lower()
+    for word in ("secret", "user", "tap_left", "tap_right", "shell_out", "rx", "ry", "rz"):
+        assert word not in lowered, word
+    assert deck.text.count("ITEST") == 2 and deck.text.count("VPORT") == 2 and deck.text.endswith(".end\n")
+    assert len({v for vs in wanted.values() for v in vs if v != "0"}) == 2 * 3 + 2  # 2 port nodes x 3 runs + shorts
