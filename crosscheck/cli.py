@@ -159,10 +159,6 @@ def _reduce(args: argparse.Namespace) -> int:
             file=sys.stderr,
         )
         return EXIT_USAGE
-    if len(args.port) > 1 and expectations:
-        print("crosscheck reduce: error: --expect takes one-port values (vth, zth ...); with several --port "
-              "state z11, voc1 ... in a case file's [[expect]]", file=sys.stderr)  # fmt: skip
-        return EXIT_USAGE
     extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
     case = case_from_netlist(
         str(args.netlist),
@@ -270,6 +266,9 @@ def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
 
     if not args.expect:
         return ()
+    if len(args.port) > 1:
+        raise _UsageError("--expect takes one-port values (vth, zth ...); with several --port state z11, voc1 ... in "
+                          "a case file's [[expect]]")  # fmt: skip
     try:
         return expectations_from_options(args.expect, freqs, _expect_tolerance(args))
     except ExpectOptionError as exc:

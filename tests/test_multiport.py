@@ -180,3 +180,31 @@ def test_mode_and_sequence_quantities() -> None:
     p2 = MatrixPoint(50.0, np.zeros(2, complex), z2, None, None, None)
     assert value_of(p2, "zdiff") == 80 and value_of(p2, "zcomm") == 30
     assert np.allclose(np.linalg.inv(FORTESCUE) @ FORTESCUE, np.eye(3))
+
+
+def test_a_wrong_element_fails_by_name_and_the_norm_error_shows_it() -> None:
+    """ngspice's z21 moved by 1e-4 relative: that element fails (cause: model difference), the others pass, and
+    the normwise Z error is about the same size; the case verdict and JUnit follow."""
+    from dataclasses import replace
+
+    from crosscheck.judge.multiport import MultiportResult, judge_multiport
+    from crosscheck.judge.result import CaseResult, case_verdict
+    from crosscheck.model.tolerance import SOLVER_VS_SPICE
+    from crosscheck.report.junit import junit_xml
+
+    network = random_network(3, controlled=True)
+    ports = random_ports(3, 2)
+    own = reduce_ports(network, ports, [1e3])
+    z = own[0].z.copy()
+    z[1, 0] *= 1 + 1e-4
+    spice = (replace(own[0], z=z, condition=None, y=np.linalg.inv(z), isc=np.linalg.solve(z, own[0].voc)),)
+    part = MultiportResult(("1", "2"), tuple((p.a, p.b) for p in ports), own, spice)
+    part = judge_multiport(part, None, SOLVER_VS_SPICE, compare=True)
+    [check] = part.checks
+    failed = {q.quantity for q in check.quantities if q.verdict == "fail"}
+    assert "z21" in failed and "z12" not in failed and "voc1" not in failed
+    assert check.z_norm_error is not None and 1e-6 < check.z_norm_error < 1e-4
+    assert "z21 differs by" in check.explanation
+    result = CaseResult("c", "c", ("a", "b"), (1e3,), SOLVER_VS_SPICE, own=(), multiport=part)
+    result = replace(result, verdict=case_verdict(result))
+    assert result.verdict == "fail" and "<failure" in junit_xml([result])

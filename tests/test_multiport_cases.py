@@ -190,3 +190,41 @@ def test_floating_secondary_as_second_port(tmp_path: Path) -> None:
     assert part.port_names == ("primary", "secondary")
     own = part.own[1]
     assert own.z is not None and abs(own.z[1, 0] - own.z[0, 1]) <= 1e-9 * abs(own.z[0, 1])  # reciprocal coupling
+
+
+@pytest.mark.spice
+def test_text_reports_show_the_matrices_and_the_degenerate_note(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """`reduce` text with an inductor joining the ports at DC: both routes say Z is singular for ports 1 and 2,
+    and agree element by element (DC excitation: ngspice's AC analysis at 0 Hz with the DC values)."""
+    net = tmp_path / "dc.cir"
+    net.write_text("dc two ports\nV1 in 0 DC 12\nR1 in a 100\nR2 a 0 200\nL1 a b 1m\nR4 b 0 300\nC1 b 0 1u\n.end\n")
+    code = main(["reduce", str(net), "--port", "a", "0", "--port", "b", "0", "--excitation", "dc"])
+    out = capsys.readouterr().out
+    assert code == 0 and "own Z (Ω)" in out and "ngspice Z (Ω)" in out and "own vs ngspice: pass" in out
+    assert "ports 1 and 2 together" in out and "own Y (S)" not in out  # 1 m H is a short at DC: no Norton form
+    case = tmp_path / "pair.toml"
+    case.write_text(_case(tmp_path, 'ports = [{name = "p", nodes = ["a", "0"]}, {name = "m", nodes = ["b", "0"]}]\n')
+                    .read_text())  # fmt: skip
+    assert main(["verify", str(case), "--detail"]) == 0
+    out = capsys.readouterr().out
+    assert "2 ports: p = (a, 0), m = (b, 0)" in out and "(not reciprocal)" in out
+
+
+def test_multiport_deck_carries_no_user_names() -> None:
+    """The deck is written from the model under our own names (n<k>, kind + number, VPORT, ITEST): no node or
+    element name, title or comment of the user's reaches ngspice; every run is one copy with its own nodes."""
+    from crosscheck.model.netlist import read_netlist
+    from crosscheck.model.network import Port
+    from crosscheck.spice.multiport import multiport_deck
+
+    text = "* title shell_out\nVsecret in 0 AC 1\nRuser in tap_left 100\nRx tap_left 0 200\nRy tap_left tap_right 50\n"
+    network = read_netlist(text + "Rz tap_right 0 300\n.end\n")
+    ports = [Port("tap_left", "0"), Port("tap_right", "tap_left")]
+    deck, wanted = multiport_deck(network, ports, [1e3, 2e3], ["open", "test0", "test1", "short"])
+    lowered = deck.text.lower()
+    for word in ("secret", "user", "tap_left", "tap_right", "shell_out", "rx", "ry", "rz"):
+        assert word not in lowered, word
+    assert deck.text.count("ITEST") == 2 and deck.text.count("VPORT") == 2 and deck.text.endswith(".end\n")
+    assert len({v for vs in wanted.values() for v in vs if v != "0"}) == 2 * 3 + 2  # 2 port nodes x 3 runs + shorts

@@ -27,9 +27,9 @@ from crosscheck.judge.limits import evaluate, margin
 from crosscheck.judge.records import Cause, ExpectationCheck, LimitCheck, QuantityCheck
 from crosscheck.judge.stated import deviation
 from crosscheck.model.port_matrices import MatrixPoint
-from crosscheck.model.port_spec import MatrixExpectation, MatrixLimit, MultiportSpec, quantity_index
+from crosscheck.model.port_spec import MODE_QUANTITIES, MatrixExpectation, MatrixLimit, MultiportSpec, quantity_index
 from crosscheck.model.tolerance import Tolerance
-from crosscheck.vocabulary import Verdict, same_frequency, worst
+from crosscheck.vocabulary import Verdict, quantity_unit, same_frequency, worst
 
 #: The one-port quantity whose unit and rule each kind of element shares.
 _KIND = {"voc": "vth", "z": "zth", "isc": "in", "y": "yn"}
@@ -74,6 +74,15 @@ class MultiportResult:
         return [j.verdict for j in self.judgements]
 
 
+def element_unit(quantity: str) -> str:
+    """The unit of a multi-port quantity (``voc1`` V, ``isc1`` A, ``z21`` and the mode impedances Ω, ``y12`` S),
+    or "" for a name that is none."""
+    kind = quantity.rstrip("0123456789_")
+    if kind in _KIND:
+        return quantity_unit(_KIND[kind])
+    return quantity_unit("zth") if quantity in MODE_QUANTITIES else ""
+
+
 def element_names(n: int, point: MatrixPoint | None = None) -> list[str]:
     """The element names of an n-port point in report order: voc, z, isc, y (rows then columns)."""
     cell = (lambda i, j: f"{i + 1}{j + 1}") if n < 10 else (lambda i, j: f"{i + 1}_{j + 1}")
@@ -109,13 +118,26 @@ def value_of(point: MatrixPoint, quantity: str) -> complex | None:
     return complex(sequence[int(kind[1]), int(kind[1])])
 
 
-def _scale(point: MatrixPoint, kind: str) -> float:
-    """The size of the vector or matrix an element was read from (the roundoff floor's scale)."""
-    source = {"voc": point.voc, "z": point.z, "isc": point.isc, "y": point.y}[kind]
-    if source is None:
+def _largest(values: np.ndarray | None) -> float:
+    if values is None:
         return 0.0
-    finite = np.abs(source[np.isfinite(source)])
-    return float(finite.max(initial=0.0))
+    return float(np.abs(values[np.isfinite(values)]).max(initial=0.0))
+
+
+def _scale(point: MatrixPoint, kind: str) -> float:
+    """The roundoff floor's scale of an element (``compare``'s rule): the largest entry of the solution it was
+    read from (``MatrixPoint.scales``, at least the vector or matrix itself); isc = Y·voc and Y = inv(Z) carry
+    both solutions' errors to first order, through ||Y||."""
+    v_scale = max(point.scales[0], _largest(point.voc))
+    z_scale = max(point.scales[1], _largest(point.z))
+    if kind == "voc":
+        return v_scale
+    if kind == "z":
+        return z_scale
+    y_norm = float(np.linalg.norm(point.y, 1)) if point.y is not None else 0.0
+    if kind == "isc":
+        return _largest(point.isc) + y_norm * (v_scale + _largest(point.isc) * z_scale)
+    return _largest(point.y) + y_norm**2 * z_scale
 
 
 def compare_points(own: MatrixPoint, ref: MatrixPoint | None, tol: Tolerance, ref_note: str = "") -> MatrixPointCheck:

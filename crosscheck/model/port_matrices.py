@@ -88,6 +88,9 @@ class MatrixPoint:
     z_condition: float | None = None
     #: ||Z - Z^T|| / ||Z|| (Frobenius): 0 for a reciprocal network; None where Z is missing.
     reciprocity: float | None = None
+    #: own route: the largest entry of the open-circuit solution and of the test solutions (node voltages and
+    #: branch currents), the scales against which a backward-stable solve is accurate; (0, 0) when not known.
+    scales: tuple[float, float] = (0.0, 0.0)
 
     @property
     def ports(self) -> int:

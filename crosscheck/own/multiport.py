@@ -78,8 +78,11 @@ def reduce_ports(
     volts = _port_voltages(system, xs, pairs)  # (F, N, N+1)
     # Column by column: numpy reduces the middle axis of a (F, n, k) array far more slowly (``own.equivalent``).
     scales = np.max([np.abs(xs[:, :, c]).max(axis=1, initial=0.0) for c in range(1, xs.shape[2])], axis=0)
+    v_scales = np.abs(xs[:, :, 0]).max(axis=1, initial=0.0)
     return tuple(
-        from_open_ports(float(f), volts[i, :, 0], volts[i, :, 1:], float(conds[i]), float(scales[i]))
+        from_open_ports(
+            float(f), volts[i, :, 0], volts[i, :, 1:], float(conds[i]), float(scales[i]), float(v_scales[i])
+        )
         for i, f in enumerate(freqs)
     )
 
@@ -114,13 +117,17 @@ def _port_voltages(system: MnaSystem, xs: np.ndarray, ports: Sequence[Port]) -> 
     return np.stack(rows, axis=1)
 
 
-def from_open_ports(f: float, voc: np.ndarray, z: np.ndarray, condition: float, scale: float) -> MatrixPoint:
+def from_open_ports(
+    f: float, voc: np.ndarray, z: np.ndarray, condition: float, scale: float, voc_scale: float = 0.0
+) -> MatrixPoint:
     """The point from the open-circuit voltages and Z; Y and isc where Z is nonsingular, else which ports not.
 
     ``scale``: the largest entry of the test solutions, against which a singular value of Z is a rounding
-    zero (the one-port rule of ``own.equivalent``: with one port, |Z_th| at most 1e3·eps of it).
+    zero (the one-port rule of ``own.equivalent``: with one port, |Z_th| at most 1e3·eps of it);
+    ``voc_scale``: the largest entry of the open-circuit solution. Both go into ``MatrixPoint.scales``.
     """
     voc, z = np.asarray(voc, dtype=complex), np.asarray(z, dtype=complex)
+    scales = (voc_scale, scale)
     reciprocity = _reciprocity(z)
     u, s, vh = np.linalg.svd(z)
     if s[-1] <= _ZERO_ROUNDOFF * max(scale, float(s[0])) or s[-1] == 0:
@@ -130,11 +137,11 @@ def from_open_ports(f: float, voc: np.ndarray, z: np.ndarray, condition: float, 
             f"loop of voltage-defined branches fixes the voltage of {_ports_words(which)}, so there is no Norton "
             "form (no Y, no isc)"
         )
-        return MatrixPoint(f, voc, z, None, None, condition, (note,), math.inf, reciprocity)
+        return MatrixPoint(f, voc, z, None, None, condition, (note,), math.inf, reciprocity, scales)
     y = np.linalg.inv(z)
     isc = y @ voc
     z_condition = float(np.linalg.norm(z, 1) * np.linalg.norm(y, 1))
-    return MatrixPoint(f, voc, z, isc, y, condition, (), z_condition, reciprocity)
+    return MatrixPoint(f, voc, z, isc, y, condition, (), z_condition, reciprocity, scales)
 
 
 def null_ports(vector: np.ndarray) -> list[int]:
@@ -172,7 +179,8 @@ def _one_frequency(
         return _from_shorted_ports(network, ports, f, ties, open_error, stamps)
     x = fac.solve(rhs)[None]
     volts = _port_voltages(system, x, ports)[0]
-    return from_open_ports(f, volts[:, 0], volts[:, 1:], fac.condition, float(np.abs(x[0, :, 1:]).max(initial=0.0)))
+    z_scale, v_scale = float(np.abs(x[0, :, 1:]).max(initial=0.0)), float(np.abs(x[0, :, 0]).max(initial=0.0))
+    return from_open_ports(f, volts[:, 0], volts[:, 1:], fac.condition, z_scale, v_scale)
 
 
 def _from_shorted_ports(

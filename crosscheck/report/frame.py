@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from crosscheck.judge.multiport import MatrixPointCheck
+from crosscheck.judge.multiport import MatrixPointCheck, element_unit
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
@@ -73,7 +73,7 @@ def _im(z: complex | None) -> float:
 
 
 def _unit(quantity: str) -> str:
-    return quantity_unit(quantity) if quantity in QUANTITIES else ""
+    return quantity_unit(quantity) if quantity in QUANTITIES else element_unit(quantity)  # z21: Ω, voc1: V ...
 
 
 def severity(verdict: str) -> int:
@@ -85,10 +85,14 @@ def limit_unit(check: LimitCheck) -> str:
     return _LIMIT_UNITS.get(check.function, _unit(check.quantity))
 
 
+def _compared(r: CaseResult) -> list[PointCheck | MatrixPointCheck]:
+    """The solver-vs-SPICE judgements: per point, and per matrix element of a multi-port case."""
+    return [*r.points, *(r.multiport.checks if r.multiport is not None else ())]
+
+
 def _spice_rows(r: CaseResult) -> list[dict]:
     rows = []
-    checks: list[PointCheck | MatrixPointCheck] = [*r.points, *(r.multiport.checks if r.multiport else ())]
-    for p in checks:  # with several ports, a row per matrix element too
+    for p in _compared(r):  # with several ports, a row per matrix element
         for q in p.quantities:
             rows.append(
                 dict(
@@ -211,7 +215,7 @@ def _pct(x: float) -> str:
 
 def _spice_findings(r: CaseResult) -> list[Finding]:
     out = []
-    for p in r.points:
+    for p in _compared(r):
         for q in p.quantities:
             error = "—" if math.isnan(q.err) else f"{q.err:.3g} (tolerance {r.tolerance.rel:.3g})"
             out.append(
@@ -219,8 +223,8 @@ def _spice_findings(r: CaseResult) -> list[Finding]:
                     "spice",
                     f"{q.quantity} vs SPICE",
                     p.freq_hz,
-                    _polar(q.own, quantity_unit(q.quantity)),
-                    f"{_polar(q.ref, quantity_unit(q.quantity))} (ngspice)",
+                    _polar(q.own, _unit(q.quantity)),
+                    f"{_polar(q.ref, _unit(q.quantity))} (ngspice)",
                     error,
                     q.verdict,
                     q.explanation or p.explanation,
@@ -298,6 +302,9 @@ def findings(result: CaseResult, include_pass: bool = False) -> list[Finding]:
     items += [_expect_finding(e) for e in result.expectations]
     items += [_limit_finding(c) for c in result.limits]
     items += [_drift_finding(d) for d in result.drift]
+    if result.multiport is not None:
+        items += [_expect_finding(e) for e in result.multiport.expectations]
+        items += [_limit_finding(c) for c in result.multiport.limits]
     if not include_pass:
         items = [f for f in items if f.verdict != "pass"]
     return sorted(items, key=lambda f: -severity(f.verdict))
@@ -347,7 +354,7 @@ def overall_verdict(verdicts: Sequence[str]) -> str:
 
 def worst_spice_error(result: CaseResult) -> float | None:
     """Largest judged solver-vs-SPICE error of the case, or None when nothing was compared."""
-    errs = [q.err for p in result.points for q in p.quantities if not math.isnan(q.err)]
+    errs = [q.err for p in _compared(result) for q in p.quantities if not math.isnan(q.err)]
     return max(errs) if errs else None
 
 

@@ -65,9 +65,20 @@ def point_lines(route: str, p: MatrixPoint, names: Sequence[str]) -> list[str]:
 
 
 def print_multiport(console: Console, result: CaseResult) -> None:
-    """The matrices per frequency from both routes, each frequency's verdict, hand values and limits."""
+    """`reduce` with several ports: the ports, the matrices per frequency, the verdict and the caution."""
+    print_multiport_points(console, result)
+    if result.error:
+        console.print(f"[bold magenta]error: {escape(result.error)}[/]")
+    console.print(f"verdict: {result.verdict}")
+    console.print(f"[dim]Caution: {CAUTION}[/]")
+
+
+def print_multiport_points(console: Console, result: CaseResult) -> None:
+    """The ports, the matrices per frequency from both routes, each frequency's verdict, hand values and limits
+    (``verify --detail`` shows this for each multi-port case)."""
     part = result.multiport
-    assert part is not None
+    if part is None:
+        return
     ports = ", ".join(f"{n} = ({a}, {b})" for n, (a, b) in zip(part.port_names, part.port_nodes, strict=True))
     console.print(escape(f"{terminal_text(result.title)}: {len(part.port_names)} ports: {terminal_text(ports)}"))
     for i, own in enumerate(part.own):
@@ -89,10 +100,6 @@ def print_multiport(console: Console, result: CaseResult) -> None:
     said += [(f"limit[{x.index}] {x.text}", x.verdict, x.explanation) for x in part.limits]
     for what, verdict, why in said:
         console.print(escape(f"{what}: {verdict}{' - ' + why if why else ''}"), soft_wrap=True)
-    if result.error:
-        console.print(f"[bold magenta]error: {escape(result.error)}[/]")
-    console.print(f"verdict: {result.verdict}")
-    console.print(f"[dim]Caution: {CAUTION}[/]")
 
 
 def multiport_reduction_document(result: CaseResult, source_file: str) -> dict[str, Any]:

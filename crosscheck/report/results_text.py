@@ -19,6 +19,7 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.judge.stated import format_value
 from crosscheck.model.values import format_eng, format_polar
 from crosscheck.report.caution import CAUTION, case_cautions
+from crosscheck.report.multiport_reduction import print_multiport_points
 from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version, summary
 from crosscheck.report.untrusted import markup_text as escape
@@ -263,6 +264,7 @@ def print_results(
                     console.print(f"[{STYLE[p.verdict]}]{format_eng(p.freq_hz, 4, ' Hz')}: {escape(p.explanation)}[/]")
             if r.error:
                 console.print(f"[bold magenta]error: {escape(r.error)}[/]")
+            print_multiport_points(console, r)  # several ports: the matrices and their judgements
             print_checks(console, r, detail=True)
     else:
         console.print(summary_table(results))

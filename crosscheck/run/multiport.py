@@ -20,6 +20,7 @@ from crosscheck.model.network import Network
 from crosscheck.model.port_spec import MultiportSpec
 from crosscheck.own.multiport import reduce_ports
 from crosscheck.spice.multiport import MultiportSpiceResult
+from crosscheck.spice.results import SpiceResult
 from crosscheck.vocabulary import Verdict
 
 
@@ -65,9 +66,13 @@ def finish_multiport(
     )
     with np.errstate(all="ignore"):
         part = judge_multiport(part, spec, head.tolerance, compare=engine != "own")
+    # ngspice's version, strategy, notes and decks where every report looks for them; its points are in ``multiport``.
+    summary = None if spice is None else SpiceResult((), spice.ngspice_version, spice.strategy, spice.elapsed_s,
+                                                     spice.notes, spice.decks)  # fmt: skip
     result = replace(
         head,
         own=(),
+        spice=summary,
         multiport=part,
         spice_note=note,
         error=error,

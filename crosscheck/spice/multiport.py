@@ -29,7 +29,7 @@ import numpy as np
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.graph import UnionFind
-from crosscheck.model.network import GROUND, Element, Network, Port
+from crosscheck.model.network import GROUND, Element, Network, Port, check_excitation, dc_view
 from crosscheck.model.port_matrices import MatrixPoint, floating_references
 from crosscheck.model.port_spec import validating_port
 from crosscheck.spice.deck import Deck, analysis_cards, check_freqs, copy_names, deck_options, element_cards
@@ -50,6 +50,7 @@ class MultiportSpiceResult:
     elapsed_s: float
     notes: tuple[str, ...] = ()
     decks: tuple[str, ...] = ()
+    strategy: str = "combined"  # "combined" when every run shared its deck, else "separate"
 
 
 def shorts_close_a_loop(network: Network, ports: Sequence[Port]) -> bool:
@@ -146,6 +147,7 @@ class _Runs:
         self.values: dict[tuple[str, float], np.ndarray] = {}
         self.notes: list[str] = []
         self.decks: list[str] = []
+        self.separate = False  # whether some run had a deck of its own
 
     def run(self, runs: Sequence[str], freqs: Sequence[float]) -> None:
         deck, wanted = multiport_deck(self.network, self.ports, freqs, runs, klu=self.klu)
@@ -170,6 +172,7 @@ class _Runs:
                 self.notes.append(
                     f"the combined multi-port run failed ({str(exc)[:200]}); the runs were repeated one by one"
                 )
+        self.separate = True
         for r in runs:
             self._separate(r, freqs)
 
@@ -188,14 +191,18 @@ def solve_multiport(
     engine: Engine, network: Network, ports: Sequence[Port], freqs: Iterable[float], strategy: Strategy = "combined"
 ) -> MultiportSpiceResult:
     """ngspice's multi-port forms at ``freqs`` (in a worker; callers use ``SpicePool.submit_multiport``)."""
-    if network.excitation == "dc":
-        raise ReferenceEngineError("the multi-port reference runs AC analyses only; use excitation 'ac' (0 Hz is DC)")
-    validating_port(network, ports)
     requested = check_freqs(freqs)
+    dc = network.excitation == "dc"
+    if dc:  # the sources' DC values as real phasors (``model.network.dc_view``), ngspice's AC analysis at 0 Hz
+        check_excitation("dc", requested, "the multi-port reference")
+        network = dc_view(network)
+    validating_port(network, ports)
     started = time.perf_counter()
     loop = shorts_close_a_loop(network, ports)
     runs = ["open", *(f"test{k}" for k in range(len(ports))), *([] if loop else ["short"])]
     done = _Runs(engine, network, ports)
+    if dc:
+        done.notes.append("DC excitation: ngspice's AC analysis at 0 Hz with each source's DC value as its phasor")
     if loop:
         done.notes.append(
             "no short-circuit run: shorting every port would close a loop of voltage-defined branches (an ideal "
@@ -207,7 +214,12 @@ def solve_multiport(
             done.group(runs, group, combined)
     points = tuple(_point(done.values, f, len(ports), loop) for f in requested)
     return MultiportSpiceResult(
-        points, engine.version, time.perf_counter() - started, tuple(dict.fromkeys(done.notes)), tuple(done.decks)
+        points,
+        engine.version,
+        time.perf_counter() - started,
+        tuple(dict.fromkeys(done.notes)),
+        tuple(done.decks),
+        "separate" if done.separate else "combined",
     )
 
 

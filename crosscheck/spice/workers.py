@@ -54,7 +54,7 @@ from typing import Any
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget
-from crosscheck.model.network import Network, Port, check_port
+from crosscheck.model.network import Network, Port
 from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
@@ -312,23 +312,14 @@ class SpicePool:
             if self._closed:
                 raise RuntimeError("this SpicePool is closed; create a new one to submit more cases")
             try:
-                validate(network, port)
-                for other in ports:
-                    check_port(network, other)
-                if (strategy or self.strategy) not in ("combined", "separate"):
+                validate(network, port)  # with ``ports``, the worker checks every port (``spice.multiport``)
+                strategy = strategy or self.strategy
+                if strategy not in ("combined", "separate"):
                     raise ValueError(f"strategy must be 'combined' or 'separate' (got {strategy!r})")
                 limits = Budget(self.timeout_s, self._memory_bytes).for_elements(len(network.elements))
                 case_time_s = float(timeout_s or limits.time_s or self.timeout_s)
                 cpu_s = self._cpu_s if self._cpu_given else case_time_s
-                task = Task(
-                    network,
-                    port,
-                    check_freqs(freqs),
-                    strategy or self.strategy,
-                    cpu_s,
-                    limits.memory_bytes,
-                    tuple(ports),
-                )
+                task = Task(network, port, check_freqs(freqs), strategy, cpu_s, limits.memory_bytes, tuple(ports))
             except (CrosscheckError, ValueError) as exc:
                 future.set_exception(exc)
                 return future
