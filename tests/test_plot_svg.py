@@ -8,7 +8,10 @@ Each SVG is read back with ElementTree, so a figure that is not well-formed XML 
 from __future__ import annotations
 
 import dataclasses
+import subprocess
+import sys
 import xml.etree.ElementTree as ET
+from pathlib import Path
 
 import pytest
 from test_plot_ranges import CASES, FREQS, _limit
@@ -20,6 +23,7 @@ from crosscheck.report.untrusted import svg_text
 from crosscheck.vocabulary import Verdict
 
 SVG = "{http://www.w3.org/2000/svg}"
+ROOT = Path(__file__).resolve().parent.parent
 HOSTILE = '</text><script>alert(1)</script><text x="0">&amp; ]]> \x1b[31mred\x1b[0m \u202eevil & "q" \'s\''
 
 
@@ -133,3 +137,21 @@ def test_ticks() -> None:
     assert log_ticks(3e3, 3e4 * 0.9)[0] == [5e3, 1e4, 2e4]
     assert linear_ticks(0.0, 1.0) == [0.0, 0.2, 0.4, 0.6, 0.8, 1.0]
     assert linear_ticks(-95.0, 5.0) == [-80.0, -60.0, -40.0, -20.0, 0.0]
+
+
+def test_the_html_report_loads_no_plotting_library() -> None:
+    """Writing a page with a sweep figure and a circuit drawing in a new process leaves matplotlib unloaded
+    (schemdraw is imported without its matplotlib canvas: ``circuit_drawing._schemdraw``)."""
+    code = (
+        "import sys\n"
+        "sys.path.insert(0, 'tests')\n"
+        "from test_plot_ranges import CASES\n"
+        "from crosscheck.report.html import html_report\n"
+        "page = html_report([CASES['flat, no limits']])\n"
+        "assert 'class=\"plot\"' in page and 'data:image/svg+xml' in page\n"
+        "print(sorted(m for m in sys.modules if m.split('.')[0] in ('matplotlib', 'schemdraw')))\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=False, cwd=ROOT)
+    assert done.returncode == 0, done.stderr
+    loaded = done.stdout.strip()
+    assert "'schemdraw'" in loaded and "matplotlib" not in loaded and "schemdraw.backends.mpl" not in loaded
