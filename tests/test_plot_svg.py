@@ -139,9 +139,10 @@ def test_ticks() -> None:
     assert linear_ticks(-95.0, 5.0) == [-80.0, -60.0, -40.0, -20.0, 0.0]
 
 
-def test_the_html_report_loads_no_plotting_library() -> None:
-    """Writing a page with a sweep figure and a circuit drawing in a new process leaves matplotlib unloaded
-    (schemdraw is imported without its matplotlib canvas: ``circuit_drawing._schemdraw``)."""
+def test_the_html_report_loads_neither_matplotlib_nor_pandas() -> None:
+    """Writing a page with a sweep figure and a circuit drawing in a new process leaves matplotlib and pandas
+    unloaded (schemdraw is imported without its matplotlib canvas: ``circuit_drawing._schemdraw``; only
+    ``frame.verdict_frame`` loads pandas)."""
     code = (
         "import sys\n"
         "sys.path.insert(0, 'tests')\n"
@@ -149,9 +150,10 @@ def test_the_html_report_loads_no_plotting_library() -> None:
         "from crosscheck.report.html import html_report\n"
         "page = html_report([CASES['flat, no limits']])\n"
         "assert 'class=\"plot\"' in page and 'data:image/svg+xml' in page\n"
-        "print(sorted(m for m in sys.modules if m.split('.')[0] in ('matplotlib', 'schemdraw')))\n"
+        "print(sorted(m for m in sys.modules if m.split('.')[0] in ('matplotlib', 'schemdraw', 'pandas')))\n"
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=False, cwd=ROOT)
     assert done.returncode == 0, done.stderr
     loaded = done.stdout.strip()
-    assert "'schemdraw'" in loaded and "matplotlib" not in loaded and "schemdraw.backends.mpl" not in loaded
+    assert "'schemdraw'" in loaded and "schemdraw.backends.mpl" not in loaded
+    assert "matplotlib" not in loaded and "pandas" not in loaded

@@ -15,8 +15,10 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-import pandas as pd
+if TYPE_CHECKING:
+    import pandas as pd
 
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck
 from crosscheck.judge.result import CaseResult
@@ -177,6 +179,8 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
         body = _spice_rows(r) + [_expect_row(e) for e in r.expectations] + [_limit_row(c) for c in r.limits]
         body += [_drift_row(d) for d in r.drift]
         rows.extend(head | row for row in body)
+    import pandas as pd  # start-up time: only the frame needs pandas, not the reports that word findings
+
     return pd.DataFrame(rows, columns=COLUMNS)
 
 
