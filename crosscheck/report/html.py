@@ -245,7 +245,8 @@ def _figures(r: CaseResult) -> str:
         parts.append(
             f'<figure class="sweep"><img class="plot" src="{_data_uri("image/svg+xml", plot.encode("utf-8"))}" '
             f'alt="Z_th and V_th against frequency from both engines, and the error"><figcaption>'
-            "crosscheck as lines, ngspice as circles; hand values as stars; design limits shade the "
+            "crosscheck as lines, ngspice as circles; hand values as filled markers (colour and shape by "
+            "verdict); design limits shade the "
             "forbidden side of each bound over its band; the error panel shows the judged relative "
             "error against the tolerance (dashed). DC points, if any, are in the table only."
             "</figcaption></figure>"
