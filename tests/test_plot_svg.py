@@ -13,12 +13,13 @@ import sys
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
+import numpy as np
 import pytest
 from test_plot_ranges import CASES, FREQS, _limit
 
 from crosscheck.judge.records import ExpectationCheck
 from crosscheck.report import plots
-from crosscheck.report.svg_chart import decade_label, linear_ticks, log_ticks
+from crosscheck.report.svg_chart import Chart, Panel, Series, chart_svg, decade_label, linear_ticks, log_ticks
 from crosscheck.report.untrusted import svg_text
 from crosscheck.vocabulary import Verdict
 
@@ -157,3 +158,32 @@ def test_the_html_report_loads_neither_matplotlib_nor_pandas() -> None:
     loaded = done.stdout.strip()
     assert "'schemdraw'" in loaded and "schemdraw.backends.mpl" not in loaded
     assert "matplotlib" not in loaded and "pandas" not in loaded
+
+
+def test_a_gap_in_a_series_breaks_its_line() -> None:
+    """A missing value (NaN) splits the curve into two polylines instead of joining across it."""
+    panel = Panel("gap", xlim=(1.0, 1e4), ylim=(0.0, 5.0))
+    panel.series.append(
+        Series("s", np.array([1.0, 10.0, 100.0, 1e3, 1e4]), np.array([1, 2, np.nan, 3, 4.0]), "#123456")
+    )
+    svg = ET.fromstring(chart_svg(Chart("t", [panel])))
+    runs = [p.get("points", "").split() for p in svg.iter(SVG + "polyline") if p.get("stroke") == "#123456"]
+    assert [len(r) for r in runs] == [2, 2]
+
+
+@pytest.mark.parametrize(
+    ("ylog", "ylim"),
+    [
+        (False, (-1e308, 1e308)),
+        (False, (5.0, 5.0)),
+        (True, (1e-300, 1e300)),
+        (True, (1.0, 1.0)),
+        (False, (0.0, 1e-300)),
+    ],
+)
+def test_extreme_or_empty_ranges_still_give_a_well_formed_svg(ylog: bool, ylim: tuple[float, float]) -> None:
+    """Ranges at the ends of double precision, or of zero span, give a few ticks at most and well-formed XML."""
+    panel = Panel("edge", ylog=ylog, xlim=(1.0, 1e6), ylim=ylim)
+    panel.series.append(Series("s", np.array([1.0, 1e6]), np.array(ylim), "#123456"))
+    svg = ET.fromstring(chart_svg(Chart("t", [panel])))
+    assert len(list(svg.iter(SVG + "text"))) < 40

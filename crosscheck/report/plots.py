@@ -128,8 +128,11 @@ def fit_y(panel: Panel, bounds: Sequence[float | None] = ()) -> tuple[float, flo
     values = values[np.isfinite(values) & ((values > 0) if log else True)]
     if not values.size:
         return panel.ylim
-    lo, hi = (np.log10(values.min()), np.log10(values.max())) if log else (values.min(), values.max())
+    lo, hi = (math.log10(values.min()), math.log10(values.max())) if log else (float(values.min()), float(values.max()))
     span = hi - lo
+    if not math.isfinite(span):  # ends near ±1.8e308: no room for margins
+        panel.ylim = (lo, hi)
+        return panel.ylim
     if span <= 0:
         span = 1.0 if log else (0.1 * abs(hi) or 1.0)
         lo, hi = lo - span / 2, hi + span / 2

@@ -105,6 +105,8 @@ def decade_label(x: float) -> str:
 def log_ticks(lo: float, hi: float) -> tuple[list[float], list[float]]:
     """(labelled, unlabelled) ticks of a log axis over ``lo … hi``: decades (every k-th if there are many),
     with 2 and 5 between them; inside one decade, the 1-2-5 values are labelled."""
+    if not (0 < lo <= hi and math.isfinite(hi)):
+        return [], []
     first, last = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
     step = max(1, math.ceil((last - first) / 7))
     major = [10.0**e for e in range(first, last + 1) if e % step == 0]
@@ -118,8 +120,8 @@ def log_ticks(lo: float, hi: float) -> tuple[list[float], list[float]]:
 def linear_ticks(lo: float, hi: float) -> list[float]:
     """About five ticks at a 1, 2, 2.5 or 5 times a power of ten step."""
     span = hi - lo
-    if not span > 0:
-        return [lo]
+    if not (span > 0 and math.isfinite(span)):
+        return [v for v in (lo, hi) if math.isfinite(v)][:1]
     raw = span / 5
     power = 10.0 ** math.floor(math.log10(raw))
     step = next(m * power for m in (1.0, 2.0, 2.5, 5.0, 10.0) if m * power >= raw)
@@ -134,14 +136,16 @@ class _Frame:
         self.panel, self.left, self.top, self.width, self.height = panel, left, top, width, height
         self.x0, self.x1 = math.log10(panel.xlim[0]), math.log10(panel.xlim[1])
         lo, hi = panel.ylim
-        self.y0, self.y1 = (math.log10(lo), math.log10(hi)) if panel.ylog else (lo, hi)
+        y0, y1 = (math.log10(lo), math.log10(hi)) if panel.ylog else (lo, hi)
+        self.scale = max(abs(y0), abs(y1)) or 1.0  # in units of the larger end: no overflow near 1e308
+        self.y0, self.y1 = y0 / self.scale, y1 / self.scale
 
     def px(self, x: np.ndarray) -> np.ndarray:
         span = (self.x1 - self.x0) or 1.0
         return self.left + (np.log10(x) - self.x0) / span * self.width
 
     def py(self, y: np.ndarray) -> np.ndarray:
-        values = np.log10(y) if self.panel.ylog else y
+        values = (np.log10(y) if self.panel.ylog else y) / self.scale
         span = (self.y1 - self.y0) or 1.0
         return self.top + self.height - (values - self.y0) / span * self.height
 
