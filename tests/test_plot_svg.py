@@ -132,11 +132,14 @@ def test_log_tick_labels_are_plain_text_powers_of_ten(value: float, label: str) 
 
 
 def test_ticks() -> None:
-    """Decades over a wide log range (every k-th exponent when there are more than seven), 1-2-5 inside one decade, ~5 linear ticks."""
+    """Decades over a wide log range (every k-th exponent when there are more than seven), 1-2-5 inside one
+    decade, linear steps inside a narrow range; about five linear ticks at any scale."""
     assert log_ticks(10.0, 1e5) == ([10.0, 100.0, 1e3, 1e4, 1e5], [20.0, 50.0, 200.0, 500.0, 2e3, 5e3, 2e4, 5e4])
     assert log_ticks(1e-20, 1e-5)[0] == pytest.approx([1e-18, 1e-15, 1e-12, 1e-9, 1e-6], rel=1e-12)
     assert log_ticks(3e3, 3e4 * 0.9)[0] == [5e3, 1e4, 2e4]
+    assert log_ticks(1000.0, 1200.0)[0] == pytest.approx([1000.0, 1050.0, 1100.0, 1150.0, 1200.0], rel=1e-12)
     assert linear_ticks(0.0, 1.0) == [0.0, 0.2, 0.4, 0.6, 0.8, 1.0]
+    assert linear_ticks(1e-14, 2e-14) == pytest.approx([1e-14, 1.2e-14, 1.4e-14, 1.6e-14, 1.8e-14, 2e-14], rel=1e-12)
     assert linear_ticks(-95.0, 5.0) == [-80.0, -60.0, -40.0, -20.0, 0.0]
 
 

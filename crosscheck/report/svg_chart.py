@@ -104,7 +104,8 @@ def decade_label(x: float) -> str:
 
 def log_ticks(lo: float, hi: float) -> tuple[list[float], list[float]]:
     """(labelled, unlabelled) ticks of a log axis over ``lo … hi``: decades (every k-th if there are many),
-    with 2 and 5 between them; inside one decade, the 1-2-5 values are labelled."""
+    with 2 and 5 between them; inside one decade, the 1-2-5 values are labelled, or linear ticks in a
+    narrower range."""
     if not (0 < lo <= hi and math.isfinite(hi)):
         return [], []
     first, last = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
@@ -113,7 +114,8 @@ def log_ticks(lo: float, hi: float) -> tuple[list[float], list[float]]:
     minor = [m * 10.0**e for e in range(first, last + 1) for m in (2.0, 5.0)] if step == 1 else []
     inside = [t for t in major if lo <= t * (1 + 1e-9) and t <= hi * (1 + 1e-9)]
     if len(inside) < 2:
-        return [t for t in sorted({*major, *minor}) if lo <= t <= hi], []
+        between = [t for t in sorted({*major, *minor}) if lo <= t <= hi]
+        return (between if len(between) >= 2 else [t for t in linear_ticks(lo, hi) if t > 0]), []
     return inside, [t for t in minor if lo <= t <= hi]
 
 
@@ -126,7 +128,7 @@ def linear_ticks(lo: float, hi: float) -> list[float]:
     power = 10.0 ** math.floor(math.log10(raw))
     step = next(m * power for m in (1.0, 2.0, 2.5, 5.0, 10.0) if m * power >= raw)
     start = math.ceil(lo / step - 1e-9)
-    return [round(k * step, 12) + 0.0 for k in range(start, int(math.floor(hi / step + 1e-9)) + 1)]
+    return [float(f"{k * step:.12g}") + 0.0 for k in range(start, int(math.floor(hi / step + 1e-9)) + 1)]
 
 
 class _Frame:
@@ -229,12 +231,11 @@ def _axes(frame: _Frame) -> list[str]:
         _text(float(x), bottom + 14, decade_label(t), 10, "middle")
         for t, x in zip(xmajor, frame.px(np.array(xmajor, dtype=float)))
     ]
-    if p.ylog:
-        ymajor, yminor = log_ticks(*p.ylim)
-        labels = [decade_label(t) for t in ymajor]
-    else:
-        ymajor, yminor = linear_ticks(*p.ylim), []
-        labels = [f"{t:g}" for t in ymajor]
+    ymajor: list[float] = []
+    yminor: list[float] = []
+    if p.series or p.hlines or p.bands:  # else nothing is drawn (a note says why): no y scale to read
+        ymajor, yminor = log_ticks(*p.ylim) if p.ylog else (linear_ticks(*p.ylim), [])
+    labels = [decade_label(t) for t in ymajor] if p.ylog else [f"{t:g}" for t in ymajor]
     for ticks, grid_alpha in ((yminor, "0.12"), (ymajor, "0.25")):
         for y in frame.py(np.array(ticks, dtype=float)):
             out.append(
