@@ -21,17 +21,17 @@ RC = "rc output\nV1 in 0 DC 0 AC 1\nR1 in out 1k\nC1 out 0 100n\n.end\n"
 
 
 def _gate(*args: str, cwd: Path) -> subprocess.CompletedProcess:
-    env = {"PATH": "/usr/bin:/bin", "CROSSCHECK": str(Path(sys.executable).parent / "crosscheck"), "HOME": str(cwd)}
-    return subprocess.run(["bash", str(GATE), *args], cwd=cwd, env=env, capture_output=True, text=True, timeout=300)
+    env = {"PATH": "/usr/bin:/bin", "CROSSCHECK": str(Path(sys.executable).parent / "crosscheck"),
+           "HOME": str(cwd)}
+    return subprocess.run(["bash", str(GATE), *args], cwd=cwd, env=env, capture_output=True, text=True,
+                          timeout=300)
 
 
 def _cases(folder: Path, limit_max: str | None = None) -> Path:
     folder.mkdir(parents=True)
     (folder / "rc.cir").write_text(RC)
-    body = (
-        'title = "RC output"\nnetlist = "rc.cir"\nport = ["out", "0"]\n'
-        'sweep = { start = "10", stop = "10k", per_decade = 1 }\n'
-    )
+    body = 'title = "RC output"\nnetlist = "rc.cir"\nport = ["out", "0"]\n' \
+           'sweep = { start = "10", stop = "10k", per_decade = 1 }\n'
     if limit_max:
         body += f'[[limit]]\nquantity = "abs(zth)"\nmax = "{limit_max}"\n'
     (folder / "rc.toml").write_text(body)
@@ -79,15 +79,12 @@ def test_gate_reports_invalid_input_as_error(tmp_path):
     assert "bad.toml" in error.get("message") and "key 'port'" in error.get("message")
 
 
-@pytest.mark.parametrize(
-    "args, code, stream, text",
-    [
-        ((), 2, "stderr", "Usage: crosscheck-gate.sh"),
-        (("--help",), 0, "stdout", "Usage: crosscheck-gate.sh"),
-        (("--bogus", "cases"), 2, "stderr", "unknown option --bogus"),
-        (("--out",), 2, "stderr", "--out needs a folder name"),
-    ],
-)
+@pytest.mark.parametrize("args, code, stream, text", [
+    ((), 2, "stderr", "Usage: crosscheck-gate.sh"),
+    (("--help",), 0, "stdout", "Usage: crosscheck-gate.sh"),
+    (("--bogus", "cases"), 2, "stderr", "unknown option --bogus"),
+    (("--out",), 2, "stderr", "--out needs a folder name"),
+])
 def test_gate_usage(tmp_path, args, code, stream, text):
     run = _gate(*args, cwd=tmp_path)
     assert run.returncode == code
@@ -148,12 +145,12 @@ def test_ci_readme_documents_every_exit_code():
     assert documented == defined
 
 
-HOSTILE_ARGPARSE = """import os, pathlib
+HOSTILE_ARGPARSE = '''import os, pathlib
 pathlib.Path({marker!r}).write_text("the pull request's argparse.py ran")
 pathlib.Path("reports").mkdir(exist_ok=True)
 pathlib.Path("reports/crosscheck.md").write_text("### crosscheck: PASS\\n")
 os._exit(0)
-"""
+'''
 
 
 @pytest.mark.spice
@@ -167,9 +164,8 @@ def test_gate_fallback_never_imports_modules_from_the_pull_requests_tree(tmp_pat
     (bin_dir / "python3").write_text(f'#!/bin/sh\nexec "{sys.executable}" "$@"\n')
     (bin_dir / "python3").chmod(0o755)
     env = {"PATH": f"{bin_dir}:/usr/bin:/bin", "HOME": str(tmp_path)}
-    run = subprocess.run(
-        ["bash", str(GATE), "--out", "reports", "cases"], cwd=tree, env=env, capture_output=True, text=True, timeout=300
-    )
+    run = subprocess.run(["bash", str(GATE), "--out", "reports", "cases"], cwd=tree, env=env,
+                         capture_output=True, text=True, timeout=300)
     assert not marker.exists(), "the gate imported argparse.py from the pull request's tree"
     assert run.returncode == 1, run.stderr
     assert "crosscheck: FAIL" in run.stdout
