@@ -331,12 +331,17 @@ def _legend_entries(p: Panel) -> list[tuple[str, str]]:
     return [(sample, label) for label, sample in entries.items()]
 
 
+def _cut(text: str, limit: int) -> str:
+    """At most ``limit`` characters, an ellipsis marking a cut: a line of user text stays on the figure."""
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
 def _legend_rows(p: Panel, width: float) -> list[list[tuple[str, str, float]]]:
     """Entries placed in rows that fit ``width``: (sample, label cut to 80 characters, x offset)."""
     rows: list[list[tuple[str, str, float]]] = []
     x = width
     for sample, label in _legend_entries(p):
-        label = label if len(label) <= 80 else label[:79] + "…"
+        label = _cut(label, 80)
         size = 22 + len(label) * 10 * _CHAR_WIDTH + 12
         if x + size > width and (x > 0 or not rows):
             rows.append([])
@@ -368,7 +373,7 @@ def _rows(panels: list[Panel]) -> list[list[Panel]]:
 
 def chart_svg(chart: Chart) -> str:
     """The chart as one SVG document: a title, then its panels two to a row (a wide panel alone)."""
-    body = [_text(WIDTH / 2, 20, chart.title, 13, "middle")]
+    body = [_text(WIDTH / 2, 20, _cut(chart.title, 110), 13, "middle")]
     top = 34.0
     clip = 0
     for row in _rows(chart.panels):
