@@ -8,7 +8,7 @@ Reading: ``read_netlist_reading`` on a 44,809-line RC grid (``fuzz.large`` grid 
 the writer prints them) and on a 50,000-line ladder whose values carry engineering suffixes (4.7k, 10n),
 with the fast path (``model.fast_cards``) and with every line read as a card (``_Reader(file, fast=False)``);
 CPU time, best of five, the previous network freed outside the timed call. Figures: the corpus's cases run
-through both engines once, then ``plots.case_figure_png`` per swept case (best of three per case) and the
+through both engines once, then ``plots.case_figure_svg`` per swept case (best of three per case) and the
 whole ``html.html_report``.
 """
 
@@ -19,6 +19,7 @@ import glob
 import os
 import time
 from collections.abc import Callable
+from functools import partial
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -83,8 +84,8 @@ def figures(quick: bool) -> None:
     if not swept:
         print("figures: no swept case in the corpus")
         return
-    plots.case_figure_png(swept[0])  # imports and the first figure of each layout are set-up, not per figure
-    times = sorted(_best(lambda r=r: plots.case_figure_png(r), 3) for r in swept)
+    plots.case_figure_svg(swept[0])  # imports are set-up, not per figure
+    times = sorted(_best(partial(plots.case_figure_svg, r), 3) for r in swept)
     median = times[len(times) // 2]
     print(
         f"figures: {len(swept)} swept cases, seconds per figure: min {times[0]:.3f}, median {median:.3f}, "

@@ -51,7 +51,7 @@ def test_gate_passes_and_writes_three_reports(tmp_path):
     markdown = (out / "crosscheck.md").read_text(encoding="utf-8")
     assert markdown.startswith("### crosscheck: PASS — 1 case(s)")
     html = (out / "crosscheck.html").read_text(encoding="utf-8")
-    assert "data:image/png;base64," in html and "licensed engineer decide" in html
+    assert '<img class="plot" src="data:image/svg+xml;base64,' in html and "licensed engineer decide" in html
     assert CAUTION.split(";")[0] in html
     assert "crosscheck: PASS" in run.stdout
 

@@ -46,14 +46,14 @@ def _result(zth: complex, vth: complex, limits: tuple[LimitCheck, ...] = (), com
     return CaseResult("c.toml", "flat", ("a", "0"), FREQS, SOLVER_VS_SPICE, own=own, points=points, limits=limits)
 
 
-def _panel_data(ax) -> np.ndarray:
-    return np.concatenate([np.asarray(line.get_ydata(), dtype=float) for line in ax.lines])
+def _panel_data(panel) -> np.ndarray:
+    return np.concatenate([np.asarray(s.ys, dtype=float) for s in panel.series])
 
 
-def _assert_holds(ax, values, what: str) -> None:
-    lo, hi = ax.get_ylim()
+def _assert_holds(panel, values, what: str) -> None:
+    lo, hi = panel.ylim
     for v in values:
-        assert lo < v < hi, f"{what}: {v} outside the y range {lo} … {hi} of {ax.get_title()!r}"
+        assert lo < v < hi, f"{what}: {v} outside the y range {lo} … {hi} of {panel.title!r}"
 
 
 CASES = {
@@ -74,28 +74,25 @@ CASES = {
 def test_every_panel_holds_its_data_and_limit_bounds(name: str) -> None:
     """Each panel's y range holds every drawn value and every limit bound, strictly inside (no value on
     the frame), with a span above zero even for a flat curve."""
-    fig = case_figure(CASES[name])
-    assert fig is not None
-    for ax in fig.axes:
-        data = _panel_data(ax) if ax.lines else np.array([])
+    chart = case_figure(CASES[name])
+    assert chart is not None
+    for panel in chart.panels:
+        data = _panel_data(panel) if panel.series else np.array([])
         data = data[np.isfinite(data)]
-        if ax.get_yscale() == "log":
+        if panel.ylog:
             data = data[data > 0]
-        _assert_holds(ax, data, "data")
-        lo, hi = ax.get_ylim()
+        _assert_holds(panel, data, "data")
+        lo, hi = panel.ylim
         assert hi > lo
-        for collection in ax.collections:  # the dashed bound lines (hlines)
-            for segment in getattr(collection, "get_segments", lambda: [])():
-                _assert_holds(ax, segment[:, 1], "limit bound")
+        _assert_holds(panel, [line.y for line in panel.hlines], "limit bound or tolerance (dashed line)")
 
 
 def test_flat_curve_sits_inside_with_margin() -> None:
     """A flat |Z_th| of 50 Ω with no limit gets a range around it, not a zero span on the frame:
     at least MARGIN of the span clear on each side (tolerance: 1e-9 relative)."""
-    fig = case_figure(CASES["flat, no limits"])
-    ax = fig.axes[0]
-    lo, hi = ax.get_ylim()
-    if ax.get_yscale() == "log":
+    panel = case_figure(CASES["flat, no limits"]).panels[0]
+    lo, hi = panel.ylim
+    if panel.ylog:
         lo, hi, v = math.log10(lo), math.log10(hi), math.log10(50.0)
     else:
         v = 50.0
@@ -104,8 +101,9 @@ def test_flat_curve_sits_inside_with_margin() -> None:
 
 def test_limit_bounds_of_the_fixture_are_drawn_inside() -> None:
     """The 1 Ω … 10 kΩ band of a flat 50 Ω |Z_th| shows both bounds inside the |Z_th| panel."""
-    ax = case_figure(CASES["flat, limits far above and below"]).axes[0]
-    _assert_holds(ax, [1.0, 50.0, 1e4], "bounds and data")
+    panel = case_figure(CASES["flat, limits far above and below"]).panels[0]
+    assert panel.title == "|Z_th|"
+    _assert_holds(panel, [1.0, 50.0, 1e4], "bounds and data")
 
 
 def test_verdict_colours_are_distinct_okabe_ito_colours() -> None:

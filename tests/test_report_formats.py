@@ -36,11 +36,11 @@ from crosscheck.report.frame import COLUMNS, findings, verdict_frame
 from crosscheck.report.html import html_report
 from crosscheck.report.junit import junit_tree, junit_xml
 from crosscheck.report.markdown import markdown_report
-from crosscheck.report.plots import case_figure_png
+from crosscheck.report.plots import case_figure_svg
 
 RC = "rc output\nV1 in 0 DC 0 AC 1\nR1 in out 1k\nC1 out 0 100n\n.end\n"
 SWEEP = 'sweep = { start = "10", stop = "100k", per_decade = 2 }\n'
-PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+SVG = "{http://www.w3.org/2000/svg}"
 
 
 def _case(folder: Path, name: str, body: str) -> Path:
@@ -57,8 +57,12 @@ def _with_spice(result: CaseResult, factor: complex = 1.0, missing: str | None =
     for eq in result.own:
         ref = None if missing else EngineAnswer(eq.freq_hz, eq.vth, eq.zth * factor, eq.in_)
         points.append(compare_point(eq, ref, result.tolerance, missing or ""))
-    verdict = worst([p.verdict for p in points] + [e.verdict for e in result.expectations]
-                    + [c.verdict for c in result.limits] + [d.verdict for d in result.drift])
+    verdict = worst(
+        [p.verdict for p in points]
+        + [e.verdict for e in result.expectations]
+        + [c.verdict for c in result.limits]
+        + [d.verdict for d in result.drift]
+    )
     return replace(result, points=tuple(points), verdict=verdict)
 
 
@@ -69,8 +73,7 @@ def results(tmp_path_factory: pytest.TempPathFactory) -> list[CaseResult]:
     filters, bridges = tmp_path / "filters", tmp_path / "bridges"
     passing = _case(filters, "passing", SWEEP + '[[expect]]\nat = "1k"\nzth = "1k"\nrel = 10\nphase_deg = 180\n')
     failing = _case(filters, "spice_fail", SWEEP)
-    limit = _case(bridges, "limit_fail", SWEEP + '[[limit]]\nquantity = "abs(zth)"\nmax = "900"\n'
-                                                 'band = ["10", "1k"]\n')
+    limit = _case(bridges, "limit_fail", SWEEP + '[[limit]]\nquantity = "abs(zth)"\nmax = "900"\nband = ["10", "1k"]\n')
     single = _case(bridges, "single", 'frequencies = ["1k"]\n')
     drifting = _case(bridges, "drifting", 'frequencies = ["50", "1k", "20k"]\n')
     items = [load_case(p) for p in (passing, failing, limit, single, drifting)]
@@ -81,8 +84,22 @@ def results(tmp_path_factory: pytest.TempPathFactory) -> list[CaseResult]:
     out[2] = _with_spice(out[2])
     out[3] = _with_spice(out[3], missing="ngspice is not installed")
     eq = out[4].own[1]
-    out[4] = _with_spice(replace(out[4], drift=(DriftCheck(eq.freq_hz, "zth", eq.zth * (1 + 1e-6), eq.zth, 1e-6,
-                                                           "drift", "Z_th moved by 1e-06 since the baseline"),)))
+    out[4] = _with_spice(
+        replace(
+            out[4],
+            drift=(
+                DriftCheck(
+                    eq.freq_hz,
+                    "zth",
+                    eq.zth * (1 + 1e-6),
+                    eq.zth,
+                    1e-6,
+                    "drift",
+                    "Z_th moved by 1e-06 since the baseline",
+                ),
+            ),
+        )
+    )
     return out
 
 
@@ -112,9 +129,12 @@ def test_junit_structure_and_counts(results):
         assert children[0] == "properties" and children[-2:] == ["system-out", "system-err"]
         cases = suite.findall("testcase")
         assert set(children[1:-2]) == {"testcase"}
-        counted = dict(tests=len(cases), failures=sum(c.find("failure") is not None for c in cases),
-                       errors=sum(c.find("error") is not None for c in cases),
-                       skipped=sum(c.find("skipped") is not None for c in cases))
+        counted = dict(
+            tests=len(cases),
+            failures=sum(c.find("failure") is not None for c in cases),
+            errors=sum(c.find("error") is not None for c in cases),
+            skipped=sum(c.find("skipped") is not None for c in cases),
+        )
         assert {k: int(suite.get(k)) for k in counted} == counted
         for k in totals:
             totals[k] += counted[k]
@@ -171,8 +191,12 @@ def test_csv_reads_back_with_every_check_and_exact_numbers(results):
     assert len(spice) == sum(3 * len(r.points) for r in results)
     assert set(body["check"]) == {"spice", "expect", "limit", "drift", "input"}
     limit = body[body["check"] == "limit"].iloc[0]
-    assert (limit["quantity"], limit["limit_max"], limit["band_lo_hz"], limit["band_hi_hz"]) == \
-        ("abs(zth)", 900.0, 10.0, 1000.0)
+    assert (limit["quantity"], limit["limit_max"], limit["band_lo_hz"], limit["band_hi_hz"]) == (
+        "abs(zth)",
+        900.0,
+        10.0,
+        1000.0,
+    )
     assert limit["verdict"] == "fail" and limit["margin"] < 0
     # Exact round trip (tolerance 0): the writer promises the shortest text that reads back to the same double.
     first = results[1].points[0].quantities[1]
@@ -223,6 +247,7 @@ class _Page(HTMLParser):
     def __init__(self) -> None:
         super().__init__()
         self.images: list[str] = []
+        self.plots: list[str] = []  # the sources of the images of class "plot" (the sweep figures)
         self.tags: list[str] = []
         self.text: list[str] = []
         self.depth = {"section": 0, "table": 0, "details": 0}
@@ -231,6 +256,8 @@ class _Page(HTMLParser):
         self.tags.append(tag)
         if tag == "img":
             self.images.append(dict(attrs)["src"])
+            if dict(attrs).get("class") == "plot":
+                self.plots.append(dict(attrs)["src"])
         if tag in self.depth:
             self.depth[tag] += 1
 
@@ -257,11 +284,15 @@ def test_html_is_self_contained_with_summary_plots_drawings_and_caution(results,
     assert "http" not in page_text.lower(), "no external links, not even in embedded data"
     assert not {"script", "link", "iframe"} & set(page.tags)
     assert all(src.startswith("data:") for src in page.images)
-    plots = [s for s in page.images if s.startswith("data:image/png;base64,")]
     swept = [r for r in results if r.own and len(r.own) >= 3]
-    assert len(plots) == len(swept) == 4
-    assert all(base64.b64decode(s.split(",", 1)[1]).startswith(PNG_SIGNATURE) for s in plots)
-    drawings = [s for s in page.images if s.startswith("data:image/svg+xml;base64,")]
+    assert len(page.plots) == len(swept) == 4
+    assert all(s.startswith("data:image/svg+xml;base64,") for s in page.plots)
+    for s in page.plots:  # each an SVG document XML can read, with both engines' curves
+        svg = ET.fromstring(base64.b64decode(s.split(",", 1)[1]))
+        assert svg.tag == SVG + "svg"
+        labels = {t.text for t in svg.iter(SVG + "text")}
+        assert {"crosscheck", "ngspice", "solver vs SPICE: judged relative error"} <= labels
+    drawings = [s for s in page.images if s.startswith("data:image/svg+xml;base64,") and s not in page.plots]
     assert len(drawings) == sum(1 for r in results if r.own)
     assert all(b"<svg" in base64.b64decode(s.split(",", 1)[1]) for s in drawings)
     for r in results:
@@ -275,10 +306,10 @@ def test_html_shows_limit_and_hand_value_rows(page_text):
 
 
 def test_plot_only_for_sweeps(results):
-    """A case with fewer than three frequencies above 0 Hz has no plot; a sweep gives PNG bytes."""
-    assert case_figure_png(results[3]) is None
-    png = case_figure_png(results[2])
-    assert png is not None and png.startswith(PNG_SIGNATURE)
+    """A case with fewer than three frequencies above 0 Hz has no plot; a sweep gives an SVG document."""
+    assert case_figure_svg(results[3]) is None
+    svg = case_figure_svg(results[2])
+    assert svg is not None and ET.fromstring(svg).tag == SVG + "svg"
 
 
 def test_circuit_drawing_labels_source_and_series_elements(results):
@@ -304,10 +335,19 @@ def test_findings_put_the_worst_first(results):
 # --------------------------------------------------------------------------- CLI format choice
 
 
-@pytest.mark.parametrize("given, output, expected", [
-    (None, "r.xml", "junit"), (None, "r.md", "markdown"), (None, "R.HTML", "html"), (None, "r.csv", "csv"),
-    (None, "r.json", "json"), (None, "r.log", "text"), (None, None, "text"), ("json", "r.xml", "json"),
-])
+@pytest.mark.parametrize(
+    "given, output, expected",
+    [
+        (None, "r.xml", "junit"),
+        (None, "r.md", "markdown"),
+        (None, "R.HTML", "html"),
+        (None, "r.csv", "csv"),
+        (None, "r.json", "json"),
+        (None, "r.log", "text"),
+        (None, None, "text"),
+        ("json", "r.xml", "json"),
+    ],
+)
 def test_verify_format_from_extension(given, output, expected):
     assert verify_format(given, None if output is None else Path(output)) == expected
 
@@ -321,7 +361,11 @@ def test_verify_writes_html_chosen_by_extension(tmp_path):
     out = tmp_path / "out" / "r.html"
     assert main(["verify", str(path), "--output", str(out), "--workers", "1"]) == 0
     text = out.read_text(encoding="utf-8")
-    assert text.startswith("<!DOCTYPE html>") and "data:image/png;base64," in text and CAUTION in text
+    assert (
+        text.startswith("<!DOCTYPE html>")
+        and '<img class="plot" src="data:image/svg+xml;base64,' in text
+        and CAUTION in text
+    )
 
 
 def test_comparison_table_keeps_its_frequencies_on_an_80_column_terminal(results):

@@ -1,6 +1,6 @@
 """A drawing of the equivalent circuit at one frequency, as SVG text, for the HTML report.
 
-Drawn with schemdraw (a dependency of crosscheck; its SVG canvas needs no matplotlib):
+Drawn with schemdraw (a dependency of crosscheck) on its SVG canvas, imported without matplotlib:
 the Thevenin source with its V_th in series with Z_th as R + L or C, to the port
 terminals a and b. Where the port has no Thevenin form (Y_N = 0, an ideal current
 source at the port) the Norton current source is drawn instead.
@@ -9,7 +9,9 @@ source at the port) the Norton current source is drawn instead.
 from __future__ import annotations
 
 import math
+import sys
 from collections.abc import Sequence
+from typing import Any
 
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
@@ -48,11 +50,28 @@ def _series_elements(eq: Equivalent) -> Sequence[tuple[str, str]]:
     return parts
 
 
+def _schemdraw() -> tuple[Any, Any]:
+    """schemdraw and its elements, imported without its matplotlib canvas when it is not loaded yet.
+
+    schemdraw imports matplotlib.pyplot whenever it can (about half a second) although we draw on its
+    SVG canvas only; its imports catch ImportError and fall back to SVG, and a ``None`` in
+    ``sys.modules`` makes an import raise ImportError (Python's import system). The entry is removed
+    again at once, and a schemdraw already imported by someone else is used as it is."""
+    if "schemdraw" not in sys.modules:
+        sys.modules["schemdraw.backends.mpl"] = None  # type: ignore[assignment]
+        try:
+            import schemdraw  # start-up time: the HTML report's drawing only
+        finally:
+            del sys.modules["schemdraw.backends.mpl"]
+    import schemdraw  # start-up time: the HTML report's drawing only
+    import schemdraw.elements as elm  # start-up time: the HTML report's drawing only
+
+    return schemdraw, elm
+
+
 def equivalent_svg(eq: Equivalent, port: tuple[str, str], sources: str = "peak") -> str:
     """SVG text of the equivalent at ``eq.freq_hz``; terminals named after the port's nodes."""
-    import schemdraw
-    import schemdraw.elements as elm
-
+    schemdraw, elm = _schemdraw()
     drawing = schemdraw.Drawing(canvas="svg", show=False)
     drawing.config(unit=2.6, fontsize=12, margin=0.6)
     at = "at DC" if eq.freq_hz == 0 else f"at {format_eng(eq.freq_hz, 4, ' Hz')}"

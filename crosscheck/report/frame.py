@@ -15,8 +15,10 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-import pandas as pd
+if TYPE_CHECKING:
+    import pandas as pd
 
 from crosscheck.judge.multiport import MatrixPointCheck, element_unit
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
@@ -185,6 +187,8 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
         if r.multiport is not None:
             body += [_expect_row(e) for e in r.multiport.expectations] + [_limit_row(c) for c in r.multiport.limits]
         rows.extend(head | row for row in body)
+    import pandas as pd  # start-up time: only the frame needs pandas, not the reports that word findings
+
     return pd.DataFrame(rows, columns=COLUMNS)
 
 

@@ -1,8 +1,9 @@
 """One self-contained HTML file of a run: summary, each case's numbers, plots and equivalent circuit.
 
 Self-contained means a reviewer can mail it or attach it to a CI run: no external links,
-no scripts, no fonts or styles fetched from anywhere; plots are PNG and drawings SVG,
-both embedded as base64 data URIs. Collapsed parts use ``<details>``, which needs no script.
+no scripts, no fonts or styles fetched from anywhere; plots and drawings are SVG, embedded as
+base64 data URIs (an SVG shown through ``<img>`` runs no script and fetches nothing). Collapsed parts
+use ``<details>``, which needs no script.
 Cautions come before any case: the summary opens with each case's own (``report.caution``: a hazardous
 level, or its case file's ``caution``) and the general caution, which the page also ends with; a case's
 section repeats its own under its heading. Reading's unacknowledged warnings follow the cautions, and each
@@ -24,7 +25,7 @@ from crosscheck.report.caution import CAUTION, CaseCaution, case_caution, case_c
 from crosscheck.report.circuit_drawing import equivalent_svg, representative
 from crosscheck.report.frame import case_reason, count_words, findings, overall_verdict, worst_spice_error
 from crosscheck.report.multiport_plots import case_figure_html as multiport_figure
-from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_png, is_swept
+from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_svg, is_swept
 from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version
 from crosscheck.version import __version__
@@ -240,12 +241,13 @@ def _figures(r: CaseResult) -> str:
             "solver): the source in series with Z_th drawn as R with L or C. Valid at this frequency "
             "only.</figcaption></figure>"
         )
-    png = case_figure_png(r) if is_swept(r) else None
-    if png is not None:
+    plot = case_figure_svg(r) if is_swept(r) else None
+    if plot is not None:
         parts.append(
-            f'<figure class="sweep"><img class="plot" src="{_data_uri("image/png", png)}" '
+            f'<figure class="sweep"><img class="plot" src="{_data_uri("image/svg+xml", plot.encode("utf-8"))}" '
             f'alt="Z_th and V_th against frequency from both engines, and the error"><figcaption>'
-            "crosscheck as lines, ngspice as circles; hand values as stars; design limits shade the "
+            "crosscheck as lines, ngspice as circles; hand values as filled markers (colour and shape by "
+            "verdict); design limits shade the "
             "forbidden side of each bound over its band; the error panel shows the judged relative "
             "error against the tolerance (dashed). DC points, if any, are in the table only."
             "</figcaption></figure>"

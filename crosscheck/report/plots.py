@@ -1,23 +1,21 @@
 """Plots of a swept case for the HTML report: both engines against frequency, the error, limits and hand values.
 
 One figure per case (magnitude and phase of Z_th and V_th, and the solver-vs-SPICE error
-against its tolerance), rendered with matplotlib's Agg canvas straight to PNG bytes. The
-figure is a plain ``Figure``, never registered with pyplot, so nothing global changes and
-nothing stays open after the call.
+against its tolerance, plus a panel for limits on other quantities), built here as a
+``svg_chart.Chart`` (plain data: what each panel shows and its range) and written as SVG text
+by ``svg_chart.chart_svg``; no plotting library is loaded.
 """
 
 from __future__ import annotations
 
-import io
 import math
-import threading
 from collections.abc import Sequence
-from typing import Any
 
 import numpy as np
 
 from crosscheck.judge.records import LimitCheck
 from crosscheck.judge.result import CaseResult
+from crosscheck.report.svg_chart import Band, Chart, HLine, Panel, Series, chart_svg
 
 #: A case needs at least this many frequencies to be drawn as a sweep.
 MIN_SWEEP_POINTS = 3
@@ -47,17 +45,14 @@ VERDICT_COLOURS = {
 }
 #: A symbol per verdict, so that a verdict is told by shape as well as by colour (and its word).
 VERDICT_SYMBOLS = {"pass": "✓", "fail": "✗", "error": "!", "unavailable": "∅", "drift": "Δ"}
-#: Matplotlib markers per verdict, for hand values drawn on the plots.
+#: Marker shapes per verdict (``svg_chart`` draws them), for hand values drawn on the plots.
 _VERDICT_MARKERS = {"pass": "o", "fail": "X", "error": "D", "unavailable": "s", "drift": "^"}
 #: Fraction of the y span left free above and below the data and limits.
 MARGIN = 0.05
 
-_OWN: dict[str, Any] = dict(color=OKABE_ITO["blue"], lw=1.6, label="crosscheck")
-_SPICE: dict[str, Any] = dict(
-    color=OKABE_ITO["orange"], marker="o", ms=4.5, ls="none", mfc="none", mew=1.2, label="ngspice"
-)
 _VERDICT_COLOUR = VERDICT_COLOURS
 _FAIL = VERDICT_COLOURS["fail"]
+_OWN_COLOUR, _SPICE_COLOUR = OKABE_ITO["blue"], OKABE_ITO["orange"]
 _ERR_COLOURS = {"vth": OKABE_ITO["blue"], "zth": OKABE_ITO["orange"], "in": OKABE_ITO["bluish green"]}
 _PANELS = {
     ("abs", "zth"): "zmag",
@@ -83,11 +78,10 @@ def _spice_values(result: CaseResult, quantity: str) -> np.ndarray | None:
     return _series([next((q.ref for q in p.quantities if q.quantity == quantity), None) for p in result.points])
 
 
-def _magnitude_axis(ax, *arrays: np.ndarray) -> None:
-    values = np.concatenate([np.abs(a[np.isfinite(a)]) for a in arrays if a is not None])
-    values = values[values > 0]
-    if values.size and values.max() / values.min() > 20:
-        ax.set_yscale("log")
+def _wide_range(values: Sequence[float]) -> bool:
+    """Positive values spanning more than a factor of 20: shown on a log axis."""
+    positive = [v for v in values if v is not None and math.isfinite(v) and v > 0]
+    return bool(positive) and max(positive) / min(positive) > 20
 
 
 def _limit_bounds(check: LimitCheck) -> tuple[float | None, float | None]:
@@ -98,79 +92,74 @@ def _limit_bounds(check: LimitCheck) -> tuple[float | None, float | None]:
     return check.minimum, check.maximum
 
 
-def _shade_limit(ax, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float | None, upper: float | None) -> None:
+def _shade_limit(
+    panel: Panel, check: LimitCheck, lo_hz: float, hi_hz: float, lower: float | None, upper: float | None
+) -> None:
     """The forbidden side of each bound, shaded over the limit's band; the bound itself as a dashed line.
 
     Call after ``fit_y``: the shading runs from the bound to the panel's edge."""
     colour = _VERDICT_COLOUR.get(check.verdict, _FAIL)
-    lower, upper = _drawable(ax, lower), _drawable(ax, upper)
-    bottom, top = ax.get_ylim()
+    lower, upper = _drawable(panel, lower), _drawable(panel, upper)
+    bottom, top = panel.ylim
     label: str | None = f"limit[{check.index}] {check.text} ({check.verdict})"
     for bound, edge in ((upper, top), (lower, bottom)):
         if bound is None:
             continue
-        ax.fill_between([lo_hz, hi_hz], [bound, bound], [edge, edge], color=colour, alpha=0.15, lw=0, label=label)
-        ax.hlines(bound, lo_hz, hi_hz, colors=colour, linestyles="--", lw=1.2)
+        panel.bands.append(Band(lo_hz, hi_hz, bound, edge, colour, label))
+        panel.hlines.append(HLine(bound, colour, lo_hz, hi_hz))
         label = None
-    ax.set_ylim(bottom, top)
 
 
-def _drawable(ax, bound: float | None) -> float | None:
+def _drawable(panel: Panel, bound: float | None) -> float | None:
     """A bound that can sit on this axis: finite, and above zero on a log axis."""
-    if bound is None or not math.isfinite(bound) or (ax.get_yscale() == "log" and bound <= 0):
+    if bound is None or not math.isfinite(bound) or (panel.ylog and bound <= 0):
         return None
     return bound
 
 
-def fit_y(ax, bounds: Sequence[float | None] = ()) -> tuple[float, float]:
-    """Set the y range to hold every drawn line's data and each bound, with ``MARGIN`` of the span
+def fit_y(panel: Panel, bounds: Sequence[float | None] = ()) -> tuple[float, float]:
+    """Set the y range to hold every series' data and each bound, with ``MARGIN`` of the span
     either side (in decades on a log axis). A flat curve gets a span of its own: 10 % of its value
     (1 for zero) on a linear axis, one decade on a log axis. Returns the range set."""
-    log = ax.get_yscale() == "log"
-    ys = [np.asarray(line.get_ydata(), dtype=float) for line in ax.lines]
-    values = np.concatenate([*ys, np.array([b for b in bounds if _drawable(ax, b) is not None], dtype=float)])
+    log = panel.ylog
+    ys = [np.asarray(s.ys, dtype=float) for s in panel.series]
+    drawable = [b for b in bounds if _drawable(panel, b) is not None]
+    values = np.concatenate([*ys, np.array(drawable, dtype=float)])
     values = values[np.isfinite(values) & ((values > 0) if log else True)]
     if not values.size:
-        return ax.get_ylim()
-    lo, hi = (np.log10(values.min()), np.log10(values.max())) if log else (values.min(), values.max())
+        return panel.ylim
+    lo, hi = (math.log10(values.min()), math.log10(values.max())) if log else (float(values.min()), float(values.max()))
     span = hi - lo
+    if not math.isfinite(span):  # ends near ±1.8e308: no room for margins
+        panel.ylim = (lo, hi)
+        return panel.ylim
     if span <= 0:
         span = 1.0 if log else (0.1 * abs(hi) or 1.0)
         lo, hi = lo - span / 2, hi + span / 2
     lo, hi = lo - MARGIN * span, hi + MARGIN * span
-    limits = (10**lo, 10**hi) if log else (lo, hi)
-    ax.set_ylim(*limits)
-    return limits
+    panel.ylim = (float(10**lo), float(10**hi)) if log else (float(lo), float(hi))
+    return panel.ylim
 
 
-def _expectation_points(axes: dict, result: CaseResult) -> None:
+def _expectation_points(panels: dict[str, Panel], result: CaseResult) -> None:
     for e in result.expectations:
         if e.quantity not in ("vth", "zth") or e.at_hz <= 0:
             continue
         prefix = "z" if e.quantity == "zth" else "v"
         colour = _VERDICT_COLOUR.get(e.verdict, _FAIL)
-        style = dict(
-            marker=_VERDICT_MARKERS.get(e.verdict, "*"),
-            ms=10,
-            ls="none",
-            color=colour,
-            mec="black",
-            mew=0.6,
-            zorder=5,
-            label=f"expect[{e.index}] by hand ({e.verdict})",
-        )
-        axes[prefix + "mag"].plot([e.at_hz], [abs(e.expected)], **style)
-        axes[prefix + "ph"].plot([e.at_hz], [math.degrees(np.angle(e.expected))], **style)
+        marker = _VERDICT_MARKERS.get(e.verdict, "*")
+        label = f"expect[{e.index}] by hand ({e.verdict})"
+        at = np.array([e.at_hz])
+        for key, value in (("mag", abs(e.expected)), ("ph", math.degrees(np.angle(e.expected)))):
+            panels[prefix + key].series.append(Series(label, at, np.array([value]), colour, "marker", marker))
 
 
-def _error_panel(ax, result: CaseResult, freqs: np.ndarray, keep: np.ndarray) -> None:
-    ax.set_title("solver vs SPICE: judged relative error", y=1.0)  # y given: no title placement pass
-    ax.set_xscale("log")
-    ax.set_xlabel("frequency (Hz)")
+def _error_panel(result: CaseResult, freqs: np.ndarray, keep: np.ndarray) -> Panel:
+    panel = Panel("solver vs SPICE: judged relative error", wide=True)
     if not result.points:
-        ax.text(0.5, 0.5, "not compared with ngspice", ha="center", va="center", transform=ax.transAxes)
-        return
-    ax.set_yscale("log")
+        panel.notes.append(("not compared with ngspice", "centre"))
+        return panel
+    panel.ylog = True
     drew_floor = False
     for quantity, colour in _ERR_COLOURS.items():
         errs = np.array(
@@ -179,34 +168,32 @@ def _error_panel(ax, result: CaseResult, freqs: np.ndarray, keep: np.ndarray) ->
         if np.all(np.isnan(errs)):
             continue
         drew_floor |= bool(np.any(errs == 0))
-        ax.plot(freqs, np.where(errs == 0, ERROR_FLOOR, errs), marker=".", color=colour, lw=1, label=quantity)
-    ax.axhline(result.tolerance.rel, color=_FAIL, ls="--", lw=1.2, label=f"tolerance {result.tolerance.rel:.3g}")
-    fit_y(ax)
+        panel.series.append(Series(quantity, freqs, np.where(errs == 0, ERROR_FLOOR, errs), colour, "line+dots"))
+    tol = result.tolerance.rel
+    panel.hlines.append(HLine(tol, _FAIL, label=f"tolerance {tol:.3g}"))
+    fit_y(panel, [tol])
     if drew_floor:
-        ax.text(
-            0.01, 0.02, f"exact agreement drawn at {ERROR_FLOOR:g}", transform=ax.transAxes, fontsize=8, color="#555555"
-        )
-    ax.legend(fontsize=8, loc="best", ncol=4)
+        panel.notes.append((f"exact agreement drawn at {ERROR_FLOOR:g}", "corner"))
+    return panel
 
 
-def _other_limits_panel(ax, result: CaseResult, checks: list[LimitCheck]) -> None:
-    ax.set_title("other limited quantities", y=1.0)
-    ax.set_xscale("log")
-    ax.set_xlabel("frequency (Hz)")
+def _other_limits_panel(result: CaseResult, checks: list[LimitCheck]) -> Panel:
+    panel = Panel("other limited quantities")
     for c in checks:
         if c.values:
             f, v = zip(*c.values)
-            ax.plot(f, v, color=_VERDICT_COLOUR.get(c.verdict, _FAIL), marker=".", lw=1, label=c.text)
-    fit_y(ax, [b for c in checks for b in (c.minimum, c.maximum)])
+            colour = _VERDICT_COLOUR.get(c.verdict, _FAIL)
+            panel.series.append(Series(c.text, np.array(f, dtype=float), np.array(v, dtype=float), colour, "line+dots"))
+    fit_y(panel, [b for c in checks for b in (c.minimum, c.maximum)])
     for c in checks:
         band = c.band or (min(result.freqs_hz), max(result.freqs_hz))
-        _shade_limit(ax, c, band[0], band[1], c.minimum, c.maximum)
-    ax.legend(fontsize=8, loc="best")
+        _shade_limit(panel, c, band[0], band[1], c.minimum, c.maximum)
+    return panel
 
 
-def _draw_routes(
-    axes: dict[str, Any], freqs: np.ndarray, own: dict[str, np.ndarray], ref: dict[str, np.ndarray | None], sources: str
-) -> None:
+def _route_panels(
+    freqs: np.ndarray, own: dict[str, np.ndarray], ref: dict[str, np.ndarray | None], sources: str
+) -> dict[str, Panel]:
     """|Z_th|, |V_th| and their phases against frequency: crosscheck as lines, ngspice as circles."""
     titles = {
         "zmag": ("|Z_th|", "Ω"),
@@ -214,50 +201,25 @@ def _draw_routes(
         "zph": ("phase of Z_th", "°"),
         "vph": ("phase of V_th", "°"),
     }
-    for key, ax in axes.items():
+    panels = {}
+    for key, (title, unit) in titles.items():
         quantity = "zth" if key.startswith("z") else "vth"
         transform = np.abs if key.endswith("mag") else (lambda z: np.angle(z, deg=True))
-        ax.plot(freqs, transform(own[quantity]), **_OWN)
+        panel = panels[key] = Panel(title, ylabel=unit)
+        panel.series.append(Series("crosscheck", freqs, transform(own[quantity]), _OWN_COLOUR, "line", width=1.6))
         reference = ref[quantity]
         if reference is not None:
-            ax.plot(freqs, transform(reference), **_SPICE)
-        ax.set_xscale("log")
+            panel.series.append(Series("ngspice", freqs, transform(reference), _SPICE_COLOUR, "circles"))
         if key.endswith("mag"):
-            _magnitude_axis(ax, own[quantity], *([] if reference is None else [reference]))
-        ax.set_title(titles[key][0], y=1.0)
-        ax.set_ylabel(titles[key][1])
-        ax.set_xlabel("frequency (Hz)")
-        ax.grid(True, which="both", alpha=0.25)
+            panel.ylog = _wide_range([float(y) for s in panel.series for y in s.ys])
+    return panels
 
 
-def case_figure(result: CaseResult) -> Any:
-    """The case's matplotlib ``Figure`` (not rendered), or None when the case is not a sweep (fewer than 3
+def case_figure(result: CaseResult) -> Chart | None:
+    """The case's chart (not yet written as SVG), or None when the case is not a sweep (fewer than 3
     frequencies > 0). Every panel's y range holds its data and its limits (``fit_y``)."""
     if not is_swept(result):
         return None
-    other = any((c.function, c.quantity) not in _PANELS for c in result.limits)
-    return _draw_case(_new_figure(other), result)
-
-
-def _new_figure(other: bool) -> Any:
-    """The empty figure: four route panels, the error panel, and the other limits' panel when ``other``."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(10, 9.5))
-    FigureCanvasAgg(fig)
-    grid = fig.add_gridspec(3, 2)
-    for spec in (grid[0, 0], grid[0, 1], grid[1, 0], grid[1, 1], grid[2, 0] if other else grid[2, :]):
-        fig.add_subplot(spec)
-    if other:
-        fig.add_subplot(grid[2, 1])
-    return fig
-
-
-def _draw_case(fig: Any, result: CaseResult) -> Any:
-    """Draw the case on an empty figure from ``_new_figure`` (or a ``_template`` emptied)."""
-    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-
     own_points = result.own or ()
     freqs_all = np.array([eq.freq_hz for eq in own_points])
     keep = freqs_all > 0  # DC cannot sit on a log axis; it stays in the points table
@@ -265,118 +227,42 @@ def _draw_case(fig: Any, result: CaseResult) -> Any:
     own = {"vth": _series([eq.vth for eq in own_points])[keep], "zth": _series([eq.zth for eq in own_points])[keep]}
     ref = {q: (None if (s := _spice_values(result, q)) is None else s[keep]) for q in ("vth", "zth")}
 
-    axes = dict(zip(("zmag", "vmag", "zph", "vph"), fig.axes[:4]))
+    panels = _route_panels(freqs, own, ref, result.sources)
+    _expectation_points(panels, result)
+    _limits_on_panels(panels, result, freqs)
+    chart = Chart(f"{result.title}  (port {result.port[0]} → {result.port[1]})", list(panels.values()))
+    chart.panels.append(_error_panel(result, freqs, keep))
     other = [c for c in result.limits if (c.function, c.quantity) not in _PANELS]
-    error_ax = fig.axes[4]
-    _draw_routes(axes, freqs, own, ref, result.sources)
-    _expectation_points(axes, result)
-    _limits_on_panels(axes, result, freqs)
-    _error_panel(error_ax, result, freqs, keep)
-    error_ax.grid(True, which="both", alpha=0.25)
     if other:
-        _other_limits_panel(fig.axes[5], result, other)
-    fig.suptitle(f"{result.title}  (port {result.port[0]} → {result.port[1]})", fontsize=11)
-    # Fixed margins: a layout engine measures every tick label and costs seconds per figure.
-    fig.subplots_adjust(left=0.08, right=0.98, bottom=0.06, top=0.93, hspace=0.45, wspace=0.22)
-    for ax in fig.axes:  # one frequency range everywhere; few minor ticks, unlabelled (each is laid out)
-        ax.set_xlim(float(freqs.min()), float(freqs.max()))
-        for axis in (ax.xaxis, ax.yaxis):
-            if axis.get_scale() == "log":
-                axis.set_minor_locator(LogLocator(subs=(2.0, 5.0)))
-                axis.set_major_formatter(FuncFormatter(_decade_label))
-            axis.set_minor_formatter(NullFormatter())
-    return fig
+        chart.panels[-1].wide = False
+        chart.panels.append(_other_limits_panel(result, other))
+    for panel in chart.panels:  # one frequency range everywhere
+        panel.xlim = (float(freqs.min()), float(freqs.max()))
+    return chart
 
 
-def _limits_on_panels(axes: dict[str, Any], result: CaseResult, freqs: np.ndarray) -> None:
+def _limits_on_panels(panels: dict[str, Panel], result: CaseResult, freqs: np.ndarray) -> None:
     """Fit each route panel to its data and the bounds of the limits drawn on it, then shade the limits."""
-    on_panel: dict[str, list[LimitCheck]] = {key: [] for key in axes}
+    on_panel: dict[str, list[LimitCheck]] = {key: [] for key in panels}
     for c in result.limits:
-        panel = _PANELS.get((c.function, c.quantity))
-        if panel is not None:
-            on_panel[panel].append(c)
-    for key, ax in axes.items():
+        where = _PANELS.get((c.function, c.quantity))
+        if where is not None:
+            on_panel[where].append(c)
+    for key, panel in panels.items():
         bounds = [b for c in on_panel[key] for b in _limit_bounds(c)]
-        if key.endswith("mag") and ax.get_yscale() != "log":  # bounds decades from the data: a log axis shows both
-            positive = [v for v in (*_panel_values(ax), *bounds) if v is not None and math.isfinite(v) and v > 0]
-            if positive and max(positive) / min(positive) > 20:
-                ax.set_yscale("log")
-        fit_y(ax, bounds)
+        if key.endswith("mag") and not panel.ylog:  # bounds decades from the data: a log axis shows both
+            panel.ylog = _wide_range([*_panel_values(panel), *(b for b in bounds if b is not None)])
+        fit_y(panel, bounds)
         for c in on_panel[key]:
             band = c.band or (float(freqs.min()), float(freqs.max()))
-            _shade_limit(ax, c, band[0], band[1], *_limit_bounds(c))
-        ax.legend(fontsize=8, loc="best")
+            _shade_limit(panel, c, band[0], band[1], *_limit_bounds(c))
 
 
-_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+def _panel_values(panel: Panel) -> list[float]:
+    return [float(y) for s in panel.series for y in np.asarray(s.ys, dtype=float)]
 
 
-def _decade_label(x: float, pos: int | None = None) -> str:
-    """A log axis's tick label in plain text: 10³ for a decade (as matplotlib's own labels, which go
-    through its slow math-text parser), the number itself between decades."""
-    if not x > 0 or not math.isfinite(x):
-        return ""
-    exponent = round(math.log10(x))
-    if abs(math.log10(x) - exponent) < 1e-9:
-        return "10" + str(exponent).translate(_SUPERSCRIPT)
-    return f"{x:g}"
-
-
-#: One emptied figure per layout and thread, drawn on again for each case (``case_figure_png``).
-_TEMPLATES = threading.local()
-
-
-def _template(other: bool) -> Any:
-    """A figure of this layout to draw on, emptied (``_empty``) of the last case drawn on it."""
-    figures = getattr(_TEMPLATES, "figures", None)
-    if figures is None:
-        figures = _TEMPLATES.figures = {}
-    fig = figures.get(other)
-    if fig is None:
-        fig = figures[other] = _new_figure(other)
-    else:
-        _empty(fig)
-    return fig
-
-
-def _empty(fig: Any) -> None:
-    """Back to what ``_new_figure`` gives: every artist a case added removed, scales, limits and
-    autoscaling as on new axes. The tick and grid artists stay: making them is most of a figure's cost.
-    ``tests/test_plot_template.py`` checks that a figure drawn on a template is the same PNG as on a new one."""
-    from matplotlib.transforms import Bbox
-
-    for ax in fig.axes:
-        for artist in (*ax.lines, *ax.collections, *ax.texts, *ax.patches):
-            artist.remove()
-        if ax.legend_ is not None:
-            ax.legend_.remove()
-        ax.set_title("")
-        ax.set_xlabel("")
-        ax.set_ylabel("")
-        ax.grid(False, which="both")
-        ax.set_xscale("linear")
-        ax.set_yscale("linear")
-        ax.relim()  # no data: the data limits as on new axes
-        ax.set_autoscale_on(True)
-        ax.viewLim.set_points(Bbox.unit().get_points())  # new axes show 0 … 1 until data asks for more
-        ax._stale_viewlims = dict.fromkeys(ax._stale_viewlims, False)
-    if fig._suptitle is not None:
-        fig._suptitle.set_text("")
-
-
-def _panel_values(ax) -> list[float]:
-    return [float(y) for line in ax.lines for y in np.asarray(line.get_ydata(), dtype=float)]
-
-
-def case_figure_png(result: CaseResult, dpi: int = 80) -> bytes | None:
-    """The case's figure (``case_figure``) as PNG bytes, or None when the case is not a sweep.
-
-    Drawn on a figure kept from the last case of the same layout (``_template``): its axes, ticks and
-    text measurements are reused, which takes most of the time out of a figure."""
-    if not is_swept(result):
-        return None
-    other = any((c.function, c.quantity) not in _PANELS for c in result.limits)
-    fig = _draw_case(_template(other), result)
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
-    return buffer.getvalue()
+def case_figure_svg(result: CaseResult) -> str | None:
+    """The case's figure (``case_figure``) as SVG text, or None when the case is not a sweep."""
+    chart = case_figure(result)
+    return None if chart is None else chart_svg(chart)

@@ -5,12 +5,14 @@ Every string a report did not write itself is untrusted: case titles, file and n
 input), and engine output. CI posts the Markdown report as a pull-request comment and prints
 the terminal report into the job log, so a hostile case file must not be able to put markup,
 links, mentions, spreadsheet formulas or terminal escape sequences into any of them. Each
-writer sends user text through the one function here for its format; HTML and JUnit escape
-with the standard library at the point of writing (``html.escape``, ElementTree).
+writer sends user text through the one function here for its format (``svg_text`` for the figures
+``report.svg_chart`` writes); HTML and JUnit escape with the standard library at the point of writing
+(``html.escape``, ElementTree).
 """
 
 from __future__ import annotations
 
+import html
 import re
 
 from rich.markup import escape as _rich_escape
@@ -113,3 +115,15 @@ def csv_text(value: object) -> object:
     if not isinstance(value, str) or not value.startswith(FORMULA_START) or _PLAIN_NUMBER.fullmatch(value):
         return value
     return "'" + value
+
+
+def svg_text(text: object) -> str:
+    """User text as inert SVG character data or attribute value: one line, controls shown, markup escaped.
+
+    XML 1.0 cannot hold most C0 controls at all, so every control character (line breaks too) is shown as
+    ``terminal_text`` shows it; a lone surrogate becomes ``?`` (UTF-8 cannot encode it); then ``& < > " '``
+    become entities (``html.escape``), so nothing in the text can open an element, end an attribute or
+    start an entity of its own.
+    """
+    plain = terminal_text(text, keep_layout=False).encode("utf-8", "replace").decode("utf-8")
+    return html.escape(plain, quote=True)
