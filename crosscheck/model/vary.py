@@ -201,14 +201,18 @@ def parse_tolerance(text: str | float) -> tuple[float | None, float | None]:
         try:
             rel = parse_number(number) / 100.0
         except ValueSyntaxError:
-            raise SpreadError(f"cannot read the tolerance {text[:40]!r}; write 1% or an absolute value like 10n")
+            raise SpreadError(
+                f"cannot read the tolerance {text[:40]!r}; write 1% or an absolute value like 10n"
+            ) from None
         if not 0.0 < rel < 1.0:
             raise SpreadError(f"the tolerance {text[:40]!r} must be above 0% and below 100%")
         return rel, None
     try:
         absolute = parse_number(text)
     except ValueSyntaxError:
-        raise SpreadError(f"cannot read the tolerance {str(text)[:40]!r}; write 1% or an absolute value like 10n")
+        raise SpreadError(
+            f"cannot read the tolerance {str(text)[:40]!r}; write 1% or an absolute value like 10n"
+        ) from None
     if not absolute > 0.0 or absolute == float("inf"):
         raise SpreadError(f"the tolerance {str(text)[:40]!r} must be a positive finite value")
     return None, absolute
