@@ -373,8 +373,9 @@ def apply_values(network: Network, parts: Sequence[VariedPart], values: Mapping[
     if len(by_element) != len(values):
         unknown = sorted(set(values) - {p.name for p in parts})
         raise SpreadError(f"no varied part is called {unknown[:3]}; name parts as resolve() does")
+    changes: dict[str, Any] = {}
     return network.with_elements(
-        replace(e, **{by_element[e.name].parameter: float(values[by_element[e.name].name])})
+        replace(e, **{**changes, by_element[e.name].parameter: float(values[by_element[e.name].name])})
         if e.name in by_element
         else e
         for e in network.elements
