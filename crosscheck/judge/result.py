@@ -11,6 +11,7 @@ from functools import cached_property
 
 from crosscheck.judge.hazards import Hazard, assess_case
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck, ReadingCheck
+from crosscheck.judge.spread import SpreadCheck, SpreadLimitCheck, SpreadResult
 from crosscheck.model.cases import Case
 from crosscheck.model.reading import ReadWarning
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
@@ -52,6 +53,9 @@ class CaseResult:
     #: ngspice's reading of the user's own lines against the own route (``judge.reading``); None when the
     #: network was not read from text (the fuzzer's) or ngspice was not run.
     reading: ReadingCheck | None = None
+    #: Component spread (``judge.spread``): the own route's sensitivities, worst case and Monte Carlo, ngspice's
+    #: confirmations and the limits over the spread; None when the case states no ``[[vary]]``/``--vary``.
+    spread: SpreadResult | None = None
 
     @cached_property
     def hazard(self) -> Hazard | None:
@@ -93,12 +97,16 @@ class CaseResult:
         """The first explanation among the judgements that carry the case's verdict."""
         if self.error:
             return self.error
-        parts: list[PointCheck | ExpectationCheck | LimitCheck | DriftCheck | ReadingCheck] = [
+        parts: list[
+            PointCheck | ExpectationCheck | LimitCheck | DriftCheck | ReadingCheck | SpreadCheck | SpreadLimitCheck
+        ] = [
             *([self.reading] if self.reading is not None else []),
             *self.points,
             *self.expectations,
             *self.limits,
             *self.drift,
+            *(self.spread.limits if self.spread is not None else ()),
+            *(self.spread.checks if self.spread is not None else ()),
         ]
         notes = [p.explanation for p in parts if p.verdict == self.verdict and p.explanation]
         return notes[0] if notes else ""
@@ -116,6 +124,7 @@ def case_verdict(result: CaseResult) -> Verdict:
             *(lim.verdict for lim in result.limits),
             *(d.verdict for d in result.drift),
             *([result.reading.verdict] if result.reading is not None else []),
+            *(result.spread.verdicts if result.spread is not None else []),
         ]
     )
 

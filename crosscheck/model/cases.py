@@ -30,6 +30,7 @@ from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
+from crosscheck.model.vary import MAX_SAMPLES, SpreadSpec, vary_from_case
 from crosscheck.vocabulary import PHASORS, QUANTITIES
 
 #: Untrusted input may not ask for more than this many frequency points in one case.
@@ -87,6 +88,8 @@ class Case:
     #: Reading-warning codes (``model.reading.WARNING_CODES``) the author has acknowledged: reports keep them
     #: silent (JSON lists them as accepted) and ``--strict`` does not make them errors.
     accept_warnings: tuple[str, ...] = ()
+    #: Component spread (``[[vary]]`` tables with ``samples``, ``seed``, ``spice_samples``); None: nominal only.
+    spread: SpreadSpec | None = None
 
     @property
     def name(self) -> str:
@@ -364,6 +367,10 @@ _TOP_KEYS = {
     "about",
     "caution",
     "accept_warnings",
+    "vary",
+    "samples",
+    "seed",
+    "spice_samples",
 }
 
 
@@ -402,7 +409,25 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         tags=_tags(path, data),
         caution=string(path, data, "caution", "").strip(),
         accept_warnings=accepted_warnings(data.get("accept_warnings", []), where=f"{path}: key 'accept_warnings'"),
+        spread=_spread(path, data),
     )
+
+
+def _spread(path: Path, data: dict[str, Any]) -> SpreadSpec | None:
+    """``[[vary]]`` tables (``model.vary.vary_from_case``) with ``samples``, ``seed`` and ``spice_samples``."""
+    varies = vary_from_case(path, data)
+    counts = {}
+    for key, default in (("samples", 0), ("seed", 1), ("spice_samples", 20)):
+        raw = data.get(key, default)
+        if not isinstance(raw, int) or isinstance(raw, bool) or not 0 <= raw <= MAX_SAMPLES:
+            raise _err(path, key, f"must be a whole number from 0 to {MAX_SAMPLES} (got {str(raw)[:40]!r})")
+        counts[key] = raw
+    if not varies:
+        stray = [key for key in counts if key in data]
+        if stray:
+            raise _err(path, stray[0], "applies only with [[vary]] tables; add one, or remove the key")
+        return None
+    return SpreadSpec(varies, counts["samples"], counts["seed"], counts["spice_samples"])
 
 
 def accepted_warnings(raw: Any, *, where: str) -> tuple[str, ...]:
