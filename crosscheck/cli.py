@@ -24,6 +24,7 @@ from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
+from crosscheck.model.vary import SpreadSpec
 from crosscheck.report.outputs import unknown_extensions, verify_format, write_reports
 from crosscheck.report.results_text import report_console
 from crosscheck.report.untrusted import terminal_text
@@ -164,13 +165,13 @@ def _reduce(args: argparse.Namespace) -> int:
         args.accept_warning,
         excitation,
     )
-    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
+    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations, spread=spread_spec(args, None))
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
         from crosscheck.spice.workers import SpicePool  # start-up time: loaded only by the commands that use it
 
-        with SpicePool(workers=1) as pool:
+        with SpicePool(workers=2 if case.spread is not None else 1) as pool:
             [result] = run_cases([case], engine=args.engine, pool=pool)
     if args.engine == "spice":
         return _spice_alone(args, result, sources, bool(expectations))
@@ -311,7 +312,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
             excitation = args.excitation or "ac"
             if not args.port or not (args.freq or excitation == "dc"):
                 raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
-            items.append(
+            case = replace(
                 case_from_netlist(
                     str(path),
                     read_netlist_text(path),
@@ -322,8 +323,10 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
                     args.sources or "peak",
                     args.accept_warning,
                     excitation,
-                )
+                ),
+                spread=spread_spec(args, None),
             )
+            items.append(case)
         except CrosscheckError as exc:
             items.append((str(path), exc))
     if not items:
@@ -354,7 +357,23 @@ def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[Cas
 def _overridden(case: Case, args: argparse.Namespace) -> Case:
     """A case file's case with --rel and --sources from the command line in place of its own (when given)."""
     tolerance = case.tolerance if args.rel is None else replace(case.tolerance, rel=args.rel)
-    return replace(case, tolerance=tolerance, sources=args.sources or case.sources)
+    return replace(
+        case,
+        tolerance=tolerance,
+        sources=args.sources or case.sources,
+        spread=spread_spec(args, case.spread) if case.spread else None,
+    )
+
+
+def spread_spec(args: argparse.Namespace, stated: SpreadSpec | None) -> SpreadSpec | None:
+    """A case's spread: its own (``stated``, a case file's) with --samples, --seed and --spice-samples in place of
+    its numbers when given; a netlist's (``stated`` None) from --vary; None when neither states one."""
+    if stated is None:
+        if not getattr(args, "vary", None):
+            return None
+        stated = SpreadSpec(tuple(args.vary))
+    numbers = {"samples": args.samples, "seed": args.seed, "spice_samples": args.spice_samples}
+    return replace(stated, **{k: v for k, v in numbers.items() if v is not None})
 
 
 def override_header(args: argparse.Namespace) -> str:

@@ -18,6 +18,7 @@ from crosscheck.judge.result import CaseResult
 from crosscheck.report.caution import CAUTION, case_caution, case_cautions
 from crosscheck.report.equivalents_json import own_point
 from crosscheck.report.read_warnings import warned, warning_document
+from crosscheck.report.spread_json import add_spread, spread_document
 from crosscheck.version import __version__
 from crosscheck.vocabulary import Verdict
 from crosscheck.vocabulary import phasor_json as phasor
@@ -64,6 +65,7 @@ def points_document(result: CaseResult) -> list[dict[str, Any]]:
             doc["verdict"] = check.verdict
             doc["explanation"] = check.explanation or None
         out.append(doc)
+    add_spread(out, result)
     return out
 
 
@@ -196,6 +198,8 @@ def case_document(result: CaseResult) -> dict[str, Any]:
     }
     if result.spice is not None:
         doc["spice_strategy"] = result.spice.strategy
+    if result.spread is not None:
+        doc["spread"] = spread_document(result.spread)
     return doc
 
 

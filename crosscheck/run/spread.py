@@ -1,0 +1,56 @@
+"""Run a case's component spread: the own route's sensitivities, worst case and Monte Carlo, ngspice's
+confirmations in the pool, and their judgement, added to the case's result.
+
+Runs after the nominal judgement, only for a case that states a spread (``[[vary]]`` or ``--vary``) and whose
+own route answered; a spread that cannot be applied (a pattern that matches nothing) is the case's error.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import replace
+
+from crosscheck.errors import CrosscheckError, EngineUnavailableError
+from crosscheck.judge.result import CaseResult, case_verdict
+from crosscheck.judge.spread import judge_spread
+from crosscheck.model.network import Network, Port
+from crosscheck.model.vary import SpreadSpec, resolve
+from crosscheck.own.spread import own_spread
+from crosscheck.spice.spread import SpiceSpread, spice_spread
+from crosscheck.spice.workers import SpicePool
+from crosscheck.vocabulary import Verdict
+
+
+def with_spread(
+    result: CaseResult, network: Network, pool: SpicePool | None, engine: str, spec: SpreadSpec | None = None
+) -> CaseResult:
+    """``result`` with its spread judged (``spec``: the case's own when None); unchanged without a spread."""
+    spec = spec if spec is not None else (result.case.spread if result.case is not None else None)
+    if spec is None or result.own is None or result.error is not None:
+        return result
+    port = Port(*result.port)
+    limits = result.case.limits if result.case is not None else ()
+    started = time.perf_counter()
+    try:
+        parts = resolve(network, spec)
+        own = own_spread(network, port, result.freqs_hz, parts, spec, limits)
+    except CrosscheckError as exc:
+        return replace(result, error=f"spread: {exc}", verdict=Verdict.ERROR)
+    own_s = time.perf_counter() - started
+    spice: SpiceSpread | None = None
+    note = ""
+    if engine == "own" or pool is None:
+        note = "ngspice was not run (own route only): the spread is not confirmed"
+    else:
+        started = time.perf_counter()
+        try:
+            conditions = [eq.condition for eq in result.own]
+            spice = spice_spread(
+                pool, network, port, result.freqs_hz, own, conditions, spice_samples=spec.spice_samples
+            )
+        except EngineUnavailableError as exc:
+            note = str(exc)
+    spice_s = time.perf_counter() - started if spice is not None else 0.0
+    spread = judge_spread(own, spice, result.tolerance, result.own, limits, result.limits, note)
+    new = replace(result, spread=replace(spread, elapsed_own_s=own_s, elapsed_spice_s=spice_s))
+    return replace(new, verdict=case_verdict(new))
