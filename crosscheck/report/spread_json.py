@@ -17,6 +17,7 @@ from typing import Any
 from crosscheck.judge.result import CaseResult
 from crosscheck.judge.spread import SpreadCheck, SpreadResult, quantity_of
 from crosscheck.model.vary import Extreme, MonteCarlo, QuantitySpread
+from crosscheck.report.caution import SPREAD_CAUTION
 from crosscheck.vocabulary import phasor_json
 
 
@@ -145,6 +146,7 @@ def spread_document(spread: SpreadResult) -> dict[str, Any]:
             "unavailable": sum(1 for c in spread.checks if c.verdict == "unavailable"),
         },
         "spice_note": spread.spice_note or None,
+        "caution": SPREAD_CAUTION,
         "notes": list(spread.notes),
         "elapsed_s": {"own": spread.elapsed_own_s, "spice": spread.elapsed_spice_s},
     }
