@@ -21,6 +21,7 @@ import pandas as pd
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
+from crosscheck.report.spread_frame import SPREAD_CHECKS, spread_findings, spread_rows
 from crosscheck.vocabulary import QUANTITIES, Verdict, quantity_unit
 
 COLUMNS = [
@@ -58,6 +59,7 @@ CHECKS = {
     "limit": "a design limit ([[limit]]) over its band",
     "drift": "crosscheck's own solver against the stored baseline of an earlier run",
     "input": "the case could not be run (invalid input, or an engine crashed)",
+    **SPREAD_CHECKS,
 }
 
 _LIMIT_UNITS = {"phase": "°", "db": "dB"}
@@ -175,7 +177,7 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
         if r.error:
             rows.append(head | dict(check="input", freq_hz=math.nan, quantity="", verdict="error", explanation=r.error))
         body = _spice_rows(r) + [_expect_row(e) for e in r.expectations] + [_limit_row(c) for c in r.limits]
-        body += [_drift_row(d) for d in r.drift]
+        body += [_drift_row(d) for d in r.drift] + spread_rows(r)
         rows.extend(head | row for row in body)
     return pd.DataFrame(rows, columns=COLUMNS)
 
@@ -294,6 +296,7 @@ def findings(result: CaseResult, include_pass: bool = False) -> list[Finding]:
     items += [_expect_finding(e) for e in result.expectations]
     items += [_limit_finding(c) for c in result.limits]
     items += [_drift_finding(d) for d in result.drift]
+    items += [Finding(*fields) for fields in spread_findings(result)]
     if not include_pass:
         items = [f for f in items if f.verdict != "pass"]
     return sorted(items, key=lambda f: -severity(f.verdict))
