@@ -161,7 +161,11 @@ class VariedSystem:
     def sources(self, values: np.ndarray) -> np.ndarray:
         """The source right-hand side (S, n) at S value sets (source magnitudes are linear)."""
         values = np.atleast_2d(values)
-        return self.rhs[:, 0][None, :] + (values - self.nominal) @ self.source_units
+        moving = np.flatnonzero(np.any(self.source_units != 0, axis=1))
+        out = np.repeat(self.rhs[None, :, 0], len(values), axis=0)
+        if len(moving):
+            out += (values[:, moving] - self.nominal[moving]) @ self.source_units[moving]
+        return out
 
     # ------------------------------------------------------------------ derivatives at nominal
 

@@ -14,13 +14,13 @@ import numpy as np
 import scipy.sparse as sp
 
 from crosscheck.model.budget import DENSE_BATCH_ENTRIES
-from crosscheck.own import sparse_backends
-from crosscheck.own.refinement import REFINE_ABOVE
-from crosscheck.own.solver import DENSE_LIMIT
+from crosscheck.own import klu_library, sparse_backends, sweep_kernel
+from crosscheck.own.refinement import REFINE_ABOVE, column_sizes
+from crosscheck.own.solver import DENSE_LIMIT, SINGULAR_CONDITION, _thread_pool, default_threads
 from crosscheck.own.spread_matrix import VariedSystem
 
 #: Value sets handled together on the sparse path (their A0/A1 entries are held at once).
-SPARSE_CHUNK = 256
+SPARSE_CHUNK = 64
 
 
 def nominal_and_adjoint(vs: VariedSystem, freqs_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -64,10 +64,22 @@ def port_values(vs: VariedSystem, values: np.ndarray, freqs_hz: np.ndarray) -> n
         solve = _dense_chunk
     else:
         chunk = SPARSE_CHUNK
-        solve = _sparse_chunk
-    for start in range(0, len(values), chunk):
+        vs.system._ensure_analysis()
+        symbolic = getattr(vs.system._analysis, "symbolic", None)
+        kernel = isinstance(symbolic, klu_library.Symbolic) and sweep_kernel.load() is not None
+        solve = _kernel_chunk if kernel else _sparse_chunk
+    starts = list(range(0, len(values), chunk))
+
+    def run(start: int) -> None:
         part = values[start : start + chunk]
         out[start : start + len(part)] = solve(vs, part, freqs)
+
+    threads = min(len(starts), default_threads()) if solve is _kernel_chunk else 1
+    if threads > 1:  # the compiled loop releases the GIL: value sets are independent chains, one per thread
+        list(_thread_pool(threads).map(run, starts))
+    else:
+        for start in starts:
+            run(start)
     return out
 
 
@@ -125,3 +137,43 @@ def _solved(analysis, a: sp.csc_matrix, rhs: np.ndarray, lu, vs: VariedSystem, f
         if residual <= REFINE_ABOVE * scale:
             return lu, x
     return lu, x
+
+
+def _kernel_chunk(vs: VariedSystem, values: np.ndarray, freqs: np.ndarray) -> np.ndarray:
+    """The sparse path through the compiled sweep loop (``sweep_kernel``): one call per value set runs its
+    frequencies as a chain of KLU refactorizations on the kept pivot order, each checked by its backward error;
+    a frequency it hands back (the kept order lost accuracy) is solved here with a fresh pivot search."""
+    system = vs.system
+    analysis = system._analysis
+    symbolic = getattr(analysis, "symbolic", None)
+    assert isinstance(symbolic, klu_library.Symbolic) and system._entry_columns is not None
+    d0, d1 = vs.data(values)
+    sources = vs.sources(values)
+    run = sweep_kernel.Run(symbolic, d0[0], d1[0], system._entry_columns, 2, REFINE_ABOVE, SINGULAR_CONDITION)
+    rhs = np.array(vs.rhs, order="F")
+    xs = np.empty((len(freqs), vs.size, 2), dtype=complex)
+    conds = np.empty(len(freqs))
+    out = np.empty((len(values), len(freqs), 2), dtype=complex)
+    pattern = system._pattern
+    a = sp.csc_matrix((np.empty(pattern.nnz, dtype=complex), pattern.indices, pattern.indptr), shape=pattern.shape)
+    numeric = symbolic.factor(d0[0] + 2j * math.pi * freqs[0] * d1[0])
+    for s in range(len(values)):
+        run.chain.a0, run.chain.a1 = d0[s].ctypes.data, d1[s].ctypes.data  # d0, d1 outlive the run
+        rhs[:, 0] = sources[s]
+        sizes = column_sizes(rhs)
+        i = 0
+        while i < len(freqs):
+            done, _ = run.advance(numeric, freqs[i:], rhs, sizes, rhs, None, xs[i:], conds[i:])
+            i += done
+            if i < len(freqs):  # handed back: pivot afresh at this frequency, then the kernel goes on
+                f = float(freqs[i])
+                np.multiply(d1[s], 2j * math.pi * f, out=a.data)
+                a.data += d0[s]
+                try:
+                    numeric = symbolic.factor(a.data)
+                except klu_library.KluError:
+                    raise vs.singular(f) from None
+                xs[i] = numeric.solve(rhs)
+                i += 1
+        out[s] = vs.port_voltage(np.moveaxis(xs, 1, 0))
+    return out
