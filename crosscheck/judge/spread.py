@@ -76,6 +76,15 @@ class SpreadLimitCheck:
 
 
 @dataclass(frozen=True)
+class SampleValues:
+    """Every Monte Carlo sample of V_th and Z_th at one frequency, for the report's histograms (I_N = V_th/Z_th)."""
+
+    freq_hz: float
+    vth: tuple[complex, ...]
+    zth: tuple[complex, ...]
+
+
+@dataclass(frozen=True)
 class SpreadResult:
     """Everything known about a case's spread: the own route's answer, ngspice's confirmations, the limits."""
 
@@ -87,6 +96,7 @@ class SpreadResult:
     checked_parts: tuple[str, ...] = ()
     elapsed_own_s: float = 0.0
     elapsed_spice_s: float = 0.0
+    histogram: SampleValues | None = None  # the samples at the frequency the report's figure shows
 
     @property
     def points(self) -> tuple[PointSpread, ...]:

@@ -26,6 +26,7 @@ from crosscheck.report.frame import case_reason, count_words, findings, overall_
 from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_png, is_swept
 from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version
+from crosscheck.report.spread_html import spread_section
 from crosscheck.version import __version__
 from crosscheck.vocabulary import quantity_unit
 
@@ -279,6 +280,7 @@ def _case_section(i: int, r: CaseResult) -> str:
         out.append(f'<p class="why">{_e(case_reason(r))}</p>')
     out.append(_figures(r))
     out.append(_judgements_table(r))
+    out.append(spread_section(r))
     if r.points or r.own:
         state = " open" if r.verdict != "pass" else ""
         out.append(
