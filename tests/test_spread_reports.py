@@ -150,3 +150,16 @@ def test_verify_exit_code_and_text(capsys):
     out = capsys.readouterr().out
     assert code == EXIT_FAIL
     assert "limit over spread: fail" in out
+
+
+def test_every_corpus_field_has_a_case_with_spread_and_a_limit_over_it():
+    """Each field folder of the corpus holds a case stating [[vary]] (each entry with a why) and a [[limit]]."""
+    corpus = Path(__file__).resolve().parent.parent / "corpus"
+    fields = sorted(p.name for p in corpus.iterdir() if p.is_dir())
+    with_spread = set()
+    for path in corpus.rglob("*.toml"):
+        case = load_case(path)
+        if case.spread is not None and case.limits:
+            assert all(v.why.strip() for v in case.spread.varies), f"{path}: a [[vary]] without why"
+            with_spread.add(path.relative_to(corpus).parts[0])
+    assert sorted(with_spread) == fields
