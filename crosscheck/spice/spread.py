@@ -28,12 +28,15 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.model.network import Network, Port
 from crosscheck.model.vary import OwnSpread, VariedPart, apply_values
 from crosscheck.spice.results import SpicePoint, SpiceResult
-from crosscheck.spice.workers import SpicePool
+
+if TYPE_CHECKING:  # the pool is only passed through: importing it here would start no worker, but costs start-up time
+    from crosscheck.spice.workers import SpicePool
 
 #: The relative step of the central differences (see the module docstring for why 1e-3).
 STEP_REL = 1e-3
