@@ -68,7 +68,9 @@ def _histogram(ax: Any, values: np.ndarray, title: str, unit: str, lines: list[f
     if not len(finite):
         ax.text(0.5, 0.5, "no samples", ha="center", va="center", transform=ax.transAxes)
         return
-    ax.hist(finite, bins=_BINS, color=OKABE_ITO["sky blue"], edgecolor="none")
+    # Values equal to rounding (the phase of a real I_N, say) cannot make 40 distinct bins: one bar then.
+    spread_out = np.ptp(finite) > 1e-9 * max(1.0, float(np.abs(finite).max()))
+    ax.hist(finite, bins=_BINS if spread_out else 1, color=OKABE_ITO["sky blue"], edgecolor="none")
     for bound in lines:
         ax.axvline(bound, color=OKABE_ITO["vermillion"], ls="--", lw=1.4, label="limit")
     ax.set_xlabel(unit, fontsize=8)
