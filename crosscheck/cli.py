@@ -13,7 +13,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
-from crosscheck.cli_parser import parser
+from crosscheck.cli_parser import parser, spread_spec
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.baseline import BaselineCorrupt, load_baseline, update_baseline_file
 from crosscheck.judge.result import CaseResult
@@ -24,7 +24,6 @@ from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
-from crosscheck.model.vary import SpreadSpec
 from crosscheck.report.outputs import unknown_extensions, verify_format, write_reports
 from crosscheck.report.results_text import report_console
 from crosscheck.report.untrusted import terminal_text
@@ -363,17 +362,6 @@ def _overridden(case: Case, args: argparse.Namespace) -> Case:
         sources=args.sources or case.sources,
         spread=spread_spec(args, case.spread) if case.spread else None,
     )
-
-
-def spread_spec(args: argparse.Namespace, stated: SpreadSpec | None) -> SpreadSpec | None:
-    """A case's spread: its own (``stated``, a case file's) with --samples, --seed and --spice-samples in place of
-    its numbers when given; a netlist's (``stated`` None) from --vary; None when neither states one."""
-    if stated is None:
-        if not getattr(args, "vary", None):
-            return None
-        stated = SpreadSpec(tuple(args.vary))
-    numbers = {"samples": args.samples, "seed": args.seed, "spice_samples": args.spice_samples}
-    return replace(stated, **{k: v for k, v in numbers.items() if v is not None})
 
 
 def override_header(args: argparse.Namespace) -> str:

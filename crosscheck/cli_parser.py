@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -12,7 +13,7 @@ from crosscheck.errors import CrosscheckError
 from crosscheck.model.frequencies import check_frequency_text, checked_frequency
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.values import parse_number
-from crosscheck.model.vary import MAX_SAMPLES, SpreadError, Vary, parse_vary_option
+from crosscheck.model.vary import MAX_SAMPLES, SpreadError, SpreadSpec, Vary, parse_vary_option
 from crosscheck.report.outputs import VERIFY_FORMATS
 from crosscheck.version import __version__
 
@@ -343,6 +344,17 @@ def _spread_options(p: argparse.ArgumentParser, what: str) -> None:
         metavar="N",
         help="Monte Carlo samples ngspice re-runs to confirm them (default 20)",
     )
+
+
+def spread_spec(args: argparse.Namespace, stated: SpreadSpec | None) -> SpreadSpec | None:
+    """A case's spread: its own (``stated``, a case file's) with --samples, --seed and --spice-samples in place of
+    its numbers when given; a netlist's (``stated`` None) from --vary; None when neither states one."""
+    if stated is None:
+        if not getattr(args, "vary", None):
+            return None
+        stated = SpreadSpec(tuple(args.vary))
+    numbers = {"samples": args.samples, "seed": args.seed, "spice_samples": args.spice_samples}
+    return replace(stated, **{k: v for k, v in numbers.items() if v is not None})
 
 
 def _vary_option(text: str) -> Vary:
