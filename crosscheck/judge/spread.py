@@ -282,16 +282,32 @@ def sample_checks(own: OwnSpread, spice: SpiceSpread, tol: Tolerance, eqs: Seque
     return out
 
 
-def sensitivity_checks(own: OwnSpread, spice: SpiceSpread, freqs: Sequence[float]) -> list:
-    """Each checked part's adjoint sensitivity against ngspice's central difference."""
+def sensitivity_checks(
+    own: OwnSpread, spice: SpiceSpread, eqs: Sequence[Equivalent | None], notes: list[str] | None = None
+) -> list:
+    """Each checked part's adjoint sensitivity against ngspice's central difference.
+
+    A quantity that is zero to rounding at nominal values (|q| <= 1e3·κ·ε·‖x‖, as ``judge.compare``) has no
+    meaningful relative change: its sensitivities are left out, and ``notes`` (when given) says how many.
+    """
     out = []
+    at_rounding = 0
+    freqs = [p.freq_hz for p in own.points]
     for d in spice.differences:
         i = next((k for k, f in enumerate(freqs) if same_frequency(f, d.freq_hz)), None)
         qs = quantity_of(d.quantity, own.points[i]) if i is not None else None
-        if qs is None or d.part not in qs.sensitivities:
+        if i is None or qs is None or d.part not in qs.sensitivities:
+            continue
+        if abs(qs.nominal) <= _roundoff(eqs[i], _scale(eqs[i], d.quantity, qs.nominal)):
+            at_rounding += 2
             continue
         s_abs, s_phase = qs.sensitivities[d.part]
         out.extend(_sensitivity_pair(d, s_abs, s_phase))
+    if at_rounding and notes is not None:
+        notes.append(
+            f"{at_rounding} sensitivity check(s) left out: the quantity is zero to rounding at nominal values, "
+            "so its relative change has no meaning"
+        )
     return out
 
 
@@ -373,7 +389,7 @@ def judge_spread(
         if spice.nominal.result is None:
             spice_note = spice_note or f"ngspice failed at nominal values: {spice.nominal.error}"
         checks = [
-            *sensitivity_checks(own, spice, [p.freq_hz for p in own.points]),
+            *sensitivity_checks(own, spice, eqs, notes),
             *corner_checks(own, spice, tol, eqs),
             *sample_checks(own, spice, tol, eqs),
         ]
