@@ -54,22 +54,20 @@ _ZERO_ROUNDOFF = 1e3 * np.finfo(float).eps
 
 
 def groups(parts: Sequence[VariedPart]) -> np.ndarray:
-    """Membership (P, G): each named group is one column, each ungrouped part its own, in part order."""
+    """Each part's group column (P,): each named group is one column, each ungrouped part its own, in part order."""
     column: dict[str, int] = {}
-    index = []
     for i, p in enumerate(parts):
-        key = f"group:{p.group}" if p.group is not None else f"part:{i}"
-        index.append(column.setdefault(key, len(column)))
-    m = np.zeros((len(parts), len(column)))
-    m[np.arange(len(parts)), index] = 1.0
-    return m
+        column.setdefault(f"group:{p.group}" if p.group is not None else f"part:{i}", len(column))
+    return np.array(
+        [column[f"group:{p.group}" if p.group is not None else f"part:{i}"] for i, p in enumerate(parts)], dtype=np.intp
+    )
 
 
-def values_at(parts: Sequence[VariedPart], u_groups: np.ndarray) -> np.ndarray:
-    """Part values (B, P) at group deviations u (B, G)."""
+def values_at(parts: Sequence[VariedPart], u_groups: np.ndarray, column: np.ndarray | None = None) -> np.ndarray:
+    """Part values (B, P) at group deviations u (B, G); ``column``: ``groups(parts)`` if already found."""
     nominal = np.array([p.nominal for p in parts])
     delta = np.array([p.delta for p in parts])
-    return nominal + (np.atleast_2d(u_groups) @ groups(parts).T) * delta
+    return nominal + np.atleast_2d(u_groups)[:, groups(parts) if column is None else column] * delta
 
 
 def draw(parts: Sequence[VariedPart], samples: int, seed: int) -> np.ndarray:
@@ -78,9 +76,10 @@ def draw(parts: Sequence[VariedPart], samples: int, seed: int) -> np.ndarray:
     One column per group, drawn in group order from one ``numpy.random.Generator(PCG64(seed))``.
     """
     rng = np.random.Generator(np.random.PCG64(seed))
-    m = groups(parts)
-    dists = [parts[int(np.flatnonzero(m[:, g])[0])].dist for g in range(m.shape[1])]
-    u = np.empty((samples, m.shape[1]))
+    column = groups(parts)
+    first = {int(g): i for i, g in reversed(list(enumerate(column.tolist())))}
+    dists = [parts[first[g]].dist for g in range(len(first))]
+    u = np.empty((samples, len(dists)))
     for g, dist in enumerate(dists):
         if dist == "normal":
             u[:, g] = rng.normal(0.0, 1.0 / 3.0, samples)
@@ -191,16 +190,20 @@ def _worst_at(
     q_nominal = {k: complex(v) for k, v in quantities(np.array(vth), np.array(zth)).items()}
     dq = quantity_slopes(vth, zth, slopes[0], slopes[1])
     delta = np.array([p.delta for p in parts])
-    m = groups(parts)
-    gradients = {(q, fn): (function_slope(fn, q_nominal[q], dq[q]) * delta) @ m for q, fn in targets}
+    column = groups(parts)
+    count = int(column.max()) + 1
+    gradients = {
+        (q, fn): np.bincount(column, function_slope(fn, q_nominal[q], dq[q]) * delta, minlength=count)
+        for q, fn in targets
+    }
 
     def evaluate(u: np.ndarray) -> dict[str, np.ndarray]:
-        pv = port_values(vs, values_at(parts, u), np.array([freq_hz]))
+        pv = port_values(vs, values_at(parts, u, column), np.array([freq_hz]))
         return quantities(pv[:, 0, 0], pv[:, 0, 1])
 
     found = search(targets, q_nominal, gradients, evaluate)
     for end in found.values():
-        end.u = values_at(parts, end.u)[0]  # from here on: the part values of the extreme
+        end.u = values_at(parts, end.u, column)[0]  # from here on: the part values of the extreme
     return found
 
 

@@ -5,8 +5,10 @@ groups' normalised deviations u (each in [-1, 1]) comes from the adjoint sensiti
 maximum is at u = sign(gradient) and the minimum at the opposite corner, and the linear estimate is the
 nominal value plus or minus the sum of |gradient|. Each such corner is then solved exactly. Near a
 resonance the response is not monotonic in every part and the first-order corner need not be the
-extreme: a local search flips one group at a time (the ``SEARCH_GROUPS`` groups with the largest
-gradient), keeps the best flip while it improves, and stops after ``SEARCH_ROUNDS`` rounds. Every target
+extreme: a local search flips one group at a time, keeps the best flip while it improves, and stops after
+``SEARCH_ROUNDS`` rounds. It tries only groups that could be on the wrong side: those whose first-order
+effect (twice |gradient| for a flip) is within ``BEND_FACTOR`` times what the linear estimate missed at the
+corner, the ``SEARCH_GROUPS`` largest of them; a response that is linear to rounding tries none. Every target
 of a frequency is searched in the same batch of solves. Each extreme says which method found it.
 """
 
@@ -23,6 +25,9 @@ CORNER_SEARCH = "corner search"
 SAMPLE = "monte carlo sample"
 #: The groups a corner search may flip (those with the largest first-order effect on the target).
 SEARCH_GROUPS = 8
+#: A group is a candidate for a flip when twice its first-order effect is at most this many times what the
+#: linear estimate missed at the current corner.
+BEND_FACTOR = 4.0
 #: Rounds of single flips a corner search makes at most.
 SEARCH_ROUNDS = 4
 FUNCTIONS = ("abs", "phase_deg", "re", "im", "db")
@@ -96,7 +101,8 @@ def search(
     """The min (-1) and max (+1) of every target (quantity, function) over the corners, keyed (q, fn, ±1)."""
     ends = [(q, fn, d) for q, fn in targets for d in (-1, 1)]
     start = np.array([d * np.where(gradients[(q, fn)] >= 0, 1.0, -1.0) for q, fn, d in ends])
-    values = _values(ends, evaluate(start), nominal)
+    unique, where = np.unique(start, axis=0, return_inverse=True)
+    values = _values(ends, {q: v[where.ravel()] for q, v in evaluate(unique).items()}, nominal)
     found = {}
     for i, (q, fn, d) in enumerate(ends):
         linear = float(function_value(fn, nominal[q], nominal[q])) + d * float(np.abs(gradients[(q, fn)]).sum())
@@ -123,15 +129,20 @@ def _improve(
     """One round: every single flip of each active end's top groups, solved in one batch; keep the best."""
     corners, owners = [], []
     for end in active:
-        grad = gradients[end[:2]]
-        for g in np.argsort(-np.abs(grad), kind="stable")[:SEARCH_GROUPS].tolist():
+        grad = np.abs(gradients[end[:2]])
+        # A flip can only help where the response bends: where twice the group's first-order effect is within
+        # a few times what the linear estimate missed at this corner (a strongly monotonic part never flips).
+        missed = abs(found[end].value - found[end].first_order)
+        candidates = np.flatnonzero(2.0 * grad <= BEND_FACTOR * missed)
+        for g in candidates[np.argsort(-grad[candidates], kind="stable")][:SEARCH_GROUPS].tolist():
             u = found[end].u.copy()
             u[g] = -u[g]
             corners.append(u)
             owners.append(end)
     if not corners:
         return []
-    values = _values(owners, evaluate(np.array(corners)), nominal)
+    unique, where = np.unique(np.array(corners), axis=0, return_inverse=True)
+    values = _values(owners, {q: v[where.ravel()] for q, v in evaluate(unique).items()}, nominal)
     still = []
     for end in active:
         d = end[2]
