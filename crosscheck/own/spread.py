@@ -147,7 +147,7 @@ def own_spread(
         for f in range(len(freqs)):
             _samples_beyond(found[f], sampled[:, f, 0], sampled[:, f, 1], nominal[f], samples)
     points = tuple(
-        _point(float(freqs[f]), nominal[f], slopes[f], found[f], parts, norton[f], sampled, f, spec)
+        _point(float(freqs[f]), nominal[f], slopes[f], found[f], parts, norton[f], (samples, sampled), f, spec)
         for f in range(len(freqs))
     )
     limit_spreads = tuple(
@@ -231,10 +231,12 @@ def _point(
     found: dict,
     parts: Sequence[VariedPart],
     norton: bool,
-    sampled: np.ndarray | None,
+    drawn: tuple[np.ndarray, np.ndarray | None],
     f: int,
     spec: SpreadSpec,
 ) -> PointSpread:
+    """The point's three quantities; ``drawn``: the Monte Carlo part values (S, P) and port values (S, F, 2)."""
+    samples, sampled = drawn
     vth, zth = complex(nominal[0]), complex(nominal[1])
     q_nominal = {k: complex(v) for k, v in quantities(np.array(vth), np.array(zth)).items()}
     dq = quantity_slopes(vth, zth, slopes[0], slopes[1])
@@ -248,7 +250,7 @@ def _point(
         order = sorted(range(len(parts)), key=lambda i: (-abs(sens[i, 0]), -abs(sens[i, 1])))
         ranked = {parts[i].name: (float(sens[i, 0]), float(sens[i, 1])) for i in order}
         worst = {fn: _extreme(found[(q, fn, -1)], found[(q, fn, 1)], parts) for fn in WORST_FUNCTIONS}
-        mc = _monte_carlo(qs[q], q_nominal[q], parts, sampled, spec) if qs is not None else None
+        mc = _monte_carlo(qs[q], q_nominal[q], parts, samples, spec) if qs is not None else None
         out[q] = QuantitySpread(q_nominal[q], ranked, worst, mc)
     return PointSpread(freq_hz, out["vth"], out["zth"], out["in"])
 
@@ -267,14 +269,14 @@ def _extreme(low: Found, high: Found, parts: Sequence[VariedPart]) -> Extreme:
 
 
 def _monte_carlo(
-    q: np.ndarray, nominal: complex, parts: Sequence[VariedPart], sampled: np.ndarray | None, spec: SpreadSpec
+    q: np.ndarray, nominal: complex, parts: Sequence[VariedPart], samples: np.ndarray, spec: SpreadSpec
 ) -> MonteCarlo:
     magnitude = np.abs(q)
     phase = function_value("phase_deg", q, nominal)
     with np.errstate(divide="ignore", invalid="ignore"):
         departure = np.abs(magnitude / abs(nominal) - 1.0) if nominal != 0 else magnitude
     worst = int(np.nanargmax(departure))
-    values = _sample_values(parts, spec, worst)
+    values = _corner(parts, samples[worst])
     return MonteCarlo(
         samples=len(q),
         seed=spec.seed,
@@ -285,12 +287,6 @@ def _monte_carlo(
         worst_values=values,
         subset=tuple(complex(v) for v in q[: spec.spice_samples]),
     )
-
-
-def _sample_values(parts: Sequence[VariedPart], spec: SpreadSpec, index: int) -> dict[str, float]:
-    """The part values of sample ``index``, redrawn from the seed (cheap; keeps no (S, P) array per point)."""
-    u = draw(parts, index + 1, spec.seed)[index : index + 1]
-    return _corner(parts, values_at(parts, u)[0])
 
 
 def _in_band(f: float, band: tuple[float, float] | None) -> bool:

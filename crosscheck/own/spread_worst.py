@@ -147,6 +147,8 @@ def _improve(
     for end in active:
         d = end[2]
         mine = [i for i, o in enumerate(owners) if o == end]
+        if not mine:
+            continue
         best = max(mine, key=lambda i: d * values[i])
         current = found[end]
         gain = d * (values[best] - current.value)
