@@ -105,10 +105,13 @@ def normalised(q: complex, dq: np.ndarray, parts: Sequence[VariedPart]) -> np.nd
     """(P, 2): % change of |q| per % change of each part, and degrees of phase per %.
 
     A part whose nominal value is 0 (an absolute tolerance on a silent source) is scaled by its tolerance
-    instead: % change of |q| per % of its tolerance.
+    instead: % change of |q| per % of its tolerance. A quantity that is exactly 0 has NaN sensitivities.
     """
     scale = np.array([p.nominal if p.nominal != 0 else p.delta for p in parts])
-    relative = dq * scale / q
+    if q == 0:  # exactly 0 (or underflowed): a relative change has no meaning
+        return np.full((len(parts), 2), np.nan)
+    with np.errstate(all="ignore"):
+        relative = dq * scale / q
     return np.stack([relative.real, np.degrees(relative.imag) / 100.0], axis=1)
 
 
@@ -215,6 +218,8 @@ def _samples_beyond(
     q_nominal = quantities(np.array(complex(nominal[0])), np.array(complex(nominal[1])))
     for (q, fn, d), end in found.items():
         v = function_value(fn, qs[q], complex(q_nominal[q]))
+        if np.isnan(v).all():
+            continue
         i = int(np.nanargmax(d * v))
         if d * v[i] > d * end.value + 1e-12 * max(abs(end.value), 1e-300):
             found[(q, fn, d)] = Found(float(v[i]), values[i].copy(), SAMPLE, end.first_order)

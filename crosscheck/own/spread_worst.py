@@ -46,7 +46,11 @@ def quantity_slopes(vth: complex, zth: complex, dv: np.ndarray, dz: np.ndarray) 
 
 def function_value(fn: str, q: np.ndarray | complex, nominal: complex) -> np.ndarray:
     """``fn`` of q; phase in degrees, unwrapped about the nominal phase (no jump at ±180° inside a spread)."""
-    q = np.asarray(q)
+    with np.errstate(all="ignore"):  # a quantity that is exactly 0 (or underflows) gives inf or NaN, not a warning
+        return _function_value(fn, np.asarray(q), nominal)
+
+
+def _function_value(fn: str, q: np.ndarray, nominal: complex) -> np.ndarray:
     if fn == "abs":
         return np.abs(q)
     if fn == "re":
@@ -54,8 +58,7 @@ def function_value(fn: str, q: np.ndarray | complex, nominal: complex) -> np.nda
     if fn == "im":
         return q.imag
     if fn == "db":
-        with np.errstate(divide="ignore"):
-            return 20.0 * np.log10(np.abs(q))
+        return 20.0 * np.log10(np.abs(q))
     if fn == "phase_deg":
         base = math.degrees(np.angle(nominal)) if nominal != 0 else 0.0
         reference = nominal if nominal != 0 else 1.0
@@ -64,7 +67,12 @@ def function_value(fn: str, q: np.ndarray | complex, nominal: complex) -> np.nda
 
 
 def function_slope(fn: str, q: complex, dq: np.ndarray) -> np.ndarray:
-    """d fn(q)/dp from dq/dp (P,)."""
+    """d fn(q)/dp from dq/dp (P,); NaN or inf where q is exactly 0 (|q| and phase have no slope there)."""
+    with np.errstate(all="ignore"):
+        return _function_slope(fn, q, dq)
+
+
+def _function_slope(fn: str, q: complex, dq: np.ndarray) -> np.ndarray:
     if fn == "abs":
         return (np.conj(q) * dq).real / abs(q)
     if fn == "re":
