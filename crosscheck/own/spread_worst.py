@@ -28,6 +28,8 @@ SEARCH_GROUPS = 8
 #: A group is a candidate for a flip when twice its first-order effect is at most this many times what the
 #: linear estimate missed at the current corner.
 BEND_FACTOR = 4.0
+#: A flip must gain more than this share of the first-order half-width (and 1e-9 of the value) to be kept.
+MIN_GAIN = 1e-6
 #: Rounds of single flips a corner search makes at most.
 SEARCH_ROUNDS = 4
 FUNCTIONS = ("abs", "phase_deg", "re", "im", "db")
@@ -109,8 +111,7 @@ def search(
     """The min (-1) and max (+1) of every target (quantity, function) over the corners, keyed (q, fn, ±1)."""
     ends = [(q, fn, d) for q, fn in targets for d in (-1, 1)]
     start = np.array([d * np.where(gradients[(q, fn)] >= 0, 1.0, -1.0) for q, fn, d in ends])
-    unique, where = np.unique(start, axis=0, return_inverse=True)
-    values = _values(ends, {q: v[where.ravel()] for q, v in evaluate(unique).items()}, nominal)
+    values = _values(ends, _evaluated_once(start, evaluate), nominal)
     found = {}
     for i, (q, fn, d) in enumerate(ends):
         linear = float(function_value(fn, nominal[q], nominal[q])) + d * float(np.abs(gradients[(q, fn)]).sum())
@@ -121,6 +122,16 @@ def search(
         if not active:
             break
     return found
+
+
+def _evaluated_once(corners: np.ndarray, evaluate: Evaluate) -> dict[str, np.ndarray]:
+    """``evaluate`` of each row, solving each distinct corner once (min and max often share corners)."""
+    first: dict[bytes, int] = {}
+    where = np.array([first.setdefault(row.tobytes(), len(first)) for row in corners], dtype=np.intp)
+    rows = [0] * len(first)
+    for i, w in enumerate(where.tolist()):
+        rows[w] = i
+    return {q: v[where] for q, v in evaluate(corners[rows]).items()}
 
 
 def _values(ends: Sequence[tuple[str, str, int]], qs: dict[str, np.ndarray], nominal: dict[str, complex]) -> np.ndarray:
@@ -149,8 +160,7 @@ def _improve(
             owners.append(end)
     if not corners:
         return []
-    unique, where = np.unique(np.array(corners), axis=0, return_inverse=True)
-    values = _values(owners, {q: v[where.ravel()] for q, v in evaluate(unique).items()}, nominal)
+    values = _values(owners, _evaluated_once(np.array(corners), evaluate), nominal)
     still = []
     for end in active:
         d = end[2]
@@ -160,7 +170,9 @@ def _improve(
         best = max(mine, key=lambda i: d * values[i])
         current = found[end]
         gain = d * (values[best] - current.value)
-        if math.isfinite(values[best]) and gain > 1e-12 * max(abs(current.value), 1e-300):
+        # A gain below this is rounding, or too small to change any reported digit: the search stops there.
+        worth = 1e-9 * abs(current.value) + MIN_GAIN * float(np.abs(gradients[end[:2]]).sum())
+        if math.isfinite(values[best]) and gain > max(worth, 1e-300):
             found[end] = Found(float(values[best]), corners[best], CORNER_SEARCH, current.first_order)
             still.append(end)
     return still
