@@ -8,6 +8,7 @@ solves against ``thevenin`` on the changed network.
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 
 import numpy as np
@@ -18,7 +19,7 @@ from crosscheck.fuzz.large import build
 from crosscheck.model.cases import Limit
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Port
-from crosscheck.model.vary import SpreadSpec, apply_values, parse_vary_option, resolve
+from crosscheck.model.vary import SpreadError, SpreadSpec, apply_values, parse_vary_option, resolve
 from crosscheck.own.equivalent import thevenin
 from crosscheck.own.solver import DENSE_LIMIT, MnaSystem
 from crosscheck.own.spread import adjoint_slopes, draw, own_spread, values_at
@@ -234,3 +235,21 @@ def test_a_limit_that_passes_at_nominal_fails_at_a_corner():
         network, Port("2", "0"), [0.0], parts, SpreadSpec((), 0), [Limit("abs", "vth", 4.0, 6.0, None, "abs(vth)", 2)]
     ).limits[0]
     assert holds.holds and holds.failing_corner is None and holds.violating_fraction is None
+
+
+def test_dc_sources_vary_their_dc_value_with_its_sign():
+    network = dataclasses.replace(read_netlist("t\nV1 1 0 DC -5 AC 1 90\nR1 1 2 1k\nR2 2 0 1k\n"), excitation="dc")
+    parts = resolve(network, [parse_vary_option("V1=10%")])
+    assert parts[0].parameter == "dc_value" and parts[0].nominal == -5.0
+    point = own_spread(network, Port("2", "0"), [0.0], parts, SpreadSpec((), samples=20)).points[0]
+    re = point.vth.worst_case["re"]  # type: ignore[union-attr]
+    assert (re.minimum, re.maximum) == (pytest.approx(-2.75, rel=1e-14), pytest.approx(-2.25, rel=1e-14))
+    assert re.min_corner == {"v1": -5.5}
+    assert point.vth.sensitivities["v1"] == (pytest.approx(1.0, rel=1e-14), pytest.approx(0.0, abs=1e-14))  # type: ignore[union-attr]
+
+
+def test_no_thevenin_form_is_refused_with_the_reason():
+    network = read_netlist("t\nI1 0 1 AC 1m\nC1 1 2 1u\nR1 2 0 1k\n")  # at DC the port sees only a current source
+    parts = resolve(network, [parse_vary_option("R1=1%")])
+    with pytest.raises(SpreadError, match="no Thevenin form"):
+        own_spread(network, Port("1", "0"), [0.0], parts, SpreadSpec(()))

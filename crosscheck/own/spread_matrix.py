@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.sparse as sp
@@ -97,7 +97,8 @@ class VariedSystem:
             elif e.kind == "H":
                 put0(branch[e.name], branch[e.control], -1.0)  # type: ignore[index]
             elif e.kind in "VI":
-                unit = e.phasor / e.ac_mag if e.ac_mag else complex(math.cos(math.radians(e.ac_phase_deg)), 0)
+                # d(phasor)/d(parameter): e^{jφ} for an AC magnitude; 1 for a DC value (its phasor is the value)
+                unit = 1.0 + 0j if p.parameter == "dc_value" else replace(e, ac_mag=1.0).phasor
                 if e.kind == "V":
                     self.source_units[i, branch[e.name]] = unit
                 else:
@@ -214,7 +215,12 @@ class VariedSystem:
         mats[:, self._rows, self._cols] = d0 + 2j * math.pi * freq_hz * d1
         return mats
 
-    def singular(self, freq_hz: float) -> SpreadError:
+    def singular(self, freq_hz: float, nominal: bool = False) -> SpreadError:
+        if nominal:
+            return SpreadError(
+                f"the network with the port open is singular at {freq_hz:g} Hz at nominal values (it has no "
+                "Thevenin form there); spread analysis works on the open-port form: leave that frequency out"
+            )
         return SpreadError(
             f"the network is singular at {freq_hz:g} Hz at some part values of the spread; narrow the "
             "tolerances or check the network at nominal values"
