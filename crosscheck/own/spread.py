@@ -54,22 +54,20 @@ _ZERO_ROUNDOFF = 1e3 * np.finfo(float).eps
 
 
 def groups(parts: Sequence[VariedPart]) -> np.ndarray:
-    """Membership (P, G): each named group is one column, each ungrouped part its own, in part order."""
+    """Each part's group column (P,): each named group is one column, each ungrouped part its own, in part order."""
     column: dict[str, int] = {}
-    index = []
     for i, p in enumerate(parts):
-        key = f"group:{p.group}" if p.group is not None else f"part:{i}"
-        index.append(column.setdefault(key, len(column)))
-    m = np.zeros((len(parts), len(column)))
-    m[np.arange(len(parts)), index] = 1.0
-    return m
+        column.setdefault(f"group:{p.group}" if p.group is not None else f"part:{i}", len(column))
+    return np.array(
+        [column[f"group:{p.group}" if p.group is not None else f"part:{i}"] for i, p in enumerate(parts)], dtype=np.intp
+    )
 
 
-def values_at(parts: Sequence[VariedPart], u_groups: np.ndarray) -> np.ndarray:
-    """Part values (B, P) at group deviations u (B, G)."""
+def values_at(parts: Sequence[VariedPart], u_groups: np.ndarray, column: np.ndarray | None = None) -> np.ndarray:
+    """Part values (B, P) at group deviations u (B, G); ``column``: ``groups(parts)`` if already found."""
     nominal = np.array([p.nominal for p in parts])
     delta = np.array([p.delta for p in parts])
-    return nominal + (np.atleast_2d(u_groups) @ groups(parts).T) * delta
+    return nominal + np.atleast_2d(u_groups)[:, groups(parts) if column is None else column] * delta
 
 
 def draw(parts: Sequence[VariedPart], samples: int, seed: int) -> np.ndarray:
@@ -78,9 +76,10 @@ def draw(parts: Sequence[VariedPart], samples: int, seed: int) -> np.ndarray:
     One column per group, drawn in group order from one ``numpy.random.Generator(PCG64(seed))``.
     """
     rng = np.random.Generator(np.random.PCG64(seed))
-    m = groups(parts)
-    dists = [parts[int(np.flatnonzero(m[:, g])[0])].dist for g in range(m.shape[1])]
-    u = np.empty((samples, m.shape[1]))
+    column = groups(parts)
+    first = {int(g): i for i, g in reversed(list(enumerate(column.tolist())))}
+    dists = [parts[first[g]].dist for g in range(len(first))]
+    u = np.empty((samples, len(dists)))
     for g, dist in enumerate(dists):
         if dist == "normal":
             u[:, g] = rng.normal(0.0, 1.0 / 3.0, samples)
@@ -106,10 +105,13 @@ def normalised(q: complex, dq: np.ndarray, parts: Sequence[VariedPart]) -> np.nd
     """(P, 2): % change of |q| per % change of each part, and degrees of phase per %.
 
     A part whose nominal value is 0 (an absolute tolerance on a silent source) is scaled by its tolerance
-    instead: % change of |q| per % of its tolerance.
+    instead: % change of |q| per % of its tolerance. A quantity that is exactly 0 has NaN sensitivities.
     """
     scale = np.array([p.nominal if p.nominal != 0 else p.delta for p in parts])
-    relative = dq * scale / q
+    if q == 0:  # exactly 0 (or underflowed): a relative change has no meaning
+        return np.full((len(parts), 2), np.nan)
+    with np.errstate(all="ignore"):
+        relative = dq * scale / q
     return np.stack([relative.real, np.degrees(relative.imag) / 100.0], axis=1)
 
 
@@ -148,7 +150,7 @@ def own_spread(
         for f in range(len(freqs)):
             _samples_beyond(found[f], sampled[:, f, 0], sampled[:, f, 1], nominal[f], samples)
     points = tuple(
-        _point(float(freqs[f]), nominal[f], slopes[f], found[f], parts, norton[f], sampled, f, spec)
+        _point(float(freqs[f]), nominal[f], slopes[f], found[f], parts, norton[f], (samples, sampled), f, spec)
         for f in range(len(freqs))
     )
     limit_spreads = tuple(
@@ -191,16 +193,20 @@ def _worst_at(
     q_nominal = {k: complex(v) for k, v in quantities(np.array(vth), np.array(zth)).items()}
     dq = quantity_slopes(vth, zth, slopes[0], slopes[1])
     delta = np.array([p.delta for p in parts])
-    m = groups(parts)
-    gradients = {(q, fn): (function_slope(fn, q_nominal[q], dq[q]) * delta) @ m for q, fn in targets}
+    column = groups(parts)
+    count = int(column.max()) + 1
+    gradients = {
+        (q, fn): np.bincount(column, function_slope(fn, q_nominal[q], dq[q]) * delta, minlength=count)
+        for q, fn in targets
+    }
 
     def evaluate(u: np.ndarray) -> dict[str, np.ndarray]:
-        pv = port_values(vs, values_at(parts, u), np.array([freq_hz]))
+        pv = port_values(vs, values_at(parts, u, column), np.array([freq_hz]))
         return quantities(pv[:, 0, 0], pv[:, 0, 1])
 
     found = search(targets, q_nominal, gradients, evaluate)
     for end in found.values():
-        end.u = values_at(parts, end.u)[0]  # from here on: the part values of the extreme
+        end.u = values_at(parts, end.u, column)[0]  # from here on: the part values of the extreme
     return found
 
 
@@ -212,6 +218,8 @@ def _samples_beyond(
     q_nominal = quantities(np.array(complex(nominal[0])), np.array(complex(nominal[1])))
     for (q, fn, d), end in found.items():
         v = function_value(fn, qs[q], complex(q_nominal[q]))
+        if np.isnan(v).all():
+            continue
         i = int(np.nanargmax(d * v))
         if d * v[i] > d * end.value + 1e-12 * max(abs(end.value), 1e-300):
             found[(q, fn, d)] = Found(float(v[i]), values[i].copy(), SAMPLE, end.first_order)
@@ -228,10 +236,12 @@ def _point(
     found: dict,
     parts: Sequence[VariedPart],
     norton: bool,
-    sampled: np.ndarray | None,
+    drawn: tuple[np.ndarray, np.ndarray | None],
     f: int,
     spec: SpreadSpec,
 ) -> PointSpread:
+    """The point's three quantities; ``drawn``: the Monte Carlo part values (S, P) and port values (S, F, 2)."""
+    samples, sampled = drawn
     vth, zth = complex(nominal[0]), complex(nominal[1])
     q_nominal = {k: complex(v) for k, v in quantities(np.array(vth), np.array(zth)).items()}
     dq = quantity_slopes(vth, zth, slopes[0], slopes[1])
@@ -245,7 +255,7 @@ def _point(
         order = sorted(range(len(parts)), key=lambda i: (-abs(sens[i, 0]), -abs(sens[i, 1])))
         ranked = {parts[i].name: (float(sens[i, 0]), float(sens[i, 1])) for i in order}
         worst = {fn: _extreme(found[(q, fn, -1)], found[(q, fn, 1)], parts) for fn in WORST_FUNCTIONS}
-        mc = _monte_carlo(qs[q], q_nominal[q], parts, sampled, spec) if qs is not None else None
+        mc = _monte_carlo(qs[q], q_nominal[q], parts, samples, spec) if qs is not None else None
         out[q] = QuantitySpread(q_nominal[q], ranked, worst, mc)
     return PointSpread(freq_hz, out["vth"], out["zth"], out["in"])
 
@@ -264,14 +274,14 @@ def _extreme(low: Found, high: Found, parts: Sequence[VariedPart]) -> Extreme:
 
 
 def _monte_carlo(
-    q: np.ndarray, nominal: complex, parts: Sequence[VariedPart], sampled: np.ndarray | None, spec: SpreadSpec
+    q: np.ndarray, nominal: complex, parts: Sequence[VariedPart], samples: np.ndarray, spec: SpreadSpec
 ) -> MonteCarlo:
     magnitude = np.abs(q)
     phase = function_value("phase_deg", q, nominal)
     with np.errstate(divide="ignore", invalid="ignore"):
         departure = np.abs(magnitude / abs(nominal) - 1.0) if nominal != 0 else magnitude
     worst = int(np.nanargmax(departure))
-    values = _sample_values(parts, spec, worst)
+    values = _corner(parts, samples[worst])
     return MonteCarlo(
         samples=len(q),
         seed=spec.seed,
@@ -282,12 +292,6 @@ def _monte_carlo(
         worst_values=values,
         subset=tuple(complex(v) for v in q[: spec.spice_samples]),
     )
-
-
-def _sample_values(parts: Sequence[VariedPart], spec: SpreadSpec, index: int) -> dict[str, float]:
-    """The part values of sample ``index``, redrawn from the seed (cheap; keeps no (S, P) array per point)."""
-    u = draw(parts, index + 1, spec.seed)[index : index + 1]
-    return _corner(parts, values_at(parts, u)[0])
 
 
 def _in_band(f: float, band: tuple[float, float] | None) -> bool:

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.sparse as sp
@@ -97,7 +97,8 @@ class VariedSystem:
             elif e.kind == "H":
                 put0(branch[e.name], branch[e.control], -1.0)  # type: ignore[index]
             elif e.kind in "VI":
-                unit = e.phasor / e.ac_mag if e.ac_mag else complex(math.cos(math.radians(e.ac_phase_deg)), 0)
+                # d(phasor)/d(parameter): e^{jφ} for an AC magnitude; 1 for a DC value (its phasor is the value)
+                unit = 1.0 + 0j if p.parameter == "dc_value" else replace(e, ac_mag=1.0).phasor
                 if e.kind == "V":
                     self.source_units[i, branch[e.name]] = unit
                 else:
@@ -109,6 +110,7 @@ class VariedSystem:
         self.w0 = _units(w0, len(self.parts), nnz)
         self.w1 = _units(w1, len(self.parts), nnz)
         self._couplings = self._find_couplings(network)
+        self._slots0, self._slots1 = _slots(self.w0), _slots(self.w1)
 
     def _put(self, out: list, part: int, r: int | None, c: int | None, w: float) -> None:
         i = self._index(r, c)
@@ -150,8 +152,8 @@ class VariedSystem:
         """A0 and A1 entries (S, nnz) at S value sets (rows of ``values``, in part order)."""
         values = np.atleast_2d(values)
         change = self.coefficients(values) - self.coefficients(self.nominal)
-        d0 = self.a0 + (self.w0.T @ change.T).T
-        d1 = self.a1 + (self.w1.T @ change.T).T
+        d0 = _moved(self.a0, self._slots0, change)
+        d1 = _moved(self.a1, self._slots1, change)
         for c, m in zip(self._couplings, self._coupling_values(values)):
             nominal_m = c.nominal[0] * math.sqrt(c.nominal[1] * c.nominal[2])
             for idx in c.entries:
@@ -213,7 +215,12 @@ class VariedSystem:
         mats[:, self._rows, self._cols] = d0 + 2j * math.pi * freq_hz * d1
         return mats
 
-    def singular(self, freq_hz: float) -> SpreadError:
+    def singular(self, freq_hz: float, nominal: bool = False) -> SpreadError:
+        if nominal:
+            return SpreadError(
+                f"the network with the port open is singular at {freq_hz:g} Hz at nominal values (it has no "
+                "Thevenin form there); spread analysis works on the open-port form: leave that frequency out"
+            )
         return SpreadError(
             f"the network is singular at {freq_hz:g} Hz at some part values of the spread; narrow the "
             "tolerances or check the network at nominal values"
@@ -227,3 +234,22 @@ def _units(entries: list[tuple[int, int, float]], parts: int, nnz: int) -> sp.cs
     m = sp.coo_matrix((w, (p, i)), shape=(parts, nnz)).tocsr()
     m.sum_duplicates()
     return m
+
+
+def _slots(w: sp.csr_matrix) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """W (P x nnz) as slots of (parts, entries, weights) in which no entry repeats, so that each slot adds
+    its columns with one fancy-indexed update (a node's diagonal entry takes one part per slot)."""
+    coo = w.tocoo()
+    order = np.lexsort((coo.row, coo.col))
+    part, entry, weight = coo.row[order], coo.col[order], coo.data[order]
+    first = np.r_[True, entry[1:] != entry[:-1]]
+    rank = np.arange(len(entry)) - np.maximum.accumulate(np.where(first, np.arange(len(entry)), 0))
+    return [(part[rank == r], entry[rank == r], weight[rank == r]) for r in range(int(rank.max(initial=-1)) + 1)]
+
+
+def _moved(base: np.ndarray, slots: list[tuple[np.ndarray, np.ndarray, np.ndarray]], change: np.ndarray) -> np.ndarray:
+    """base + change @ W, (S, nnz), row by row contiguous (each row is one value set's entries)."""
+    out = np.repeat(base[None, :], len(change), axis=0)
+    for part, entry, weight in slots:
+        out[:, entry] += change[:, part] * weight
+    return out

@@ -36,7 +36,7 @@ def nominal_and_adjoint(vs: VariedSystem, freqs_hz: np.ndarray) -> tuple[np.ndar
             xs = np.linalg.solve(mats, np.broadcast_to(vs.rhs, (len(freqs),) + vs.rhs.shape))
             lam = np.linalg.solve(np.swapaxes(mats, 1, 2), np.broadcast_to(c, (len(freqs), vs.size))[..., None])
         except np.linalg.LinAlgError:
-            raise vs.singular(float(freqs[0])) from None
+            raise vs.singular(float(freqs[0]), nominal=True) from None
         return xs, lam[..., 0]
     system = vs.system
     system._ensure_analysis()
@@ -48,7 +48,7 @@ def nominal_and_adjoint(vs: VariedSystem, freqs_hz: np.ndarray) -> tuple[np.ndar
         try:
             lu = analysis.factor(system._values(f))
         except sparse_backends.SingularFactorError:
-            raise vs.singular(f) from None
+            raise vs.singular(f, nominal=True) from None
         xs[i] = lu.solve(vs.rhs)
         lam[i] = np.conj(lu.solve(c.astype(complex), adjoint=True))  # A⁻ᵀc = conj(A⁻ᴴ c) for real c
     return xs, lam

@@ -5,8 +5,10 @@ groups' normalised deviations u (each in [-1, 1]) comes from the adjoint sensiti
 maximum is at u = sign(gradient) and the minimum at the opposite corner, and the linear estimate is the
 nominal value plus or minus the sum of |gradient|. Each such corner is then solved exactly. Near a
 resonance the response is not monotonic in every part and the first-order corner need not be the
-extreme: a local search flips one group at a time (the ``SEARCH_GROUPS`` groups with the largest
-gradient), keeps the best flip while it improves, and stops after ``SEARCH_ROUNDS`` rounds. Every target
+extreme: a local search flips one group at a time, keeps the best flip while it improves, and stops after
+``SEARCH_ROUNDS`` rounds. It tries only groups that could be on the wrong side: those whose first-order
+effect (twice |gradient| for a flip) is within ``BEND_FACTOR`` times what the linear estimate missed at the
+corner, the ``SEARCH_GROUPS`` largest of them; a response that is linear to rounding tries none. Every target
 of a frequency is searched in the same batch of solves. Each extreme says which method found it.
 """
 
@@ -23,6 +25,11 @@ CORNER_SEARCH = "corner search"
 SAMPLE = "monte carlo sample"
 #: The groups a corner search may flip (those with the largest first-order effect on the target).
 SEARCH_GROUPS = 8
+#: A group is a candidate for a flip when twice its first-order effect is at most this many times what the
+#: linear estimate missed at the current corner.
+BEND_FACTOR = 4.0
+#: A flip must gain more than this share of the first-order half-width (and 1e-9 of the value) to be kept.
+MIN_GAIN = 1e-6
 #: Rounds of single flips a corner search makes at most.
 SEARCH_ROUNDS = 4
 FUNCTIONS = ("abs", "phase_deg", "re", "im", "db")
@@ -41,7 +48,11 @@ def quantity_slopes(vth: complex, zth: complex, dv: np.ndarray, dz: np.ndarray) 
 
 def function_value(fn: str, q: np.ndarray | complex, nominal: complex) -> np.ndarray:
     """``fn`` of q; phase in degrees, unwrapped about the nominal phase (no jump at ±180° inside a spread)."""
-    q = np.asarray(q)
+    with np.errstate(all="ignore"):  # a quantity that is exactly 0 (or underflows) gives inf or NaN, not a warning
+        return _function_value(fn, np.asarray(q), nominal)
+
+
+def _function_value(fn: str, q: np.ndarray, nominal: complex) -> np.ndarray:
     if fn == "abs":
         return np.abs(q)
     if fn == "re":
@@ -49,8 +60,7 @@ def function_value(fn: str, q: np.ndarray | complex, nominal: complex) -> np.nda
     if fn == "im":
         return q.imag
     if fn == "db":
-        with np.errstate(divide="ignore"):
-            return 20.0 * np.log10(np.abs(q))
+        return 20.0 * np.log10(np.abs(q))
     if fn == "phase_deg":
         base = math.degrees(np.angle(nominal)) if nominal != 0 else 0.0
         reference = nominal if nominal != 0 else 1.0
@@ -59,7 +69,12 @@ def function_value(fn: str, q: np.ndarray | complex, nominal: complex) -> np.nda
 
 
 def function_slope(fn: str, q: complex, dq: np.ndarray) -> np.ndarray:
-    """d fn(q)/dp from dq/dp (P,)."""
+    """d fn(q)/dp from dq/dp (P,); NaN or inf where q is exactly 0 (|q| and phase have no slope there)."""
+    with np.errstate(all="ignore"):
+        return _function_slope(fn, q, dq)
+
+
+def _function_slope(fn: str, q: complex, dq: np.ndarray) -> np.ndarray:
     if fn == "abs":
         return (np.conj(q) * dq).real / abs(q)
     if fn == "re":
@@ -96,7 +111,7 @@ def search(
     """The min (-1) and max (+1) of every target (quantity, function) over the corners, keyed (q, fn, ±1)."""
     ends = [(q, fn, d) for q, fn in targets for d in (-1, 1)]
     start = np.array([d * np.where(gradients[(q, fn)] >= 0, 1.0, -1.0) for q, fn, d in ends])
-    values = _values(ends, evaluate(start), nominal)
+    values = _values(ends, _evaluated_once(start, evaluate), nominal)
     found = {}
     for i, (q, fn, d) in enumerate(ends):
         linear = float(function_value(fn, nominal[q], nominal[q])) + d * float(np.abs(gradients[(q, fn)]).sum())
@@ -107,6 +122,16 @@ def search(
         if not active:
             break
     return found
+
+
+def _evaluated_once(corners: np.ndarray, evaluate: Evaluate) -> dict[str, np.ndarray]:
+    """``evaluate`` of each row, solving each distinct corner once (min and max often share corners)."""
+    first: dict[bytes, int] = {}
+    where = np.array([first.setdefault(row.tobytes(), len(first)) for row in corners], dtype=np.intp)
+    rows = [0] * len(first)
+    for i, w in enumerate(where.tolist()):
+        rows[w] = i
+    return {q: v[where] for q, v in evaluate(corners[rows]).items()}
 
 
 def _values(ends: Sequence[tuple[str, str, int]], qs: dict[str, np.ndarray], nominal: dict[str, complex]) -> np.ndarray:
@@ -123,23 +148,31 @@ def _improve(
     """One round: every single flip of each active end's top groups, solved in one batch; keep the best."""
     corners, owners = [], []
     for end in active:
-        grad = gradients[end[:2]]
-        for g in np.argsort(-np.abs(grad), kind="stable")[:SEARCH_GROUPS].tolist():
+        grad = np.abs(gradients[end[:2]])
+        # A flip can only help where the response bends: where twice the group's first-order effect is within
+        # a few times what the linear estimate missed at this corner (a strongly monotonic part never flips).
+        missed = abs(found[end].value - found[end].first_order)
+        candidates = np.flatnonzero(2.0 * grad <= BEND_FACTOR * missed)
+        for g in candidates[np.argsort(-grad[candidates], kind="stable")][:SEARCH_GROUPS].tolist():
             u = found[end].u.copy()
             u[g] = -u[g]
             corners.append(u)
             owners.append(end)
     if not corners:
         return []
-    values = _values(owners, evaluate(np.array(corners)), nominal)
+    values = _values(owners, _evaluated_once(np.array(corners), evaluate), nominal)
     still = []
     for end in active:
         d = end[2]
         mine = [i for i, o in enumerate(owners) if o == end]
+        if not mine:
+            continue
         best = max(mine, key=lambda i: d * values[i])
         current = found[end]
         gain = d * (values[best] - current.value)
-        if math.isfinite(values[best]) and gain > 1e-12 * max(abs(current.value), 1e-300):
+        # A gain below this is rounding, or too small to change any reported digit: the search stops there.
+        worth = 1e-9 * abs(current.value) + MIN_GAIN * float(np.abs(gradients[end[:2]]).sum())
+        if math.isfinite(values[best]) and gain > max(worth, 1e-300):
             found[end] = Found(float(values[best]), corners[best], CORNER_SEARCH, current.first_order)
             still.append(end)
     return still
