@@ -30,6 +30,7 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from typing import TYPE_CHECKING
 
 from crosscheck.errors import CrosscheckError
@@ -107,10 +108,13 @@ class SpiceSpread:
     checked_parts: tuple[str, ...]
     notes: tuple[str, ...] = ()
 
+    @cached_property
+    def _by_corner(self) -> dict[tuple[tuple[str, float], ...], ValueSetAnswer]:
+        return {_key(c.value_set.values): c for c in self.corners}
+
     def corner_answer(self, values: Mapping[str, float]) -> ValueSetAnswer | None:
         """The answer at a corner (matched by its part values), or None when it was not run."""
-        key = _key(values)
-        return next((c for c in self.corners if _key(c.value_set.values) == key), None)
+        return self._by_corner.get(_key(values))
 
 
 def _key(values: Mapping[str, float]) -> tuple[tuple[str, float], ...]:
