@@ -128,3 +128,24 @@ def test_a_limit_that_holds_at_nominal_but_fails_at_a_corner_is_a_failure():
     assert "holds at nominal values" in check.explanation
     [held] = limit_checks(OwnSpread((), (), (_limit_spread(True),)), (), [nominal])
     assert held.verdict == Verdict.PASS and "holds over spread" in held.explanation
+
+
+@pytest.mark.spice
+def test_a_quantity_zero_to_rounding_is_not_held_to_a_relative_sensitivity():
+    """Generated network 14 has V_th = 3e-17 V at 0 Hz (zero to rounding): its sensitivities are left out with a
+    note instead of failing on noise, and every other confirmation passes."""
+    from crosscheck.fuzz.generate import generate_case
+    from crosscheck.model.vary import resolve
+    from crosscheck.own.spread import own_spread
+
+    g = generate_case(14)
+    spec = SpreadSpec((parse_vary_option("R*=1%"), parse_vary_option("L*=1%")), samples=0, spice_samples=0)
+    own = own_spread(g.network, g.port, g.freqs_hz, resolve(g.network, spec), spec)
+    equivalents = thevenin(g.network, g.port, g.freqs_hz)
+    assert abs(equivalents[0].vth) < 1e-15  # the premise: zero to rounding at 0 Hz
+    with SpicePool(workers=2) as pool:
+        spice = spice_spread(pool, g.network, g.port, g.freqs_hz, own, [eq.condition for eq in equivalents])
+    result = judge_spread(own, spice, SOLVER_VS_SPICE, equivalents)
+    assert not [c for c in result.checks if c.freq_hz == 0.0 and c.quantity == "vth" and c.kind == "sensitivity"]
+    assert any("zero to rounding" in n for n in result.notes)
+    assert [c.explanation for c in result.checks if c.verdict != Verdict.PASS] == []

@@ -229,7 +229,7 @@ def corner_checks(own: OwnSpread, spice: SpiceSpread, tol: Tolerance, eqs: Seque
                     ("min", extreme.minimum, extreme.min_corner),
                     ("max", extreme.maximum, extreme.max_corner),
                 ):
-                    if not corner:
+                    if not corner or function not in _FUNCTION:
                         continue
                     answer = spice.corner_answer(corner)
                     if answer is None:

@@ -60,8 +60,8 @@ def with_spread(
 ) -> CaseResult:
     """``result`` with its spread judged (``spec``: the case's own when None); unchanged without a spread."""
     spec = spec if spec is not None else (result.case.spread if result.case is not None else None)
-    if spec is None or result.own is None or result.error is not None:
-        return result
+    if spec is None or result.own is None or result.error is not None or engine == "spice":
+        return result  # ngspice alone (`reduce --engine spice`) reports its own equivalents only
     port = Port(*result.port)
     limits = result.case.limits if result.case is not None else ()
     started = time.perf_counter()
