@@ -7,6 +7,7 @@ Every confirmation is a ``SpreadCheck`` with a verdict, like any comparison of t
   ``judge.compare.compare_quantity`` with the case's tolerance (the same rule as the nominal points);
 * ``corner``: a worst-case extreme (|q|, phase, Re or Im) against that function of ngspice's answer at the
   extreme's corner; allowed: the case's tolerance taken on |q| (``_corner_allowed``);
+* ``limit-corner``: a design limit's lowest and highest value over the spread against ngspice at that corner;
 * ``sensitivity``: an adjoint sensitivity against ngspice's central difference, within the tolerance
   ``spice.spread.difference_tolerance`` measures from two step sizes.
 
@@ -41,7 +42,7 @@ _FUNCTION = {"abs": "abs", "phase_deg": "phase", "re": "re", "im": "im"}
 class SpreadCheck:
     """One confirmation of the spread by ngspice.
 
-    ``kind``: "sample", "corner" or "sensitivity"; ``function``: "phasor" (a sample), "abs", "phase_deg",
+    ``kind``: "sample", "corner", "limit-corner" or "sensitivity"; ``function``: "phasor" (a sample), "abs", "phase_deg",
     "re", "im" (a corner's extreme, or the sensitivity of |q| or of the phase); ``subject``: the sample's
     label, "min"/"max" of a corner, or the part of a sensitivity; ``corner``: the part values ngspice ran.
     ``difference`` is |own − ngspice| in the function's unit (a relative error for samples), ``allowed`` its bound.
@@ -202,7 +203,7 @@ def _check(
             corner,
         )
     diff = abs(own - spice)
-    if function == "phase_deg":
+    if function in ("phase_deg", "phase"):
         diff = abs((own - spice + 180.0) % 360.0 - 180.0)
     if diff <= allowed:
         return SpreadCheck(
@@ -241,6 +242,36 @@ def corner_checks(own: OwnSpread, spice: SpiceSpread, tol: Tolerance, eqs: Seque
                         f"{side} of {function}({q}) at {format_eng(point.freq_hz, 4, ' Hz')}, {answer.value_set.label}"
                     )
                     out.append(_check("corner", point.freq_hz, q, function, side, value, s, allowed, corner, what))
+    return out
+
+
+def limit_corner_checks(
+    own: OwnSpread, spice: SpiceSpread, limits: Sequence[Limit], tol: Tolerance, eqs: Sequence[Equivalent | None]
+) -> list:
+    """Each limit's lowest and highest value over the spread against ngspice at the same corner and frequency:
+    a limit that fails at a corner fails by both engines' numbers. ``db`` is allowed 20·log10(1 + bound/|q|)."""
+    by_index = {lim.index: lim for lim in limits}
+    freqs = [p.freq_hz for p in own.points]
+    out = []
+    for ls in own.limits:
+        limit = by_index.get(ls.index)
+        for side, value, corner, hz in (("lowest", ls.lowest, ls.lowest_corner, ls.lowest_hz),
+                                        ("highest", ls.highest, ls.highest_corner, ls.highest_hz)):  # fmt: skip
+            i = next((k for k, f in enumerate(freqs) if same_frequency(f, hz)), None)
+            answer = spice.corner_answer(corner) if corner else None
+            if limit is None or i is None or answer is None:
+                continue
+            z = _spice_value(answer, i, limit.quantity)
+            s = evaluate(limit.function, z) if z is not None else None
+            if z is None or limit.function == "db":
+                bound = max(tol.rel * abs(z), tol.abs, _roundoff(eqs[i], abs(z))) if z is not None else 0.0
+                allowed = 20.0 * math.log10(1.0 + bound / abs(z)) if z else math.nan
+            else:
+                allowed = _corner_allowed({"phase": "phase_deg"}.get(limit.function, limit.function), z, tol, eqs[i])
+            what = f"limit[{ls.index}] {ls.text}, its {side} value at {format_eng(hz, 4, ' Hz')}"
+            out.append(
+                _check("limit-corner", hz, limit.quantity, limit.function, side, value, s, allowed, corner, what)
+            )
     return out
 
 
@@ -391,6 +422,7 @@ def judge_spread(
         checks = [
             *sensitivity_checks(own, spice, eqs, notes),
             *corner_checks(own, spice, tol, eqs),
+            *limit_corner_checks(own, spice, limits, tol, eqs),
             *sample_checks(own, spice, tol, eqs),
         ]
         notes.extend(spice.notes)

@@ -4,7 +4,8 @@
 
 * ``check`` = ``spread-limit``: a design limit over the spread (``own_re`` the lowest value of its function,
   ``own_im`` the highest, ``limit_min``/``limit_max`` its bounds, the explanation naming a failing corner);
-* ``check`` = ``spread-sensitivity`` / ``spread-corner`` / ``spread-sample``: one ngspice confirmation
+* ``check`` = ``spread-sensitivity`` / ``spread-corner`` / ``spread-limit-corner`` / ``spread-sample``: one
+  ngspice confirmation
   (``own_*`` crosscheck's number, ``spice_*`` ngspice's, ``err`` their difference, ``tolerance`` the bound).
 
 Findings are plain tuples in ``frame.Finding``'s field order (this module cannot import ``frame``, which
@@ -27,6 +28,7 @@ SPREAD_CHECKS = {
     "spread-sensitivity": "a sensitivity against ngspice's central difference",
     "spread-corner": "a worst-case extreme against ngspice at its corner",
     "spread-sample": "a Monte Carlo sample against ngspice at the same part values",
+    "spread-limit-corner": "a design limit's lowest or highest value over the spread against ngspice at its corner",
 }
 
 
@@ -43,6 +45,8 @@ def _what(c: SpreadCheck) -> str:
         return f"{'|' + c.quantity + '|' if c.function == 'abs' else 'phase of ' + c.quantity} to {c.subject}"
     if c.kind == "corner":
         return f"{c.subject} of {c.function}({c.quantity})"
+    if c.kind == "limit-corner":
+        return f"{c.subject} of the limit on {c.function}({c.quantity})"
     return f"{c.quantity} at {c.subject}"
 
 

@@ -74,7 +74,7 @@ def check_document(c: SpreadCheck) -> dict[str, Any]:
         "allowed": _num(c.allowed),
         "verdict": c.verdict,
         "explanation": c.explanation or None,
-        "corner": _corner(c.corner) if c.kind == "corner" else None,
+        "corner": _corner(c.corner) if c.kind in ("corner", "limit-corner") else None,
     }
 
 
