@@ -24,6 +24,7 @@ from crosscheck.report.csv_out import csv_report
 from crosscheck.report.html import html_report
 from crosscheck.report.junit import junit_xml
 from crosscheck.report.markdown import markdown_report
+from crosscheck.report.results_json import results_document
 from crosscheck.run.check import run_cases
 from crosscheck.spice.workers import SpicePool
 from crosscheck.vocabulary import Verdict
@@ -110,6 +111,15 @@ def test_the_histogram_samples_are_the_monte_carlo_samples(failing_result):
 def test_every_format_carries_the_spread(failing_result):
     """JUnit fails the case naming the corner; CSV, markdown and HTML each carry their spread section."""
     results = [failing_result]
+    case = results_document(results)["cases"][0]
+    assert case["spread"]["limits"][0]["verdict"] == "fail"
+    assert case["spread"]["limits"][0]["failing_corner"] == {
+        "rbo": 1010.0,
+        "raa": 474.7,
+        "caa": 95e-9,
+        "rbias": 22220.0,
+    }
+    assert {c["kind"] for c in case["points"][0]["spread"]["zth"]["spice_checks"]} >= {"corner", "limit-corner"}
     tree = ET.fromstring(junit_xml(results))
     failure = tree.find(".//testcase/failure")
     assert failure is not None and "fails at corner" in failure.get("message", "") + (failure.text or "")

@@ -21,8 +21,8 @@ The tolerance of the comparison is measured, not assumed: D(2h) − D(h) ≈ 3·
 truncation of D(h) as |D(2h) − D(h)|/3, and Richardson's extrapolation D* = (4·D(h) − D(2h))/3 removes
 that h² term, leaving O(h⁴). The own sensitivity is compared with D*; ``difference_tolerance`` allows
 four times the truncation estimate of D(h) (a generous bound on D*'s error, itself first-order) plus twice
-the rounding bound δ/h (D* has 5/3 of D(h)'s), plus 1e-6 of |D| and 1e-9. A part on a sharp resonance
-thus gets a wide tolerance that its explanation states, not a false fail.
+the rounding bound δ/h (D* carries at most 1.5 times D(h)'s), plus 1e-6 of |D| and 1e-9. A part on a sharp
+resonance thus gets a wide tolerance, which every report states (``allowed``), not a false fail.
 """
 
 from __future__ import annotations
