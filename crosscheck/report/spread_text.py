@@ -23,6 +23,8 @@ from crosscheck.vocabulary import quantity_name, quantity_unit
 
 #: Rows of a sensitivity table; the rest are counted below it.
 MAX_PARTS_SHOWN = 12
+#: Sensitivity tables printed per case at most before text picks a few frequencies (the JSON has them all).
+MAX_TABLES = 4
 _FUNCTIONS = (("abs", "|q|"), ("phase_deg", "∠q"), ("re", "Re q"), ("im", "Im q"))
 
 
@@ -127,6 +129,19 @@ def _phase(z: complex) -> float:
     return math.degrees(cmath.phase(z))
 
 
+def shown_points(spread: SpreadResult) -> list[int]:
+    """The points whose sensitivity tables text shows: all of up to ``MAX_TABLES``, else the first, the last and
+    the one the HTML figure shows (where a limit fails, or |V_th| spreads most)."""
+    n = len(spread.points)
+    if n <= MAX_TABLES:
+        return list(range(n))
+    picked = {0, n - 1}
+    if spread.histogram is not None:
+        f = spread.histogram.freq_hz
+        picked.add(min(range(n), key=lambda i: abs(spread.points[i].freq_hz - f)))
+    return sorted(picked)
+
+
 def print_spread(console: Console, result: CaseResult, detail: bool, style: Mapping[str, str]) -> None:
     """The case's spread: summary line, limits over the spread, failed confirmations, and (``detail``) the tables."""
     spread = result.spread
@@ -141,10 +156,16 @@ def print_spread(console: Console, result: CaseResult, detail: bool, style: Mapp
     if len(failed) > 10:
         console.print(f"[dim]{len(failed) - 10} more confirmation(s) not passing: see the JSON report[/]")
     if detail:
-        for i in range(len(spread.points)):
+        shown = shown_points(spread)
+        for i in shown:
             table = sensitivity_table(result, i)
             if table is not None:
                 console.print(table)
+        if len(shown) < len(spread.points):
+            console.print(
+                f"[dim]sensitivities shown at {len(shown)} of {len(spread.points)} frequencies (the first, the last "
+                "and the figure's); every one is in the JSON report[/]"
+            )
         table = worst_case_table(result)
         if table is not None:
             console.print(table)
