@@ -113,12 +113,8 @@ def test_every_format_carries_the_spread(failing_result):
     results = [failing_result]
     case = results_document(results)["cases"][0]
     assert case["spread"]["limits"][0]["verdict"] == "fail"
-    assert case["spread"]["limits"][0]["failing_corner"] == {
-        "rbo": 1010.0,
-        "raa": 474.7,
-        "caa": 95e-9,
-        "rbias": 22220.0,
-    }
+    corner = case["spread"]["limits"][0]["failing_corner"]
+    assert corner == pytest.approx({"rbo": 1010.0, "raa": 474.7, "caa": 95e-9, "rbias": 22220.0}, rel=1e-12)
     assert {c["kind"] for c in case["points"][0]["spread"]["zth"]["spice_checks"]} >= {"corner", "limit-corner"}
     tree = ET.fromstring(junit_xml(results))
     failure = tree.find(".//testcase/failure")
