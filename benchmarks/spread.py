@@ -22,7 +22,8 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
-from benchmarks.timing import section, timed  # noqa: E402
+from timing import section, timed  # noqa: E402
+
 from crosscheck.fuzz.large import FAMILIES, build  # noqa: E402
 from crosscheck.model.vary import OwnSpread, SpreadSpec, parse_vary_option, resolve  # noqa: E402
 from crosscheck.own.equivalent import thevenin  # noqa: E402
