@@ -111,6 +111,7 @@ class VariedSystem:
         self.w1 = _units(w1, len(self.parts), nnz)
         self._couplings = self._find_couplings(network)
         self._slots0, self._slots1 = _slots(self.w0), _slots(self.w1)
+        self._moving_sources = np.flatnonzero([p.kind in "VI" for p in self.parts])
 
     def _put(self, out: list, part: int, r: int | None, c: int | None, w: float) -> None:
         i = self._index(r, c)
@@ -163,7 +164,7 @@ class VariedSystem:
     def sources(self, values: np.ndarray) -> np.ndarray:
         """The source right-hand side (S, n) at S value sets (source magnitudes are linear)."""
         values = np.atleast_2d(values)
-        moving = np.flatnonzero(np.any(self.source_units != 0, axis=1))
+        moving = self._moving_sources
         out = np.repeat(self.rhs[None, :, 0], len(values), axis=0)
         if len(moving):
             out += (values[:, moving] - self.nominal[moving]) @ self.source_units[moving]
