@@ -32,7 +32,7 @@ from crosscheck.model.vary import (
     VariedPart,
 )
 from crosscheck.own.spread_matrix import VariedSystem
-from crosscheck.own.spread_solve import nominal_and_adjoint, port_values
+from crosscheck.own.spread_solve import nominal_and_adjoint, port_values, solutions_at
 from crosscheck.own.spread_worst import (
     SAMPLE,
     Found,
@@ -204,7 +204,19 @@ def _worst_at(
         pv = port_values(vs, values_at(parts, u, column), np.array([freq_hz]))
         return quantities(pv[:, 0, 0], pv[:, 0, 1])
 
-    found = search(targets, q_nominal, gradients, evaluate)
+    def corner_slopes(u: np.ndarray, wanted: Sequence[tuple[str, str]]) -> np.ndarray:
+        values = values_at(parts, u, column)
+        xs, lam = solutions_at(vs, values, freq_hz)
+        dv = vs.sensitivities(np.full(len(values), freq_hz), xs, lam, values)  # (B, 2, P)
+        out = np.empty((len(values), count))
+        for b, (q, fn) in enumerate(wanted):
+            vth_b, zth_b = (complex(v) for v in vs.port_voltage(xs[b]))
+            q_b = complex(quantities(np.array(vth_b), np.array(zth_b))[q])
+            dq_b = quantity_slopes(vth_b, zth_b, dv[b, 0], dv[b, 1])[q]
+            out[b] = np.bincount(column, function_slope(fn, q_b, dq_b) * delta, minlength=count)
+        return out
+
+    found = search(targets, q_nominal, gradients, evaluate, corner_slopes)
     for end in found.values():
         end.u = values_at(parts, end.u, column)[0]  # from here on: the part values of the extreme
     return found

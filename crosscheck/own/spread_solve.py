@@ -54,6 +54,38 @@ def nominal_and_adjoint(vs: VariedSystem, freqs_hz: np.ndarray) -> tuple[np.ndar
     return xs, lam
 
 
+def solutions_at(vs: VariedSystem, values: np.ndarray, freq_hz: float) -> tuple[np.ndarray, np.ndarray]:
+    """Solutions (B, n, 2) and λ = A⁻ᵀc (B, n) at B value sets and one frequency (for slopes at a corner)."""
+    values = np.atleast_2d(values)
+    d0, d1 = vs.data(values)
+    rhs = np.empty((len(values), vs.size, 2), dtype=complex)
+    rhs[:, :, 0] = vs.sources(values)
+    rhs[:, :, 1] = vs.rhs[:, 1]
+    c = vs.port_vector()
+    if vs.size <= DENSE_LIMIT:
+        mats = vs.dense(d0, d1, freq_hz)
+        try:
+            xs = np.linalg.solve(mats, rhs)
+            lam = np.linalg.solve(np.swapaxes(mats, 1, 2), np.broadcast_to(c, (len(values), vs.size))[..., None])
+        except np.linalg.LinAlgError:
+            raise vs.singular(freq_hz) from None
+        return xs, lam[..., 0]
+    vs.system._ensure_analysis()
+    analysis = vs.system._analysis
+    assert analysis is not None
+    xs = np.empty((len(values), vs.size, 2), dtype=complex)
+    lam = np.empty((len(values), vs.size), dtype=complex)
+    pattern = vs.system._pattern
+    a = sp.csc_matrix((np.empty(pattern.nnz, dtype=complex), pattern.indices, pattern.indptr), shape=pattern.shape)
+    lu = None
+    for s in range(len(values)):
+        np.multiply(d1[s], 2j * math.pi * freq_hz, out=a.data)
+        a.data += d0[s]
+        lu, xs[s] = _solved(analysis, a, np.asfortranarray(rhs[s]), lu, vs, freq_hz)
+        lam[s] = np.conj(lu.solve(c.astype(complex), adjoint=True))
+    return xs, lam
+
+
 def port_values(vs: VariedSystem, values: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
     """V_th and Z_th (S, F, 2) at S value sets (rows of ``values``) and F frequencies: exact solves."""
     values = np.atleast_2d(np.asarray(values, dtype=float))
