@@ -264,8 +264,8 @@ def _point(
             out[q] = None
             continue
         sens = normalised(q_nominal[q], dq[q], parts)
-        order = sorted(range(len(parts)), key=lambda i: (-abs(sens[i, 0]), -abs(sens[i, 1])))
-        ranked = {parts[i].name: (float(sens[i, 0]), float(sens[i, 1])) for i in order}
+        order = np.lexsort((-np.abs(sens[:, 1]), -np.abs(sens[:, 0]))).tolist()
+        ranked = dict(zip([parts[i].name for i in order], zip(sens[order, 0].tolist(), sens[order, 1].tolist())))
         worst = {fn: _extreme(found[(q, fn, -1)], found[(q, fn, 1)], parts) for fn in WORST_FUNCTIONS}
         mc = _monte_carlo(qs[q], q_nominal[q], parts, samples, spec) if qs is not None else None
         out[q] = QuantitySpread(q_nominal[q], ranked, worst, mc)

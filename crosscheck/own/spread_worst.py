@@ -153,7 +153,11 @@ def _candidates(
         chosen = back[np.argsort(-np.abs(at_corner[back]), kind="stable")].tolist()
     if at_corner is None or missed > BEND_SHARE * float(size.sum()):
         bend = np.flatnonzero(2.0 * size <= BEND_FACTOR * missed)
-        chosen += [g for g in bend[np.argsort(-size[bend], kind="stable")].tolist() if g not in chosen]
+        taken = set(chosen[:SEARCH_GROUPS])
+        chosen = chosen[:SEARCH_GROUPS]
+        for g in bend[np.argsort(-size[bend], kind="stable")][: 2 * SEARCH_GROUPS].tolist():
+            if g not in taken:
+                chosen.append(g)
     return chosen[:SEARCH_GROUPS]
 
 
