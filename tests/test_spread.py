@@ -238,6 +238,10 @@ def test_a_limit_that_passes_at_nominal_fails_at_a_corner():
     assert result.highest == pytest.approx(10 * 1050 / (950 + 1050), rel=1e-13)
     assert result.highest_corner == {"r1": 950.0, "r2": 1050.0}
     assert result.violating_fraction is not None and 0.0 < result.violating_fraction < 1.0
+    assert result.worst_sample is not None and result.worst_sample_values is not None
+    r1, r2 = result.worst_sample_values["r1"], result.worst_sample_values["r2"]
+    worst_v = 10 * r2 / (r1 + r2)
+    assert worst_v > 5.1 or worst_v < 4.9  # the sample with the least margin does break the limit
     holds = own_spread(
         network, Port("2", "0"), [0.0], parts, SpreadSpec((), 0), [Limit("abs", "vth", 4.0, 6.0, None, "abs(vth)", 2)]
     ).limits[0]

@@ -183,6 +183,8 @@ class LimitSpread:
     failing_hz: float | None
     violating_fraction: float | None = None
     worst_sample: int | None = None
+    #: The part values of ``worst_sample`` (the sample with the least margin to the limit), None without samples.
+    worst_sample_values: Mapping[str, float] | None = None
 
 
 @dataclass(frozen=True)

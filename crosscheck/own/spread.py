@@ -154,7 +154,7 @@ def own_spread(
         for f in range(len(freqs))
     )
     limit_spreads = tuple(
-        s for lim in limits if (s := _limit_spread(lim, freqs, nominal, found, parts, sampled)) is not None
+        s for lim in limits if (s := _limit_spread(lim, freqs, nominal, found, parts, (samples, sampled))) is not None
     )
     names = [p.name for p in parts]
     shown = tuple(dict(zip(names, row.tolist())) for row in samples[: spec.spice_samples])
@@ -319,9 +319,10 @@ def _limit_spread(
     nominal: np.ndarray,
     found: list[dict],
     parts: Sequence[VariedPart],
-    sampled: np.ndarray | None,
+    drawn: tuple[np.ndarray, np.ndarray | None],
 ) -> LimitSpread | None:
     """One limit over the points in its band: lowest and highest value with their corners; MC violations."""
+    samples, sampled = drawn
     fn = LIMIT_FUNCTION[limit.function]
     inside = [
         f for f in range(len(freqs)) if _in_band(float(freqs[f]), limit.band) and (limit.quantity, fn, 1) in found[f]
@@ -344,6 +345,7 @@ def _limit_spread(
         limit.index, limit.text, limit.minimum, limit.maximum, low.value, high.value,
         float(freqs[low_f]), float(freqs[high_f]), _corner(parts, low.u), _corner(parts, high.u),
         low.method, high.method, holds, failing, failing_hz, fraction, worst,
+        None if worst is None else _corner(parts, samples[worst]),
     )  # fmt: skip
 
 
