@@ -18,7 +18,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from crosscheck.model.cases import Limit
-from crosscheck.model.network import Network, Port
+from crosscheck.model.network import Network, Port, check_excitation, check_port
 from crosscheck.model.vary import (
     PERCENTILES,
     Extreme,
@@ -129,6 +129,8 @@ def own_spread(
     if spec.samples < 0:
         raise SpreadError(f"samples = {spec.samples} is negative; give 0 (no Monte Carlo) or more")
     freqs = np.asarray(freqs_hz, dtype=float)
+    check_excitation(network.excitation, freqs.tolist(), "the spread analysis")
+    check_port(network, port)
     vs = VariedSystem(network, port, parts)
     xs, lam = nominal_and_adjoint(vs, freqs)
     nominal = vs.port_voltage(np.moveaxis(xs, 1, 0))
