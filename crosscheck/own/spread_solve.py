@@ -193,7 +193,10 @@ def _kernel_chunk(vs: VariedSystem, values: np.ndarray, freqs: np.ndarray) -> np
     out = np.empty((len(values), len(freqs), 2), dtype=complex)
     pattern = system._pattern
     a = sp.csc_matrix((np.empty(pattern.nnz, dtype=complex), pattern.indices, pattern.indptr), shape=pattern.shape)
-    numeric = symbolic.factor(d0[0] + 2j * math.pi * freqs[0] * d1[0])
+    try:
+        numeric = symbolic.factor(d0[0] + 2j * math.pi * freqs[0] * d1[0])
+    except klu_library.KluError:
+        raise vs.singular(float(freqs[0])) from None
     for s in range(len(values)):
         run.chain.a0, run.chain.a1 = d0[s].ctypes.data, d1[s].ctypes.data  # d0, d1 outlive the run
         rhs[:, 0] = sources[s]
