@@ -24,7 +24,7 @@ from crosscheck.own.equivalent import thevenin
 from crosscheck.own.solver import DENSE_LIMIT, MnaSystem
 from crosscheck.own.spread import adjoint_slopes, draw, own_spread, values_at
 from crosscheck.own.spread_matrix import VariedSystem
-from crosscheck.own.spread_solve import _sparse_chunk, port_values
+from crosscheck.own.spread_solve import _sparse_chunk, port_values, solutions_at
 
 #: Every kind that can vary, K-coupled inductors and both controlled-source families included (our own mix).
 EVERY_KIND = """every kind
@@ -212,6 +212,13 @@ def test_sparse_paths_agree_with_the_solver():
     for s in (0, 69):
         exact = _equivalents(apply_values(network, parts, {p.name: v for p, v in zip(parts, values[s])}), port, freqs)
         assert np.allclose(compiled[s], exact, rtol=1e-11, atol=0)
+    xs, lam = solutions_at(vs, values[:3], 1e5)
+    assert np.allclose(vs.port_voltage(np.moveaxis(xs, 1, 0)), compiled[:3, 1], rtol=1e-12, atol=0)
+    c = vs.port_vector()
+    for s in range(3):  # λ solves Aᵀλ = c at that value set
+        d0, d1 = vs.data(values[s : s + 1])
+        a = vs.dense(d0, d1, 1e5)[0]
+        assert np.abs(a.T @ lam[s] - c).max() <= 1e-12 * np.abs(a).max() * np.abs(lam[s]).max()
     _, slopes = adjoint_slopes(network, port, freqs, parts)
     i = 5
     h = 1e-5 * parts[i].nominal
@@ -231,6 +238,10 @@ def test_a_limit_that_passes_at_nominal_fails_at_a_corner():
     assert result.highest == pytest.approx(10 * 1050 / (950 + 1050), rel=1e-13)
     assert result.highest_corner == {"r1": 950.0, "r2": 1050.0}
     assert result.violating_fraction is not None and 0.0 < result.violating_fraction < 1.0
+    assert result.worst_sample is not None and result.worst_sample_values is not None
+    r1, r2 = result.worst_sample_values["r1"], result.worst_sample_values["r2"]
+    worst_v = 10 * r2 / (r1 + r2)
+    assert worst_v > 5.1 or worst_v < 4.9  # the sample with the least margin does break the limit
     holds = own_spread(
         network, Port("2", "0"), [0.0], parts, SpreadSpec((), 0), [Limit("abs", "vth", 4.0, 6.0, None, "abs(vth)", 2)]
     ).limits[0]
@@ -253,3 +264,20 @@ def test_no_thevenin_form_is_refused_with_the_reason():
     parts = resolve(network, [parse_vary_option("R1=1%")])
     with pytest.raises(SpreadError, match="no Thevenin form"):
         own_spread(network, Port("1", "0"), [0.0], parts, SpreadSpec(()))
+
+
+def test_slopes_at_a_corner_agree_with_central_differences_there(every_kind):
+    """The corner search's exact slopes (``solutions_at`` + ``sensitivities`` at part values): same step rule."""
+    network, port, parts = every_kind
+    vs = VariedSystem(network, port, parts)
+    corner = values_at(parts, np.where(np.arange(len(parts)) % 2, 1.0, -1.0)[None])[0]
+    xs, lam = solutions_at(vs, corner[None], 5e3)
+    slopes = vs.sensitivities(np.array([5e3]), xs, lam, corner[None])[0]
+    at = {p.name: v for p, v in zip(parts, corner)}
+    for i, p in enumerate(parts):
+        h = 1e-5 * abs(corner[i])
+        up = _equivalents(apply_values(network, parts, {**at, p.name: corner[i] + h}), port, [5e3])[0]
+        down = _equivalents(apply_values(network, parts, {**at, p.name: corner[i] - h}), port, [5e3])[0]
+        for k in range(2):
+            scale = np.abs(slopes[k] * corner).max() / abs(corner[i])
+            assert abs((up[k] - down[k]) / (2 * h) - slopes[k, i]) <= 1e-7 * scale, (p.name, k)

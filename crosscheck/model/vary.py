@@ -136,7 +136,8 @@ class QuantitySpread:
     """One quantity (vth, zth or in) at one frequency over the spread.
 
     ``sensitivities``: part -> (% change of |q| per % change of the part, degrees of phase per %), ranked by
-    the size of the first. ``worst_case``: "abs", "phase_deg", "re", "im" -> ``Extreme``.
+    the size of the first; NaN when the nominal quantity is exactly 0. ``worst_case``: "abs", "phase_deg",
+    "re", "im" -> ``Extreme`` (phase unwrapped about the nominal phase).
     """
 
     nominal: complex
@@ -161,7 +162,8 @@ class LimitSpread:
 
     ``holds`` is True when both extremes lie within [min, max]; ``failing_corner`` is the part values at the
     worst violation (None when it holds), at ``failing_hz``; ``violating_fraction`` is the share of Monte
-    Carlo samples that break it at any frequency of the band (None without Monte Carlo).
+    Carlo samples that break it at any frequency of the band (None without Monte Carlo). Phase is in degrees,
+    unwrapped about the nominal phase (a spread across ±180° reads e.g. 181°, not -179°).
     """
 
     index: int
@@ -181,6 +183,8 @@ class LimitSpread:
     failing_hz: float | None
     violating_fraction: float | None = None
     worst_sample: int | None = None
+    #: The part values of ``worst_sample`` (the sample with the least margin to the limit), None without samples.
+    worst_sample_values: Mapping[str, float] | None = None
 
 
 @dataclass(frozen=True)

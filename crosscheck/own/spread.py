@@ -18,7 +18,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from crosscheck.model.cases import Limit
-from crosscheck.model.network import Network, Port
+from crosscheck.model.network import Network, Port, check_excitation, check_port
 from crosscheck.model.vary import (
     PERCENTILES,
     Extreme,
@@ -32,7 +32,7 @@ from crosscheck.model.vary import (
     VariedPart,
 )
 from crosscheck.own.spread_matrix import VariedSystem
-from crosscheck.own.spread_solve import nominal_and_adjoint, port_values
+from crosscheck.own.spread_solve import nominal_and_adjoint, port_values, solutions_at
 from crosscheck.own.spread_worst import (
     SAMPLE,
     Found,
@@ -129,6 +129,8 @@ def own_spread(
     if spec.samples < 0:
         raise SpreadError(f"samples = {spec.samples} is negative; give 0 (no Monte Carlo) or more")
     freqs = np.asarray(freqs_hz, dtype=float)
+    check_excitation(network.excitation, freqs.tolist(), "the spread analysis")
+    check_port(network, port)
     vs = VariedSystem(network, port, parts)
     xs, lam = nominal_and_adjoint(vs, freqs)
     nominal = vs.port_voltage(np.moveaxis(xs, 1, 0))
@@ -154,7 +156,7 @@ def own_spread(
         for f in range(len(freqs))
     )
     limit_spreads = tuple(
-        s for lim in limits if (s := _limit_spread(lim, freqs, nominal, found, parts, sampled)) is not None
+        s for lim in limits if (s := _limit_spread(lim, freqs, nominal, found, parts, (samples, sampled))) is not None
     )
     names = [p.name for p in parts]
     shown = tuple(dict(zip(names, row.tolist())) for row in samples[: spec.spice_samples])
@@ -204,7 +206,19 @@ def _worst_at(
         pv = port_values(vs, values_at(parts, u, column), np.array([freq_hz]))
         return quantities(pv[:, 0, 0], pv[:, 0, 1])
 
-    found = search(targets, q_nominal, gradients, evaluate)
+    def corner_slopes(u: np.ndarray, wanted: Sequence[tuple[str, str]]) -> np.ndarray:
+        values = values_at(parts, u, column)
+        xs, lam = solutions_at(vs, values, freq_hz)
+        dv = vs.sensitivities(np.full(len(values), freq_hz), xs, lam, values)  # (B, 2, P)
+        out = np.empty((len(values), count))
+        for b, (q, fn) in enumerate(wanted):
+            vth_b, zth_b = (complex(v) for v in vs.port_voltage(xs[b]))
+            q_b = complex(quantities(np.array(vth_b), np.array(zth_b))[q])
+            dq_b = quantity_slopes(vth_b, zth_b, dv[b, 0], dv[b, 1])[q]
+            out[b] = np.bincount(column, function_slope(fn, q_b, dq_b) * delta, minlength=count)
+        return out
+
+    found = search(targets, q_nominal, gradients, evaluate, corner_slopes)
     for end in found.values():
         end.u = values_at(parts, end.u, column)[0]  # from here on: the part values of the extreme
     return found
@@ -252,8 +266,8 @@ def _point(
             out[q] = None
             continue
         sens = normalised(q_nominal[q], dq[q], parts)
-        order = sorted(range(len(parts)), key=lambda i: (-abs(sens[i, 0]), -abs(sens[i, 1])))
-        ranked = {parts[i].name: (float(sens[i, 0]), float(sens[i, 1])) for i in order}
+        order = np.lexsort((-np.abs(sens[:, 1]), -np.abs(sens[:, 0]))).tolist()
+        ranked = dict(zip([parts[i].name for i in order], zip(sens[order, 0].tolist(), sens[order, 1].tolist())))
         worst = {fn: _extreme(found[(q, fn, -1)], found[(q, fn, 1)], parts) for fn in WORST_FUNCTIONS}
         mc = _monte_carlo(qs[q], q_nominal[q], parts, samples, spec) if qs is not None else None
         out[q] = QuantitySpread(q_nominal[q], ranked, worst, mc)
@@ -307,9 +321,10 @@ def _limit_spread(
     nominal: np.ndarray,
     found: list[dict],
     parts: Sequence[VariedPart],
-    sampled: np.ndarray | None,
+    drawn: tuple[np.ndarray, np.ndarray | None],
 ) -> LimitSpread | None:
     """One limit over the points in its band: lowest and highest value with their corners; MC violations."""
+    samples, sampled = drawn
     fn = LIMIT_FUNCTION[limit.function]
     inside = [
         f for f in range(len(freqs)) if _in_band(float(freqs[f]), limit.band) and (limit.quantity, fn, 1) in found[f]
@@ -332,6 +347,7 @@ def _limit_spread(
         limit.index, limit.text, limit.minimum, limit.maximum, low.value, high.value,
         float(freqs[low_f]), float(freqs[high_f]), _corner(parts, low.u), _corner(parts, high.u),
         low.method, high.method, holds, failing, failing_hz, fraction, worst,
+        None if worst is None else _corner(parts, samples[worst]),
     )  # fmt: skip
 
 

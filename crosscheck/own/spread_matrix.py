@@ -111,6 +111,7 @@ class VariedSystem:
         self.w1 = _units(w1, len(self.parts), nnz)
         self._couplings = self._find_couplings(network)
         self._slots0, self._slots1 = _slots(self.w0), _slots(self.w1)
+        self._moving_sources = np.flatnonzero([p.kind in "VI" for p in self.parts])
 
     def _put(self, out: list, part: int, r: int | None, c: int | None, w: float) -> None:
         i = self._index(r, c)
@@ -163,7 +164,7 @@ class VariedSystem:
     def sources(self, values: np.ndarray) -> np.ndarray:
         """The source right-hand side (S, n) at S value sets (source magnitudes are linear)."""
         values = np.atleast_2d(values)
-        moving = np.flatnonzero(np.any(self.source_units != 0, axis=1))
+        moving = self._moving_sources
         out = np.repeat(self.rhs[None, :, 0], len(values), axis=0)
         if len(moving):
             out += (values[:, moving] - self.nominal[moving]) @ self.source_units[moving]
@@ -171,26 +172,32 @@ class VariedSystem:
 
     # ------------------------------------------------------------------ derivatives at nominal
 
-    def sensitivities(self, freqs_hz: np.ndarray, xs: np.ndarray, lam: np.ndarray) -> np.ndarray:
+    def sensitivities(
+        self, freqs_hz: np.ndarray, xs: np.ndarray, lam: np.ndarray, values: np.ndarray | None = None
+    ) -> np.ndarray:
         """d(port voltage)/dp for both right-hand sides: (F, 2, P) from solutions xs (F, n, 2), λ = A⁻ᵀc (F, n).
 
-        dq/dp = λᵀ(db/dp − dA/dp·x): one product per stored entry, shared by every part.
+        dq/dp = λᵀ(db/dp − dA/dp·x): one product per stored entry, shared by every part. Row f is taken at
+        ``freqs_hz[f]`` and at the part values ``values[f]`` (None: nominal values for every row).
         """
-        slope = np.where(self.resistor, -1.0 / self.nominal**2, 1.0)
         omega = 2.0 * np.pi * np.asarray(freqs_hz, dtype=float)
         out = np.empty((len(omega), 2, len(self.parts)), dtype=complex)
         for f, w in enumerate(omega):
+            at = self.nominal if values is None else values[f]
+            slope = np.where(self.resistor, -1.0 / at**2, 1.0)
             for k in range(2):
                 t = lam[f, self._rows] * xs[f, self._cols, k]  # (nnz,)
                 da = (self.w0 @ t + 1j * w * (self.w1 @ t)) * slope
                 for c in self._couplings:
-                    m = c.nominal[0] * math.sqrt(c.nominal[1] * c.nominal[2])
+                    kml = [at[j] if j >= 0 else nom for j, nom in zip(c.parts, c.nominal)]
+                    m = kml[0] * math.sqrt(kml[1] * kml[2])
                     shared = -1j * w * (t[c.entries[0]] + t[c.entries[1]])
-                    for j, nom in zip(c.parts, c.nominal):
+                    for i, j in enumerate(c.parts):
                         if j >= 0:  # dM/dk = M/k; dM/dL = M/(2L)
-                            da[j] += shared * m / (nom if j == c.parts[0] else 2.0 * nom)
-                db = self.source_units @ lam[f] if k == 0 else 0.0
-                out[f, k] = db - da
+                            da[j] += shared * m / (kml[0] if i == 0 else 2.0 * kml[i])
+                out[f, k] = -da
+                if k == 0 and len(self._moving_sources):
+                    out[f, k, self._moving_sources] += self.source_units[self._moving_sources] @ lam[f]
         return out
 
     def port_voltage(self, x: np.ndarray) -> np.ndarray:

@@ -1,7 +1,7 @@
 """Solving a varied network: nominal solutions with their adjoint, and the port voltages at many value sets.
 
-Two paths, as in ``MnaSystem.solve_many``. Small systems (``DENSE_LIMIT`` unknowns or fewer) solve a
-batch of value sets as one batched dense problem per frequency. Large ones keep the symbolic analysis made
+Two paths, as in ``MnaSystem.solve_many``. Small systems (``SAMPLES_DENSE_LIMIT`` unknowns or fewer, or up to
+``DENSE_LIMIT`` without the compiled loop) solve a batch of value sets as one batched dense problem per frequency. Large ones keep the symbolic analysis made
 once for the network (the pattern never changes, only values) and refactor along the value sets on the
 last pivot order (KLU), checking each solution's backward error and pivoting afresh when it grew.
 """
@@ -21,6 +21,11 @@ from crosscheck.own.spread_matrix import VariedSystem
 
 #: Value sets handled together on the sparse path (their A0/A1 entries are held at once).
 SPARSE_CHUNK = 64
+#: Above this many unknowns value sets go through the compiled KLU loop when it is built (without it, above
+#: ``DENSE_LIMIT``, as for a sweep): a dense LU costs n³ per value set and frequency, the compiled loop about a
+#: sparse refactorization, and thousands of value sets make that difference count long before a sweep's
+#: ``DENSE_LIMIT`` (measured: a 60-unknown ladder, 2,000 samples x 30 frequencies, dense 13 s, compiled loop below 1 s).
+SAMPLES_DENSE_LIMIT = 16
 
 
 def nominal_and_adjoint(vs: VariedSystem, freqs_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -54,20 +59,52 @@ def nominal_and_adjoint(vs: VariedSystem, freqs_hz: np.ndarray) -> tuple[np.ndar
     return xs, lam
 
 
+def solutions_at(vs: VariedSystem, values: np.ndarray, freq_hz: float) -> tuple[np.ndarray, np.ndarray]:
+    """Solutions (B, n, 2) and λ = A⁻ᵀc (B, n) at B value sets and one frequency (for slopes at a corner)."""
+    values = np.atleast_2d(values)
+    d0, d1 = vs.data(values)
+    rhs = np.empty((len(values), vs.size, 2), dtype=complex)
+    rhs[:, :, 0] = vs.sources(values)
+    rhs[:, :, 1] = vs.rhs[:, 1]
+    c = vs.port_vector()
+    if vs.size <= DENSE_LIMIT:
+        mats = vs.dense(d0, d1, freq_hz)
+        try:
+            xs = np.linalg.solve(mats, rhs)
+            lam = np.linalg.solve(np.swapaxes(mats, 1, 2), np.broadcast_to(c, (len(values), vs.size))[..., None])
+        except np.linalg.LinAlgError:
+            raise vs.singular(freq_hz) from None
+        return xs, lam[..., 0]
+    vs.system._ensure_analysis()
+    analysis = vs.system._analysis
+    assert analysis is not None
+    xs = np.empty((len(values), vs.size, 2), dtype=complex)
+    lam = np.empty((len(values), vs.size), dtype=complex)
+    pattern = vs.system._pattern
+    a = sp.csc_matrix((np.empty(pattern.nnz, dtype=complex), pattern.indices, pattern.indptr), shape=pattern.shape)
+    lu = None
+    for s in range(len(values)):
+        np.multiply(d1[s], 2j * math.pi * freq_hz, out=a.data)
+        a.data += d0[s]
+        lu, xs[s] = _solved(analysis, a, np.asfortranarray(rhs[s]), lu, vs, freq_hz)
+        lam[s] = np.conj(lu.solve(c.astype(complex), adjoint=True))
+    return xs, lam
+
+
 def port_values(vs: VariedSystem, values: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
     """V_th and Z_th (S, F, 2) at S value sets (rows of ``values``) and F frequencies: exact solves."""
     values = np.atleast_2d(np.asarray(values, dtype=float))
     freqs = np.asarray(freqs_hz, dtype=float)
     out = np.empty((len(values), len(freqs), 2), dtype=complex)
-    if vs.size <= DENSE_LIMIT:
-        chunk = max(1, DENSE_BATCH_ENTRIES // max(1, vs.size * vs.size))
-        solve = _dense_chunk
-    else:
-        chunk = SPARSE_CHUNK
+    solve = _dense_chunk
+    chunk = max(1, DENSE_BATCH_ENTRIES // max(1, vs.size * vs.size))
+    if vs.size > SAMPLES_DENSE_LIMIT:
         vs.system._ensure_analysis()
         symbolic = getattr(vs.system._analysis, "symbolic", None)
-        kernel = isinstance(symbolic, klu_library.Symbolic) and sweep_kernel.load() is not None
-        solve = _kernel_chunk if kernel else _sparse_chunk
+        if isinstance(symbolic, klu_library.Symbolic) and sweep_kernel.load() is not None:
+            solve, chunk = _kernel_chunk, SPARSE_CHUNK
+        elif vs.size > DENSE_LIMIT:
+            solve, chunk = _sparse_chunk, SPARSE_CHUNK
     starts = list(range(0, len(values), chunk))
 
     def run(start: int) -> None:
@@ -156,7 +193,10 @@ def _kernel_chunk(vs: VariedSystem, values: np.ndarray, freqs: np.ndarray) -> np
     out = np.empty((len(values), len(freqs), 2), dtype=complex)
     pattern = system._pattern
     a = sp.csc_matrix((np.empty(pattern.nnz, dtype=complex), pattern.indices, pattern.indptr), shape=pattern.shape)
-    numeric = symbolic.factor(d0[0] + 2j * math.pi * freqs[0] * d1[0])
+    try:
+        numeric = symbolic.factor(d0[0] + 2j * math.pi * freqs[0] * d1[0])
+    except klu_library.KluError:
+        raise vs.singular(float(freqs[0])) from None
     for s in range(len(values)):
         run.chain.a0, run.chain.a1 = d0[s].ctypes.data, d1[s].ctypes.data  # d0, d1 outlive the run
         rhs[:, 0] = sources[s]

@@ -28,8 +28,12 @@ SEARCH_GROUPS = 8
 #: A group is a candidate for a flip when twice its first-order effect is at most this many times what the
 #: linear estimate missed at the current corner.
 BEND_FACTOR = 4.0
-#: A flip must gain more than this share of the first-order half-width (and 1e-9 of the value) to be kept.
-MIN_GAIN = 1e-6
+#: Where the corner missed the linear estimate by more than this share of the first-order half-width, the
+#: response bends enough that the bend rule also picks groups to flip.
+BEND_SHARE = 0.05
+#: A flip must gain more than this share of the first-order half-width (and 1e-9 of the value) to be kept:
+#: a smaller gain moves the extreme by less than a ten-thousandth of the spread, not worth another round.
+MIN_GAIN = 1e-4
 #: Rounds of single flips a corner search makes at most.
 SEARCH_ROUNDS = 4
 FUNCTIONS = ("abs", "phase_deg", "re", "im", "db")
@@ -100,6 +104,8 @@ class Found:
 
 #: Exact evaluation: group deviations (B, G) -> {quantity: (B,) complex} at the frequency searched.
 Evaluate = Callable[[np.ndarray], dict[str, np.ndarray]]
+#: Exact slopes: group deviations (B, G) and a target per row -> d target / d u (B, G) at those corners.
+Slopes = Callable[[np.ndarray, Sequence[tuple[str, str]]], np.ndarray]
 
 
 def search(
@@ -107,8 +113,13 @@ def search(
     nominal: dict[str, complex],
     gradients: dict[tuple[str, str], np.ndarray],
     evaluate: Evaluate,
+    slopes: Slopes | None = None,
 ) -> dict[tuple[str, str, int], Found]:
-    """The min (-1) and max (+1) of every target (quantity, function) over the corners, keyed (q, fn, ±1)."""
+    """The min (-1) and max (+1) of every target (quantity, function) over the corners, keyed (q, fn, ±1).
+
+    ``slopes``: the exact gradient at a corner (one adjoint solve); a group whose slope there says the other
+    end is better is always tried. Without it only the bend rule picks the groups.
+    """
     ends = [(q, fn, d) for q, fn in targets for d in (-1, 1)]
     start = np.array([d * np.where(gradients[(q, fn)] >= 0, 1.0, -1.0) for q, fn, d in ends])
     values = _values(ends, _evaluated_once(start, evaluate), nominal)
@@ -118,10 +129,36 @@ def search(
         found[(q, fn, d)] = Found(float(values[i]), start[i].copy(), FIRST_ORDER, linear)
     active = list(ends)
     for _ in range(SEARCH_ROUNDS):
-        active = _improve(active, found, gradients, nominal, evaluate)
+        active = _improve(active, found, gradients, nominal, evaluate, slopes)
         if not active:
             break
     return found
+
+
+def _candidates(
+    end: tuple[str, str, int], found: Found, gradient: np.ndarray, at_corner: np.ndarray | None
+) -> list[int]:
+    """The groups worth flipping at this end's corner, at most ``SEARCH_GROUPS``.
+
+    Those whose exact slope at the corner points back into the box (flipping them gains to first order), and,
+    where the response bends (the corner missed the linear estimate by more than ``BEND_SHARE`` of the
+    first-order half-width, or no slopes are given), those whose first-order effect is within ``BEND_FACTOR``
+    times what was missed: a part that is not monotonic across its tolerance can hide the extreme there.
+    """
+    size = np.abs(gradient)
+    missed = abs(found.value - found.first_order)
+    chosen: list[int] = []
+    if at_corner is not None:
+        back = np.flatnonzero(end[2] * at_corner * found.u < 0)
+        chosen = back[np.argsort(-np.abs(at_corner[back]), kind="stable")].tolist()
+    if at_corner is None or missed > BEND_SHARE * float(size.sum()):
+        bend = np.flatnonzero(2.0 * size <= BEND_FACTOR * missed)
+        taken = set(chosen[:SEARCH_GROUPS])
+        chosen = chosen[:SEARCH_GROUPS]
+        for g in bend[np.argsort(-size[bend], kind="stable")][: 2 * SEARCH_GROUPS].tolist():
+            if g not in taken:
+                chosen.append(g)
+    return chosen[:SEARCH_GROUPS]
 
 
 def _evaluated_once(corners: np.ndarray, evaluate: Evaluate) -> dict[str, np.ndarray]:
@@ -144,16 +181,13 @@ def _improve(
     gradients: dict[tuple[str, str], np.ndarray],
     nominal: dict[str, complex],
     evaluate: Evaluate,
+    slopes: Slopes | None,
 ) -> list[tuple[str, str, int]]:
-    """One round: every single flip of each active end's top groups, solved in one batch; keep the best."""
+    """One round: the single flips of each active end's candidate groups, solved in one batch; keep the best."""
+    at_corner = slopes(np.array([found[e].u for e in active]), [e[:2] for e in active]) if slopes else None
     corners, owners = [], []
-    for end in active:
-        grad = np.abs(gradients[end[:2]])
-        # A flip can only help where the response bends: where twice the group's first-order effect is within
-        # a few times what the linear estimate missed at this corner (a strongly monotonic part never flips).
-        missed = abs(found[end].value - found[end].first_order)
-        candidates = np.flatnonzero(2.0 * grad <= BEND_FACTOR * missed)
-        for g in candidates[np.argsort(-grad[candidates], kind="stable")][:SEARCH_GROUPS].tolist():
+    for i, end in enumerate(active):
+        for g in _candidates(end, found[end], gradients[end[:2]], None if at_corner is None else at_corner[i]):
             u = found[end].u.copy()
             u[g] = -u[g]
             corners.append(u)
