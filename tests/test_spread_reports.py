@@ -123,6 +123,7 @@ def test_every_format_carries_the_spread(failing_result):
     limit_rows = [r for r in rows if r["check"] == "spread-limit"]
     assert [r["verdict"] for r in limit_rows] == ["fail"]
     assert {r["check"] for r in rows} >= {"spread-sensitivity", "spread-corner", "spread-sample"}
+    assert any(r["check"] == "caution" and r["quantity"] == "spread" for r in rows)
     md = markdown_report(results)
     assert "#### Component spread" in md and "limit over spread, **fail**" in md
     page = html_report(results)

@@ -2,6 +2,7 @@
 
 ``report.frame`` calls these, so every tabular and worded report carries the spread the same way:
 
+* ``check`` = ``caution``, ``quantity`` = ``spread``: what the spread covers (``caution.SPREAD_CAUTION``);
 * ``check`` = ``spread-limit``: a design limit over the spread (``own_re`` the lowest value of its function,
   ``own_im`` the highest, ``limit_min``/``limit_max`` its bounds, the explanation naming a failing corner);
 * ``check`` = ``spread-sensitivity`` / ``spread-corner`` / ``spread-limit-corner`` / ``spread-sample``: one
@@ -21,6 +22,7 @@ from typing import Any
 from crosscheck.judge.result import CaseResult
 from crosscheck.judge.spread import SpreadCheck
 from crosscheck.model.values import format_eng
+from crosscheck.report.caution import SPREAD_CAUTION
 
 #: What each spread ``check`` value means (joined into ``frame.CHECKS``).
 SPREAD_CHECKS = {
@@ -55,7 +57,7 @@ def spread_rows(result: CaseResult) -> list[dict[str, Any]]:
     spread = result.spread
     if spread is None:
         return []
-    rows = []
+    rows: list[dict[str, Any]] = [dict(check="caution", quantity="spread", explanation=SPREAD_CAUTION)]
     for lim in spread.limits:
         rows.append(
             dict(
