@@ -13,7 +13,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
-from crosscheck.cli_parser import parser
+from crosscheck.cli_parser import parser, spread_spec
 from crosscheck.errors import CrosscheckError
 from crosscheck.judge.baseline import BaselineCorrupt, load_baseline, update_baseline_file
 from crosscheck.judge.result import CaseResult
@@ -171,7 +171,7 @@ def _reduce(args: argparse.Namespace) -> int:
         args.accept_warning,
         excitation,
     )
-    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
+    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations, spread=spread_spec(args, None))
     if len(args.port) > 1:  # several ports: voc, Z, isc and Y (``run.multiport``)
         case = replace(case, multiport=MultiportSpec(ports_from_pairs(args.port)))
     if args.engine == "own":
@@ -179,7 +179,7 @@ def _reduce(args: argparse.Namespace) -> int:
     else:
         from crosscheck.spice.workers import SpicePool  # start-up time: loaded only by the commands that use it
 
-        with SpicePool(workers=1) as pool:
+        with SpicePool(workers=2 if case.spread is not None else 1) as pool:
             [result] = run_cases([case], engine=args.engine, pool=pool)
     if result.multiport is not None:
         return _reduce_multiport(args, result)
@@ -369,7 +369,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
             excitation = args.excitation or "ac"
             if not args.port or not (args.freq or excitation == "dc"):
                 raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
-            items.append(
+            case = replace(
                 case_from_netlist(
                     str(path),
                     read_netlist_text(path),
@@ -380,8 +380,10 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
                     args.sources or "peak",
                     args.accept_warning,
                     excitation,
-                )
+                ),
+                spread=spread_spec(args, None),
             )
+            items.append(case)
         except CrosscheckError as exc:
             items.append((str(path), exc))
     if not items:
@@ -412,7 +414,12 @@ def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[Cas
 def _overridden(case: Case, args: argparse.Namespace) -> Case:
     """A case file's case with --rel and --sources from the command line in place of its own (when given)."""
     tolerance = case.tolerance if args.rel is None else replace(case.tolerance, rel=args.rel)
-    return replace(case, tolerance=tolerance, sources=args.sources or case.sources)
+    return replace(
+        case,
+        tolerance=tolerance,
+        sources=args.sources or case.sources,
+        spread=spread_spec(args, case.spread) if case.spread else None,
+    )
 
 
 def override_header(args: argparse.Namespace) -> str:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -12,6 +13,7 @@ from crosscheck.errors import CrosscheckError
 from crosscheck.model.frequencies import check_frequency_text, checked_frequency
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.values import parse_number
+from crosscheck.model.vary import MAX_SAMPLES, SpreadError, SpreadSpec, Vary, parse_vary_option
 from crosscheck.report.outputs import VERIFY_FORMATS
 from crosscheck.version import __version__
 
@@ -98,6 +100,7 @@ def _reduce_parser(sub: Any) -> None:
     _common_options(reduce)
     _excitation_option(reduce, "")
     _touchstone_options(reduce, "a file (.sNp, n = number of ports; .ts also for 2.0)")
+    _spread_options(reduce, "")
 
 
 def _verify_parser(sub: Any) -> None:
@@ -152,6 +155,11 @@ def _verify_parser(sub: Any) -> None:
     _baseline_options(verify)
     _common_options(verify)
     _excitation_option(verify, " for netlists named directly (case files say excitation = ...)")
+    _spread_options(
+        verify,
+        " for netlists named directly (case files state [[vary]]; --samples, --seed and "
+        "--spice-samples also override theirs)",
+    )
 
 
 def _baseline_options(verify: argparse.ArgumentParser) -> None:
@@ -353,6 +361,56 @@ def _expect_rel_option(text: str) -> float:
     value = _finite(text, what)
     if not 0 < value <= 1:
         raise argparse.ArgumentTypeError(f"{text!r} is out of range; write {what}")
+    return value
+
+
+def _spread_options(p: argparse.ArgumentParser, what: str) -> None:
+    """--vary (repeatable), --samples, --seed, --spice-samples: component spread (``model.vary``)."""
+    p.add_argument(
+        "--vary",
+        action="append",
+        default=[],
+        type=_vary_option,
+        metavar="PARTS=TOL",
+        help='component spread, e.g. "R*=1%%", "C1=10n", "V1=10%%:normal", "R1,R2=1%%@pair" (a group moves '
+        f"together); repeat for more parts{what}",
+    )
+    p.add_argument(
+        "--samples", type=_samples_option, default=None, metavar="N", help="Monte Carlo samples (default 0: none)"
+    )
+    p.add_argument("--seed", type=_seed_option, default=None, metavar="S", help="Monte Carlo seed (default 1)")
+    p.add_argument(
+        "--spice-samples",
+        type=_samples_option,
+        default=None,
+        metavar="N",
+        help="Monte Carlo samples ngspice re-runs to confirm them (default 20)",
+    )
+
+
+def spread_spec(args: argparse.Namespace, stated: SpreadSpec | None) -> SpreadSpec | None:
+    """A case's spread: its own (``stated``, a case file's) with --samples, --seed and --spice-samples in place of
+    its numbers when given; a netlist's (``stated`` None) from --vary; None when neither states one."""
+    if stated is None:
+        if not getattr(args, "vary", None):
+            return None
+        stated = SpreadSpec(tuple(args.vary))
+    numbers = {"samples": args.samples, "seed": args.seed, "spice_samples": args.spice_samples}
+    return replace(stated, **{k: v for k, v in numbers.items() if v is not None})
+
+
+def _vary_option(text: str) -> Vary:
+    try:
+        return parse_vary_option(text)
+    except SpreadError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
+def _samples_option(text: str) -> int:
+    """--samples, --spice-samples: a whole number from 0 to ``MAX_SAMPLES``."""
+    value = _whole(text, f"a whole number from 0 to {MAX_SAMPLES}, e.g. 2000")
+    if not 0 <= value <= MAX_SAMPLES:
+        raise argparse.ArgumentTypeError(f"{text!r} is outside 0 to {MAX_SAMPLES}; write e.g. 2000")
     return value
 
 

@@ -13,6 +13,7 @@ from typing import Any
 from crosscheck.judge.hazards import Hazard, assess_case
 from crosscheck.judge.multiport import MultiportResult
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck, ReadingCheck
+from crosscheck.judge.spread import SpreadResult
 from crosscheck.model.cases import Case
 from crosscheck.model.reading import ReadWarning
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
@@ -57,6 +58,9 @@ class CaseResult:
     #: A case with several ports (``judge.multiport``): both routes' matrices and their judgements; ``own`` is
     #: then empty and ``port`` the first port. None: the usual one-port case.
     multiport: MultiportResult | None = None
+    #: Component spread (``judge.spread``): the own route's sensitivities, worst case and Monte Carlo, ngspice's
+    #: confirmations and the limits over the spread; None when the case states no ``[[vary]]``/``--vary``.
+    spread: SpreadResult | None = None
 
     @cached_property
     def hazard(self) -> Hazard | None:
@@ -105,6 +109,8 @@ class CaseResult:
             *self.limits,
             *self.drift,
             *(self.multiport.judgements if self.multiport is not None else ()),
+            *(self.spread.limits if self.spread is not None else ()),
+            *(self.spread.checks if self.spread is not None else ()),
         ]
         notes = [p.explanation for p in parts if p.verdict == self.verdict and p.explanation]
         return notes[0] if notes else ""
@@ -123,6 +129,7 @@ def case_verdict(result: CaseResult) -> Verdict:
             *(d.verdict for d in result.drift),
             *([result.reading.verdict] if result.reading is not None else []),
             *(result.multiport.verdicts if result.multiport is not None else []),
+            *(result.spread.verdicts if result.spread is not None else []),
         ]
     )
 

@@ -31,6 +31,7 @@ from crosscheck.model.port_spec import MultiportSpec, multiport_from_case
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
+from crosscheck.model.vary import MAX_SAMPLES, SpreadSpec, vary_from_case
 from crosscheck.vocabulary import PHASORS, QUANTITIES
 
 #: Untrusted input may not ask for more than this many frequency points in one case.
@@ -91,6 +92,8 @@ class Case:
     #: Several ports (``ports = [...]``, ``model.port_spec``): the matrices, their hand values and limits; ``port``
     #: is then the first port. None: the usual one-port case.
     multiport: MultiportSpec | None = None
+    #: Component spread (``[[vary]]`` tables with ``samples``, ``seed``, ``spice_samples``); None: nominal only.
+    spread: SpreadSpec | None = None
 
     @property
     def name(self) -> str:
@@ -369,6 +372,10 @@ _TOP_KEYS = {
     "about",
     "caution",
     "accept_warnings",
+    "vary",
+    "samples",
+    "seed",
+    "spice_samples",
 }
 
 
@@ -409,7 +416,25 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         caution=string(path, data, "caution", "").strip(),
         accept_warnings=accepted_warnings(data.get("accept_warnings", []), where=f"{path}: key 'accept_warnings'"),
         multiport=multiport,
+        spread=_spread(path, data),
     )
+
+
+def _spread(path: Path, data: dict[str, Any]) -> SpreadSpec | None:
+    """``[[vary]]`` tables (``model.vary.vary_from_case``) with ``samples``, ``seed`` and ``spice_samples``."""
+    varies = vary_from_case(path, data)
+    counts = {}
+    for key, default in (("samples", 0), ("seed", 1), ("spice_samples", 20)):
+        raw = data.get(key, default)
+        if not isinstance(raw, int) or isinstance(raw, bool) or not 0 <= raw <= MAX_SAMPLES:
+            raise _err(path, key, f"must be a whole number from 0 to {MAX_SAMPLES} (got {str(raw)[:40]!r})")
+        counts[key] = raw
+    if not varies:
+        stray = [key for key in counts if key in data]
+        if stray:
+            raise _err(path, stray[0], "applies only with [[vary]] tables; add one, or remove the key")
+        return None
+    return SpreadSpec(varies, counts["samples"], counts["seed"], counts["spice_samples"])
 
 
 def accepted_warnings(raw: Any, *, where: str) -> tuple[str, ...]:

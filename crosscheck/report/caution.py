@@ -32,6 +32,13 @@ LIMITS_NOTE = (
     f"a prospective current above {HIGH_CURRENT_RMS_A:g} A RMS is flagged as a judgement, not a rule."
 )
 
+#: Said with every case that analyses component spread: what its ranges cover and what they leave out.
+SPREAD_CAUTION = (
+    "Spread analysis covers only the stated tolerances of the stated parts (their [[vary]] or --vary lines): "
+    "no ageing, temperature drift, parasitics or unlisted parts unless stated there. Worst cases are searched over "
+    "the corners of the tolerance box (and the Monte Carlo samples), so an extreme inside the box may lie beyond them."
+)
+
 #: What a flagged case defers to.
 DEFER = (
     "Mains and fault-level work defers to local codes and a licensed engineer: "
@@ -83,10 +90,12 @@ class CaseCaution:
     title: str
     hazard: str
     stated: str
+    spread: str = ""  # ``SPREAD_CAUTION`` when the case analyses component spread
 
     def lines(self) -> list[str]:
         """One line per caution, as plain text (a writer escapes ``stated`` for its format)."""
         out = [self.hazard] if self.hazard else []
+        out += [self.spread] if self.spread else []
         return out + ([f"The case file's caution: {self.stated}"] if self.stated else [])
 
 
@@ -95,9 +104,10 @@ def case_caution(result: CaseResult, index: int = 1) -> CaseCaution | None:
     hazard = result.hazard
     words = hazard_text(hazard) if hazard is not None and hazard.flagged else ""
     stated = result.stated_caution
-    if not words and not stated:
+    spread = SPREAD_CAUTION if result.spread is not None else ""
+    if not words and not stated and not spread:
         return None
-    return CaseCaution(index, result.name, result.title, words, stated)
+    return CaseCaution(index, result.name, result.title, words, stated, spread)
 
 
 def case_cautions(results: Sequence[CaseResult]) -> list[CaseCaution]:

@@ -24,6 +24,7 @@ from crosscheck.judge.multiport import MatrixPointCheck, element_unit
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.judge.result import CaseResult
 from crosscheck.model.values import format_eng, format_polar
+from crosscheck.report.spread_frame import SPREAD_CHECKS, spread_findings, spread_rows
 from crosscheck.vocabulary import QUANTITIES, Verdict, quantity_unit
 
 COLUMNS = [
@@ -61,6 +62,7 @@ CHECKS = {
     "limit": "a design limit ([[limit]]) over its band",
     "drift": "crosscheck's own solver against the stored baseline of an earlier run",
     "input": "the case could not be run (invalid input, or an engine crashed)",
+    **SPREAD_CHECKS,
 }
 
 _LIMIT_UNITS = {"phase": "°", "db": "dB"}
@@ -183,7 +185,7 @@ def verdict_frame(results: Sequence[CaseResult]) -> pd.DataFrame:
         if r.error:
             rows.append(head | dict(check="input", freq_hz=math.nan, quantity="", verdict="error", explanation=r.error))
         body = _spice_rows(r) + [_expect_row(e) for e in r.expectations] + [_limit_row(c) for c in r.limits]
-        body += [_drift_row(d) for d in r.drift]
+        body += [_drift_row(d) for d in r.drift] + spread_rows(r)
         if r.multiport is not None:
             body += [_expect_row(e) for e in r.multiport.expectations] + [_limit_row(c) for c in r.multiport.limits]
         rows.extend(head | row for row in body)
@@ -309,6 +311,7 @@ def findings(result: CaseResult, include_pass: bool = False) -> list[Finding]:
     if result.multiport is not None:
         items += [_expect_finding(e) for e in result.multiport.expectations]
         items += [_limit_finding(c) for c in result.multiport.limits]
+    items += [Finding(*fields) for fields in spread_findings(result)]
     if not include_pass:
         items = [f for f in items if f.verdict != "pass"]
     return sorted(items, key=lambda f: -severity(f.verdict))

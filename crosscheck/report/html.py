@@ -28,6 +28,7 @@ from crosscheck.report.multiport_plots import case_figure_html as multiport_figu
 from crosscheck.report.plots import VERDICT_COLOURS, VERDICT_SYMBOLS, case_figure_svg, is_swept
 from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version
+from crosscheck.report.spread_html import spread_section
 from crosscheck.version import __version__
 from crosscheck.vocabulary import quantity_unit
 
@@ -283,6 +284,7 @@ def _case_section(i: int, r: CaseResult) -> str:
     out.append(_figures(r))
     out.append(multiport_figure(r))
     out.append(_judgements_table(r))
+    out.append(spread_section(r))
     if r.points or r.own:
         state = " open" if r.verdict != "pass" else ""
         out.append(

@@ -26,6 +26,7 @@ from crosscheck.report.frame import (
 )
 from crosscheck.report.read_warnings import ACKNOWLEDGE, MAX_NOTES_SHOWN, shown_notes, warned
 from crosscheck.report.results_json import ngspice_version
+from crosscheck.report.spread_markdown import spread_lines
 from crosscheck.report.untrusted import markdown_fence, markdown_text
 from crosscheck.version import __version__
 
@@ -158,6 +159,7 @@ def markdown_report(results: Sequence[CaseResult]) -> str:
         ]
     if passing:
         lines += _passing_details(passing)
+    lines += spread_lines(results, _cell)
     lines += _read_notes(results)
     lines += [
         f"ngspice: {_line(ngspice_version(results) or '') or 'not run'} · crosscheck {__version__}",

@@ -13,6 +13,7 @@ from crosscheck.report.equivalents_json import equivalents_document
 from crosscheck.report.equivalents_text import print_equivalents
 from crosscheck.report.results_json import case_document, checks_document, read_document, results_document
 from crosscheck.report.results_text import print_checks, print_read_notes, print_read_warnings, print_results
+from crosscheck.report.spread_json import add_spread, spread_document
 from crosscheck.report.untrusted import markup_text
 
 
@@ -32,6 +33,10 @@ def reduction_document(
             source_file=source_file,
             excitation=result.excitation,
         )
+    if result.spread is not None:
+        if not compared:
+            add_spread(doc["points"], result)
+        doc.update(spread=spread_document(result.spread), verdict=result.verdict)
     if expectations:
         doc.update({"expectations": checks_document(result)["expectations"], "verdict": result.verdict})
     doc.setdefault("excitation", result.excitation)

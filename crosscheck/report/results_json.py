@@ -19,6 +19,7 @@ from crosscheck.report.caution import CAUTION, case_caution, case_cautions
 from crosscheck.report.equivalents_json import own_point
 from crosscheck.report.multiport_json import multiport_document
 from crosscheck.report.read_warnings import warned, warning_document
+from crosscheck.report.spread_json import add_spread, spread_document
 from crosscheck.version import __version__
 from crosscheck.vocabulary import Verdict
 from crosscheck.vocabulary import phasor_json as phasor
@@ -65,6 +66,7 @@ def points_document(result: CaseResult) -> list[dict[str, Any]]:
             doc["verdict"] = check.verdict
             doc["explanation"] = check.explanation or None
         out.append(doc)
+    add_spread(out, result)
     return out
 
 
@@ -199,6 +201,8 @@ def case_document(result: CaseResult) -> dict[str, Any]:
         doc["spice_strategy"] = result.spice.strategy
     if result.multiport is not None:  # several ports: the matrices and their judgements (``multiport_json``)
         doc["multiport"] = multiport_case_document(result)
+    if result.spread is not None:
+        doc["spread"] = spread_document(result.spread)
     return doc
 
 

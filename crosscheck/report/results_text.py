@@ -22,6 +22,7 @@ from crosscheck.report.caution import CAUTION, case_cautions
 from crosscheck.report.multiport_reduction import print_multiport_points
 from crosscheck.report.read_warnings import ACKNOWLEDGE, shown_notes, warned, warning_words
 from crosscheck.report.results_json import ngspice_version, summary
+from crosscheck.report.spread_text import print_spread
 from crosscheck.report.untrusted import markup_text as escape
 from crosscheck.vocabulary import quantity_unit
 
@@ -211,6 +212,7 @@ def print_checks(console: Console, result: CaseResult, detail: bool) -> None:
         for r in records:
             if r.verdict != "pass" and r.explanation:
                 console.print(f"[{STYLE[r.verdict]}]{escape(r.explanation)}[/]")
+    print_spread(console, result, detail, STYLE)
     note = getattr(result, "baseline_note", "")
     if note:
         console.print(f"[dim]baseline: {escape(note)}[/]")

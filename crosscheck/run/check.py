@@ -30,6 +30,7 @@ from crosscheck.model.reading import Reading
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
 from crosscheck.run.multiport import finish_multiport
+from crosscheck.run.spread import with_spread
 from crosscheck.spice.engine import SpiceResult
 from crosscheck.spice.workers import SpicePool
 from crosscheck.vocabulary import Verdict
@@ -107,7 +108,7 @@ def run_cases(
     out: list[CaseResult] = []
     for head, parsed, future in staged:
         try:
-            result = head if parsed is None else _finish(head, parsed, future, engine, baseline, budget)
+            result = head if parsed is None else _finish(head, parsed, future, engine, baseline, budget, pool)
         except Exception as exc:  # a bug met on this input: this case's error, never the run's end
             result = error_result(head.name, unexpected(head.name, "checking the case", exc), head.case)
         if on_done is not None:
@@ -169,8 +170,9 @@ def _finish(
     engine: str,
     baseline: Baseline | None,
     budget: Budget | None = None,
+    pool: SpicePool | None = None,
 ) -> CaseResult:
-    """Both routes' answers for one case, then its judgement."""
+    """Both routes' answers for one case, then its judgement (and its spread's, when it states one)."""
     if head.case is not None and head.case.multiport is not None:
         return finish_multiport(head, head.case.multiport, network, future, engine, budget)
     started = time.perf_counter()
@@ -210,7 +212,7 @@ def _finish(
         elapsed_spice_s=spice.elapsed_s if spice is not None else 0.0,
     )
     with quiet_numpy():
-        return judged(result, network, compare=engine != "own", baseline=baseline)
+        return with_spread(judged(result, network, compare=engine != "own", baseline=baseline), network, pool, engine)
 
 
 def case_from_netlist(
