@@ -319,3 +319,12 @@ def test_adjoint_agrees_with_central_differences_on_generated_networks():
                     tight += truncation + rounding < 0.1 * abs(slopes[f, k, i])
             checked += 1
     assert checked >= 100 and tight >= 150  # measured: 133 parts of 15 networks, 186 tight checks of 520
+
+
+def test_sample_count_and_empty_spread_are_refused():
+    network = read_netlist("t\nV1 1 0 AC 1\nR1 1 2 1k\nR2 2 0 1k\n")
+    parts = resolve(network, [parse_vary_option("R1=1%")])
+    with pytest.raises(SpreadError, match="samples = -1 is outside"):
+        own_spread(network, Port("2", "0"), [0.0], parts, SpreadSpec((), samples=-1))
+    with pytest.raises(SpreadError, match="no part varies"):
+        own_spread(network, Port("2", "0"), [0.0], [], SpreadSpec(()))
