@@ -15,11 +15,12 @@ import numpy as np
 import pytest
 import sympy
 
+from crosscheck.fuzz.generate import generate_cases
 from crosscheck.fuzz.large import build
 from crosscheck.model.cases import Limit
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Port
-from crosscheck.model.vary import SpreadError, SpreadSpec, apply_values, parse_vary_option, resolve
+from crosscheck.model.vary import SpreadError, SpreadSpec, Vary, apply_values, parse_vary_option, resolve
 from crosscheck.own.equivalent import thevenin
 from crosscheck.own.solver import DENSE_LIMIT, MnaSystem
 from crosscheck.own.spread import adjoint_slopes, draw, own_spread, values_at
@@ -281,3 +282,49 @@ def test_slopes_at_a_corner_agree_with_central_differences_there(every_kind):
         for k in range(2):
             scale = np.abs(slopes[k] * corner).max() / abs(corner[i])
             assert abs((up[k] - down[k]) / (2 * h) - slopes[k, i]) <= 1e-7 * scale, (p.name, k)
+
+
+def test_adjoint_agrees_with_central_differences_on_generated_networks():
+    """The fuzzer's seeded networks (every family, controlled sources and couplings included). Step h = 1e-4·|p|;
+    the allowance is the difference's truncation (1e-6 of the largest sensitivity times p) plus its rounding:
+    the solve's error κ·ε·(solution scale), divided by h, times 10. Where the port quantity is tiny against the
+    network's own voltages the difference is mostly rounding; the count at the end makes sure that enough checks
+    are tight (allowance under a tenth of the sensitivity itself) to catch a wrong stamp."""
+    checked = tight = 0
+    for case in generate_cases(11, 16):
+        network, port = case.network, case.port
+        names = tuple(
+            e.name
+            for e in network.elements
+            if "." not in e.name
+            and (e.kind in "LCEFGH" or (e.kind == "R" and e.value != 0) or (e.kind in "VI" and e.ac_mag != 0)
+                 or (e.kind == "K" and e.value <= 0.98))
+        )  # fmt: skip
+        eqs = thevenin(network, port, case.freqs_hz)
+        if case.caveat or network.excitation != "ac" or any(e.vth is None or e.zth is None for e in eqs):
+            continue
+        parts = resolve(network, [Vary(names, 0.01, None)])
+        _, slopes = adjoint_slopes(network, port, case.freqs_hz, parts)
+        nominal = np.array([p.nominal for p in parts])
+        for i, p in enumerate(parts):
+            h = 1e-4 * abs(p.nominal)
+            up = _equivalents(apply_values(network, parts, {p.name: p.nominal + h}), port, case.freqs_hz)
+            down = _equivalents(apply_values(network, parts, {p.name: p.nominal - h}), port, case.freqs_hz)
+            central = (up - down) / (2 * h)
+            for f, eq in enumerate(eqs):
+                for k, scale in enumerate((eq.vth_scale, eq.zth_scale)):
+                    truncation = 1e-6 * np.abs(slopes[f, k] * nominal).max() / abs(p.nominal)
+                    rounding = 10 * eq.condition * np.finfo(float).eps * scale / h
+                    assert abs(central[f, k] - slopes[f, k, i]) <= truncation + rounding, (case.seed, p.name, f, k)
+                    tight += truncation + rounding < 0.1 * abs(slopes[f, k, i])
+            checked += 1
+    assert checked >= 100 and tight >= 150  # measured: 133 parts of 15 networks, 186 tight checks of 520
+
+
+def test_sample_count_and_empty_spread_are_refused():
+    network = read_netlist("t\nV1 1 0 AC 1\nR1 1 2 1k\nR2 2 0 1k\n")
+    parts = resolve(network, [parse_vary_option("R1=1%")])
+    with pytest.raises(SpreadError, match="samples = -1 is outside"):
+        own_spread(network, Port("2", "0"), [0.0], parts, SpreadSpec((), samples=-1))
+    with pytest.raises(SpreadError, match="no part varies"):
+        own_spread(network, Port("2", "0"), [0.0], [], SpreadSpec(()))

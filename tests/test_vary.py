@@ -59,6 +59,8 @@ def test_option_forms():
         ("R1=1%:gauss", "unknown distribution 'gauss'"),
         ("R1=abc", "cannot read the tolerance 'abc'"),
         ("R1;rm=1%", "not a part name"),
+        ("R" * 300 + "=1%", "at most 200"),
+        (",".join(f"R{i}" for i in range(1001)) + "=1%", "at most 1000"),
     ],
 )
 def test_option_errors_say_what(text, words):

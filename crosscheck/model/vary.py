@@ -32,6 +32,9 @@ SOURCE_KINDS = frozenset("VI")
 PERCENTILES = (0.1, 1.0, 50.0, 99.0, 99.9)
 #: Most samples one run may ask for (each costs one refactorization per frequency).
 MAX_SAMPLES = 1_000_000
+#: Longest part name or pattern, and most patterns in one entry (untrusted input stays cheap to match).
+MAX_NAME_CHARS = 200
+MAX_PATTERNS = 1000
 VARY_KEYS = frozenset({"parts", "tol", "dist", "group", "why"})
 _OPTION_FORM = 'PATTERNS=TOL[:DIST][@GROUP], like "R*=1%", "C1=10n", "V1=10%:normal" or "R1,R2=1%@pair"'
 
@@ -226,7 +229,11 @@ def _patterns(text: str) -> tuple[str, ...]:
     parts = tuple(p.strip().lower() for p in text.split(",") if p.strip())
     if not parts:
         raise SpreadError(f"no part names before '=' in {text[:60]!r}; write {_OPTION_FORM}")
+    if len(parts) > MAX_PATTERNS:
+        raise SpreadError(f"{len(parts)} part patterns in one entry; at most {MAX_PATTERNS}: use a glob like R*")
     for p in parts:
+        if len(p) > MAX_NAME_CHARS:
+            raise SpreadError(f"the part pattern {p[:40]!r}... is {len(p)} characters; at most {MAX_NAME_CHARS}")
         if not re.fullmatch(r"[a-z0-9_.*?\[\]!#$%&+-]+", p):
             raise SpreadError(f"{p[:40]!r} is not a part name or glob pattern; write {_OPTION_FORM}")
     return parts

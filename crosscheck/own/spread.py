@@ -20,6 +20,7 @@ import numpy as np
 from crosscheck.model.cases import Limit
 from crosscheck.model.network import Network, Port, check_excitation, check_port
 from crosscheck.model.vary import (
+    MAX_SAMPLES,
     PERCENTILES,
     Extreme,
     LimitSpread,
@@ -126,8 +127,10 @@ def own_spread(
     """Sensitivities, worst case and (with ``spec.samples``) Monte Carlo at each frequency, and each limit."""
     if not parts:
         raise SpreadError("no part varies; state at least one with [[vary]] or --vary")
-    if spec.samples < 0:
-        raise SpreadError(f"samples = {spec.samples} is negative; give 0 (no Monte Carlo) or more")
+    if not 0 <= spec.samples <= MAX_SAMPLES:
+        raise SpreadError(
+            f"samples = {spec.samples} is outside 0 (no Monte Carlo) to {MAX_SAMPLES:,}; give a count in it"
+        )
     freqs = np.asarray(freqs_hz, dtype=float)
     check_excitation(network.excitation, freqs.tolist(), "the spread analysis")
     check_port(network, port)
