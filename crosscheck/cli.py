@@ -150,6 +150,8 @@ def _reduce(args: argparse.Namespace) -> int:
     try:
         freqs = _excitation_frequencies(args.freq, excitation)
         expectations = _expectations(args, freqs)
+        if len(args.port) > 1 and args.vary:
+            raise _UsageError("--vary is computed at one port; give one --port, or reduce each port on its own")
     except _UsageError as exc:
         print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
         return EXIT_USAGE

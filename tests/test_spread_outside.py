@@ -4,16 +4,13 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
 import pytest
 
 from crosscheck.model.netlist import read_netlist
 from crosscheck.model.network import Port
 from crosscheck.model.vary import SpreadSpec, Vary, parse_vary_option, resolve
 from crosscheck.own.equivalent import thevenin
-from crosscheck.own.spread import own_spread, values_at
-from crosscheck.own.spread_matrix import VariedSystem
-from crosscheck.own.spread_solve import port_values
+from crosscheck.own.spread import own_spread
 
 
 def _point(netlist: str, port: Port, freq: float, varies: list[Vary] | list[str], samples: int = 0):
@@ -114,21 +111,3 @@ def test_iec_60909_voltage_factor_gives_maximum_and_minimum_fault_current():
     assert i_n.maximum == pytest.approx(c_max * un / (math.sqrt(3) * abs(zk)), rel=1e-12)
     assert i_n.minimum == pytest.approx(c_min * un / (math.sqrt(3) * abs(zk)), rel=1e-12)
     assert i_n.max_corner["vs"] == pytest.approx(c_max * phase, rel=1e-15)
-
-
-def test_published_monte_carlo_draw_of_a_divider():
-    """published: "Monte Carlo Analysis" course notes (Scribd document 381541785,
-    https://www.scribd.com/document/381541785/MonteCarloAnalysis-pdf), worked example: R1nom = 100 Ω,
-    R2nom = 400 Ω, t1 = t2 = 5 %, a draw R = Rnom·(1 + (2·rand − 1)·t) with rand1 = 0.21347, rand2 = 0.83721
-    gives R1 = 97.1347 Ω, R2 = 413.4884 Ω, G_nom = 0.8 and G_act = 0.809772 V/V (printed to those digits).
-    Our uniform draw is the same map, u = 2·rand − 1 in [−1, 1]; this checks it and the solve at the draw.
-    (One printed draw of the procedure: the notes print no distribution to compare percentiles against.)"""
-    network = read_netlist("pub\nV1 in 0 AC 1\nR1 in out 100\nR2 out 0 400\n")
-    port = Port("out", "0")
-    parts = resolve(network, [parse_vary_option("R*=5%")])
-    values = values_at(parts, np.array([[2 * 0.21347 - 1, 2 * 0.83721 - 1]]))
-    assert values[0, 0] == pytest.approx(97.1347, abs=5e-5)
-    assert values[0, 1] == pytest.approx(413.4884, abs=5e-5)
-    g = port_values(VariedSystem(network, port, parts), values, np.array([0.0]))[0, 0, 0]
-    assert abs(g) == pytest.approx(0.809772, abs=5e-7)
-    assert abs(thevenin(network, port, [0.0])[0].vth) == pytest.approx(0.8, abs=1e-15)  # type: ignore[arg-type]

@@ -423,6 +423,10 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
 def _spread(path: Path, data: dict[str, Any]) -> SpreadSpec | None:
     """``[[vary]]`` tables (``model.vary.vary_from_case``) with ``samples``, ``seed`` and ``spice_samples``."""
     varies = vary_from_case(path, data)
+    if varies and "ports" in data:
+        raise _err(
+            path, "vary", "spread is computed at one port; with several ports, state [[vary]] in a one-port case"
+        )
     counts = {}
     for key, default in (("samples", 0), ("seed", 1), ("spice_samples", 20)):
         raw = data.get(key, default)
