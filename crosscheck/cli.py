@@ -4,30 +4,25 @@ from __future__ import annotations
 
 import argparse
 import json
-import shlex
 import sys
 from collections.abc import Callable, Sequence
 from dataclasses import replace
 from pathlib import Path
-
-from rich.console import Console
-from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+from typing import TYPE_CHECKING
 
 from crosscheck.cli_parser import parser
 from crosscheck.errors import CrosscheckError
-from crosscheck.judge.baseline import BaselineCorrupt, load_baseline, update_baseline_file
-from crosscheck.judge.result import CaseResult
 from crosscheck.model.budget import Budget, BudgetSettingError, parse_memory
-from crosscheck.model.cases import Case, find_case_files, load_case
-from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.frequencies import checked_frequencies
-from crosscheck.model.netlist import read_netlist_text
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
-from crosscheck.report.outputs import unknown_extensions, verify_format, write_reports
-from crosscheck.report.results_text import report_console
-from crosscheck.report.untrusted import terminal_text
 from crosscheck.vocabulary import same_frequency
+
+if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up time: --version loads none of it)
+    from rich.progress import Progress
+
+    from crosscheck.judge.result import CaseResult
+    from crosscheck.model.cases import Case
 
 # Exit codes (documented in the README).
 EXIT_OK = 0  # every compared quantity within tolerance (or nothing to compare)
@@ -39,7 +34,9 @@ EXIT_DRIFT = 5  # nothing failed, but a result moved from the stored baseline (v
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    args = parser().parse_args(argv)
+    args = parser().parse_args(argv)  # --version and --help end here, before anything below is loaded
+    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only once a command runs
+
     try:
         if args.command == "reduce":
             return _reduce(args)
@@ -135,10 +132,12 @@ def exit_code(verdicts: Sequence[str]) -> int:
 
 def _reduce(args: argparse.Namespace) -> int:
     """One netlist at one port: the equivalents, and both routes compared unless --engine own."""
+    from crosscheck.model.netlist import read_netlist_text  # start-up time: loaded only by the commands that use it
     from crosscheck.report.reduction import (  # start-up time: loaded only by the commands that use it
         print_reduction,
         reduction_document,
     )
+    from crosscheck.report.results_text import report_console  # start-up time: loaded only by the commands that use it
     from crosscheck.run.check import (  # start-up time: loaded only by the commands that use it
         case_from_netlist,
         run_cases,
@@ -197,6 +196,8 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
         print_reduction,
         reduction_document,
     )
+    from crosscheck.report.results_text import report_console  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
 
     points = spice_equivalents(result)
     if points is None:
@@ -226,12 +227,18 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
 
 def _warnings_on_stderr(result: CaseResult) -> None:
     """The case's unacknowledged reading warnings on stderr, for a reduce that ends in an error without a report."""
+    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
+
     for warning in result.open_warnings:
         print(f"crosscheck: warning: {terminal_text(str(warning))}", file=sys.stderr)
 
 
 def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
     """--expect options as expectations; a malformed one is a usage error."""
+    from crosscheck.model.expect_option import (  # start-up time: loaded only by the commands that use it
+        ExpectOptionError,
+        expectations_from_options,
+    )
 
     if not args.expect:
         return ()
@@ -247,6 +254,8 @@ class _AlreadyReported(CrosscheckError):
 
 def _verify(args: argparse.Namespace) -> int:
     """Case files (and netlists named with --port and --freq) through both routes; reports; the exit code."""
+    from crosscheck.report.outputs import unknown_extensions  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
     from crosscheck.run.batch import run_batch  # start-up time: loaded only by the commands that use it
 
     if args.update_baseline and args.baseline is None:
@@ -298,6 +307,11 @@ def _verify(args: argparse.Namespace) -> int:
 
 def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, CrosscheckError]]:
     """Every case file found under the paths, read; a file that cannot be read stays as (path, error)."""
+    from crosscheck.model.cases import (  # start-up time: loaded only by the commands that use it
+        find_case_files,
+        load_case,
+    )
+    from crosscheck.model.netlist import read_netlist_text  # start-up time: loaded only by the commands that use it
     from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
 
     items: list[Case | tuple[str, CrosscheckError]] = []
@@ -366,6 +380,15 @@ def override_header(args: argparse.Namespace) -> str:
 
 def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
     """A progress bar on standard error (only on a terminal), and the callback that advances it."""
+    from rich.console import Console  # start-up time: loaded only by the commands that use it
+    from rich.progress import (  # start-up time: loaded only by the commands that use it
+        BarColumn,
+        MofNCompleteColumn,
+        Progress,
+        TextColumn,
+        TimeRemainingColumn,
+    )
+
     err_console = Console(stderr=True)
     progress = Progress(
         TextColumn("checking"),
@@ -384,6 +407,11 @@ def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
 def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> bool:
     """Every --output (standard output without one) and the terminal summary; True when all were written.
     ``args.format`` becomes the first output's format (``_update_baseline`` reads it)."""
+    from crosscheck.report.outputs import (  # start-up time: loaded only by the commands that use it
+        verify_format,
+        write_reports,
+    )
+
     written = write_reports(args.output or [None], args.format, results, args.detail, override_header(args))
     args.format = verify_format(args.format, (args.output or [None])[0])
     return written
@@ -393,6 +421,7 @@ def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Ca
     """Report (and return True for) any --output that is an input of this run: a case file, a netlist a case
     names, or the --baseline file, compared as resolved paths (links followed), so a report never
     overwrites what it was made from."""
+    from crosscheck.model.cases import Case  # start-up time: loaded only by the commands that use it
     from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
 
     inputs: dict[Path, str] = {}
@@ -424,6 +453,8 @@ def _baseline(args: argparse.Namespace):
 
     Before an update the existing file is read once too, so a corrupt one stops the command before
     the run rather than after it (the update reads it again under the lock)."""
+    from crosscheck.judge.baseline import load_baseline  # start-up time: loaded only by the commands that use it
+
     _baseline_flags(args)
     if args.baseline is None:
         return None
@@ -444,6 +475,8 @@ def _baseline_flags(args: argparse.Namespace) -> None:
 
 def _recoverable(args: argparse.Namespace, read: Callable, *more):
     """``read(*more)``; a corrupt baseline is re-raised naming this run's own case paths in the repair command."""
+    from crosscheck.judge.baseline import BaselineCorrupt  # start-up time: loaded only by the commands that use it
+
     try:
         return read(*more)
     except BaselineCorrupt as exc:
@@ -452,6 +485,8 @@ def _recoverable(args: argparse.Namespace, read: Callable, *more):
 
 def _repair_cases(args: argparse.Namespace) -> str:
     """This run's paths and the options that decide which cases run, quoted for a shell."""
+    import shlex
+
     words = [str(p) for p in args.paths]
     words += ["--port", *args.port] if args.port else []
     words += ["--freq", *args.freq] if args.freq else []
@@ -466,6 +501,8 @@ def _repair_cases(args: argparse.Namespace) -> str:
 def _update_baseline(args: argparse.Namespace, results) -> None:
     """Merge this run into the baseline under its lock and say what changed (to stderr when stdout
     carries a report file format): added, changed, kept, removed (only with --prune)."""
+    from crosscheck.judge.baseline import update_baseline_file  # start-up time: loaded only by the commands that use it
+
     report = _recoverable(
         args,
         lambda: update_baseline_file(results, args.baseline, prune=args.prune, replace_corrupt=args.replace_corrupt),
@@ -483,6 +520,7 @@ def _fuzz(args: argparse.Namespace) -> int:
         fuzz_progress,
         print_summary,
     )
+    from crosscheck.report.results_text import report_console  # start-up time: loaded only by the commands that use it
 
     try:
         knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)

@@ -173,7 +173,7 @@ def _baseline_options(verify: argparse.ArgumentParser) -> None:
 
 
 def _fuzz_parser(sub: Any) -> None:
-    from crosscheck.fuzz.generate import (  # start-up time: loaded only by the commands that use it
+    from crosscheck.fuzz.knobs import (  # start-up time: the fuzz grammar needs the knobs, not the generator
         ALL_KINDS,
         FAMILIES,
         MIXED,
