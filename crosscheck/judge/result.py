@@ -15,7 +15,7 @@ from crosscheck.model.cases import Case
 from crosscheck.model.reading import ReadWarning
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import Equivalent
-from crosscheck.spice.engine import SpiceResult
+from crosscheck.spice.results import SpiceResult
 from crosscheck.vocabulary import Verdict, worst
 
 

@@ -14,11 +14,11 @@ from concurrent.futures import Future
 from contextlib import contextmanager
 from dataclasses import replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crosscheck.errors import CrosscheckError, EngineUnavailableError
-from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import judged
 from crosscheck.judge.result import CaseResult, error_result
 from crosscheck.model.budget import Budget
@@ -29,9 +29,12 @@ from crosscheck.model.network import Network, Port, check_excitation
 from crosscheck.model.reading import Reading
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
-from crosscheck.spice.engine import SpiceResult
-from crosscheck.spice.workers import SpicePool
+from crosscheck.spice.results import SpiceResult
 from crosscheck.vocabulary import Verdict
+
+if TYPE_CHECKING:  # start-up time: an own-route run loads neither the ngspice pool nor the baseline
+    from crosscheck.judge.baseline import Baseline
+    from crosscheck.spice.workers import SpicePool
 
 ENGINES = ("own", "spice", "both")
 
