@@ -229,17 +229,15 @@ def _from_open_port(
     # every node voltage of the test solution is 0 while the 1 A test current flows in branches.
     # Column by column: numpy reduces the middle axis of a (F, n, 2) array about ten times more slowly.
     scales = np.stack([np.abs(xs[:, :, c]).max(axis=1, initial=0.0) for c in range(xs.shape[2])], axis=1)  # (F, 2)
-    return [
-        _equivalent(
-            float(f),
-            complex(volts[i, 0]),
-            complex(volts[i, 1]),
-            float(conds[i]),
-            float(scales[i, 0]),
-            float(scales[i, 1]),
-        )
-        for i, f in enumerate(freqs)
-    ]
+    # Plain Python numbers in one conversion each (numpy scalars one at a time cost more than the solve).
+    rows = zip(
+        np.asarray(freqs, dtype=float).tolist(),
+        volts.tolist(),
+        np.asarray(conds, dtype=float).tolist(),
+        scales.tolist(),
+        strict=True,
+    )
+    return [_equivalent(f, v[0], v[1], c, s[0], s[1]) for f, v, c, s in rows]
 
 
 def _equivalent(f: float, vth: complex, zth: complex, condition: float, v_scale: float, z_scale: float) -> Equivalent:
