@@ -16,6 +16,7 @@ from crosscheck.model.budget import Budget, BudgetSettingError, parse_memory
 from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
+from crosscheck.report.outputs import verify_format  # light: its writers load when a format is asked for
 from crosscheck.vocabulary import same_frequency
 
 if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up time: --version loads none of it)
@@ -407,10 +408,7 @@ def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
 def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> bool:
     """Every --output (standard output without one) and the terminal summary; True when all were written.
     ``args.format`` becomes the first output's format (``_update_baseline`` reads it)."""
-    from crosscheck.report.outputs import (  # start-up time: loaded only by the commands that use it
-        verify_format,
-        write_reports,
-    )
+    from crosscheck.report.outputs import write_reports  # start-up time: loaded only by the commands that use it
 
     written = write_reports(args.output or [None], args.format, results, args.detail, override_header(args))
     args.format = verify_format(args.format, (args.output or [None])[0])
