@@ -37,23 +37,35 @@ class SmallSystem:
     """The MNA equations of one small network as dense A0 and A1 (unknowns numbered as ``MnaSystem`` does:
     nodes, then branch currents in element order, then ties)."""
 
-    def __init__(self, network: Network, ties: Sequence[str] = (), stamps: Stamps = STAMPS):
+    def __init__(
+        self,
+        network: Network,
+        ties: Sequence[str] = (),
+        stamps: Stamps = STAMPS,
+        branch_elements: np.ndarray | None = None,
+    ):
         self.network = network
         self.node_index: dict[str, int] = network.node_index
-        arrays = network.element_arrays
-        branch_elements = arrays.of_kind(BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))
+        if branch_elements is None:
+            branch_elements = _branch_elements(network)
         elements = network.elements
         branches = [elements[i].name for i in np.flatnonzero(branch_elements).tolist()]
         branches += [f"tie:{n}" for n in ties]
         offset = len(self.node_index)
         self.branch_index: dict[str, int] = dict(zip(branches, range(offset, offset + len(branches))))
         self._stamps = stamps
-        rows, cols, a0, a1, n = entries(network, self.node_index, self.branch_index, branch_elements, ties, stamps)
+        plain = type(stamps) is Stamps and not ties  # the correct stamps, no ties: R, C, L, V written directly
+        if plain and network.element_arrays.of_kind(_DIRECT_KINDS).all():
+            rows, cols, a0, a1 = _direct_entries(network, branch_elements, offset)
+            n = offset + len(branches)
+        else:
+            rows, cols, a0, a1, n = entries(network, self.node_index, self.branch_index, branch_elements, ties, stamps)
         self.size = n
         self.nonzeros = len(rows)
-        flat = rows * n + cols
-        self.a0 = np.bincount(flat, weights=a0, minlength=n * n).reshape(n, n)
-        self.a1 = np.bincount(flat, weights=a1, minlength=n * n).reshape(n, n)
+        # Ground is index -1: modulo n + 1 it is the extra last row and column, dropped after summing.
+        flat = (rows % (n + 1)) * (n + 1) + cols % (n + 1)
+        self.a0 = np.bincount(flat, weights=a0, minlength=(n + 1) ** 2).reshape(n + 1, n + 1)[:n, :n]
+        self.a1 = np.bincount(flat, weights=a1, minlength=(n + 1) ** 2).reshape(n + 1, n + 1)[:n, :n]
 
     def source_vector(self) -> np.ndarray:
         """The independent sources' phasors, placed in their KCL or branch rows (as ``MnaSystem``)."""
@@ -128,13 +140,48 @@ class SmallSystem:
 def small_system(network: Network, ties: Sequence[str], stamps: Stamps = STAMPS) -> SmallSystem | None:
     """The dense system of ``network`` when it has at most SMALL_LIMIT unknowns (counted before assembly,
     capacitors stamped as impedances included), else None."""
-    arrays = network.element_arrays
-    unknowns = len(network.node_index) + len(ties)
-    unknowns += int(
-        np.count_nonzero(arrays.of_kind(BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0)))
-    )
+    branch_elements = _branch_elements(network)
+    unknowns = len(network.node_index) + len(ties) + int(np.count_nonzero(branch_elements))
     if stamps.capacitor_as_impedance:
-        unknowns += int(np.count_nonzero(arrays.kind == ord("C")))
+        unknowns += int(np.count_nonzero(network.element_arrays.kind == ord("C")))
     if unknowns > SMALL_LIMIT:
         return None
-    return SmallSystem(network, ties, stamps)
+    return SmallSystem(network, ties, stamps, branch_elements)
+
+
+#: The kinds ``_direct_entries`` writes (every other kind goes through ``assembly.entries``).
+_DIRECT_KINDS = frozenset("RCLV")
+
+
+def _branch_elements(network: Network) -> np.ndarray:
+    """Which elements carry a branch current: V, E, H, L and ideal shorts (R = 0), as ``MnaSystem`` has it."""
+    arrays = network.element_arrays
+    return arrays.of_kind(BRANCH_KINDS) | ((arrays.kind == ord("R")) & (arrays.value == 0.0))
+
+
+def _direct_entries(
+    network: Network, branch_elements: np.ndarray, nodes: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The correct stamps' entries of a network of R, C, L and V only (``assembly._bulk_entries``' stamps,
+    written as one array each: rows, columns, A0 and A1 values; -1 is ground, kept for the caller to drop).
+
+    An admittance y between a and b: +y at (a, a) and (b, b), -y at (a, b) and (b, a). A branch k from a
+    to b (L, V, ideal short): +1 at (a, k) and (k, a), -1 at (b, k) and (k, b); an inductor adds -L at
+    (k, k) in A1 (its row reads V(a) - V(b) - jωL·I = 0).
+    """
+    arrays = network.element_arrays
+    kind, value, a, b = arrays.kind, arrays.value, arrays.a, arrays.b
+    admittance = ~branch_elements  # R (not 0) and C
+    resistor = kind[admittance] == ord("R")
+    ya, yb, yv = a[admittance], b[admittance], value[admittance]
+    y0 = np.where(resistor, 1.0 / np.where(resistor, yv, 1.0), 0.0)
+    y1 = np.where(resistor, 0.0, yv)
+    k = nodes + np.arange(int(np.count_nonzero(branch_elements)))
+    ka, kb = a[branch_elements], b[branch_elements]
+    inductance = np.where(kind[branch_elements] == ord("L"), value[branch_elements], 0.0)
+    ones, zeros_k = np.ones(len(k)), np.zeros(len(k))
+    rows = np.concatenate([ya, yb, ya, yb, ka, kb, k, k, k])
+    cols = np.concatenate([ya, yb, yb, ya, k, k, ka, kb, k])
+    a0 = np.concatenate([y0, y0, -y0, -y0, ones, -ones, ones, -ones, zeros_k])
+    a1 = np.concatenate([y1, y1, -y1, -y1, zeros_k, zeros_k, zeros_k, zeros_k, -inductance])
+    return rows, cols, a0, a1
