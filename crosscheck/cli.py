@@ -17,6 +17,7 @@ from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import verify_format  # light: its writers load when a format is asked for
+from crosscheck.report.untrusted import terminal_text
 from crosscheck.vocabulary import same_frequency
 
 if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up time: --version loads none of it)
@@ -35,9 +36,7 @@ EXIT_DRIFT = 5  # nothing failed, but a result moved from the stored baseline (v
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    args = parser().parse_args(argv)  # --version and --help end here, before anything below is loaded
-    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only once a command runs
-
+    args = parser().parse_args(argv)  # --version and --help end here, before any command's modules load
     try:
         if args.command == "reduce":
             return _reduce(args)
@@ -133,16 +132,10 @@ def exit_code(verdicts: Sequence[str]) -> int:
 
 def _reduce(args: argparse.Namespace) -> int:
     """One netlist at one port: the equivalents, and both routes compared unless --engine own."""
-    from crosscheck.model.netlist import read_netlist_text  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.reduction import (  # start-up time: loaded only by the commands that use it
-        print_reduction,
-        reduction_document,
-    )
-    from crosscheck.report.results_text import report_console  # start-up time: loaded only by the commands that use it
-    from crosscheck.run.check import (  # start-up time: loaded only by the commands that use it
-        case_from_netlist,
-        run_cases,
-    )
+    from crosscheck.model.netlist import read_netlist_text  # start-up time: per command
+    from crosscheck.report.reduction import print_reduction, reduction_document  # start-up time: per command
+    from crosscheck.report.results_text import report_console  # start-up time: per command
+    from crosscheck.run.check import case_from_netlist, run_cases  # start-up time: per command
 
     excitation = args.excitation or "ac"
     sources = args.sources or "peak"
@@ -168,7 +161,7 @@ def _reduce(args: argparse.Namespace) -> int:
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
-        from crosscheck.spice.workers import SpicePool  # start-up time: loaded only by the commands that use it
+        from crosscheck.spice.workers import SpicePool  # start-up time: per command
 
         with SpicePool(workers=1) as pool:
             [result] = run_cases([case], engine=args.engine, pool=pool)
@@ -191,14 +184,10 @@ def _reduce(args: argparse.Namespace) -> int:
 def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, expectations: bool) -> int:
     """`reduce --engine spice`: ngspice's equivalents alone (any --expect values held against them), nothing
     compared; exit 4 when ngspice was unavailable, 3 when it failed on the netlist."""
-    from crosscheck.api import spice_equivalents  # start-up time: loaded only by the commands that use it
-    from crosscheck.judge.case import judged  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.reduction import (  # start-up time: loaded only by the commands that use it
-        print_reduction,
-        reduction_document,
-    )
-    from crosscheck.report.results_text import report_console  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
+    from crosscheck.api import spice_equivalents  # start-up time: per command
+    from crosscheck.judge.case import judged  # start-up time: per command
+    from crosscheck.report.reduction import print_reduction, reduction_document  # start-up time: per command
+    from crosscheck.report.results_text import report_console  # start-up time: per command
 
     points = spice_equivalents(result)
     if points is None:
@@ -228,7 +217,6 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
 
 def _warnings_on_stderr(result: CaseResult) -> None:
     """The case's unacknowledged reading warnings on stderr, for a reduce that ends in an error without a report."""
-    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
 
     for warning in result.open_warnings:
         print(f"crosscheck: warning: {terminal_text(str(warning))}", file=sys.stderr)
@@ -236,7 +224,7 @@ def _warnings_on_stderr(result: CaseResult) -> None:
 
 def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
     """--expect options as expectations; a malformed one is a usage error."""
-    from crosscheck.model.expect_option import (  # start-up time: loaded only by the commands that use it
+    from crosscheck.model.expect_option import (  # start-up time: per command
         ExpectOptionError,
         expectations_from_options,
     )
@@ -255,9 +243,8 @@ class _AlreadyReported(CrosscheckError):
 
 def _verify(args: argparse.Namespace) -> int:
     """Case files (and netlists named with --port and --freq) through both routes; reports; the exit code."""
-    from crosscheck.report.outputs import unknown_extensions  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
-    from crosscheck.run.batch import run_batch  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.outputs import unknown_extensions  # start-up time: per command
+    from crosscheck.run.batch import run_batch  # start-up time: per command
 
     if args.update_baseline and args.baseline is None:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)", file=sys.stderr)
@@ -308,12 +295,9 @@ def _verify(args: argparse.Namespace) -> int:
 
 def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, CrosscheckError]]:
     """Every case file found under the paths, read; a file that cannot be read stays as (path, error)."""
-    from crosscheck.model.cases import (  # start-up time: loaded only by the commands that use it
-        find_case_files,
-        load_case,
-    )
-    from crosscheck.model.netlist import read_netlist_text  # start-up time: loaded only by the commands that use it
-    from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
+    from crosscheck.model.cases import find_case_files, load_case  # start-up time: per command
+    from crosscheck.model.netlist import read_netlist_text  # start-up time: per command
+    from crosscheck.run.check import case_from_netlist  # start-up time: per command
 
     items: list[Case | tuple[str, CrosscheckError]] = []
     netlists = 0
@@ -361,7 +345,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
 
 def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[CaseResult]:
     """The results under --strict (an unacknowledged reading warning makes its case an error), else as they are."""
-    from crosscheck.run.check import held_strictly  # start-up time: loaded only by the commands that use it
+    from crosscheck.run.check import held_strictly  # start-up time: per command
 
     return [held_strictly(r) for r in results] if args.strict else list(results)
 
@@ -381,8 +365,8 @@ def override_header(args: argparse.Namespace) -> str:
 
 def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
     """A progress bar on standard error (only on a terminal), and the callback that advances it."""
-    from rich.console import Console  # start-up time: loaded only by the commands that use it
-    from rich.progress import (  # start-up time: loaded only by the commands that use it
+    from rich.console import Console  # start-up time: per command
+    from rich.progress import (  # start-up time: per command
         BarColumn,
         MofNCompleteColumn,
         Progress,
@@ -408,7 +392,7 @@ def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
 def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> bool:
     """Every --output (standard output without one) and the terminal summary; True when all were written.
     ``args.format`` becomes the first output's format (``_update_baseline`` reads it)."""
-    from crosscheck.report.outputs import write_reports  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.outputs import write_reports  # start-up time: per command
 
     written = write_reports(args.output or [None], args.format, results, args.detail, override_header(args))
     args.format = verify_format(args.format, (args.output or [None])[0])
@@ -419,8 +403,7 @@ def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Ca
     """Report (and return True for) any --output that is an input of this run: a case file, a netlist a case
     names, or the --baseline file, compared as resolved paths (links followed), so a report never
     overwrites what it was made from."""
-    from crosscheck.model.cases import Case  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
+    from crosscheck.model.cases import Case  # start-up time: per command
 
     inputs: dict[Path, str] = {}
     for item in items:
@@ -451,7 +434,7 @@ def _baseline(args: argparse.Namespace):
 
     Before an update the existing file is read once too, so a corrupt one stops the command before
     the run rather than after it (the update reads it again under the lock)."""
-    from crosscheck.judge.baseline import load_baseline  # start-up time: loaded only by the commands that use it
+    from crosscheck.judge.baseline import load_baseline  # start-up time: per command
 
     _baseline_flags(args)
     if args.baseline is None:
@@ -473,7 +456,7 @@ def _baseline_flags(args: argparse.Namespace) -> None:
 
 def _recoverable(args: argparse.Namespace, read: Callable, *more):
     """``read(*more)``; a corrupt baseline is re-raised naming this run's own case paths in the repair command."""
-    from crosscheck.judge.baseline import BaselineCorrupt  # start-up time: loaded only by the commands that use it
+    from crosscheck.judge.baseline import BaselineCorrupt  # start-up time: per command
 
     try:
         return read(*more)
@@ -499,7 +482,7 @@ def _repair_cases(args: argparse.Namespace) -> str:
 def _update_baseline(args: argparse.Namespace, results) -> None:
     """Merge this run into the baseline under its lock and say what changed (to stderr when stdout
     carries a report file format): added, changed, kept, removed (only with --prune)."""
-    from crosscheck.judge.baseline import update_baseline_file  # start-up time: loaded only by the commands that use it
+    from crosscheck.judge.baseline import update_baseline_file  # start-up time: per command
 
     report = _recoverable(
         args,
@@ -511,14 +494,11 @@ def _update_baseline(args: argparse.Namespace, results) -> None:
 
 def _fuzz(args: argparse.Namespace) -> int:
     """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
-    from crosscheck.fuzz.generate import Knobs  # start-up time: loaded only by the commands that use it
-    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: loaded only by the commands that use it
-    from crosscheck.fuzz.reproducer import summary_document  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.fuzz_summary import (  # start-up time: loaded only by the commands that use it
-        fuzz_progress,
-        print_summary,
-    )
-    from crosscheck.report.results_text import report_console  # start-up time: loaded only by the commands that use it
+    from crosscheck.fuzz.generate import Knobs  # start-up time: per command
+    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: per command
+    from crosscheck.fuzz.reproducer import summary_document  # start-up time: per command
+    from crosscheck.report.fuzz_summary import fuzz_progress, print_summary  # start-up time: per command
+    from crosscheck.report.results_text import report_console  # start-up time: per command
 
     try:
         knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)
@@ -538,7 +518,7 @@ def _fuzz(args: argparse.Namespace) -> int:
         if executor is None:
             summary = run_fuzz(options, on_progress=advance)
         else:
-            from crosscheck.fuzz.batch import run_fuzz_batch  # start-up time: loaded only by the commands that use it
+            from crosscheck.fuzz.batch import run_fuzz_batch  # start-up time: per command
 
             summary = run_fuzz_batch(options, executor, on_progress=advance)
     if args.format == "json":
@@ -555,7 +535,7 @@ def _executor(address: str | None):
 
     if address is None:
         return nullcontext(None)
-    from crosscheck.run.batch import cluster_executor  # start-up time: loaded only by the commands that use it
+    from crosscheck.run.batch import cluster_executor  # start-up time: per command
 
     return cluster_executor(address)
 
