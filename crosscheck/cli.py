@@ -17,7 +17,6 @@ from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import verify_format  # light: its writers load when a format is asked for
-from crosscheck.report.untrusted import terminal_text
 from crosscheck.vocabulary import same_frequency
 
 if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up time: --version loads none of it)
@@ -45,10 +44,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         if args.command == "fuzz":
             return _fuzz(args)
     except BudgetSettingError as exc:
-        print(f"crosscheck {args.command}: error: {terminal_text(str(exc))}", file=sys.stderr)
+        print(f"crosscheck {args.command}: error: {_terminal(str(exc))}", file=sys.stderr)
         return EXIT_USAGE
     except (CrosscheckError, _AlreadyReported) as exc:
-        print(f"crosscheck: error: {terminal_text(str(exc))}", file=sys.stderr)
+        print(f"crosscheck: error: {_terminal(str(exc))}", file=sys.stderr)
         return EXIT_ERROR
     except KeyboardInterrupt as interrupt:
         # Ctrl-C: cancel every ngspice pool at once (queued cases dropped, running workers killed), say how
@@ -67,6 +66,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"crosscheck: interrupted: {done}; {cancelled} queued or running case(s) cancelled", file=sys.stderr)
         return 130
     return EXIT_USAGE
+
+
+def _terminal(text: object) -> str:
+    """``report.untrusted.terminal_text``: user text made inert for the terminal (rich's markup loads on use)."""
+    from crosscheck.report.untrusted import terminal_text  # start-up time: not for --version and --help
+
+    return terminal_text(text)
 
 
 def _frequencies(texts: Sequence[str]) -> list[float]:
@@ -195,7 +201,7 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
             _warnings_on_stderr(result)
             raise _AlreadyReported(result.error)
         why = result.spice_note or "ngspice was not run"
-        print(f"crosscheck reduce: ngspice gave no equivalents: {terminal_text(why)}", file=sys.stderr)
+        print(f"crosscheck reduce: ngspice gave no equivalents: {_terminal(why)}", file=sys.stderr)
         return EXIT_UNAVAILABLE
     result = _strict(args, [judged(replace(result, own=points, points=(), error=None), None, compare=False)])[0]
     version = result.spice.ngspice_version if result.spice is not None else ""
@@ -208,9 +214,7 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
         print()
     else:
         console = report_console()
-        console.print(
-            f"Equivalents from ngspice alone ({terminal_text(version)}); not compared with crosscheck's solver."
-        )
+        console.print(f"Equivalents from ngspice alone ({_terminal(version)}); not compared with crosscheck's solver.")
         print_reduction(console, result, False, sources, expectations)
     return exit_code([result.verdict])
 
@@ -219,7 +223,7 @@ def _warnings_on_stderr(result: CaseResult) -> None:
     """The case's unacknowledged reading warnings on stderr, for a reduce that ends in an error without a report."""
 
     for warning in result.open_warnings:
-        print(f"crosscheck: warning: {terminal_text(str(warning))}", file=sys.stderr)
+        print(f"crosscheck: warning: {_terminal(str(warning))}", file=sys.stderr)
 
 
 def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
@@ -268,7 +272,7 @@ def _verify(args: argparse.Namespace) -> int:
         return EXIT_USAGE
     wrong = unknown_extensions(args.format, args.output or ())
     for problem in wrong:
-        print(f"crosscheck verify: error: {terminal_text(problem)}", file=sys.stderr)
+        print(f"crosscheck verify: error: {_terminal(problem)}", file=sys.stderr)
     if wrong:
         return EXIT_USAGE
     baseline = _baseline(args)
@@ -417,7 +421,7 @@ def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Ca
     clashes = [(o, inputs[_resolved(o)]) for o in args.output or () if _resolved(o) in inputs]
     for output, what in clashes:
         print(
-            f"crosscheck verify: error: --output {terminal_text(output)} is {what} of this run; writing the "
+            f"crosscheck verify: error: --output {_terminal(output)} is {what} of this run; writing the "
             "report there would overwrite it. Give --output a different path.",
             file=sys.stderr,
         )
