@@ -43,7 +43,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))  # this script's own fo
 from reference_scale import QUICK_SIZES as SCALE_QUICK_SIZES  # noqa: E402  (after the line above, which finds it)
 from reference_scale import SIZES as SCALE_SIZES  # noqa: E402
 from reference_scale import report_reference_scale  # noqa: E402
-from throughput import report_dask, report_throughput  # noqa: E402
+from startup import report_startup  # noqa: E402
+from throughput import report_dask, report_small_cases, report_throughput  # noqa: E402
 from timing import run_child, section, timed  # noqa: E402
 
 from crosscheck.model.network import Network
@@ -385,6 +386,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     report_growth(rows)
     report_condition_cost(rows)
     report_backends(args.families, [n for n in sizes if n <= 10_000] + ([100_000] if 100_000 in sizes else []))
+    section("start-up (whole process)")
+    report_startup(3 if args.quick else 10)
+    report_small_cases(60 if args.quick else 300)
     local = report_throughput(count, spice_ok)
     report_dask(local, count)
     section("total")

@@ -51,6 +51,13 @@ def report_throughput(count: int, spice_ok: str | None) -> dict:
         run_fuzz(FuzzOptions(count=8, seed=2, shrink=False), pool=pool)
         fuzz = run_fuzz(FuzzOptions(count=count, seed=3, shrink=False), pool=pool)
     print(f"verify, local default (own solver here, ngspice pool of 2): {count / local_s:.0f} cases/s")
+    engine_s = sum(r.spice.elapsed_s for r in local if r.spice is not None)
+    if engine_s > 0:
+        print(
+            f"  beside it, ngspice's own engine time (SpiceResult.elapsed_s, same run): {engine_s / count * 1e3:.2f} ms "
+            f"per case, so ngspice alone on 2 workers would allow {2 * count / engine_s:.0f} cases/s "
+            f"(crosscheck's share of the run: {max(0.0, 1 - engine_s / 2 / local_s):.0%})"
+        )
     same = [r.verdict for r in tasks] == [r.verdict for r in local]
     print(
         f"verify, process pool of 2 whole-case tasks: {count / tasks_s:.0f} cases/s (same verdicts: "
@@ -62,6 +69,31 @@ def report_throughput(count: int, spice_ok: str | None) -> dict:
     )
     print("pools were started before timing; starting one costs ~0.5 s per ngspice worker")
     return {"cases": cases, "local": local, "local_s": local_s}
+
+
+def report_small_cases(count: int = 300, rounds: int = 5) -> float:
+    """The own route's time per small case (2-8 nodes, 3 frequencies, condition included), in-process,
+    each call on a fresh copy of the network (nothing cached); returns seconds per case."""
+    from dataclasses import replace
+
+    from crosscheck.fuzz.generate import case_seed, generate_case
+    from crosscheck.own.equivalent import thevenin
+
+    section(f"small cases, own route in-process ({count} random networks of 2-8 nodes, 3 frequencies)")
+    drafts = [generate_case(case_seed(11, i)) for i in range(count)]
+    freqs = [1e2, 1e3, 1e4]
+
+    def run() -> None:
+        for g in drafts:
+            try:
+                thevenin(replace(g.network), g.port, freqs)
+            except ArithmeticError:  # a singular draw: its diagnosis is part of the cost, as in a run
+                pass
+
+    run()
+    seconds, _ = timed(run, rounds)
+    print(f"own route per small case: {seconds / count * 1e3:.3f} ms (best of {rounds} rounds; equivalents, condition)")
+    return seconds / count
 
 
 def report_dask(local: dict, count: int) -> None:

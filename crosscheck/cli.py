@@ -4,31 +4,26 @@ from __future__ import annotations
 
 import argparse
 import json
-import shlex
 import sys
 from collections.abc import Callable, Sequence
 from dataclasses import replace
 from pathlib import Path
-
-from rich.console import Console
-from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+from typing import TYPE_CHECKING
 
 from crosscheck.cli_parser import parser, spread_spec
 from crosscheck.errors import CrosscheckError
-from crosscheck.judge.baseline import BaselineCorrupt, load_baseline, update_baseline_file
-from crosscheck.judge.result import CaseResult
 from crosscheck.model.budget import Budget, BudgetSettingError, parse_memory
-from crosscheck.model.cases import Case, find_case_files, load_case
-from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.frequencies import checked_frequencies
-from crosscheck.model.netlist import read_netlist_text
-from crosscheck.model.port_spec import MultiportSpec, ports_from_pairs
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
-from crosscheck.report.outputs import unknown_extensions, verify_format, write_reports
-from crosscheck.report.results_text import report_console
-from crosscheck.report.untrusted import terminal_text
+from crosscheck.report.outputs import verify_format  # light: its writers load when a format is asked for
 from crosscheck.vocabulary import same_frequency
+
+if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up time: --version loads none of it)
+    from rich.progress import Progress
+
+    from crosscheck.judge.result import CaseResult
+    from crosscheck.model.cases import Case
 
 # Exit codes (documented in the README).
 EXIT_OK = 0  # every compared quantity within tolerance (or nothing to compare)
@@ -40,7 +35,7 @@ EXIT_DRIFT = 5  # nothing failed, but a result moved from the stored baseline (v
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    args = parser().parse_args(argv)
+    args = parser().parse_args(argv)  # --version and --help end here, before any command's modules load
     try:
         if args.command == "reduce":
             return _reduce(args)
@@ -49,10 +44,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         if args.command == "fuzz":
             return _fuzz(args)
     except BudgetSettingError as exc:
-        print(f"crosscheck {args.command}: error: {terminal_text(str(exc))}", file=sys.stderr)
+        print(f"crosscheck {args.command}: error: {_terminal(str(exc))}", file=sys.stderr)
         return EXIT_USAGE
     except (CrosscheckError, _AlreadyReported) as exc:
-        print(f"crosscheck: error: {terminal_text(str(exc))}", file=sys.stderr)
+        print(f"crosscheck: error: {_terminal(str(exc))}", file=sys.stderr)
         return EXIT_ERROR
     except KeyboardInterrupt as interrupt:
         # Ctrl-C: cancel every ngspice pool at once (queued cases dropped, running workers killed), say how
@@ -71,6 +66,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"crosscheck: interrupted: {done}; {cancelled} queued or running case(s) cancelled", file=sys.stderr)
         return 130
     return EXIT_USAGE
+
+
+def _terminal(text: object) -> str:
+    """``report.untrusted.terminal_text``: user text made inert for the terminal (rich's markup loads on use)."""
+    from crosscheck.report.untrusted import terminal_text  # start-up time: not for --version and --help
+
+    return terminal_text(text)
 
 
 def _frequencies(texts: Sequence[str]) -> list[float]:
@@ -136,14 +138,10 @@ def exit_code(verdicts: Sequence[str]) -> int:
 
 def _reduce(args: argparse.Namespace) -> int:
     """One netlist at one port: the equivalents, and both routes compared unless --engine own."""
-    from crosscheck.report.reduction import (  # start-up time: loaded only by the commands that use it
-        print_reduction,
-        reduction_document,
-    )
-    from crosscheck.run.check import (  # start-up time: loaded only by the commands that use it
-        case_from_netlist,
-        run_cases,
-    )
+    from crosscheck.model.netlist import read_netlist_text  # start-up time: per command
+    from crosscheck.report.reduction import print_reduction, reduction_document  # start-up time: per command
+    from crosscheck.report.results_text import report_console  # start-up time: per command
+    from crosscheck.run.check import case_from_netlist, run_cases  # start-up time: per command
 
     excitation = args.excitation or "ac"
     sources = args.sources or "peak"
@@ -175,11 +173,13 @@ def _reduce(args: argparse.Namespace) -> int:
     )
     case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations, spread=spread_spec(args, None))
     if len(args.port) > 1:  # several ports: voc, Z, isc and Y (``run.multiport``)
+        from crosscheck.model.port_spec import MultiportSpec, ports_from_pairs  # start-up time: per command
+
         case = replace(case, multiport=MultiportSpec(ports_from_pairs(args.port)))
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
-        from crosscheck.spice.workers import SpicePool  # start-up time: loaded only by the commands that use it
+        from crosscheck.spice.workers import SpicePool  # start-up time: per command
 
         with SpicePool(workers=2 if case.spread is not None else 1) as pool:
             [result] = run_cases([case], engine=args.engine, pool=pool)
@@ -209,6 +209,7 @@ def _reduce_multiport(args: argparse.Namespace, result: CaseResult) -> int:
         multiport_reduction_document,
         print_multiport,
     )
+    from crosscheck.report.results_text import report_console  # start-up time: per command
 
     result = _strict(args, [result])[0]
     if args.format == "json":
@@ -224,12 +225,10 @@ def _reduce_multiport(args: argparse.Namespace, result: CaseResult) -> int:
 def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, expectations: bool) -> int:
     """`reduce --engine spice`: ngspice's equivalents alone (any --expect values held against them), nothing
     compared; exit 4 when ngspice was unavailable, 3 when it failed on the netlist."""
-    from crosscheck.api import spice_equivalents  # start-up time: loaded only by the commands that use it
-    from crosscheck.judge.case import judged  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.reduction import (  # start-up time: loaded only by the commands that use it
-        print_reduction,
-        reduction_document,
-    )
+    from crosscheck.api import spice_equivalents  # start-up time: per command
+    from crosscheck.judge.case import judged  # start-up time: per command
+    from crosscheck.report.reduction import print_reduction, reduction_document  # start-up time: per command
+    from crosscheck.report.results_text import report_console  # start-up time: per command
 
     points = spice_equivalents(result)
     if points is None:
@@ -237,7 +236,7 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
             _warnings_on_stderr(result)
             raise _AlreadyReported(result.error)
         why = result.spice_note or "ngspice was not run"
-        print(f"crosscheck reduce: ngspice gave no equivalents: {terminal_text(why)}", file=sys.stderr)
+        print(f"crosscheck reduce: ngspice gave no equivalents: {_terminal(why)}", file=sys.stderr)
         return EXIT_UNAVAILABLE
     result = _strict(args, [judged(replace(result, own=points, points=(), error=None), None, compare=False)])[0]
     version = result.spice.ngspice_version if result.spice is not None else ""
@@ -250,21 +249,24 @@ def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, exp
         print()
     else:
         console = report_console()
-        console.print(
-            f"Equivalents from ngspice alone ({terminal_text(version)}); not compared with crosscheck's solver."
-        )
+        console.print(f"Equivalents from ngspice alone ({_terminal(version)}); not compared with crosscheck's solver.")
         print_reduction(console, result, False, sources, expectations)
     return exit_code([result.verdict])
 
 
 def _warnings_on_stderr(result: CaseResult) -> None:
     """The case's unacknowledged reading warnings on stderr, for a reduce that ends in an error without a report."""
+
     for warning in result.open_warnings:
-        print(f"crosscheck: warning: {terminal_text(str(warning))}", file=sys.stderr)
+        print(f"crosscheck: warning: {_terminal(str(warning))}", file=sys.stderr)
 
 
 def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
     """--expect options as expectations; a malformed one is a usage error."""
+    from crosscheck.model.expect_option import (  # start-up time: per command
+        ExpectOptionError,
+        expectations_from_options,
+    )
 
     if not args.expect:
         return ()
@@ -283,7 +285,8 @@ class _AlreadyReported(CrosscheckError):
 
 def _verify(args: argparse.Namespace) -> int:
     """Case files (and netlists named with --port and --freq) through both routes; reports; the exit code."""
-    from crosscheck.run.batch import run_batch  # start-up time: loaded only by the commands that use it
+    from crosscheck.report.outputs import unknown_extensions  # start-up time: per command
+    from crosscheck.run.batch import run_batch  # start-up time: per command
 
     if args.update_baseline and args.baseline is None:
         print("crosscheck verify: error: --update-baseline needs --baseline FILE (the file to write)", file=sys.stderr)
@@ -307,7 +310,7 @@ def _verify(args: argparse.Namespace) -> int:
         return EXIT_USAGE
     wrong = unknown_extensions(args.format, args.output or ())
     for problem in wrong:
-        print(f"crosscheck verify: error: {terminal_text(problem)}", file=sys.stderr)
+        print(f"crosscheck verify: error: {_terminal(problem)}", file=sys.stderr)
     if wrong:
         return EXIT_USAGE
     baseline = _baseline(args)
@@ -348,17 +351,17 @@ def _touchstone(args: argparse.Namespace, results: Sequence[CaseResult], command
         one_file=command == "reduce",
     )
     for problem in problems:
-        print(f"crosscheck {command}: error: {terminal_text(problem)}", file=sys.stderr)
+        print(f"crosscheck {command}: error: {_terminal(problem)}", file=sys.stderr)
     if written:
-        print(
-            f"Touchstone: {len(written)} file(s) written under {terminal_text(str(args.touchstone))}", file=sys.stderr
-        )
+        print(f"Touchstone: {len(written)} file(s) written under {_terminal(str(args.touchstone))}", file=sys.stderr)
     return not problems
 
 
 def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, CrosscheckError]]:
     """Every case file found under the paths, read; a file that cannot be read stays as (path, error)."""
-    from crosscheck.run.check import case_from_netlist  # start-up time: loaded only by the commands that use it
+    from crosscheck.model.cases import find_case_files, load_case  # start-up time: per command
+    from crosscheck.model.netlist import read_netlist_text  # start-up time: per command
+    from crosscheck.run.check import case_from_netlist  # start-up time: per command
 
     items: list[Case | tuple[str, CrosscheckError]] = []
     netlists = 0
@@ -408,7 +411,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
 
 def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[CaseResult]:
     """The results under --strict (an unacknowledged reading warning makes its case an error), else as they are."""
-    from crosscheck.run.check import held_strictly  # start-up time: loaded only by the commands that use it
+    from crosscheck.run.check import held_strictly  # start-up time: per command
 
     return [held_strictly(r) for r in results] if args.strict else list(results)
 
@@ -433,6 +436,15 @@ def override_header(args: argparse.Namespace) -> str:
 
 def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
     """A progress bar on standard error (only on a terminal), and the callback that advances it."""
+    from rich.console import Console  # start-up time: per command
+    from rich.progress import (  # start-up time: per command
+        BarColumn,
+        MofNCompleteColumn,
+        Progress,
+        TextColumn,
+        TimeRemainingColumn,
+    )
+
     err_console = Console(stderr=True)
     progress = Progress(
         TextColumn("checking"),
@@ -451,6 +463,8 @@ def _progress_bar(total: int) -> tuple[Progress, Callable[[object], None]]:
 def _write_reports(args: argparse.Namespace, results: Sequence[CaseResult]) -> bool:
     """Every --output (standard output without one) and the terminal summary; True when all were written.
     ``args.format`` becomes the first output's format (``_update_baseline`` reads it)."""
+    from crosscheck.report.outputs import write_reports  # start-up time: per command
+
     written = write_reports(args.output or [None], args.format, results, args.detail, override_header(args))
     args.format = verify_format(args.format, (args.output or [None])[0])
     return written
@@ -460,7 +474,7 @@ def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Ca
     """Report (and return True for) any --output that is an input of this run: a case file, a netlist a case
     names, or the --baseline file, compared as resolved paths (links followed), so a report never
     overwrites what it was made from."""
-    from crosscheck.report.untrusted import terminal_text  # start-up time: loaded only by the commands that use it
+    from crosscheck.model.cases import Case  # start-up time: per command
 
     inputs: dict[Path, str] = {}
     for item in items:
@@ -474,7 +488,7 @@ def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Ca
     clashes = [(o, inputs[_resolved(o)]) for o in args.output or () if _resolved(o) in inputs]
     for output, what in clashes:
         print(
-            f"crosscheck verify: error: --output {terminal_text(output)} is {what} of this run; writing the "
+            f"crosscheck verify: error: --output {_terminal(output)} is {what} of this run; writing the "
             "report there would overwrite it. Give --output a different path.",
             file=sys.stderr,
         )
@@ -491,6 +505,8 @@ def _baseline(args: argparse.Namespace):
 
     Before an update the existing file is read once too, so a corrupt one stops the command before
     the run rather than after it (the update reads it again under the lock)."""
+    from crosscheck.judge.baseline import load_baseline  # start-up time: per command
+
     _baseline_flags(args)
     if args.baseline is None:
         return None
@@ -511,6 +527,8 @@ def _baseline_flags(args: argparse.Namespace) -> None:
 
 def _recoverable(args: argparse.Namespace, read: Callable, *more):
     """``read(*more)``; a corrupt baseline is re-raised naming this run's own case paths in the repair command."""
+    from crosscheck.judge.baseline import BaselineCorrupt  # start-up time: per command
+
     try:
         return read(*more)
     except BaselineCorrupt as exc:
@@ -519,6 +537,8 @@ def _recoverable(args: argparse.Namespace, read: Callable, *more):
 
 def _repair_cases(args: argparse.Namespace) -> str:
     """This run's paths and the options that decide which cases run, quoted for a shell."""
+    import shlex
+
     words = [str(p) for p in args.paths]
     words += ["--port", *args.port] if args.port else []
     words += ["--freq", *args.freq] if args.freq else []
@@ -533,6 +553,8 @@ def _repair_cases(args: argparse.Namespace) -> str:
 def _update_baseline(args: argparse.Namespace, results) -> None:
     """Merge this run into the baseline under its lock and say what changed (to stderr when stdout
     carries a report file format): added, changed, kept, removed (only with --prune)."""
+    from crosscheck.judge.baseline import update_baseline_file  # start-up time: per command
+
     report = _recoverable(
         args,
         lambda: update_baseline_file(results, args.baseline, prune=args.prune, replace_corrupt=args.replace_corrupt),
@@ -543,13 +565,11 @@ def _update_baseline(args: argparse.Namespace, results) -> None:
 
 def _fuzz(args: argparse.Namespace) -> int:
     """Random networks through both engines; exit 0 when nothing disagrees beyond what roundoff explains."""
-    from crosscheck.fuzz.generate import Knobs  # start-up time: loaded only by the commands that use it
-    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: loaded only by the commands that use it
-    from crosscheck.fuzz.reproducer import summary_document  # start-up time: loaded only by the commands that use it
-    from crosscheck.report.fuzz_summary import (  # start-up time: loaded only by the commands that use it
-        fuzz_progress,
-        print_summary,
-    )
+    from crosscheck.fuzz.generate import Knobs  # start-up time: per command
+    from crosscheck.fuzz.loop import FuzzOptions, run_fuzz  # start-up time: per command
+    from crosscheck.fuzz.reproducer import summary_document  # start-up time: per command
+    from crosscheck.report.fuzz_summary import fuzz_progress, print_summary  # start-up time: per command
+    from crosscheck.report.results_text import report_console  # start-up time: per command
 
     try:
         knobs = Knobs(min_nodes=args.nodes[0], max_nodes=args.nodes[1], kinds=args.kinds, family=args.family)
@@ -569,7 +589,7 @@ def _fuzz(args: argparse.Namespace) -> int:
         if executor is None:
             summary = run_fuzz(options, on_progress=advance)
         else:
-            from crosscheck.fuzz.batch import run_fuzz_batch  # start-up time: loaded only by the commands that use it
+            from crosscheck.fuzz.batch import run_fuzz_batch  # start-up time: per command
 
             summary = run_fuzz_batch(options, executor, on_progress=advance)
     if args.format == "json":
@@ -586,7 +606,7 @@ def _executor(address: str | None):
 
     if address is None:
         return nullcontext(None)
-    from crosscheck.run.batch import cluster_executor  # start-up time: loaded only by the commands that use it
+    from crosscheck.run.batch import cluster_executor  # start-up time: per command
 
     return cluster_executor(address)
 

@@ -7,13 +7,15 @@ import math
 import sys
 from dataclasses import replace
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.model.frequencies import check_frequency_text, checked_frequency
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.values import parse_number
-from crosscheck.model.vary import MAX_SAMPLES, SpreadError, SpreadSpec, Vary, parse_vary_option
+
+if TYPE_CHECKING:
+    from crosscheck.model.vary import SpreadSpec, Vary
 from crosscheck.report.outputs import VERIFY_FORMATS
 from crosscheck.version import __version__
 
@@ -190,7 +192,7 @@ def _baseline_options(verify: argparse.ArgumentParser) -> None:
 
 
 def _fuzz_parser(sub: Any) -> None:
-    from crosscheck.fuzz.generate import (  # start-up time: loaded only by the commands that use it
+    from crosscheck.fuzz.knobs import (  # start-up time: the fuzz grammar needs the knobs, not the generator
         ALL_KINDS,
         FAMILIES,
         MIXED,
@@ -389,6 +391,8 @@ def _spread_options(p: argparse.ArgumentParser, what: str) -> None:
 
 
 def spread_spec(args: argparse.Namespace, stated: SpreadSpec | None) -> SpreadSpec | None:
+    from crosscheck.model.vary import SpreadSpec  # start-up time: the grammar loads no model
+
     """A case's spread: its own (``stated``, a case file's) with --samples, --seed and --spice-samples in place of
     its numbers when given; a netlist's (``stated`` None) from --vary; None when neither states one."""
     if stated is None:
@@ -400,6 +404,8 @@ def spread_spec(args: argparse.Namespace, stated: SpreadSpec | None) -> SpreadSp
 
 
 def _vary_option(text: str) -> Vary:
+    from crosscheck.model.vary import SpreadError, parse_vary_option  # start-up time: the grammar loads no model
+
     try:
         return parse_vary_option(text)
     except SpreadError as exc:
@@ -408,6 +414,8 @@ def _vary_option(text: str) -> Vary:
 
 def _samples_option(text: str) -> int:
     """--samples, --spice-samples: a whole number from 0 to ``MAX_SAMPLES``."""
+    from crosscheck.model.vary import MAX_SAMPLES  # start-up time: the grammar loads no model
+
     value = _whole(text, f"a whole number from 0 to {MAX_SAMPLES}, e.g. 2000")
     if not 0 <= value <= MAX_SAMPLES:
         raise argparse.ArgumentTypeError(f"{text!r} is outside 0 to {MAX_SAMPLES}; write e.g. 2000")

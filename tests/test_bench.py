@@ -46,6 +46,10 @@ LABELS = (
     "total benchmark time",
     "the SPICE route at scale: power grid",
     "limit per SPICE run: default limits grow with the network",
+    "start-up: whole process, best of 3 runs each",
+    "small reduce (8 nodes, own)",
+    "own route per small case",
+    "ngspice's own engine time",
 )
 
 

@@ -7,8 +7,8 @@ a case is judged the same way whichever door it came in by.
 from __future__ import annotations
 
 from dataclasses import replace
+from typing import TYPE_CHECKING
 
-from crosscheck.judge.baseline import Baseline, compare_with_baseline
 from crosscheck.judge.compare import EngineAnswer, compare_point, spice_answer
 from crosscheck.judge.expectations import check_expectations
 from crosscheck.judge.hazards import assess_network
@@ -18,6 +18,9 @@ from crosscheck.judge.records import ExpectationCheck, LimitCheck, PointCheck
 from crosscheck.judge.result import CaseResult, case_verdict
 from crosscheck.model.network import Network
 from crosscheck.vocabulary import Verdict
+
+if TYPE_CHECKING:  # start-up time: the baseline's reader and writer load only when a baseline is held against a case
+    from crosscheck.judge.baseline import Baseline
 
 
 def judged(
@@ -57,6 +60,8 @@ def with_baseline(result: CaseResult, baseline: Baseline) -> CaseResult:
     """``result`` held against a stored baseline: drift checks added and the verdict made again."""
     if result.own is None or result.error is not None:
         return result
+    from crosscheck.judge.baseline import compare_with_baseline  # start-up time: only with a baseline
+
     drift, note = compare_with_baseline(result, baseline)
     new = replace(result, drift=tuple(drift), baseline_note=note)
     return replace(new, verdict=case_verdict(new))

@@ -28,7 +28,7 @@ import numpy as np
 from crosscheck.judge.records import Cause, PointCheck, QuantityCheck
 from crosscheck.model.tolerance import Tolerance
 from crosscheck.own.equivalent import Equivalent
-from crosscheck.spice.engine import SpicePoint
+from crosscheck.spice.results import SpicePoint
 from crosscheck.vocabulary import COMPARED, Verdict, phasor_of, quantity_unit, relative_error, worst
 
 EPS = float(np.finfo(float).eps)

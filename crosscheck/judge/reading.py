@@ -11,14 +11,17 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 from crosscheck.judge.compare import compare_quantity
 from crosscheck.judge.records import ROUNDOFF_CAUSES, Cause, QuantityCheck, ReadingCheck
 from crosscheck.model.tolerance import Tolerance
 from crosscheck.model.values import format_eng
 from crosscheck.own.equivalent import Equivalent
-from crosscheck.spice.reading import ElementDifference, ReadingAnswer
 from crosscheck.vocabulary import Verdict
+
+if TYPE_CHECKING:  # start-up time: the reading check's deck writer loads only where ngspice runs
+    from crosscheck.spice.reading import ElementDifference, ReadingAnswer
 
 REF_NAME = "ngspice reading the netlist's own lines"
 _UNITS = {"resistance": " Ω", "capacitance": " F", "inductance": " H"}

@@ -8,18 +8,20 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from crosscheck.judge.hazards import Hazard, assess_case
-from crosscheck.judge.multiport import MultiportResult
 from crosscheck.judge.records import DriftCheck, ExpectationCheck, LimitCheck, PointCheck, ReadingCheck
-from crosscheck.judge.spread import SpreadResult
 from crosscheck.model.cases import Case
 from crosscheck.model.reading import ReadWarning
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import Equivalent
-from crosscheck.spice.engine import SpiceResult
+from crosscheck.spice.results import SpiceResult
 from crosscheck.vocabulary import Verdict, worst
+
+if TYPE_CHECKING:  # start-up time: a one-port case loads neither the matrices' nor the spread's judgement
+    from crosscheck.judge.multiport import MultiportResult
+    from crosscheck.judge.spread import SpreadResult
 
 
 @dataclass(frozen=True)

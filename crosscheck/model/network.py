@@ -13,7 +13,7 @@ import math
 from collections import defaultdict
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field, fields, replace
-from functools import cached_property
+from functools import cached_property, lru_cache
 from operator import attrgetter
 from typing import NamedTuple
 
@@ -126,10 +126,26 @@ class ElementArrays(NamedTuple):
 
     def of_kind(self, kinds: Iterable[str]) -> np.ndarray:
         """True for each element whose kind is one of ``kinds`` (letters)."""
-        mask = np.zeros(len(self.kind), dtype=bool)
-        for k in kinds:
-            mask |= self.kind == ord(k)
-        return mask
+        table = _kind_table(frozenset(kinds))
+        if table is None:  # a kind outside ASCII: one comparison per kind
+            mask = np.zeros(len(self.kind), dtype=bool)
+            for k in kinds:
+                mask |= self.kind == ord(k)
+            return mask
+        # One look-up in a table of the ASCII code points (codes past it clip to its last entry, False).
+        return np.take(table, self.kind, mode="clip")
+
+
+@lru_cache(maxsize=64)
+def _kind_table(kinds: frozenset[str]) -> np.ndarray | None:
+    """A table over the ASCII code points (and one more, False, for any code past them): True at ``kinds``;
+    None when a kind is not one ASCII character."""
+    if any(len(k) != 1 or ord(k) >= 128 for k in kinds):
+        return None
+    table = np.zeros(129, dtype=bool)
+    table[[ord(k) for k in kinds]] = True
+    table.flags.writeable = False
+    return table
 
 
 @dataclass(frozen=True)

@@ -37,6 +37,11 @@ MIN_RESISTANCE = 1e-100
 MAX_REACTIVE = 1e100  # the name of the port-independent checks in ``Network._checks_passed``
 
 
+#: Up to this many elements the checks run element by element: at a dozen elements that is ~10x quicker
+#: than the column-wise test's fixed cost of some thirty numpy calls (the two say the same).
+ELEMENT_BY_ELEMENT = 64
+
+
 def validate(network: Network, port: Port | None = None) -> Network:
     """Refuse an ill-posed network with a message that names the element, its line and the fix.
 
@@ -61,6 +66,9 @@ def _fail(e: Element, message: str) -> NetworkError:
 def _check_elements(network: Network) -> None:
     if not network.elements:
         raise NetworkError("the network has no elements; a netlist needs at least one element line")
+    if len(network.elements) <= ELEMENT_BY_ELEMENT:
+        _check_each_element(network)
+        return
     try:
         clean = _elements_look_clean(network)
     except (TypeError, ValueError, AttributeError, IndexError, OverflowError):

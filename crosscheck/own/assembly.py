@@ -16,11 +16,14 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-import scipy.sparse as sp
 
 from crosscheck.model.network import GROUND, Element, Network
+
+if TYPE_CHECKING:  # scipy.sparse is loaded by ``assemble`` only: the small-network path needs numpy alone
+    import scipy.sparse as sp
 
 #: Kinds that carry a branch current (with ideal shorts, R = 0).
 BRANCH_KINDS = frozenset("VEHL")
@@ -83,7 +86,28 @@ def assemble(
     ties: Sequence[str],
     stamps: Stamps = STAMPS,
 ) -> Assembled:
-    """Stamp every element (and the ties of floating parts to ground) into A0 and A1.
+    """Stamp every element (and the ties of floating parts to ground) into A0 and A1 (``entries``), on one
+    sparse pattern."""
+    import scipy.sparse as sp  # start-up time: the small-network path (``own.small``) needs numpy alone
+
+    rows, cols, constant, per_omega, size = entries(network, node_index, branch_index, branch_elements, ties, stamps)
+    # Sum duplicates once, keeping A0 and A1 on one shared pattern.
+    combined = sp.coo_matrix((constant + 1j * per_omega, (rows, cols)), shape=(size, size)).tocsc()
+    combined.sum_duplicates()
+    combined.sort_indices()
+    return Assembled(combined, combined.data.real.copy(), combined.data.imag.copy(), size)
+
+
+def entries(
+    network: Network,
+    node_index: Mapping[str, int],
+    branch_index: Mapping[str, int],
+    branch_elements: np.ndarray,
+    ties: Sequence[str],
+    stamps: Stamps = STAMPS,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, int]:
+    """Every element's entries (and the ties of floating parts to ground): rows, columns, A0 values, A1
+    values (duplicates not yet summed, ground dropped) and the number of unknowns.
 
     ``branch_elements``: the mask of elements that carry a branch current, in element order; their
     rows follow the nodes in that order (``branch_index``).
@@ -100,14 +124,7 @@ def assemble(
     if noted.two_terminal or noted.incidences:
         blocks.append(_noted_entries(noted.two_terminal, noted.incidences))
     rows, cols, constant, per_omega = _joined(blocks)
-    per_omega = stamps.per_omega(per_omega)
-    # Sum duplicates once, keeping A0 and A1 on one shared pattern.
-    combined = sp.coo_matrix(
-        (np.asarray(constant) + 1j * np.asarray(per_omega), (rows, cols)), shape=(noted.size, noted.size)
-    ).tocsc()
-    combined.sum_duplicates()
-    combined.sort_indices()
-    return Assembled(combined, combined.data.real.copy(), combined.data.imag.copy(), noted.size)
+    return rows, cols, constant, np.asarray(stamps.per_omega(per_omega), dtype=float), noted.size
 
 
 class _Noted:

@@ -17,11 +17,12 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crosscheck.errors import SingularNetworkError
-from crosscheck.model.budget import ENTRIES_PER_ELEMENT, NO_DEADLINE, Budget, sweep_bytes
+from crosscheck.model.budget import ENTRIES_PER_ELEMENT, NO_DEADLINE, Budget, Deadline, sweep_bytes
 from crosscheck.model.network import (
     Network,
     Port,
@@ -32,7 +33,10 @@ from crosscheck.model.network import (
     make_element,
 )
 from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps
-from crosscheck.own.solver import DENSE_LIMIT, THREADS_FROM, MnaSystem, default_threads
+from crosscheck.own.small import SmallSystem, small_system
+
+if TYPE_CHECKING:  # the general path's solver (and scipy.sparse) is loaded only when a network needs it
+    from crosscheck.own.solver import MnaSystem
 
 #: |Z_th| below this multiple of eps times the test solution's largest entry is an exact zero. It is
 #: not scaled by the condition number: an ill-conditioned network's small Z_th is still a value (the
@@ -118,9 +122,15 @@ def thevenin(
     if bad.size:
         raise ValueError(f"frequency {bad[0]!r} Hz is not allowed; give finite frequencies >= 0")
     ties = [r] if (r := floating_reference(network, port)) is not None else []
-    deadline = NO_DEADLINE
+    deadline = NO_DEADLINE if budget is None else budget.deadline()
+    small = small_system(network, ties, stamps)
+    if small is not None:
+        solved = _small_sweep(small, port, freqs, budget, deadline)
+        if solved is not None:
+            return solved
+    from crosscheck.own.solver import MnaSystem  # start-up time: scipy.sparse only past the small path
+
     if budget is not None:
-        deadline = budget.deadline()
         _check_memory(network, len(ties), len(freqs), budget)
     system = MnaSystem(network, ties, stamps)
     rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
@@ -135,6 +145,23 @@ def thevenin(
     return _from_open_port(system, port, freqs, xs, conds)
 
 
+def _small_sweep(
+    system: SmallSystem, port: Port, freqs: np.ndarray, budget: Budget | None, deadline: Deadline
+) -> list[Equivalent] | None:
+    """The sweep on the small-network path (``own.small``), its memory held against the budget first;
+    None when it hands the network back to the general path (a singular or near-singular matrix)."""
+    if budget is not None:
+        budget.check_memory(
+            sweep_bytes(system.size, system.nonzeros, len(freqs), 2, dense=True),
+            lambda: f"this sweep ({system.size:,} unknowns, {len(freqs):,} frequencies x 2 right-hand sides)",
+        )
+    rhs = np.stack([system.source_vector(), system.injection_vector(port.a, port.b)], axis=1)
+    solved = system.solve_many(freqs, rhs, deadline)
+    if solved is None:
+        return None
+    return _from_open_port(system, port, freqs, *solved)
+
+
 def _check_memory(network: Network, ties: int, frequencies: int, budget: Budget) -> None:
     """Refuse the sweep before assembly when ``sweep_bytes``' estimate is over the budget's memory.
 
@@ -143,6 +170,8 @@ def _check_memory(network: Network, ties: int, frequencies: int, budget: Budget)
     that bound is over the limit are they counted as ``MnaSystem`` numbers them (nodes, branch elements,
     ideal shorts, ties), so that the refusal is not the coarse bound's doing.
     """
+    from crosscheck.own.solver import DENSE_LIMIT  # start-up time: scipy.sparse only past the small path
+
     if budget.memory_bytes is None:
         return
     nonzeros = ENTRIES_PER_ELEMENT * len(network.elements) + 4 * ties
@@ -165,6 +194,8 @@ def _check_memory(network: Network, ties: int, frequencies: int, budget: Budget)
 def _estimate(unknowns: int, nonzeros: int, frequencies: int, dense: bool) -> int:
     """``sweep_bytes`` for a sweep of the two right-hand sides on the given path, with the threads
     ``solve_many`` will use."""
+    from crosscheck.own.solver import THREADS_FROM, default_threads  # start-up time: see thevenin
+
     threads = default_threads() if unknowns >= THREADS_FROM else 1
     return sweep_bytes(unknowns, nonzeros, frequencies, 2, dense=dense, threads=threads)
 
@@ -181,12 +212,12 @@ def _one_frequency(
     return _from_open_port(system, port, [f], fac.solve(rhs)[None], [fac.condition])[0]
 
 
-def _port_voltage(system: MnaSystem, x: np.ndarray, port: Port) -> np.ndarray:
+def _port_voltage(system: MnaSystem | SmallSystem, x: np.ndarray, port: Port) -> np.ndarray:
     return np.asarray(system.voltage(x, port.a)) - np.asarray(system.voltage(x, port.b))
 
 
 def _from_open_port(
-    system: MnaSystem,
+    system: MnaSystem | SmallSystem,
     port: Port,
     freqs: Sequence[float] | np.ndarray,
     xs: np.ndarray,
@@ -198,17 +229,15 @@ def _from_open_port(
     # every node voltage of the test solution is 0 while the 1 A test current flows in branches.
     # Column by column: numpy reduces the middle axis of a (F, n, 2) array about ten times more slowly.
     scales = np.stack([np.abs(xs[:, :, c]).max(axis=1, initial=0.0) for c in range(xs.shape[2])], axis=1)  # (F, 2)
-    return [
-        _equivalent(
-            float(f),
-            complex(volts[i, 0]),
-            complex(volts[i, 1]),
-            float(conds[i]),
-            float(scales[i, 0]),
-            float(scales[i, 1]),
-        )
-        for i, f in enumerate(freqs)
-    ]
+    # Plain Python numbers in one conversion each (numpy scalars one at a time cost more than the solve).
+    rows = zip(
+        np.asarray(freqs, dtype=float).tolist(),
+        volts.tolist(),
+        np.asarray(conds, dtype=float).tolist(),
+        scales.tolist(),
+        strict=True,
+    )
+    return [_equivalent(f, v[0], v[1], c, s[0], s[1]) for f, v, c, s in rows]
 
 
 def _equivalent(f: float, vth: complex, zth: complex, condition: float, v_scale: float, z_scale: float) -> Equivalent:
@@ -232,6 +261,8 @@ def _from_shorted_port(
     network: Network, port: Port, f: float, ties: list[str], open_error: SingularNetworkError, stamps: Stamps
 ) -> Equivalent:
     """Short the port with a 0 V branch: its current is I_N; a 1 V test on it gives Y_N."""
+    from crosscheck.own.solver import MnaSystem  # start-up time: scipy.sparse only past the small path
+
     short = make_element("vport:short", "V", port)
     shorted = network.with_elements(network.elements + (short,))
     system = MnaSystem(shorted, ties, stamps)

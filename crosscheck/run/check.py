@@ -14,11 +14,11 @@ from concurrent.futures import Future
 from contextlib import contextmanager
 from dataclasses import replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crosscheck.errors import CrosscheckError, EngineUnavailableError, NetworkError
-from crosscheck.judge.baseline import Baseline
 from crosscheck.judge.case import judged
 from crosscheck.judge.result import CaseResult, error_result
 from crosscheck.model.budget import Budget
@@ -29,11 +29,12 @@ from crosscheck.model.network import Network, Port, check_excitation
 from crosscheck.model.reading import Reading
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
-from crosscheck.run.multiport import finish_multiport
-from crosscheck.run.spread import with_spread
-from crosscheck.spice.engine import SpiceResult
-from crosscheck.spice.workers import SpicePool
+from crosscheck.spice.results import SpiceResult
 from crosscheck.vocabulary import Verdict
+
+if TYPE_CHECKING:  # start-up time: an own-route run loads neither the ngspice pool nor the baseline
+    from crosscheck.judge.baseline import Baseline
+    from crosscheck.spice.workers import SpicePool
 
 ENGINES = ("own", "spice", "both")
 
@@ -174,6 +175,8 @@ def _finish(
 ) -> CaseResult:
     """Both routes' answers for one case, then its judgement (and its spread's, when it states one)."""
     if head.case is not None and head.case.multiport is not None:
+        from crosscheck.run.multiport import finish_multiport  # start-up time: only for a multi-port case
+
         return finish_multiport(head, head.case.multiport, network, future, engine, budget)
     started = time.perf_counter()
     own, error = None, None
@@ -212,7 +215,12 @@ def _finish(
         elapsed_spice_s=spice.elapsed_s if spice is not None else 0.0,
     )
     with quiet_numpy():
-        return with_spread(judged(result, network, compare=engine != "own", baseline=baseline), network, pool, engine)
+        result = judged(result, network, compare=engine != "own", baseline=baseline)
+        if result.case is None or result.case.spread is None:
+            return result
+        from crosscheck.run.spread import with_spread  # start-up time: only for a case with a spread
+
+        return with_spread(result, network, pool, engine)
 
 
 def case_from_netlist(
