@@ -10,14 +10,31 @@ from dataclasses import replace
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from crosscheck.cli_common import (
+    EXIT_DRIFT,
+    EXIT_ERROR,
+    EXIT_FAIL,
+    EXIT_OK,
+    EXIT_UNAVAILABLE,
+    EXIT_USAGE,
+    AlreadyReported,
+    UsageError,
+    budget_from_options,
+    excitation_frequencies,
+    exit_code,
+    strict,
+    terminal,
+    tolerance_from_options,
+    touchstone,
+)
 from crosscheck.cli_parser import parser, spread_spec
+from crosscheck.cli_reduce import reduce
 from crosscheck.errors import CrosscheckError
-from crosscheck.model.budget import Budget, BudgetSettingError, parse_memory
-from crosscheck.model.frequencies import checked_frequencies
-from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
-from crosscheck.model.values import parse_number
+from crosscheck.model.budget import BudgetSettingError
 from crosscheck.report.outputs import verify_format  # light: its writers load when a format is asked for
-from crosscheck.vocabulary import same_frequency
+
+#: The command line's public names: ``main`` and the exit codes (documented in the README), kept here for callers.
+__all__ = ["EXIT_DRIFT", "EXIT_ERROR", "EXIT_FAIL", "EXIT_OK", "EXIT_UNAVAILABLE", "EXIT_USAGE", "exit_code", "main"]
 
 if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up time: --version loads none of it)
     from rich.progress import Progress
@@ -25,29 +42,21 @@ if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up ti
     from crosscheck.judge.result import CaseResult
     from crosscheck.model.cases import Case
 
-# Exit codes (documented in the README).
-EXIT_OK = 0  # every compared quantity within tolerance (or nothing to compare)
-EXIT_FAIL = 1  # some quantity outside tolerance, or a design limit or expectation not met
-EXIT_USAGE = 2  # the command line itself is wrong (argparse's own code)
-EXIT_ERROR = 3  # invalid input (netlist, case file), an engine crashed on a case, or (--strict) a reading warning
-EXIT_UNAVAILABLE = 4  # nothing failed, but an engine could not produce some quantity
-EXIT_DRIFT = 5  # nothing failed, but a result moved from the stored baseline (verify --baseline)
-
 
 def main(argv: Sequence[str] | None = None) -> int:
     args = parser().parse_args(argv)  # --version and --help end here, before any command's modules load
     try:
         if args.command == "reduce":
-            return _reduce(args)
+            return reduce(args)
         if args.command == "verify":
             return _verify(args)
         if args.command == "fuzz":
             return _fuzz(args)
     except BudgetSettingError as exc:
-        print(f"crosscheck {args.command}: error: {_terminal(str(exc))}", file=sys.stderr)
+        print(f"crosscheck {args.command}: error: {terminal(str(exc))}", file=sys.stderr)
         return EXIT_USAGE
-    except (CrosscheckError, _AlreadyReported) as exc:
-        print(f"crosscheck: error: {_terminal(str(exc))}", file=sys.stderr)
+    except (CrosscheckError, AlreadyReported) as exc:
+        print(f"crosscheck: error: {terminal(str(exc))}", file=sys.stderr)
         return EXIT_ERROR
     except KeyboardInterrupt as interrupt:
         # Ctrl-C: cancel every ngspice pool at once (queued cases dropped, running workers killed), say how
@@ -68,221 +77,6 @@ def main(argv: Sequence[str] | None = None) -> int:
     return EXIT_USAGE
 
 
-def _terminal(text: object) -> str:
-    """``report.untrusted.terminal_text``: user text made inert for the terminal (rich's markup loads on use)."""
-    from crosscheck.report.untrusted import terminal_text  # start-up time: not for --version and --help
-
-    return terminal_text(text)
-
-
-def _frequencies(texts: Sequence[str]) -> list[float]:
-    """--freq values in the order given (engineering numbers; finite and >= 0)."""
-    return list(checked_frequencies((parse_number(t) for t in texts), where="--freq"))
-
-
-def _excitation_frequencies(texts: Sequence[str] | None, excitation: str) -> list[float]:
-    """--freq under --excitation: required under ac; under dc absent means 0 Hz and any other is a usage error."""
-    if excitation == "dc":
-        freqs = _frequencies(texts) if texts else [0.0]
-        other = [t for t, f in zip(texts or (), freqs, strict=False) if f != 0]
-        if other:
-            raise _UsageError(
-                f"--excitation dc with --freq {other[0]}: a DC network is solved at 0 Hz only; "
-                "leave --freq out (or write --freq 0), or use --excitation ac for that frequency"
-            )
-        return freqs
-    if not texts:
-        raise _UsageError("--freq F ... is required (frequencies in Hz), unless --excitation dc (0 Hz)")
-    return _frequencies(texts)
-
-
-def _budget(args: argparse.Namespace) -> Budget:
-    """--timeout and --memory as the time and memory each route may take per case (a usage error if unusable)."""
-    return Budget(time_s=args.timeout, memory_bytes=parse_memory(args.memory))
-
-
-def _tolerance(args: argparse.Namespace) -> Tolerance:
-    """--rel as the solver-vs-SPICE tolerance (the default when not given)."""
-    if args.rel is None:
-        return SOLVER_VS_SPICE
-    return Tolerance(rel=args.rel, abs=SOLVER_VS_SPICE.abs)
-
-
-def _expect_tolerance(args: argparse.Namespace) -> Tolerance:
-    """--expect-rel and --expect-phase as the hand values' tolerance (three significant figures by default)."""
-    rel = HAND_CALCULATION.rel if args.expect_rel is None else args.expect_rel
-    phase = {None: HAND_CALCULATION.phase_deg, "none": None}.get(args.expect_phase, args.expect_phase)
-    try:
-        return Tolerance(rel=rel, abs=HAND_CALCULATION.abs, phase_deg=phase)
-    except ValueError as exc:
-        raise _UsageError(f"--expect-rel: {exc}") from None
-
-
-class _UsageError(CrosscheckError, ValueError):
-    """A command-line value that cannot be used; reported as a usage error (exit 2)."""
-
-
-def exit_code(verdicts: Sequence[str]) -> int:
-    """0 all pass; 1 any fail; 3 any error; 5 drift from the baseline (no fail or error); 4 only
-    unavailable beside passes."""
-    if "error" in verdicts:
-        return EXIT_ERROR
-    if "fail" in verdicts:
-        return EXIT_FAIL
-    if "drift" in verdicts:
-        return EXIT_DRIFT
-    if "unavailable" in verdicts:
-        return EXIT_UNAVAILABLE
-    return EXIT_OK
-
-
-def _reduce(args: argparse.Namespace) -> int:
-    """One netlist at one port: the equivalents, and both routes compared unless --engine own."""
-    from crosscheck.model.netlist import read_netlist_text  # start-up time: per command
-    from crosscheck.report.reduction import print_reduction, reduction_document  # start-up time: per command
-    from crosscheck.report.results_text import report_console  # start-up time: per command
-    from crosscheck.run.check import case_from_netlist, run_cases  # start-up time: per command
-
-    excitation = args.excitation or "ac"
-    sources = args.sources or "peak"
-    try:
-        freqs = _excitation_frequencies(args.freq, excitation)
-        expectations = _expectations(args, freqs)
-        if len(args.port) > 1 and args.vary:
-            raise _UsageError("--vary is computed at one port; give one --port, or reduce each port on its own")
-    except _UsageError as exc:
-        print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
-        return EXIT_USAGE
-    if args.touchstone is not None and args.engine == "spice":
-        print(
-            "crosscheck reduce: error: --touchstone writes the own route's matrices; use --engine own or both",
-            file=sys.stderr,
-        )
-        return EXIT_USAGE
-    extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
-    case = case_from_netlist(
-        str(args.netlist),
-        read_netlist_text(args.netlist),
-        tuple(args.port[0]),
-        freqs,
-        _tolerance(args),
-        args.allow_negative,
-        sources,
-        args.accept_warning,
-        excitation,
-    )
-    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations, spread=spread_spec(args, None))
-    if len(args.port) > 1:  # several ports: voc, Z, isc and Y (``run.multiport``)
-        from crosscheck.model.port_spec import MultiportSpec, ports_from_pairs  # start-up time: per command
-
-        case = replace(case, multiport=MultiportSpec(ports_from_pairs(args.port)))
-    if args.engine == "own":
-        [result] = run_cases([case], engine="own")
-    else:
-        from crosscheck.spice.workers import SpicePool  # start-up time: per command
-
-        with SpicePool(workers=2 if case.spread is not None else 1) as pool:
-            [result] = run_cases([case], engine=args.engine, pool=pool)
-    if result.multiport is not None:
-        return _reduce_multiport(args, result)
-    if args.engine == "spice":
-        return _spice_alone(args, result, sources, bool(expectations))
-    result = _strict(args, [result])[0]
-    if result.error and result.own is None:
-        _warnings_on_stderr(result)
-        raise _AlreadyReported(result.error)
-    compared = args.engine != "own"
-    if args.format == "json":
-        doc = reduction_document(result, compared, sources, str(args.netlist), bool(expectations))
-        json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
-        print()
-    else:
-        print_reduction(report_console(), result, compared, sources, bool(expectations))
-    if not _touchstone(args, [result], "reduce"):
-        return EXIT_ERROR
-    return exit_code([result.verdict])
-
-
-def _reduce_multiport(args: argparse.Namespace, result: CaseResult) -> int:
-    """`reduce` with several --port: the matrices per frequency (both routes unless --engine own)."""
-    from crosscheck.report.multiport_reduction import (  # start-up time: loaded only by the commands that use it
-        multiport_reduction_document,
-        print_multiport,
-    )
-    from crosscheck.report.results_text import report_console  # start-up time: per command
-
-    result = _strict(args, [result])[0]
-    if args.format == "json":
-        json.dump(multiport_reduction_document(result, str(args.netlist)), sys.stdout, indent=2, ensure_ascii=False)
-        print()
-    else:
-        print_multiport(report_console(), result)
-    if not _touchstone(args, [result], "reduce"):
-        return EXIT_ERROR
-    return exit_code([result.verdict])
-
-
-def _spice_alone(args: argparse.Namespace, result: CaseResult, sources: str, expectations: bool) -> int:
-    """`reduce --engine spice`: ngspice's equivalents alone (any --expect values held against them), nothing
-    compared; exit 4 when ngspice was unavailable, 3 when it failed on the netlist."""
-    from crosscheck.api import spice_equivalents  # start-up time: per command
-    from crosscheck.judge.case import judged  # start-up time: per command
-    from crosscheck.report.reduction import print_reduction, reduction_document  # start-up time: per command
-    from crosscheck.report.results_text import report_console  # start-up time: per command
-
-    points = spice_equivalents(result)
-    if points is None:
-        if result.error and not result.error.startswith("own solver:"):  # the own route's trouble is not asked about
-            _warnings_on_stderr(result)
-            raise _AlreadyReported(result.error)
-        why = result.spice_note or "ngspice was not run"
-        print(f"crosscheck reduce: ngspice gave no equivalents: {_terminal(why)}", file=sys.stderr)
-        return EXIT_UNAVAILABLE
-    result = _strict(args, [judged(replace(result, own=points, points=(), error=None), None, compare=False)])[0]
-    version = result.spice.ngspice_version if result.spice is not None else ""
-    if args.format == "json":
-        doc = reduction_document(result, False, sources, str(args.netlist), expectations)
-        doc.update(engine="ngspice", ngspice_version=version)
-        for point in doc["points"]:
-            point["ngspice"] = dict(point.pop("own"), condition=None)  # ngspice reports no matrix condition
-        json.dump(doc, sys.stdout, indent=2, ensure_ascii=False)
-        print()
-    else:
-        console = report_console()
-        console.print(f"Equivalents from ngspice alone ({_terminal(version)}); not compared with crosscheck's solver.")
-        print_reduction(console, result, False, sources, expectations)
-    return exit_code([result.verdict])
-
-
-def _warnings_on_stderr(result: CaseResult) -> None:
-    """The case's unacknowledged reading warnings on stderr, for a reduce that ends in an error without a report."""
-
-    for warning in result.open_warnings:
-        print(f"crosscheck: warning: {_terminal(str(warning))}", file=sys.stderr)
-
-
-def _expectations(args: argparse.Namespace, freqs: Sequence[float]) -> tuple:
-    """--expect options as expectations; a malformed one is a usage error."""
-    from crosscheck.model.expect_option import (  # start-up time: per command
-        ExpectOptionError,
-        expectations_from_options,
-    )
-
-    if not args.expect:
-        return ()
-    if len(args.port) > 1:
-        raise _UsageError("--expect takes one-port values (vth, zth ...); with several --port state z11, voc1 ... in "
-                          "a case file's [[expect]]")  # fmt: skip
-    try:
-        return expectations_from_options(args.expect, freqs, _expect_tolerance(args))
-    except ExpectOptionError as exc:
-        raise _UsageError(str(exc)) from None
-
-
-class _AlreadyReported(CrosscheckError):
-    """An error already put in words by the case result; the command line prints it as it is."""
-
-
 def _verify(args: argparse.Namespace) -> int:
     """Case files (and netlists named with --port and --freq) through both routes; reports; the exit code."""
     from crosscheck.report.outputs import unknown_extensions  # start-up time: per command
@@ -298,11 +92,11 @@ def _verify(args: argparse.Namespace) -> int:
             file=sys.stderr,
         )
         return EXIT_USAGE
-    budget = _budget(args)  # a usable limit, or a usage error before any work
+    budget = budget_from_options(args)  # a usable limit, or a usage error before any work
     try:
         if args.excitation == "dc" and args.freq:
-            _excitation_frequencies(args.freq, "dc")  # a frequency other than 0 under dc: a usage error
-    except _UsageError as exc:
+            excitation_frequencies(args.freq, "dc")  # a frequency other than 0 under dc: a usage error
+    except UsageError as exc:
         print(f"crosscheck verify: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
     items = _verify_items(args)
@@ -310,7 +104,7 @@ def _verify(args: argparse.Namespace) -> int:
         return EXIT_USAGE
     wrong = unknown_extensions(args.format, args.output or ())
     for problem in wrong:
-        print(f"crosscheck verify: error: {_terminal(problem)}", file=sys.stderr)
+        print(f"crosscheck verify: error: {terminal(problem)}", file=sys.stderr)
     if wrong:
         return EXIT_USAGE
     baseline = _baseline(args)
@@ -325,36 +119,14 @@ def _verify(args: argparse.Namespace) -> int:
         with progress, _executor(args.cluster) as executor:
             results = run_batch(items, executor, workers=args.workers, budget=budget, on_done=done, baseline=baseline)
     except KeyboardInterrupt as interrupt:  # keep what finished: its reports are written, main says how many
-        _write_reports(args, _strict(args, finished))
+        _write_reports(args, strict(args, finished))
         interrupt.finished = finished  # type: ignore[attr-defined]
         raise
-    results = _strict(args, results)
-    written = _write_reports(args, results) and _touchstone(args, results, "verify")
+    results = strict(args, results)
+    written = _write_reports(args, results) and touchstone(args, results, "verify")
     if args.update_baseline:
         _update_baseline(args, results)
     return exit_code([r.verdict for r in results]) if written else EXIT_ERROR
-
-
-def _touchstone(args: argparse.Namespace, results: Sequence[CaseResult], command: str) -> bool:
-    """``--touchstone``: write the files (report/touchstone.py); False, with the reasons on stderr, when one
-    could not be written."""
-    if args.touchstone is None:
-        return True
-    from crosscheck.report.touchstone import export_cases  # start-up time: loaded only when asked for
-
-    written, problems = export_cases(
-        args.touchstone,
-        results,
-        args.touchstone_kind,
-        args.touchstone_z0,
-        args.touchstone_version,
-        one_file=command == "reduce",
-    )
-    for problem in problems:
-        print(f"crosscheck {command}: error: {_terminal(problem)}", file=sys.stderr)
-    if written:
-        print(f"Touchstone: {len(written)} file(s) written under {_terminal(str(args.touchstone))}", file=sys.stderr)
-    return not problems
 
 
 def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, CrosscheckError]]:
@@ -379,8 +151,8 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
                     str(path),
                     read_netlist_text(path),
                     tuple(args.port),
-                    _excitation_frequencies(args.freq, excitation),
-                    _tolerance(args),
+                    excitation_frequencies(args.freq, excitation),
+                    tolerance_from_options(args),
                     args.allow_negative,
                     args.sources or "peak",
                     args.accept_warning,
@@ -407,13 +179,6 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
             file=sys.stderr,
         )
     return items
-
-
-def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[CaseResult]:
-    """The results under --strict (an unacknowledged reading warning makes its case an error), else as they are."""
-    from crosscheck.run.check import held_strictly  # start-up time: per command
-
-    return [held_strictly(r) for r in results] if args.strict else list(results)
 
 
 def _overridden(case: Case, args: argparse.Namespace) -> Case:
@@ -488,7 +253,7 @@ def _refuse_outputs_that_are_inputs(args: argparse.Namespace, items: Sequence[Ca
     clashes = [(o, inputs[_resolved(o)]) for o in args.output or () if _resolved(o) in inputs]
     for output, what in clashes:
         print(
-            f"crosscheck verify: error: --output {_terminal(output)} is {what} of this run; writing the "
+            f"crosscheck verify: error: --output {terminal(output)} is {what} of this run; writing the "
             "report there would overwrite it. Give --output a different path.",
             file=sys.stderr,
         )

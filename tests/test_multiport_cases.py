@@ -228,3 +228,20 @@ def test_multiport_deck_carries_no_user_names() -> None:
         assert word not in lowered, word
     assert deck.text.count("ITEST") == 2 and deck.text.count("VPORT") == 2 and deck.text.endswith(".end\n")
     assert len({v for vs in wanted.values() for v in vs if v != "0"}) == 2 * 3 + 2  # 2 port nodes x 3 runs + shorts
+
+
+def test_spread_over_several_ports_is_refused_in_a_case_file(tmp_path: Path) -> None:
+    body = 'ports = [["a", "0"], ["b", "0"]]\n[[vary]]\nparts = ["R*"]\ntol = "1%"\n'
+    with pytest.raises(CaseFileError) as caught:
+        load_case(_case(tmp_path, body))
+    assert "vary" in str(caught.value) and "one port" in str(caught.value)
+
+
+def test_spread_over_several_ports_is_refused_on_the_command_line(tmp_path: Path, capsys) -> None:
+    from crosscheck.cli import EXIT_USAGE, main
+
+    netlist = tmp_path / "two.cir"
+    netlist.write_text("two ports\nV1 a 0 AC 1\nR1 a b 1k\nR2 b 0 1k\n", encoding="utf-8")
+    code = main(["reduce", str(netlist), "--port", "a", "0", "--port", "b", "0", "--freq", "1k", "--vary", "R*=1%"])
+    assert code == EXIT_USAGE
+    assert "--vary is computed at one port" in capsys.readouterr().err
