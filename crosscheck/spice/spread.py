@@ -23,6 +23,12 @@ that h² term, leaving O(h⁴). The own sensitivity is compared with D*; ``diffe
 four times the truncation estimate of D(h) (a generous bound on D*'s error, itself first-order) plus twice
 the rounding bound δ/h (D* carries at most 1.5 times D(h)'s), plus 1e-6 of |D| and 1e-9. A part on a sharp
 resonance thus gets a wide tolerance, which every report states (``allowed``), not a false fail.
+
+δ is measured too, where it can be: 1e3·κ·ε is a normwise bound, and an unscaled κ (picofarads beside
+megohms) makes it absurd for one port quantity (a 1e11 κ gave an allowance of 31 for a sensitivity of 1,
+a check that could not fail). ngspice's own error in that quantity at nominal values, |q_spice − q_own| /
+|q_own|, is a direct measurement of the error each answer carries; δ is ten times that (a margin for the
+four moved runs), at least 1e-12, and never more than the normwise bound.
 """
 
 from __future__ import annotations
@@ -195,9 +201,11 @@ def central_differences(
     freqs: Sequence[float],
     conditions: Sequence[float],
     step_rel: float = STEP_REL,
+    own: OwnSpread | None = None,
 ) -> list[Difference]:
     """The sensitivities from ``difference_sets``' answers; ``conditions`` (the own route's κ per frequency)
-    size the rounding bound. A part or frequency without all five answers is left out."""
+    bound the rounding, and ``own``'s nominal values measure it (module docstring). A part or frequency
+    without all five answers is left out."""
     by_label = {a.value_set.label: a for a in answers}
     names = dict.fromkeys(a.value_set.label.split(":")[1] for a in answers if a.value_set.label.startswith("d:"))
     out = []
@@ -205,13 +213,25 @@ def central_differences(
         runs = [by_label.get(f"d:{name}:{k}") for k in (1, -1, 2, -2)]
         for i, f in enumerate(freqs):
             points = [nominal.point(i)] + [r.point(i) if r is not None else None for r in runs]
-            delta = _GROWTH * conditions[i] * _EPS if math.isfinite(conditions[i]) else math.inf
+            bound = _GROWTH * conditions[i] * _EPS if math.isfinite(conditions[i]) else math.inf
             for q in _QUANTITIES:
                 values = [getattr(p, "isc" if q == "in" else q) if p is not None else None for p in points]
                 if any(v is None or not _finite(v) for v in values) or values[0] == 0:
                     continue
+                delta = min(bound, _measured_error(own, i, q, values[0]))
                 out.append(_difference(name, f, q, values, step_rel, delta))
     return out
+
+
+def _measured_error(own: OwnSpread | None, index: int, q: str, spice_nominal: complex) -> float:
+    """Ten times ngspice's relative error in ``q`` at nominal values against the own route's, at least 1e-12;
+    infinite (no measurement: the normwise bound stands) without the own route's nominal value."""
+    if own is None or index >= len(own.points):
+        return math.inf
+    spread = getattr(own.points[index], "in_" if q == "in" else q)
+    if spread is None or spread.nominal == 0 or not _finite(spread.nominal):
+        return math.inf
+    return max(10.0 * abs(spice_nominal - spread.nominal) / abs(spread.nominal), 1e-12)
 
 
 def _finite(z: complex) -> bool:
@@ -278,5 +298,5 @@ def spice_spread(
             f"ngspice checked the sensitivities of the {len(names)} most sensitive part(s); {unchecked} other(s) "
             "were not checked by central differences"
         )
-    differences = central_differences(nominal, diff_answers, freqs, conditions) if nominal.result else []
+    differences = central_differences(nominal, diff_answers, freqs, conditions, own=own) if nominal.result else []
     return SpiceSpread(nominal, tuple(corner_answers), tuple(sample_answers), tuple(differences), names, tuple(notes))
