@@ -5,7 +5,9 @@ bars, one per named thing, largest first, and histograms with dashed limit lines
 (``Bars``, ``Histogram``); ``grid_svg`` lays panels out in rows of equal cells and returns one SVG document,
 the same bytes for the same panels. Labels and titles may be user text (part names, a case title): they
 reach the SVG only through ``svg_chart``'s text element, which passes them through ``untrusted.svg_text``.
-Each histogram bin carries its count as ``data-count``, so a reader (or a test) can recount the samples.
+Each panel is a ``<g data-panel="bars|histogram">``; a bar carries its value as ``data-value``, a histogram
+bin its count as ``data-count`` and a limit line its bound as ``data-limit``, so a reader (or a test) can
+read the numbers back.
 """
 
 from __future__ import annotations
@@ -176,11 +178,13 @@ def grid_svg(title: str, rows: list[list[Bars | Histogram]]) -> str:
         cell = WIDTH / max(len(row), 1)
         for k, panel in enumerate(row):
             left = k * cell
-            body.append(_text(left + cell / 2, top + 14, _cut(panel.title, 48), 11, "middle"))
-            if isinstance(panel, Bars):
-                body += _bars(panel, left, top + _TITLE, cell)
-            else:
-                body += _histogram(panel, left, top + _TITLE, cell)
+            kind, drawn = (
+                ("bars", _bars(panel, left, top + _TITLE, cell))
+                if isinstance(panel, Bars)
+                else ("histogram", _histogram(panel, left, top + _TITLE, cell))
+            )
+            heading = _text(left + cell / 2, top + 14, _cut(panel.title, 48), 11, "middle")
+            body += [f'<g data-panel="{kind}">', heading, *drawn, "</g>"]
         top += _TITLE + PLOT_HEIGHT + _BELOW + _GAP
     height = int(math.ceil(top))
     return (
