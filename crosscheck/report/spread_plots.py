@@ -73,8 +73,9 @@ def _histogram(values: np.ndarray, title: str, unit: str, lines: list[float]) ->
     return Histogram(title, edges, counts, OKABE_ITO["sky blue"], unit, lines, OKABE_ITO["vermillion"])
 
 
-def spread_figure_svg(result: CaseResult) -> str | None:
-    """The case's spread figure as SVG text; None without a spread."""
+def spread_panels(result: CaseResult) -> tuple[str, list[list[Bars | Histogram]]] | None:
+    """The figure's title and rows of panels (bars; then histograms of |q| and of phase when the samples were
+    kept); None without a spread."""
     spread = result.spread
     if spread is None or not spread.points:
         return None
@@ -93,4 +94,10 @@ def spread_figure_svg(result: CaseResult) -> str | None:
             phase.append(_histogram(np.degrees(np.angle(values)), f"phase of {name}", "°",
                                     _limit_lines(limits, q, "phase", f)))  # fmt: skip
         rows += [magnitude, phase]
-    return grid_svg(f"{result.title}: component spread at {format_eng(f, 5, ' Hz')}", rows)
+    return f"{result.title}: component spread at {format_eng(f, 5, ' Hz')}", rows
+
+
+def spread_figure_svg(result: CaseResult) -> str | None:
+    """The case's spread figure as SVG text; None without a spread."""
+    panels = spread_panels(result)
+    return None if panels is None else grid_svg(*panels)
