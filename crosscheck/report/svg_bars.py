@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from crosscheck.report.svg_chart import _FONT, _cut, _num, _text, linear_ticks
+from crosscheck.report.svg_chart import _CHAR_WIDTH, _FONT, _cut, _num, _text, linear_ticks
 
 #: Pixels: the figure's width, a panel's plot height, the space for a panel's title and for its x axis.
 WIDTH = 840
@@ -82,13 +82,17 @@ def _x_axis(x: _Axis, top: float, lo: float, hi: float, label: str) -> list[str]
     """Grid lines, tick labels and the label of a linear x axis under a plot from ``top``."""
     bottom = top + PLOT_HEIGHT
     out = []
-    for t in linear_ticks(lo, hi):
+    ticks = linear_ticks(lo, hi)
+    widest = max((len(f"{t:g}") for t in ticks), default=0) * 9 * _CHAR_WIDTH + 6
+    every = max(1, math.ceil(widest / (x.length / max(len(ticks) - 1, 1))))  # labels that would touch: every k-th
+    for k, t in enumerate(ticks):
         px = _num(x(t))
         out.append(
             f'<line x1="{px}" y1="{_num(top)}" x2="{px}" y2="{_num(bottom)}" '
             'stroke="#000" stroke-opacity="0.25" stroke-width="0.8"/>'
         )
-        out.append(_text(x(t), bottom + 12, f"{t:g}", 9, "middle"))
+        if k % every == 0:
+            out.append(_text(x(t), bottom + 12, f"{t:g}", 9, "middle"))
     if label:
         out.append(_text(x.start + x.length / 2, bottom + 25, label, 10, "middle"))
     return out
@@ -145,7 +149,7 @@ def _histogram(panel: Histogram, left: float, top: float, width: float) -> list[
     x = _Axis(lo, hi, plot_left, plot_width)
     y = _Axis(0.0, float(counts.max()) * 1.05, top, PLOT_HEIGHT, flip=True)
     out = _x_axis(x, top, lo, hi, panel.xlabel)
-    for t in linear_ticks(0.0, float(counts.max())):
+    for t in [t for t in linear_ticks(0.0, float(counts.max())) if t == int(t)]:  # counts are whole
         out.append(_text(plot_left - 4, y(t) + 3.5, f"{t:g}", 9, "end"))
     for k, count in enumerate(counts):
         if count:
@@ -183,7 +187,7 @@ def grid_svg(title: str, rows: list[list[Bars | Histogram]]) -> str:
                 if isinstance(panel, Bars)
                 else ("histogram", _histogram(panel, left, top + _TITLE, cell))
             )
-            heading = _text(left + cell / 2, top + 14, _cut(panel.title, 48), 11, "middle")
+            heading = _text(left + cell / 2, top + 14, _cut(panel.title, 40), 11, "middle")
             body += [f'<g data-panel="{kind}">', heading, *drawn, "</g>"]
         top += _TITLE + PLOT_HEIGHT + _BELOW + _GAP
     height = int(math.ceil(top))
