@@ -139,7 +139,7 @@ def test_spread_figure_user_text_is_inert(spread_result) -> None:
     """A hostile case title and hostile part names parse as text, cut where the figure cuts them."""
     svg = _inert(spread_plots.spread_figure_svg(dataclasses.replace(spread_result, title=HOSTILE)) or "")
     texts = [t.text for t in svg.iter(SVG + "text")]
-    assert any(text and text.startswith(_shown(HOSTILE[:40])) for text in texts)
+    assert any(text and text.startswith("component spread at ") and _shown(HOSTILE[:40]) in text for text in texts)
     bars = Bars("parts", [HOSTILE, "r1"], [2.0, -1.0], "#0072B2")
     svg = _inert(grid_svg(HOSTILE, [[bars]]))
     assert _shown(HOSTILE[:12] + "…") in [t.text for t in svg.iter(SVG + "text")]

@@ -67,9 +67,16 @@ def _histogram(values: np.ndarray, title: str, unit: str, lines: list[float]) ->
     finite = values[np.isfinite(values)]
     if not len(finite):
         return Histogram(title, np.array([0.0, 1.0]), np.zeros(1, dtype=int), OKABE_ITO["sky blue"], unit, lines)
-    # Values equal to rounding (the phase of a real I_N, say) cannot make 40 distinct bins: one bar then.
-    spread_out = np.ptp(finite) > 1e-9 * max(1.0, float(np.abs(finite).max()))
-    counts, edges = np.histogram(finite, bins=_BINS if spread_out else 1)
+    # Values equal to rounding (the phase of a real I_N, say) cannot make 40 distinct bins: one bar then, of
+    # width 1 % of the value (at least 1), so the axis reads the value and not the rounding.
+    middle = float(np.median(finite))
+    if np.ptp(finite) > 1e-9 * max(1.0, float(np.abs(finite).max())):
+        counts, edges = np.histogram(finite, bins=_BINS)
+    else:
+        half = 0.5 * max(1.0, 0.01 * abs(middle))
+        counts, edges = np.histogram(
+            np.clip(finite, middle - half, middle + half), bins=1, range=(middle - half, middle + half)
+        )
     return Histogram(title, edges, counts, OKABE_ITO["sky blue"], unit, lines, OKABE_ITO["vermillion"])
 
 
@@ -94,7 +101,7 @@ def spread_panels(result: CaseResult) -> tuple[str, list[list[Bars | Histogram]]
             phase.append(_histogram(np.degrees(np.angle(values)), f"phase of {name}", "°",
                                     _limit_lines(limits, q, "phase", f)))  # fmt: skip
         rows += [magnitude, phase]
-    return f"{result.title}: component spread at {format_eng(f, 5, ' Hz')}", rows
+    return f"component spread at {format_eng(f, 5, ' Hz')}: {result.title}", rows
 
 
 def spread_figure_svg(result: CaseResult) -> str | None:

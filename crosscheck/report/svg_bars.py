@@ -165,7 +165,7 @@ def _histogram(panel: Histogram, left: float, top: float, width: float) -> list[
             f'stroke-width="1.4" stroke-dasharray="5 3" data-limit="{bound:.9g}"/>'
         )
     if limits:
-        legend_x, legend_y = plot_left + plot_width - 52, top + 11
+        legend_x, legend_y = plot_left + plot_width - 44, top + PLOT_HEIGHT + 25  # beside the axis label
         out.append(
             f'<line x1="{_num(legend_x)}" y1="{_num(legend_y - 3)}" x2="{_num(legend_x + 16)}" '
             f'y2="{_num(legend_y - 3)}" stroke="{panel.limit_colour}" stroke-width="1.4" stroke-dasharray="5 3"/>'
