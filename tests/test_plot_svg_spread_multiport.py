@@ -165,3 +165,18 @@ def test_html_reports_of_multiport_and_spread_cases_load_no_matplotlib() -> None
     assert done.returncode == 0, done.stderr
     count, loaded = done.stdout.split("\n")[:2]
     assert int(count) >= 2 and loaded == "[]"
+
+
+def test_spread_figure_without_kept_samples_is_the_bars_alone(spread_result) -> None:
+    """No samples kept (no Monte Carlo): one row of three bar panels and no histogram."""
+    spread = dataclasses.replace(spread_result.spread, histogram=None)
+    svg = _inert(spread_plots.spread_figure_svg(dataclasses.replace(spread_result, spread=spread)) or "")
+    assert len(_panels(svg, "bars")) == 3 and not _panels(svg, "histogram")
+
+
+def test_multiport_figure_of_dc_only_says_why_it_is_empty() -> None:
+    """Only 0 Hz: nothing on the log frequency axis, and a note saying so."""
+    f = np.array([0.0])
+    svg = _inert(multiport_plots.z_magnitude_figure(f, _z(f, True), None, ["a", "b"]))
+    assert not list(svg.iter(SVG + "polyline"))
+    assert "no frequency above 0 Hz to draw" in [t.text for t in svg.iter(SVG + "text")]
