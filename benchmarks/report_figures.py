@@ -8,7 +8,10 @@ In one run: the corpus's cases through both engines once, then ``plots.case_figu
 (best of five per case; the median over the cases against the goal of 0.1 s per case) and the whole
 ``html.html_report`` (best of three); then ``crosscheck verify corpus --output x.html`` against
 ``--output x.json`` as a user runs them (whole process, wall clock and CPU time, the two alternating,
-best of ``--rounds``), and the HTML's extra time per swept case.
+best of ``--rounds``), and the HTML's extra time per swept case. Between them, the multi-port |Z_ij|
+figure and the spread figure per case: the SVG the report writes against the same panels drawn by
+matplotlib as before (``matplotlib_figures.py``), best of five per case each, the ratio and the goal, and
+what importing matplotlib costs a new process (which the SVG figures no longer pay).
 """
 
 from __future__ import annotations
@@ -25,6 +28,10 @@ import time
 from collections.abc import Callable
 from functools import partial
 from pathlib import Path
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from crosscheck.judge.result import CaseResult
 
 ROOT = Path(__file__).resolve().parent.parent
 #: The goal of issue 16 part 4: the HTML report's figures under this many seconds per case.
@@ -38,6 +45,48 @@ def _best(call: Callable[[], object], rounds: int) -> float:
         call()
         best = min(best, time.perf_counter() - start)
     return best
+
+
+def _median_times(draw: Callable[[CaseResult], object], results: list[CaseResult]) -> list[float]:
+    """Best of five seconds of ``draw`` per case, sorted (one call first: imports are not per figure)."""
+    draw(results[0])
+    return sorted(_best(partial(draw, r), 5) for r in results)
+
+
+def _import_matplotlib_s(rounds: int = 3) -> float:
+    """Wall-clock seconds a new process spends importing what the matplotlib figures needed (best of
+    ``rounds``, less an empty interpreter's start)."""
+    code = "import matplotlib.figure, matplotlib.backends.backend_agg"
+    times = {}
+    for label, body in (("empty", "pass"), ("matplotlib", code)):
+        times[label] = _best(partial(subprocess.run, [sys.executable, "-c", body], check=True), rounds)
+    return times["matplotlib"] - times["empty"]
+
+
+def newer_figures(results: list[CaseResult]) -> None:
+    """The multi-port and the spread figure per case: SVG (as the report writes them) against matplotlib
+    drawing the same panels to PNG (as the report did), in this process; medians over the cases."""
+    import matplotlib_figures  # beside this script; loads matplotlib
+
+    from crosscheck.report import multiport_plots, spread_plots
+
+    kinds = (
+        ("multi-port |Z_ij|", multiport_plots.case_z_figure, matplotlib_figures.multiport_png),
+        ("spread", spread_plots.spread_figure_svg, matplotlib_figures.spread_png),
+    )
+    for name, svg, png in kinds:
+        cases = [r for r in results if svg(r) is not None]
+        if not cases:
+            print(f"{name} figures: no case in the corpus draws one")
+            continue
+        after, before = _median_times(svg, cases), _median_times(png, cases)
+        new, old = statistics.median(after), statistics.median(before)
+        print(
+            f"{name} figures, {len(cases)} cases, median seconds per figure: matplotlib PNG {old:.4f} "
+            f"(max {before[-1]:.4f}), SVG {new:.4f} (max {after[-1]:.4f}); SVG {old / new:.0f}x faster; "
+            f"goal {GOAL_PER_FIGURE_S} s: SVG median {GOAL_PER_FIGURE_S / new:.0f}x under it"
+        )
+    print(f"importing matplotlib for those figures cost a new process {_import_matplotlib_s():.3f} s (SVG: none)")
 
 
 def figures() -> int:
@@ -61,7 +110,8 @@ def figures() -> int:
         f"{GOAL_PER_FIGURE_S / median:.0f}x under it; SVG median {sizes[len(sizes) // 2] / 1024:.0f} KiB"
     )
     page = _best(lambda: html.html_report(results), 3)
-    print(f"html_report of {len(results)} cases: {page:.3f} s, of which figures {sum(times):.3f} s")
+    print(f"html_report of {len(results)} cases: {page:.3f} s, of which sweep figures {sum(times):.3f} s")
+    newer_figures(results)
     return len(swept)
 
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import xml.etree.ElementTree as ET
+
 import numpy as np
 import pytest
 
@@ -9,7 +11,12 @@ from crosscheck.model.values import parse_phasor
 from crosscheck.report.multiport_plots import z_magnitude_figure
 from crosscheck.report.multiport_text import matrix_lines
 
-PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+def _polylines(svg_text: str) -> int:
+    """Polylines in the figure (it must parse as XML)."""
+    return len(list(ET.fromstring(svg_text).iter(SVG + "polyline")))
 
 
 def _matrix(n: int) -> np.ndarray:
@@ -50,18 +57,19 @@ def test_a_vector_is_one_row_and_user_names_are_inert() -> None:
     assert len(lines) == 3 and "\x1b" not in "".join(lines)
 
 
-def test_figure_is_a_png_with_and_without_spice() -> None:
-    """Both engines, ngspice missing, and a missing entry (NaN) all draw a PNG."""
+def test_figure_is_an_svg_with_and_without_spice() -> None:
+    """Both engines and ngspice missing draw a line per entry (three of a reciprocal 2-port); one frequency
+    with a missing entry (NaN) still gives a well-formed SVG."""
     f = np.logspace(1, 5, 12)
     z = np.stack([np.array([[10 + 1j * x, 3.0], [3.0, 20 + 0j]]) for x in f])
     for spice in (z * (1 + 1e-4), None):
-        assert z_magnitude_figure(f, z, spice, ["a", "b"]).startswith(PNG_MAGIC)
+        assert _polylines(z_magnitude_figure(f, z, spice, ["a", "b"])) == 3
     z[0, 0, 1] = np.nan
-    assert z_magnitude_figure(f[:1], z[:1], None, ["a", "b"]).startswith(PNG_MAGIC)
+    assert _polylines(z_magnitude_figure(f[:1], z[:1], None, ["a", "b"])) == 0  # one point: dots, no line
 
 
 def test_case_figure_from_a_multiport_result() -> None:
-    """A three-port case run by the own route gives a PNG; a one-port result gives None."""
+    """A three-port case run by the own route gives an SVG; a one-port result gives None."""
     from pathlib import Path
 
     from crosscheck.model.cases import load_case
@@ -73,13 +81,13 @@ def test_case_figure_from_a_multiport_result() -> None:
         [load_case(corpus / "power_distribution/cold_store_feeder.toml"), load_case(corpus / "rf/whip_l_match.toml")],
         engine="own",
     )
-    png = case_z_figure(three)
-    assert png is not None and png.startswith(PNG_MAGIC)
+    svg = case_z_figure(three)
+    assert svg is not None and ET.fromstring(svg).tag == SVG + "svg"
     assert case_z_figure(one) is None
 
 
 def test_html_report_holds_the_multiport_figure_and_port_names_stay_text() -> None:
-    """The HTML report of a multi-port case embeds one |Z_ij| PNG; a port name with $ draws (no math mode)."""
+    """The HTML report of a multi-port case embeds one |Z_ij| SVG (no PNG); a port name with $ is plain text."""
     from pathlib import Path
 
     from crosscheck.model.cases import load_case
@@ -90,7 +98,9 @@ def test_html_report_holds_the_multiport_figure_and_port_names_stay_text() -> No
     corpus = Path(__file__).resolve().parent.parent / "corpus"
     (result,) = run_cases([load_case(corpus / "audio/chapel_mic_input.toml")], engine="own")
     page = html_report([result])
-    assert page.count(CAPTION) == 1 and page.count("data:image/png;base64,") == 1
+    assert page.count(CAPTION) == 1 and "data:image/png" not in page
+    assert page.count('<figure class="sweep"><img class="plot" src="data:image/svg+xml;base64,') >= 1
     f = np.array([10.0, 100.0, 1000.0])
     z = np.ones((3, 2, 2), dtype=complex)
-    assert z_magnitude_figure(f, z, None, ["$\\frac{", "b$"]).startswith(PNG_MAGIC)
+    svg = ET.fromstring(z_magnitude_figure(f, z, None, ["$\\frac{", "b$"]))
+    assert "|Z($\\frac{,b$)|" in [t.text for t in svg.iter(SVG + "text")]

@@ -128,6 +128,8 @@ def test_every_format_carries_the_spread(failing_result):
     assert "#### Component spread" in md and "limit over spread, **fail**" in md
     page = html_report(results)
     assert "<h4>Component spread</h4>" in page and 'figure class="spread"' in page
+    assert '<figure class="spread"><img class="plot" src="data:image/svg+xml;base64,' in page
+    assert "data:image/png" not in page
     assert "Spread analysis covers only the stated tolerances" in page
 
 

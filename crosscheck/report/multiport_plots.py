@@ -1,35 +1,38 @@
 """|Z_ij| against frequency from both engines: the one figure of a multi-port case in the HTML report.
 
-One small figure per case, one axes: each entry of Z is a line of the own route and, where ngspice ran, the
-same entry as open markers, so a disagreement shows as markers off their line. A reciprocal Z (Z = Z^T to
+One small figure per case, one panel: each entry of Z is a line of the own route and, where ngspice ran, the
+same entry as open circles, so a disagreement shows as circles off their line. A reciprocal Z (Z = Z^T to
 ``RECIPROCAL_REL``) draws only the entries on and above the diagonal, since the others would lie on top of
-them; the legend says so. Drawn with matplotlib's Agg canvas on a plain ``Figure`` (never registered with
-pyplot) straight to PNG bytes, at a low resolution, so a figure costs a few tens of milliseconds.
+them; the caption says so. Built as a ``svg_chart.Chart`` and written as SVG text by ``svg_chart.chart_svg``
+(no plotting library is loaded); port names reach the SVG only through ``untrusted.svg_text`` there.
 """
 
 from __future__ import annotations
 
 import base64
-import io
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from crosscheck.model.port_matrices import MatrixPoint
+from crosscheck.report.plots import fit_y
+from crosscheck.report.svg_chart import Chart, Panel, Series, chart_svg
 
 if TYPE_CHECKING:
     from crosscheck.judge.result import CaseResult
 
 #: Okabe & Ito's colour-blind-safe palette ("Color Universal Design", Okabe and Ito 2008), as in report/plots.
 PALETTE = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#000000", "#F0E442")
-#: Line styles cycled with the colours, so that more entries than colours stay apart (and colour is not the
-#: only sign).
-STYLES = ("-", "--", "-.", ":")
+#: SVG dash patterns cycled with the colours (solid first), so that more entries than colours stay apart
+#: (and colour is not the only sign).
+DASHES = (None, "6 3", "6 2 1.5 2", "1.5 2")
 #: ||Z - Z^T|| / ||Z|| below which Z counts as reciprocal for drawing (rounding of a reciprocal network).
 RECIPROCAL_REL = 1e-9
 #: More entries than this and only the diagonal and the first row are drawn (a legend of 64 lines helps nobody).
 MAX_LINES = 16
+#: Characters of a port name kept in a legend entry.
+NAME_CHARS = 10
 
 
 def _entries(own: np.ndarray, n: int) -> list[tuple[int, int]]:
@@ -44,55 +47,54 @@ def _entries(own: np.ndarray, n: int) -> list[tuple[int, int]]:
 
 
 def _label(names: Sequence[str], i: int, j: int) -> str:
-    """The legend text of Z_ij; port names are user text: a ``$`` would start matplotlib's math mode."""
-    short = [str(n)[:10].replace("\\", "\\\\").replace("$", r"\$") for n in names]
+    """The legend text of Z_ij (port names are user text: ``chart_svg`` makes them inert)."""
+    short = [str(name)[:NAME_CHARS] for name in names]
     return f"|Z({short[i]},{short[j]})|"
 
 
-def z_magnitude_figure(
-    freqs_hz: Sequence[float], own: np.ndarray, spice: np.ndarray | None, port_names: Sequence[str], dpi: int = 72
-) -> bytes:
-    """PNG bytes of |Z_ij| (ohm) against frequency: the own route as lines, ngspice as open markers.
+def _x_range(f: np.ndarray) -> tuple[float, float]:
+    """The frequencies drawn, half a decade either side of a single one."""
+    lo, hi = float(f.min()), float(f.max())
+    return (lo / 3.0, hi * 3.0) if hi <= lo else (lo, hi)
+
+
+def z_magnitude_chart(
+    freqs_hz: Sequence[float], own: np.ndarray, spice: np.ndarray | None, port_names: Sequence[str]
+) -> Chart:
+    """|Z_ij| (ohm) against frequency: the own route as lines, ngspice as open circles of the same colour.
 
     ``own`` and ``spice`` have shape (F, n, n); entries that do not exist (no Thevenin form) are NaN and left
-    out. Log axes where the values allow (frequencies above 0 Hz, magnitudes above 0 ohm)."""
-    from matplotlib.figure import Figure  # start-up time: matplotlib only when an HTML report is drawn
-
+    out, and so are frequencies of 0 Hz (the axis is logarithmic; the tables hold them). The y axis is
+    logarithmic when the magnitudes are all above 0 ohm and span a decade or more."""
     f = np.asarray(freqs_hz, dtype=float)
-    z_own = np.abs(np.asarray(own, dtype=complex))
-    z_spice = None if spice is None else np.abs(np.asarray(spice, dtype=complex))
-    n = z_own.shape[1]
-    fig = Figure(figsize=(6.4, 3.6))
-    ax = fig.add_axes((0.12, 0.14, 0.84, 0.78))  # fixed margins: tight_layout would double the cost
-    for k, (i, j) in enumerate(_entries(np.asarray(own, dtype=complex), n)):
-        colour, style = PALETTE[k % len(PALETTE)], STYLES[(k // len(PALETTE)) % len(STYLES)]
-        ax.plot(
-            f,
-            z_own[:, i, j],
-            color=colour,
-            ls=style,
-            lw=1.5,
-            marker="." if len(f) < 3 else None,
-            label=_label(port_names, i, j),
-        )
+    keep = f > 0
+    z_own = np.abs(np.asarray(own, dtype=complex))[keep]
+    z_spice = None if spice is None else np.abs(np.asarray(spice, dtype=complex))[keep]
+    f = f[keep]
+    source = "lines: crosscheck" + ("; open circles: ngspice" if z_spice is not None else "; ngspice not run")
+    panel = Panel(source, ylabel="|Z| (ohm)", wide=True)
+    if not f.size:
+        panel.notes.append(("no frequency above 0 Hz to draw", "centre"))
+        return Chart("|Z_ij| against frequency", [panel])
+    panel.xlim = _x_range(f)
+    style = "line" if len(f) >= 3 else "line+dots"
+    for k, (i, j) in enumerate(_entries(np.asarray(own, dtype=complex)[keep], z_own.shape[1])):
+        colour, dash = PALETTE[k % len(PALETTE)], DASHES[(k // len(PALETTE)) % len(DASHES)]
+        panel.series.append(Series(_label(port_names, i, j), f, z_own[:, i, j], colour, style, width=1.5, dash=dash))
         if z_spice is not None:
-            ax.plot(f, z_spice[:, i, j], color=colour, ls="none", marker="o", ms=4, mfc="none")
-    positive_f = bool(np.all(f > 0)) and len(f) > 1 and f.max() / f.min() >= 10
+            panel.series.append(Series(None, f, z_spice[:, i, j], colour, "circles"))
     values = np.concatenate([z_own.ravel(), [] if z_spice is None else z_spice.ravel()])
     values = values[np.isfinite(values)]
-    if positive_f:
-        ax.set_xscale("log")
-    if values.size and values.min() > 0 and values.max() / values.min() >= 10:
-        ax.set_yscale("log")
-    ax.set_xlabel("frequency (Hz)")
-    ax.set_ylabel("|Z| (ohm)")
-    source = "lines: crosscheck" + ("; open circles: ngspice" if z_spice is not None else "; ngspice not run")
-    ax.set_title(source, fontsize=9)
-    ax.grid(True, alpha=0.3)
-    ax.legend(fontsize=7, ncols=2 if len(ax.lines) > 8 else 1, loc="best")
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
-    return buffer.getvalue()
+    panel.ylog = bool(values.size and values.min() > 0 and values.max() / values.min() >= 10)
+    fit_y(panel)
+    return Chart("|Z_ij| against frequency", [panel])
+
+
+def z_magnitude_figure(
+    freqs_hz: Sequence[float], own: np.ndarray, spice: np.ndarray | None, port_names: Sequence[str]
+) -> str:
+    """The SVG text of ``z_magnitude_chart``."""
+    return chart_svg(z_magnitude_chart(freqs_hz, own, spice, port_names))
 
 
 def _stacked(points: Sequence[MatrixPoint] | None, n: int) -> np.ndarray | None:
@@ -103,7 +105,7 @@ def _stacked(points: Sequence[MatrixPoint] | None, n: int) -> np.ndarray | None:
     return np.array([blank if p.z is None else p.z for p in points], dtype=complex)
 
 
-def case_z_figure(result: CaseResult, dpi: int = 72) -> bytes | None:
+def case_z_figure(result: CaseResult) -> str | None:
     """The figure of a ``CaseResult`` with a multi-port part (``result.multiport``), or None without one or when
     the own route gave no Z at any frequency. The HTML report calls this once per case."""
     multiport = result.multiport
@@ -115,21 +117,23 @@ def case_z_figure(result: CaseResult, dpi: int = 72) -> bytes | None:
         return None
     spice = _stacked(multiport.spice, n) if multiport.spice and len(multiport.spice) == len(multiport.own) else None
     freqs = [p.freq_hz for p in multiport.own]
-    return z_magnitude_figure(freqs, own, spice, [str(name) for name in multiport.port_names], dpi=dpi)
+    return z_magnitude_figure(freqs, own, spice, [str(name) for name in multiport.port_names])
 
 
 CAPTION = (
     "|Z_ij| of the multi-port reduction against frequency: crosscheck as lines, ngspice as open circles of the "
-    "same colour; a reciprocal Z shows the entries on and above the diagonal only."
+    "same colour; a reciprocal Z shows the entries on and above the diagonal only; DC points, if any, are in the "
+    "tables only."
 )
 
 
 def case_figure_html(result: CaseResult) -> str:
-    """The HTML report's ``<figure>`` for a multi-port case (PNG as a data URI, fixed caption), or ""."""
-    png = case_z_figure(result)
-    if png is None:
+    """The HTML report's ``<figure>`` for a multi-port case (SVG as a data URI shown through ``<img>``, as the
+    one-port figures are; fixed caption), or ""."""
+    svg = case_z_figure(result)
+    if svg is None:
         return ""
-    uri = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+    uri = "data:image/svg+xml;base64," + base64.b64encode(svg.encode("utf-8")).decode("ascii")
     return (
         f'<div class="figures"><figure class="sweep"><img class="plot" src="{uri}" '
         f'alt="|Z_ij| against frequency from both engines"><figcaption>{CAPTION}</figcaption></figure></div>'

@@ -16,7 +16,7 @@ from crosscheck.judge.spread import quantity_of
 from crosscheck.model.values import format_eng
 from crosscheck.report.caution import SPREAD_CAUTION
 from crosscheck.report.spread_json import ranked
-from crosscheck.report.spread_plots import spread_figure_png
+from crosscheck.report.spread_plots import spread_figure_svg
 from crosscheck.report.spread_text import MAX_PARTS_SHOWN, corner_words, spread_summary
 from crosscheck.vocabulary import quantity_name, quantity_unit
 
@@ -86,9 +86,9 @@ def spread_section(r: CaseResult) -> str:
             [_e(c.kind), _e(format_eng(c.freq_hz, 4, " Hz")), _e(c.verdict), _e(c.explanation)] for c in failed[:50]
         ]
         out.append("<h5>ngspice confirmations not passing</h5>" + _table(("check", "f", "verdict", "why"), rows))
-    png = spread_figure_png(r)
-    if png is not None:
-        uri = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+    svg = spread_figure_svg(r)
+    if svg is not None:
+        uri = "data:image/svg+xml;base64," + base64.b64encode(svg.encode("utf-8")).decode("ascii")
         out.append(
             f'<figure class="spread"><img class="plot" src="{uri}" alt="ranked sensitivities and Monte Carlo '
             'histograms"><figcaption>Top: the parts that drive the spread, ranked (% of |q| per % of the part). '

@@ -28,7 +28,8 @@ _CHAR_WIDTH = 0.6
 @dataclass
 class Series:
     """One curve or set of markers. ``style``: ``line``, ``line+dots``, ``circles`` (open) or ``marker``
-    (filled ``marker`` shapes with a black edge: o, X, D, s, ^ or *)."""
+    (filled ``marker`` shapes with a black edge: o, X, D, s, ^ or *); ``dash``: an SVG dash pattern
+    (``"5 3"``) for a line, so that lines of one colour stay apart."""
 
     label: str | None
     xs: np.ndarray
@@ -37,6 +38,11 @@ class Series:
     style: str = "line"
     marker: str = "o"
     width: float = 1.0
+    dash: str | None = None
+
+
+def _dash(s: Series) -> str:
+    return f' stroke-dasharray="{s.dash}"' if s.dash else ""
 
 
 @dataclass
@@ -172,7 +178,7 @@ def _polyline(frame: _Frame, s: Series) -> tuple[list[str], list[str]]:
     lines = []
     if s.style in ("line", "line+dots"):
         lines = [
-            f'<polyline points="{" ".join(r)}" fill="none" stroke="{s.colour}" stroke-width="{s.width}"/>'
+            f'<polyline points="{" ".join(r)}" fill="none" stroke="{s.colour}" stroke-width="{s.width}"{_dash(s)}/>'
             for r in runs
             if len(r) > 1
         ]
@@ -309,7 +315,7 @@ def _legend_entries(p: Panel) -> list[tuple[str, str]]:
             parts = (
                 []
                 if s.style in ("circles", "marker")
-                else [f'<line x1="0" y1="-4" x2="16" y2="-4" stroke="{s.colour}" stroke-width="{s.width}"/>']
+                else [f'<line x1="0" y1="-4" x2="16" y2="-4" stroke="{s.colour}" stroke-width="{s.width}"{_dash(s)}/>']
             )
             if s.style != "line":
                 parts.append(_marker(sample, 8.0, -4.0))
