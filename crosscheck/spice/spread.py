@@ -218,7 +218,7 @@ def central_differences(
                 values = [getattr(p, "isc" if q == "in" else q) if p is not None else None for p in points]
                 if any(v is None or not _finite(v) for v in values) or values[0] == 0:
                     continue
-                delta = min(bound, _measured_error(own, i, q, values[0]))
+                delta = min(bound, _measured_error(own, i, q, complex(values[0])))
                 out.append(_difference(name, f, q, values, step_rel, delta))
     return out
 
