@@ -216,9 +216,10 @@ def central_differences(
             bound = _GROWTH * conditions[i] * _EPS if math.isfinite(conditions[i]) else math.inf
             for q in _QUANTITIES:
                 values = [getattr(p, "isc" if q == "in" else q) if p is not None else None for p in points]
-                if any(v is None or not _finite(v) for v in values) or values[0] == 0:
+                first = values[0]
+                if first is None or first == 0 or any(v is None or not _finite(v) for v in values):
                     continue
-                delta = min(bound, _measured_error(own, i, q, complex(values[0])))
+                delta = min(bound, _measured_error(own, i, q, first))
                 out.append(_difference(name, f, q, values, step_rel, delta))
     return out
 
