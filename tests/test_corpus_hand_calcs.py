@@ -50,7 +50,7 @@ def _network(case: Case) -> tuple[Network, Port]:
 
 
 def _expectations_of(case: Case) -> tuple:
-    """The case's [[expect]]: one-port ``Expectation``s, or a multi-port case's ``MatrixExpectation``s."""
+    """The case's [[expect]]: one-port ``Expectation``s, or a multi-port case's ``Expectation``s (matrix keys)."""
     return case.multiport.expectations if case.multiport is not None else case.expectations
 
 

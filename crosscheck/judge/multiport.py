@@ -27,7 +27,8 @@ from crosscheck.judge.limits import evaluate, margin
 from crosscheck.judge.records import Cause, ExpectationCheck, LimitCheck, QuantityCheck
 from crosscheck.judge.stated import deviation
 from crosscheck.model.port_matrices import MatrixPoint
-from crosscheck.model.port_spec import MODE_QUANTITIES, MatrixExpectation, MatrixLimit, MultiportSpec, quantity_index
+from crosscheck.model.port_spec import MODE_QUANTITIES, MultiportSpec, quantity_index
+from crosscheck.model.requirements import Expectation, Limit
 from crosscheck.model.tolerance import Tolerance
 from crosscheck.vocabulary import Verdict, quantity_unit, same_frequency, worst
 
@@ -172,7 +173,7 @@ def compare_points(own: MatrixPoint, ref: MatrixPoint | None, tol: Tolerance, re
     return MatrixPointCheck(own.freq_hz, tuple(checks), verdict, explanation[:2000], condition, z_error)
 
 
-def _expectation(e: MatrixExpectation, quantity: str, expected: complex, point: MatrixPoint | None) -> ExpectationCheck:
+def _expectation(e: Expectation, quantity: str, expected: complex, point: MatrixPoint | None) -> ExpectationCheck:
     obtained = None if point is None else value_of(point, quantity)
     if obtained is None:
         why = "no frequency computed there" if point is None else ("; ".join(point.notes) or "no value here")
@@ -202,7 +203,7 @@ def check_expectations(spec: MultiportSpec, own: Sequence[MatrixPoint]) -> tuple
     return tuple(out)
 
 
-def _limit(limit: MatrixLimit, own: Sequence[MatrixPoint]) -> LimitCheck:
+def _limit(limit: Limit, own: Sequence[MatrixPoint]) -> LimitCheck:
     band = limit.band
     chosen = [p for p in own if band is None or band[0] <= p.freq_hz <= band[1]]
     values = [(p.freq_hz, value_of(p, limit.quantity)) for p in chosen]

@@ -29,6 +29,7 @@ from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.port_spec import MultiportSpec, multiport_from_case
 from crosscheck.model.reading import WARNING_CODES
+from crosscheck.model.requirements import Expectation, Limit
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
 from crosscheck.model.vary import MAX_SAMPLES, SpreadSpec, vary_from_case
@@ -40,31 +41,6 @@ MAX_POINTS = 10_000
 #: The series-model keys of an expectation and the element each stands for ("series_r" -> "R").
 SERIES_KEYS = {key: key.rsplit("_", 1)[1].upper() for key, q in QUANTITIES.items() if not q.phasor}
 LIMIT_FUNCTIONS = ("abs", "phase", "re", "im", "db")
-
-
-@dataclass(frozen=True)
-class Expectation:
-    """A hand-calculated value at one frequency, with the tolerance it was worked to."""
-
-    at_hz: float
-    values: dict[str, complex]  # vth / zth / in / yn phasors, series_r / series_l / series_c reals
-    tolerance: Tolerance
-    how: str = ""
-    index: int = 0
-
-
-@dataclass(frozen=True)
-class Limit:
-    """A design requirement: ``function(quantity)`` within [min, max] over a band of frequencies."""
-
-    function: str
-    quantity: str
-    minimum: float | None
-    maximum: float | None
-    band: tuple[float, float] | None
-    text: str
-    index: int = 0
-    why: str = ""
 
 
 @dataclass(frozen=True)

@@ -28,6 +28,7 @@ from crosscheck.model.frequencies import frequency_list
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.network import Network, Port, check_port
 from crosscheck.model.port_matrices import PortList, port_list
+from crosscheck.model.requirements import Expectation, Limit
 from crosscheck.model.tolerance import HAND_CALCULATION, Tolerance
 from crosscheck.model.validation import validate
 from crosscheck.model.values import parse_number, parse_phasor
@@ -42,37 +43,12 @@ _VECTOR = re.compile(r"^(voc|isc)(\d+)$")
 
 
 @dataclass(frozen=True)
-class MatrixExpectation:
-    """Hand values of a multi-port case at one frequency (keys as in the module docstring)."""
-
-    at_hz: float
-    values: dict[str, complex]
-    tolerance: Tolerance
-    how: str = ""
-    index: int = 0
-
-
-@dataclass(frozen=True)
-class MatrixLimit:
-    """``function(quantity)`` of a multi-port case within [min, max] over a band of frequencies."""
-
-    function: str
-    quantity: str
-    minimum: float | None
-    maximum: float | None
-    band: tuple[float, float] | None
-    text: str
-    index: int = 0
-    why: str = ""
-
-
-@dataclass(frozen=True)
 class MultiportSpec:
     """The ports of a multi-port case and what it expects of their matrices."""
 
     ports: PortList
-    expectations: tuple[MatrixExpectation, ...] = ()
-    limits: tuple[MatrixLimit, ...] = ()
+    expectations: tuple[Expectation, ...] = ()
+    limits: tuple[Limit, ...] = ()
 
 
 def quantity_index(quantity: str, ports: int) -> tuple[str, int, int] | None:
@@ -202,7 +178,7 @@ def _tolerance(path: Path, key: str, given: dict[str, Any]) -> Tolerance:
         raise _err(path, key, str(exc)) from None
 
 
-def _expectations(path: Path, data: dict[str, Any], ports: int) -> tuple[MatrixExpectation, ...]:
+def _expectations(path: Path, data: dict[str, Any], ports: int) -> tuple[Expectation, ...]:
     out = []
     for i, item in enumerate(entries(path, data, "expect"), start=1):
         key = f"expect[{i}]"
@@ -223,7 +199,7 @@ def _expectations(path: Path, data: dict[str, Any], ports: int) -> tuple[MatrixE
         if not values:
             raise _err(path, key, f"states no value; give any of {_known_words(ports)}")
         at = _frequency(path, f"{key}.at", item["at"])
-        out.append(MatrixExpectation(at, values, _tolerance(path, key, item), string(path, item, "how", ""), i))
+        out.append(Expectation(at, values, _tolerance(path, key, item), string(path, item, "how", ""), i))
     return tuple(out)
 
 
@@ -239,7 +215,7 @@ def parse_matrix_limit(path: Path, key: str, text: str, ports: int) -> tuple[str
     return fn, q
 
 
-def _limits(path: Path, data: dict[str, Any], ports: int) -> tuple[MatrixLimit, ...]:
+def _limits(path: Path, data: dict[str, Any], ports: int) -> tuple[Limit, ...]:
     out = []
     for i, item in enumerate(entries(path, data, "limit"), start=1):
         key = f"limit[{i}]"
@@ -264,5 +240,5 @@ def _limits(path: Path, data: dict[str, Any], ports: int) -> tuple[MatrixLimit, 
         unknown = set(item) - {"quantity", "min", "max", "band", "why"}
         if unknown:
             raise _err(path, key, f"unknown key(s) {sorted(unknown)}")
-        out.append(MatrixLimit(fn, q, lo, hi, band, quantity, i, string(path, item, "why", "")))
+        out.append(Limit(fn, q, lo, hi, band, quantity, i, string(path, item, "why", "")))
     return tuple(out)

@@ -20,7 +20,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from crosscheck.model.network import GROUND, Element, Network
+from crosscheck.model.network import GROUND, SOURCE_KINDS, Element, Network
 
 if TYPE_CHECKING:  # scipy.sparse is loaded by ``assemble`` only: the small-network path needs numpy alone
     import scipy.sparse as sp
@@ -283,3 +283,37 @@ def _joined(parts: Sequence[tuple]) -> Entries:
     )
     keep = (r >= 0) & (c >= 0)
     return r[keep], c[keep], v0[keep], v1[keep]
+
+
+def source_vector(
+    network: Network, node_index: Mapping[str, int], branch_index: Mapping[str, int], size: int
+) -> np.ndarray:
+    """The independent sources' phasors, placed in their KCL or branch rows (one writer for every solver)."""
+    z = np.zeros(size, dtype=complex)
+    elements = network.elements
+    for e in (elements[i] for i in np.flatnonzero(network.element_arrays.of_kind(SOURCE_KINDS)).tolist()):
+        if e.ac_mag == 0:
+            continue
+        if e.kind == "V":
+            z[branch_index[e.name]] += e.phasor
+        else:
+            # SPICE: the current flows from n+ through the source to n-.
+            p, m = (node_index.get(n) for n in e.terminals)
+            if p is not None:
+                z[p] -= e.phasor
+            if m is not None:
+                z[m] += e.phasor
+    return z
+
+
+def injection_vector(
+    stamps: Stamps, node_index: Mapping[str, int], size: int, a: str, b: str, amps: complex
+) -> np.ndarray:
+    """A test current driven into node a and out of node b (sources left out), in ``stamps``' rows."""
+    z = np.zeros(size, dtype=complex)
+    ia, ib = stamps.injection_rows(node_index.get(a), node_index.get(b), len(node_index))
+    if ia is not None:
+        z[ia] += amps
+    if ib is not None:
+        z[ib] -= amps
+    return z

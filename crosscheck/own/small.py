@@ -21,8 +21,8 @@ from collections.abc import Sequence
 import numpy as np
 
 from crosscheck.model.budget import DENSE_BATCH_ENTRIES, NO_DEADLINE, Deadline
-from crosscheck.model.network import SOURCE_KINDS, Network
-from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps, entries
+from crosscheck.model.network import Network
+from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps, entries, injection_vector, source_vector
 
 #: Up to this many unknowns (nodes, branch currents and ties) a network takes this path. The same bound
 #: as ``solver.DENSE_LIMIT``, below which a batched dense solve beats sparse LU: this path replaces that
@@ -68,32 +68,12 @@ class SmallSystem:
         self.a1 = np.bincount(flat, weights=a1, minlength=(n + 1) ** 2).reshape(n + 1, n + 1)[:n, :n]
 
     def source_vector(self) -> np.ndarray:
-        """The independent sources' phasors, placed in their KCL or branch rows (as ``MnaSystem``)."""
-        z = np.zeros(self.size, dtype=complex)
-        elements = self.network.elements
-        for e in (elements[i] for i in np.flatnonzero(self.network.element_arrays.of_kind(SOURCE_KINDS)).tolist()):
-            if e.ac_mag == 0:
-                continue
-            if e.kind == "V":
-                z[self.branch_index[e.name]] += e.phasor
-            else:
-                # SPICE: the current flows from n+ through the source to n-.
-                p, m = (self.node_index.get(n) for n in e.terminals)
-                if p is not None:
-                    z[p] -= e.phasor
-                if m is not None:
-                    z[m] += e.phasor
-        return z
+        """The independent sources' phasors, placed in their KCL or branch rows (``assembly.source_vector``)."""
+        return source_vector(self.network, self.node_index, self.branch_index, self.size)
 
     def injection_vector(self, a: str, b: str, amps: complex = 1.0) -> np.ndarray:
         """A test current driven into node a and out of node b (sources left out)."""
-        z = np.zeros(self.size, dtype=complex)
-        ia, ib = self._stamps.injection_rows(self.node_index.get(a), self.node_index.get(b), len(self.node_index))
-        if ia is not None:
-            z[ia] += amps
-        if ib is not None:
-            z[ib] -= amps
-        return z
+        return injection_vector(self._stamps, self.node_index, self.size, a, b, amps)
 
     def voltage(self, x: np.ndarray, node: str) -> np.ndarray | complex:
         """Node voltage from a solution vector (or columns); ground is 0."""
