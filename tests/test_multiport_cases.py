@@ -245,3 +245,11 @@ def test_spread_over_several_ports_is_refused_on_the_command_line(tmp_path: Path
     code = main(["reduce", str(netlist), "--port", "a", "0", "--port", "b", "0", "--freq", "1k", "--vary", "R*=1%"])
     assert code == EXIT_USAGE
     assert "--vary is computed at one port" in capsys.readouterr().err
+
+
+def test_a_misread_frequency_is_refused_in_a_multiport_case_too(tmp_path: Path) -> None:
+    """``1MHz`` is 1 mHz to SPICE: refused with the fix in a several-port [[expect]] as in a one-port one."""
+    body = 'ports = [["a", "0"], ["b", "0"]]\n[[expect]]\nat = "1MHz"\nz11 = 100\n'
+    with pytest.raises(CaseFileError) as caught:
+        load_case(_case(tmp_path, body))
+    assert "expect[1].at" in str(caught.value) and "1meg" in str(caught.value)

@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import math
 import os
-import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -21,17 +20,21 @@ from typing import Any
 import numpy as np
 
 from crosscheck.errors import CaseFileError, CrosscheckError
-from crosscheck.model.case_file import MAX_FREQUENCY_HZ, boolean, entries, read_table, string, table
+from crosscheck.model.case_file import boolean, entries, read_table, string, table
 from crosscheck.model.case_file import err as _err
+from crosscheck.model.case_values import frequency as _frequency
+from crosscheck.model.case_values import limit_tables
+from crosscheck.model.case_values import number as _number
+from crosscheck.model.case_values import tolerance as _tolerance
 from crosscheck.model.files import InputFileError, check_path_text, read_regular
-from crosscheck.model.frequencies import FrequencyError, frequency_list, misread_frequency_text
+from crosscheck.model.frequencies import FrequencyError, frequency_list
 from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.port_spec import MultiportSpec, multiport_from_case
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.requirements import Expectation, Limit
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
-from crosscheck.model.values import parse_number, parse_phasor
+from crosscheck.model.values import parse_phasor
 from crosscheck.model.vary import MAX_SAMPLES, SpreadSpec, vary_from_case
 from crosscheck.vocabulary import PHASORS, QUANTITIES
 
@@ -76,33 +79,6 @@ class Case:
         return str(self.path)
 
 
-def _number(path: Path, key: str, raw: Any) -> float:
-    try:
-        value = parse_number(raw)
-    except CrosscheckError as exc:
-        raise _err(path, key, str(exc)) from None
-    if not math.isfinite(value):
-        raise _err(path, key, f"{str(raw)[:40]!r} is not a finite number")
-    return value
-
-
-def _frequency(path: Path, key: str, raw: Any, negative_later: bool = False) -> float:
-    """One frequency in hertz: a number from 0 (DC) up to ``MAX_FREQUENCY_HZ``.
-
-    ``negative_later``: leave a negative value to ``frequency_list``, which refuses it in its own words.
-    Text whose scale SPICE misreads (``1MHz``, ``1M``: milli) is refused with the fix (``misread_frequency_text``).
-    """
-    why = misread_frequency_text(raw) if isinstance(raw, str) else None
-    if why is not None:
-        raise _err(path, key, why)
-    value = _number(path, key, raw)
-    if not (0 <= value or negative_later) or value > MAX_FREQUENCY_HZ:
-        raise _err(
-            path, key, f"{value:g} Hz is outside 0 .. {MAX_FREQUENCY_HZ:g} Hz; give a frequency in hertz in that range"
-        )
-    return value
-
-
 def _whole(path: Path, key: str, raw: Any, most: int) -> int:
     """A whole number from 1 to ``most`` (true/false and text are refused)."""
     if not isinstance(raw, int) or isinstance(raw, bool) or not 1 <= raw <= most:
@@ -145,18 +121,6 @@ def sweep_frequencies(path: Path, sweep: dict[str, Any]) -> list[float]:
 def _check_count(path: Path, key: str, count: int) -> None:
     if count > MAX_POINTS:
         raise _err(path, key, f"asks for {count} frequency points; at most {MAX_POINTS} per case")
-
-
-def _tolerance(path: Path, key: str, given: dict[str, Any], default: Tolerance) -> Tolerance:
-    rel = _number(path, f"{key}.rel", given["rel"]) if "rel" in given else default.rel
-    abs_ = _number(path, f"{key}.abs", given["abs"]) if "abs" in given else default.abs
-    phase = _number(path, f"{key}.phase_deg", given["phase_deg"]) if "phase_deg" in given else default.phase_deg
-    if rel < sys.float_info.epsilon:  # a smaller rel would drop the abs and round-off terms of the pass rule
-        raise _err(path, f"{key}.rel", f"{rel!r} is below machine epsilon; give at least {sys.float_info.epsilon:.3g}")
-    try:
-        return Tolerance(rel=rel, abs=abs_, phase_deg=phase)
-    except ValueError as exc:
-        raise _err(path, key, str(exc)) from None
 
 
 def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str, str]:
@@ -302,35 +266,6 @@ def parse_limit_expression(path: Path, key: str, text: str) -> tuple[str, str]:
     )
 
 
-def _limits(path: Path, data: dict[str, Any]) -> list[Limit]:
-    out = []
-    for i, item in enumerate(entries(path, data, "limit"), start=1):
-        key = f"limit[{i}]"
-        if "quantity" not in item:
-            raise _err(path, key, 'each [[limit]] needs quantity = "abs(zth)" and a min and/or max')
-        quantity = string(path, item, "quantity", "")
-        fn, q = parse_limit_expression(path, f"{key}.quantity", quantity)
-        lo = _number(path, f"{key}.min", item["min"]) if "min" in item else None
-        hi = _number(path, f"{key}.max", item["max"]) if "max" in item else None
-        if lo is None and hi is None:
-            raise _err(path, key, "give min, max or both")
-        if lo is not None and hi is not None and lo > hi:
-            raise _err(path, key, f"min {lo:g} is above max {hi:g}; no value can meet it: swap them")
-        band = None
-        if "band" in item:
-            b = item["band"]
-            if not (isinstance(b, list) and len(b) == 2):
-                raise _err(path, f"{key}.band", "must be [low, high] in Hz")
-            band = (_frequency(path, f"{key}.band[0]", b[0]), _frequency(path, f"{key}.band[1]", b[1]))
-            if band[0] > band[1]:
-                raise _err(path, f"{key}.band", f"[{band[0]:g}, {band[1]:g}] is reversed; write [low, high] in Hz")
-        unknown = set(item) - {"quantity", "min", "max", "band", "why"}
-        if unknown:
-            raise _err(path, key, f"unknown key(s) {sorted(unknown)}")
-        out.append(Limit(fn, q, lo, hi, band, quantity, i, string(path, item, "why", "")))
-    return out
-
-
 _TOP_KEYS = {
     "title",
     "netlist",
@@ -386,7 +321,7 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         excitation=excitation,
         tolerance=tolerance,
         expectations=tuple(expectations),
-        limits=tuple(_limits(path, data)) if multiport is None else (),
+        limits=tuple(limit_tables(path, data, parse_limit_expression, "abs(zth)")) if multiport is None else (),
         allow_negative=boolean(path, data, "allow_negative", False),
         tags=_tags(path, data),
         caution=string(path, data, "caution", "").strip(),

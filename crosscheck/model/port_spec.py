@@ -13,25 +13,26 @@ them. Errors name the file and the key, as every case-file error does.
 
 from __future__ import annotations
 
-import math
 import re
-import sys
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 from crosscheck.errors import CrosscheckError, NetworkError
-from crosscheck.model.case_file import MAX_FREQUENCY_HZ, entries, string
+from crosscheck.model.case_file import entries, string
 from crosscheck.model.case_file import err as _err
+from crosscheck.model.case_values import frequency as _frequency
+from crosscheck.model.case_values import limit_tables
+from crosscheck.model.case_values import tolerance as _tolerance
 from crosscheck.model.frequencies import frequency_list
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.network import Network, Port, check_port
 from crosscheck.model.port_matrices import PortList, port_list
 from crosscheck.model.requirements import Expectation, Limit
-from crosscheck.model.tolerance import HAND_CALCULATION, Tolerance
+from crosscheck.model.tolerance import HAND_CALCULATION
 from crosscheck.model.validation import validate
-from crosscheck.model.values import parse_number, parse_phasor
+from crosscheck.model.values import parse_phasor
 
 #: More ports than this in one case is refused: the matrices grow as the square, the SPICE route by N+2 runs.
 MAX_PORTS = 64
@@ -145,37 +146,11 @@ def multiport_from_case(path: Path, data: dict[str, Any], freqs: list[float]) ->
     if expectations:
         merged = frequency_list([*freqs, *(e.at_hz for e in expectations)], where=f"{path}: key 'expect'")
         freqs[:] = list(merged)
-    return MultiportSpec(ports, expectations, _limits(path, data, len(ports)))
-
-
-def _number(path: Path, key: str, raw: Any) -> float:
-    try:
-        value = parse_number(raw)
-    except CrosscheckError as exc:
-        raise _err(path, key, str(exc)) from None
-    if not math.isfinite(value):
-        raise _err(path, key, f"{str(raw)[:40]!r} is not a finite number")
-    return value
-
-
-def _frequency(path: Path, key: str, raw: Any) -> float:
-    value = _number(path, key, raw)
-    if not 0 <= value <= MAX_FREQUENCY_HZ:
-        raise _err(path, key, f"{value:g} Hz is outside 0 .. {MAX_FREQUENCY_HZ:g} Hz; give a frequency in hertz")
-    return value
-
-
-def _tolerance(path: Path, key: str, given: dict[str, Any]) -> Tolerance:
-    default = HAND_CALCULATION
-    rel = _number(path, f"{key}.rel", given["rel"]) if "rel" in given else default.rel
-    abs_ = _number(path, f"{key}.abs", given["abs"]) if "abs" in given else default.abs
-    phase = _number(path, f"{key}.phase_deg", given["phase_deg"]) if "phase_deg" in given else default.phase_deg
-    if rel < sys.float_info.epsilon:
-        raise _err(path, f"{key}.rel", f"{rel!r} is below machine epsilon; give at least {sys.float_info.epsilon:.3g}")
-    try:
-        return Tolerance(rel=rel, abs=abs_, phase_deg=phase)
-    except ValueError as exc:
-        raise _err(path, key, str(exc)) from None
+    return MultiportSpec(
+        ports,
+        expectations,
+        tuple(limit_tables(path, data, lambda p, k, t: parse_matrix_limit(p, k, t, len(ports)), "abs(z21)")),
+    )
 
 
 def _expectations(path: Path, data: dict[str, Any], ports: int) -> tuple[Expectation, ...]:
@@ -199,7 +174,9 @@ def _expectations(path: Path, data: dict[str, Any], ports: int) -> tuple[Expecta
         if not values:
             raise _err(path, key, f"states no value; give any of {_known_words(ports)}")
         at = _frequency(path, f"{key}.at", item["at"])
-        out.append(Expectation(at, values, _tolerance(path, key, item), string(path, item, "how", ""), i))
+        out.append(
+            Expectation(at, values, _tolerance(path, key, item, HAND_CALCULATION), string(path, item, "how", ""), i)
+        )
     return tuple(out)
 
 
@@ -213,32 +190,3 @@ def parse_matrix_limit(path: Path, key: str, text: str, ports: int) -> tuple[str
     if quantity_index(q, ports) is None:
         raise _err(path, key, f"cannot read {text[:60]!r}; write abs(z21), db(zdiff)... with {_known_words(ports)}")
     return fn, q
-
-
-def _limits(path: Path, data: dict[str, Any], ports: int) -> tuple[Limit, ...]:
-    out = []
-    for i, item in enumerate(entries(path, data, "limit"), start=1):
-        key = f"limit[{i}]"
-        if "quantity" not in item:
-            raise _err(path, key, 'each [[limit]] needs quantity = "abs(z21)" and a min and/or max')
-        quantity = string(path, item, "quantity", "")
-        fn, q = parse_matrix_limit(path, f"{key}.quantity", quantity, ports)
-        lo = _number(path, f"{key}.min", item["min"]) if "min" in item else None
-        hi = _number(path, f"{key}.max", item["max"]) if "max" in item else None
-        if lo is None and hi is None:
-            raise _err(path, key, "give min, max or both")
-        if lo is not None and hi is not None and lo > hi:
-            raise _err(path, key, f"min {lo:g} is above max {hi:g}; no value can meet it: swap them")
-        band = None
-        if "band" in item:
-            b = item["band"]
-            if not (isinstance(b, list) and len(b) == 2):
-                raise _err(path, f"{key}.band", "must be [low, high] in Hz")
-            band = (_frequency(path, f"{key}.band[0]", b[0]), _frequency(path, f"{key}.band[1]", b[1]))
-            if band[0] > band[1]:
-                raise _err(path, f"{key}.band", f"[{band[0]:g}, {band[1]:g}] is reversed; write [low, high] in Hz")
-        unknown = set(item) - {"quantity", "min", "max", "band", "why"}
-        if unknown:
-            raise _err(path, key, f"unknown key(s) {sorted(unknown)}")
-        out.append(Limit(fn, q, lo, hi, band, quantity, i, string(path, item, "why", "")))
-    return tuple(out)
