@@ -22,6 +22,7 @@ from crosscheck.model.cases import Case, find_case_files, load_case
 from crosscheck.model.expect_option import ExpectOptionError, expectations_from_options
 from crosscheck.model.frequencies import checked_frequencies
 from crosscheck.model.netlist import read_netlist_text
+from crosscheck.model.read_limits import ReadLimits
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number
 from crosscheck.report.outputs import unknown_extensions, verify_format, write_reports
@@ -153,9 +154,10 @@ def _reduce(args: argparse.Namespace) -> int:
         print(f"crosscheck reduce: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
     extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
+    limits = _read_limits(args)
     case = case_from_netlist(
         str(args.netlist),
-        read_netlist_text(args.netlist),
+        read_netlist_text(args.netlist, limits=limits),
         tuple(args.port),
         freqs,
         _tolerance(args),
@@ -164,7 +166,7 @@ def _reduce(args: argparse.Namespace) -> int:
         args.accept_warning,
         excitation,
     )
-    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations)
+    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations, read_limits=limits or ReadLimits())
     if args.engine == "own":
         [result] = run_cases([case], engine="own")
     else:
@@ -305,25 +307,26 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
     for path in find_case_files(list(args.paths)):
         try:
             if path.suffix.lower() == ".toml" or path.is_dir():  # a folder here is one that could not be searched
-                items.append(_overridden(load_case(path, allow_outside=args.allow_outside_paths), args))
+                case = load_case(path, allow_outside=args.allow_outside_paths, read_limits=_read_limits(args))
+                items.append(_overridden(case, args))
                 continue
             netlists += 1
             excitation = args.excitation or "ac"
             if not args.port or not (args.freq or excitation == "dc"):
                 raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
-            items.append(
-                case_from_netlist(
-                    str(path),
-                    read_netlist_text(path),
-                    tuple(args.port),
-                    _excitation_frequencies(args.freq, excitation),
-                    _tolerance(args),
-                    args.allow_negative,
-                    args.sources or "peak",
-                    args.accept_warning,
-                    excitation,
-                )
+            limits = _read_limits(args)
+            direct = case_from_netlist(
+                str(path),
+                read_netlist_text(path, limits=limits),
+                tuple(args.port),
+                _excitation_frequencies(args.freq, excitation),
+                _tolerance(args),
+                args.allow_negative,
+                args.sources or "peak",
+                args.accept_warning,
+                excitation,
             )
+            items.append(replace(direct, read_limits=limits or ReadLimits()))
         except CrosscheckError as exc:
             items.append((str(path), exc))
     if not items:
@@ -349,6 +352,14 @@ def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[Cas
     from crosscheck.run.check import held_strictly  # start-up time: loaded only by the commands that use it
 
     return [held_strictly(r) for r in results] if args.strict else list(results)
+
+
+def _read_limits(args: argparse.Namespace) -> ReadLimits | None:
+    """--max-elements and --max-netlist-mib as the reader's limits (None when neither was given)."""
+    if args.max_elements is None and args.max_netlist_mib is None:
+        return None
+    default = ReadLimits()
+    return ReadLimits(args.max_elements or default.max_elements, args.max_netlist_mib or default.max_netlist_mib)
 
 
 def _overridden(case: Case, args: argparse.Namespace) -> Case:

@@ -25,8 +25,9 @@ from crosscheck.model.case_file import MAX_FREQUENCY_HZ, boolean, entries, read_
 from crosscheck.model.case_file import err as _err
 from crosscheck.model.files import InputFileError, check_path_text, read_regular
 from crosscheck.model.frequencies import FrequencyError, frequency_list, misread_frequency_text
-from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
+from crosscheck.model.netlist import decode_netlist_bytes
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
+from crosscheck.model.read_limits import ReadLimits, limits_from_case
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
 from crosscheck.model.values import parse_number, parse_phasor
@@ -87,6 +88,8 @@ class Case:
     #: Reading-warning codes (``model.reading.WARNING_CODES``) the author has acknowledged: reports keep them
     #: silent (JSON lists them as accepted) and ``--strict`` does not make them errors.
     accept_warnings: tuple[str, ...] = ()
+    #: How large a netlist the reader accepts (defaults for untrusted input; ``--max-elements``, ``max_elements``).
+    read_limits: ReadLimits = ReadLimits()
 
     @property
     def name(self) -> str:
@@ -176,7 +179,7 @@ def _tolerance(path: Path, key: str, given: dict[str, Any], default: Tolerance) 
         raise _err(path, key, str(exc)) from None
 
 
-def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str, str]:
+def _netlist(path: Path, data: dict[str, Any], allow_outside: bool, limits: ReadLimits) -> tuple[str, str]:
     """The netlist text and the name messages use for it: inline text, or a file beside the case file.
 
     Why the path is safe: the name is checked as text (no NUL or control character, not overlong),
@@ -206,9 +209,10 @@ def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str
     if not os.path.lexists(resolved):
         raise _err(path, "netlist", f"file {raw!r} not found next to the case file")
     try:
-        content = read_regular(resolved, MAX_TEXT_CHARS)
+        content = read_regular(resolved, limits.max_netlist_bytes)
     except InputFileError as exc:
-        raise _err(path, "netlist", f"file {raw!r}: {exc}") from None
+        why = str(exc) if exc.too_large is None else limits.size_refusal(exc.too_large)
+        raise _err(path, "netlist", f"file {raw!r}: {why}") from None
     return decode_netlist_bytes(content, name), name
 
 
@@ -364,20 +368,25 @@ _TOP_KEYS = {
     "about",
     "caution",
     "accept_warnings",
+    "max_elements",
+    "max_netlist_mib",
 }
 
 
-def load_case(path: str | Path, allow_outside: bool = False) -> Case:
+def load_case(path: str | Path, allow_outside: bool = False, read_limits: ReadLimits | None = None) -> Case:
     """Read and check one case file; every problem raises CaseFileError naming the file and key.
 
     ``allow_outside``: read a netlist, or a symlinked case file's target, outside the case file's folder.
+    ``read_limits``: the command line's netlist size limits, in place of the file's ``max_elements`` and
+    ``max_netlist_mib`` (None: the file's, else the defaults for untrusted input).
     """
     path = Path(path)
     data = read_table(path, allow_outside)
     unknown = set(data) - _TOP_KEYS
     if unknown:
         raise _err(path, sorted(unknown)[0], f"unknown key; a case file knows {', '.join(sorted(_TOP_KEYS))}")
-    text, netlist_file = _netlist(path, data, allow_outside)
+    limits = limits_from_case(path, data, read_limits)
+    text, netlist_file = _netlist(path, data, allow_outside, limits)
     excitation = _excitation(path, data)
     freqs = [0.0] if excitation == "dc" and not ({"frequencies", "sweep"} & set(data)) else _frequencies(path, data)
     _dc_frequencies(path, data, excitation, freqs)
@@ -402,6 +411,7 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         tags=_tags(path, data),
         caution=string(path, data, "caution", "").strip(),
         accept_warnings=accepted_warnings(data.get("accept_warnings", []), where=f"{path}: key 'accept_warnings'"),
+        read_limits=limits,
     )
 
 
