@@ -211,7 +211,7 @@ def _netlist(path: Path, data: dict[str, Any], allow_outside: bool, limits: Read
     try:
         content = read_regular(resolved, limits.max_netlist_bytes)
     except InputFileError as exc:
-        why = str(exc) if exc.too_large is None else limits.size_refusal(exc.too_large)
+        why = str(exc) if exc.too_large is None else limits.size_refusal(exc.too_large, "bytes")
         raise _err(path, "netlist", f"file {raw!r}: {why}") from None
     return decode_netlist_bytes(content, name), name
 

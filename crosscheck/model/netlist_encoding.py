@@ -119,6 +119,6 @@ def read_netlist_text_with_notes(
     except InputFileError as exc:
         if exc.too_large is not None:
             shown = limits or ReadLimits(max_netlist_mib=-(-most // 2**20))
-            raise NetlistError(shown.size_refusal(exc.too_large), Location(file)) from None
+            raise NetlistError(shown.size_refusal(exc.too_large, "bytes"), Location(file)) from None
         raise NetlistError(f"cannot read the netlist: {exc}; check the path", Location(file)) from None
     return decode_netlist_bytes_with_notes(data, file)

@@ -57,12 +57,12 @@ class ReadLimits:
             "(case file: max_elements = N)"
         )
 
-    def size_refusal(self, length: int) -> str:
-        """The message for a netlist of ``length`` characters or bytes, beyond ``max_netlist_bytes``."""
+    def size_refusal(self, length: int, unit: str = "characters") -> str:
+        """The message for a netlist of ``length`` characters (or bytes, a file's), beyond ``max_netlist_bytes``."""
         needed = -(-length // 2**20)
         return (
-            f"the netlist is {length} characters long, beyond the limit of {self.max_netlist_mib} MiB "
-            f"({self.max_netlist_bytes} characters) for untrusted input: if you trust this netlist, raise the "
+            f"the netlist is {length} {unit} long, beyond the limit of {self.max_netlist_mib} MiB "
+            f"({self.max_netlist_bytes} {unit}) for untrusted input: if you trust this netlist, raise the "
             f"limit with {NETLIST_MIB_FLAG} {needed} or more (case file: max_netlist_mib = {needed})"
         )
 
