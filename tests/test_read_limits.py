@@ -31,7 +31,6 @@ def over_default(tmp_path_factory: pytest.TempPathFactory) -> Path:
     return path
 
 
-@pytest.mark.slow
 def test_the_default_element_limit_refuses_and_names_the_flag(over_default: Path, capsys) -> None:
     """reduce without the flag: exit 2 (an error), the message names --max-elements and the case-file key."""
     code = main(["reduce", str(over_default), "--port", "a", "0", "--freq", "1k", "--engine", "own"])
@@ -41,7 +40,6 @@ def test_the_default_element_limit_refuses_and_names_the_flag(over_default: Path
     assert "--max-elements N" in err and "max_elements = N" in err
 
 
-@pytest.mark.slow
 def test_the_element_flag_admits_the_netlist(over_default: Path, capsys) -> None:
     """--max-elements above the count reads it: V_th = 0.5 V and Z_th = 500 Ω (a divider of two 1 kΩ halves)."""
     code = main(
