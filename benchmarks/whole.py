@@ -52,7 +52,18 @@ def crosscheck_command() -> list[str]:
 
 
 def write_network(family: str, nodes: int, folder: str) -> tuple[str, tuple[str, str], int]:
-    """The network written as a netlist file: its path, port and line count."""
+    """The network written as a netlist file by a child process: its path, port and line count.
+
+    Built in a child so that this process stays small: Linux carries a process's peak resident memory
+    across ``fork`` and ``exec``, so a child started from a large parent would report the parent's peak."""
+    done = run_child(__file__, {"write": [family, nodes, folder]}, None, sandboxed=False)
+    if "stopped" in done:
+        raise RuntimeError(f"writing the {family} network of {nodes} nodes failed: {done['stopped']}")
+    return done["path"], (done["port"][0], done["port"][1]), done["lines"]
+
+
+def _write(family: str, nodes: int, folder: str) -> dict:
+    """In the child: build the network, write it with the project's writer."""
     from crosscheck.fuzz.large import build
     from crosscheck.model.netlist_writer import write_netlist
 
@@ -61,7 +72,7 @@ def write_network(family: str, nodes: int, folder: str) -> tuple[str, tuple[str,
     path = os.path.join(folder, f"{family}_{nodes}.cir")
     with open(path, "w") as fh:
         fh.write(text)
-    return path, (port.a, port.b), text.count("\n")
+    return {"path": path, "port": [port.a, port.b], "lines": text.count("\n")}
 
 
 def reduce_run(
@@ -74,6 +85,8 @@ def reduce_run(
 
 def _child(job: dict) -> dict:
     """In this fresh process: read the file (seconds, lines per second), then the equivalents (seconds)."""
+    if "write" in job:
+        return _write(*job["write"])
     from crosscheck.model.netlist import read_netlist_file_reading
     from crosscheck.model.network import Port
     from crosscheck.model.read_limits import ReadLimits
