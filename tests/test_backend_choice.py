@@ -73,3 +73,19 @@ def test_auto_without_klu_is_superlu(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.delenv(sparse_backends.ENV_VAR, raising=False)
     assert sparse_backends.default_backend() == "superlu"
     assert _analysis("ladder", 200).name == "superlu"
+
+
+def test_superlu_factors_on_one_blas_thread() -> None:
+    """Inside SuperLU's factorization every loaded BLAS runs one thread (a busy machine made the default
+    of one per core up to 16x slower); outside it the libraries' own setting is back."""
+    from threadpoolctl import threadpool_info
+
+    def blas_threads() -> list[int]:
+        return [info["num_threads"] for info in threadpool_info() if info["user_api"] == "blas"]
+
+    sparse_backends._blas_controller()  # loads SuperLU's module and with it its BLAS
+    before = blas_threads()
+    with sparse_backends._one_blas_thread():
+        inside = blas_threads()
+    assert inside and all(n == 1 for n in inside)
+    assert blas_threads() == before
