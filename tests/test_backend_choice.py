@@ -17,7 +17,7 @@ needs_klu = pytest.mark.skipif("klu" not in sparse_backends.available(), reason=
         (4.5e6, "klu"),  # a 1,000,000-node ladder
         (2.3e7, "klu"),  # a 10,000-node grid
         (1.0e9, "superlu"),  # a 100,000-node grid
-        (3.6e10, "klu"),  # a 1,000,000-node grid: AMD's ordering beats MMD's again
+        (3.6e10, "superlu"),  # a 1,000,000-node grid: 11 s against 54 s
     ],
 )
 def test_the_rule_on_the_measured_estimates(flops: float, chosen: str) -> None:
@@ -26,10 +26,10 @@ def test_the_rule_on_the_measured_estimates(flops: float, chosen: str) -> None:
 
 
 def test_the_rule_has_closed_ends() -> None:
-    """The band's ends belong to it; just outside them KLU is chosen."""
+    """The band's lower end belongs to it; just below it KLU is chosen; it has no upper end."""
     low, high = sparse_backends.SUPERLU_FLOPS
-    assert sparse_backends.choose_by_fill(low) == sparse_backends.choose_by_fill(high) == "superlu"
-    assert sparse_backends.choose_by_fill(low * 0.999) == sparse_backends.choose_by_fill(high * 1.001) == "klu"
+    assert sparse_backends.choose_by_fill(low) == sparse_backends.choose_by_fill(1e15) == "superlu"
+    assert sparse_backends.choose_by_fill(low * 0.999) == "klu" and high == float("inf")
 
 
 def _analysis(family: str, nodes: int) -> sparse_backends.Analysis:

@@ -20,28 +20,29 @@ The choice, by fill (``auto``, the default when a KLU library loads): KLU's anal
 is made first, and its estimate of one factorization's floating-point operations (``est_flops``)
 decides. KLU's left-looking kernel works column by column at about 1 Gflop/s here, so it wins wherever
 fill is light (ladders, trees, random graphs with locality: a few to a few hundred operations per
-unknown); SuperLU's supernodal kernels win only where fill is heavy, and its MMD ordering falls
-behind AMD again on the largest meshes. So ``superlu`` is chosen when the estimate lies within
-``SUPERLU_FLOPS`` and ``klu`` otherwise. Measured (one factorization + a 2-column solve at 1 kHz,
-``fuzz.large`` networks, seconds, on a shared 2-core machine: ``benchmarks/bench.py`` prints the
-same table as "sparse LU back ends"):
+unknown); SuperLU's supernodal kernels win where fill is heavy (meshes from about 100,000 nodes).
+So ``superlu`` is chosen when the estimate lies within ``SUPERLU_FLOPS`` and ``klu`` otherwise.
+Measured (one numeric factorization at 1 kHz, ``fuzz.large`` networks, seconds, on a shared 2-core
+machine; ``benchmarks/bench.py`` prints the like as "sparse LU back ends"):
 
-===========  ========  ==============  =========  ============  ==========  ===========
+===========  ========  ==============  =========  ============  ==========  ===============
 family       nodes     KLU est. flops  KLU LU nz  KLU factor    SuperLU nz  SuperLU
-===========  ========  ==============  =========  ============  ==========  ===========
+===========  ========  ==============  =========  ============  ==========  ===============
 ladder       10,000    4.5e4           6.0e4      0.0011        6.2e4       0.010
 ladder       100,000   4.5e5           6.0e5      0.012         6.2e5       0.074
 ladder       1,000,000 4.5e6           6.0e6      0.22          6.2e6       0.78
 grid         10,000    2.3e7           4.1e5      0.032         3.7e5       0.20
 grid         100,000   1.0e9           6.5e6      1.05          5.6e6       0.47
-grid         1,000,000 3.6e10          8.9e7      53.8          7.9e7       75.8
+grid         1,000,000 3.6e10          8.9e7      53.8          7.9e7       11.3 (1 thread)
 random       10,000    3.4e5           1.1e5      0.0042        1.3e5       0.029
 random       100,000   5.1e6           1.2e6      0.060         1.5e6       15.1
-===========  ========  ==============  =========  ============  ==========  ===========
+===========  ========  ==============  =========  ============  ==========  ===============
 
-(KLU LU nz is the analysis's estimate; SuperLU's is L + U as factored. The random graph at 1M was not
-finished by SuperLU within minutes; KLU factors it in well under a second.) UMFPACK was slower than
-KLU on ladders and trees; pypardiso refuses complex matrices. MMD on Aᵀ+A is SuperLU's best ordering
+(KLU LU nz is the analysis's estimate; SuperLU's is L + U as factored. SuperLU's times are with
+OpenBLAS's default threads, on a busy machine, except the 1M grid's (one BLAS thread; 75.8 s with the
+default threads), so some may be inflated as described below; the random graph at 1M was not finished
+by SuperLU within minutes, while KLU factors it in well under a second.) UMFPACK was slower than KLU
+on ladders and trees; pypardiso refuses complex matrices. MMD on Aᵀ+A is SuperLU's best ordering
 on these families or close to it.
 
 SuperLU factors with its BLAS held to one thread (threadpoolctl): with OpenBLAS's default of one
@@ -56,6 +57,7 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import math
 import os
 import warnings
 from typing import Any, Protocol
@@ -75,10 +77,10 @@ ENV_VAR = "CROSSCHECK_SPARSE"
 #: graphs (fill 1.33x on ladders and trees, 4.6x on a 1,000-node grid against COLAMD's 7.5x).
 SUPERLU_ORDERING = "MMD_AT_PLUS_A"
 #: Estimated KLU flops per factorization within which SuperLU is chosen: from where its supernodes paid
-#: off (a 100,000-node grid, 1e9: SuperLU 0.47 s against KLU's 1.05 s) up to where AMD's ordering beat
-#: MMD's again (a 1,000,000-node grid, 3.6e10: KLU 54 s against 76 s). Below it KLU won every family
-#: (a 10,000-node grid, 2.3e7: 0.03 s against 0.2 s). The ends lie between the measured sizes.
-SUPERLU_FLOPS = (3e8, 1e10)
+#: off (a 100,000-node grid, 1e9: SuperLU 0.47 s against KLU's 1.05 s; a 1,000,000-node grid, 3.6e10:
+#: 11.3 s on one BLAS thread against 54 s) upwards. Below it KLU won every family (a 10,000-node grid,
+#: 2.3e7: 0.03 s against 0.2 s). The lower end lies between the measured sizes.
+SUPERLU_FLOPS = (3e8, math.inf)
 
 
 class SingularFactorError(CrosscheckError, ArithmeticError):
@@ -168,7 +170,8 @@ class _SuperLuFactor:
         self._lu = lu
 
     def solve(self, b: np.ndarray, adjoint: bool = False) -> np.ndarray:
-        return self._lu.solve(np.asarray(b, dtype=complex), trans="H" if adjoint else "N")
+        with _one_blas_thread():
+            return self._lu.solve(np.asarray(b, dtype=complex), trans="H" if adjoint else "N")
 
 
 class _SuperLuAnalysis:
