@@ -356,10 +356,7 @@ def _strict(args: argparse.Namespace, results: Sequence[CaseResult]) -> list[Cas
 
 def _read_limits(args: argparse.Namespace) -> ReadLimits | None:
     """--max-elements and --max-netlist-mib as the reader's limits (None when neither was given)."""
-    if args.max_elements is None and args.max_netlist_mib is None:
-        return None
-    default = ReadLimits()
-    return ReadLimits(args.max_elements or default.max_elements, args.max_netlist_mib or default.max_netlist_mib)
+    return ReadLimits.given(args.max_elements, args.max_netlist_mib)
 
 
 def _overridden(case: Case, args: argparse.Namespace) -> Case:

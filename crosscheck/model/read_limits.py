@@ -44,6 +44,13 @@ class ReadLimits:
     max_elements: int = DEFAULT_MAX_ELEMENTS
     max_netlist_mib: int = DEFAULT_MAX_NETLIST_MIB
 
+    @classmethod
+    def given(cls, max_elements: int | None, max_netlist_mib: int | None) -> ReadLimits | None:
+        """The limits a command line gave (a default for the one left out); None when it gave neither."""
+        if max_elements is None and max_netlist_mib is None:
+            return None
+        return cls(max_elements or DEFAULT_MAX_ELEMENTS, max_netlist_mib or DEFAULT_MAX_NETLIST_MIB)
+
     @property
     def max_netlist_bytes(self) -> int:
         """The longest netlist file in bytes (and text in characters)."""
