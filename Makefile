@@ -12,7 +12,7 @@ NGSPICE_LIB := /usr/lib/$(shell uname -m)-linux-gnu/libngspice.so.0
 APT_PACKAGES := libngspice0 libngspice0-dev libklu1 gcc libc6-dev
 have_lib = ldconfig -p 2>/dev/null | grep -q '$(1) '
 
-.PHONY: demo test lint test-full test-spice bench fuzz-full system-libs venv clean
+.PHONY: demo test lint test-full test-spice bench bench-full fuzz-full system-libs venv clean
 
 demo: $(STAMP) system-libs
 	$(BIN)/crosscheck reduce corpus/audio/mixer_line_out.cir --port far_end 0 --freq 20 1k 20k
@@ -33,6 +33,10 @@ test-full: $(STAMP) system-libs
 
 bench: $(STAMP) system-libs
 	$(BIN)/python benchmarks/bench.py
+
+# The same with the whole-process rows at 1,000,000 nodes (ladder, grid, random): several minutes more.
+bench-full: $(STAMP) system-libs
+	$(BIN)/python benchmarks/bench.py --full
 
 fuzz-full: $(STAMP) system-libs
 	$(BIN)/crosscheck fuzz --count 10000 --seed 1 --out out/fuzz

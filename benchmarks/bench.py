@@ -1,10 +1,13 @@
 """Benchmark: the own solver against the SPICE route, growth with size, sparse back ends, batch throughput, Dask.
 
-    python benchmarks/bench.py            # the full run (~5 minutes on 2 cores)
+    python benchmarks/bench.py            # the usual run (~10 minutes on 2 cores)
+    python benchmarks/bench.py --full     # with the whole-process rows at 1,000,000 nodes (`make bench-full`)
     python benchmarks/bench.py --quick    # small sizes only: a smoke test that every figure is printed
 
 Not part of CI: timings belong to this machine at this moment (the load average is printed with them).
-Networks come from four topology families (``crosscheck.fuzz.large``), at 100 to 100,000 non-ground nodes
+It opens with the whole command as a user times it (``whole``: ``crosscheck reduce`` in a child process
+per family at 1k/10k/100k nodes, 1M with ``--full``, the SPICE route beside it, the reading rate, and the
+two goal ratios), then the in-process figures. Networks come from four topology families (``crosscheck.fuzz.large``), at 100 to 100,000 non-ground nodes
 (the fifth, the power grid, has its own section: ``reference_scale``, the SPICE route at 1k/10k/100k nodes
 beside the own route, AC and DC):
 
@@ -46,6 +49,9 @@ from reference_scale import report_reference_scale  # noqa: E402
 from startup import report_startup  # noqa: E402
 from throughput import report_dask, report_small_cases, report_throughput  # noqa: E402
 from timing import run_child, section, timed  # noqa: E402
+from whole import FULL_SIZES as WHOLE_FULL_SIZES  # noqa: E402
+from whole import SIZES as WHOLE_SIZES  # noqa: E402
+from whole import report_ratios, report_whole  # noqa: E402
 
 from crosscheck.model.network import Network
 
@@ -321,15 +327,16 @@ def report_backends(families: Sequence[str], sizes: Sequence[int]) -> None:
                 if nodes > 10_000 and ordering != sparse_backends.SUPERLU_ORDERING:
                     cells.append("—")
                     continue
-                cells.append(
-                    _best(
-                        lambda m=a, o=ordering, b=rhs: splu(m, permc_spec=o).solve(b),
-                        repeat=1 if nodes >= 10_000 else 3,
+                with sparse_backends._one_blas_thread():  # as the solver runs SuperLU
+                    cells.append(
+                        _best(
+                            lambda m=a, o=ordering, b=rhs: splu(m, permc_spec=o).solve(b),
+                            repeat=1 if nodes >= 10_000 else 3,
+                        )
                     )
-                )
             print(f"{family:8} {nodes:>7} " + " ".join(f"{c:>14}" for c in cells), flush=True)
     print(
-        f"default: {sparse_backends.default_backend()} (SuperLU, when it is used, orders with "
+        f"default: {sparse_backends.default_backend()} (auto: SuperLU from {sparse_backends.SUPERLU_FLOPS[0]:.0e} estimated flops; it orders with "
         f"{sparse_backends.SUPERLU_ORDERING}); at 100,000 nodes only the default SuperLU ordering is timed"
     )
 
@@ -369,6 +376,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         metavar="N",
         help="small random cases for the throughput and Dask figures (default 400, quick 60)",
     )
+    parser.add_argument(
+        "--full", action="store_true", help="whole-process rows at 1,000,000 nodes too (`make bench-full`)"
+    )
     parser.add_argument("--child", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
@@ -381,6 +391,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     from crosscheck.spice.engine import ngspice_available
 
     spice_ok = ngspice_available()
+    whole_sizes = WHOLE_SIZES[:1] if args.quick else WHOLE_FULL_SIZES if args.full else WHOLE_SIZES
+    report_whole(whole_sizes, args.spice_limit, spice_ok)
+    if not args.quick:
+        report_ratios(spice_ok)
     rows = run_routes(args.families, sizes, args.spice_limit, spice_ok)
     report_reference_scale(SCALE_QUICK_SIZES if args.quick else SCALE_SIZES, None, spice_ok)
     report_growth(rows)
@@ -404,7 +418,7 @@ def _header() -> None:
     from crosscheck.own import sparse_backends, sweep_kernel
 
     backend = sparse_backends.default_backend()
-    loop = "compiled" if backend == "klu" and sweep_kernel.load() is not None else "Python"
+    loop = "compiled" if backend in ("klu", "auto") and sweep_kernel.load() is not None else "Python"
     print("crosscheck benchmark")
     print(
         f"machine: {os.cpu_count()} cores, Python {platform.python_version()}, numpy {np.__version__}, "

@@ -1,4 +1,5 @@
-"""Timing helpers shared by the benchmark's scripts: the best of several runs, section headings, child runs."""
+"""Timing helpers shared by the benchmark's scripts: the best of several runs, section headings, child runs,
+and whole commands timed as a user times them (wall time and the child's peak resident memory)."""
 
 from __future__ import annotations
 
@@ -10,7 +11,8 @@ import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 
 
@@ -61,3 +63,44 @@ def run_child(script: str, job: dict, limit_s: float | None, *, sandboxed: bool 
         tail = " | ".join(done.stderr.strip().splitlines()[-2:])
         return {"stopped": f"failed (exit {done.returncode}: {tail})"}
     return json.loads(done.stdout.strip().splitlines()[-1])
+
+
+@dataclass(frozen=True)
+class Finished:
+    """A command that ran in a child process: wall seconds (inf when stopped), peak resident MiB, and why
+    it did not finish cleanly ("" when it did)."""
+
+    seconds: float
+    peak_mib: float
+    why: str = ""
+
+    @property
+    def ok(self) -> bool:
+        return not self.why
+
+
+def run_command(command: Sequence[str], limit_s: float | None) -> Finished:
+    """``command`` in a child process, its output discarded; stopped at ``limit_s`` seconds.
+
+    The peak memory is the child's own ``ru_maxrss`` from ``wait4`` (its whole tree's largest process),
+    read without a shell and without sharing this process's accounting with earlier children.
+    """
+    with tempfile.TemporaryFile() as errors:  # a file, not a pipe: a chatty child never blocks on it
+        started = time.perf_counter()
+        child = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=errors)
+        while True:
+            pid, status, usage = os.wait4(child.pid, os.WNOHANG)
+            if pid:
+                break
+            if limit_s is not None and time.perf_counter() - started > limit_s:
+                child.kill()
+                os.wait4(child.pid, 0)
+                child.returncode = -9  # reaped here: Popen must not wait for it again
+                return Finished(math.inf, math.nan, f"> {limit_s:g} s")
+            time.sleep(0.005)
+        seconds = time.perf_counter() - started
+        child.returncode = os.waitstatus_to_exitcode(status)
+        errors.seek(0)
+        tail = " | ".join(errors.read().decode(errors="replace").strip().splitlines()[-1:])
+    peak = usage.ru_maxrss / 1024.0
+    return Finished(seconds, peak, f"exit {child.returncode}: {tail}" if child.returncode else "")

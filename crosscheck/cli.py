@@ -22,6 +22,7 @@ from crosscheck.cli_common import (
     budget_from_options,
     excitation_frequencies,
     exit_code,
+    read_limits_given,
     strict,
     terminal,
     tolerance_from_options,
@@ -133,6 +134,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
     """Every case file found under the paths, read; a file that cannot be read stays as (path, error)."""
     from crosscheck.model.cases import find_case_files, load_case  # start-up time: per command
     from crosscheck.model.netlist import read_netlist_text  # start-up time: per command
+    from crosscheck.model.read_limits import ReadLimits  # start-up time: per command
     from crosscheck.run.check import case_from_netlist  # start-up time: per command
 
     items: list[Case | tuple[str, CrosscheckError]] = []
@@ -140,16 +142,18 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
     for path in find_case_files(list(args.paths)):
         try:
             if path.suffix.lower() == ".toml" or path.is_dir():  # a folder here is one that could not be searched
-                items.append(_overridden(load_case(path, allow_outside=args.allow_outside_paths), args))
+                case = load_case(path, allow_outside=args.allow_outside_paths, read_limits=read_limits_given(args))
+                items.append(_overridden(case, args))
                 continue
             netlists += 1
             excitation = args.excitation or "ac"
             if not args.port or not (args.freq or excitation == "dc"):
                 raise CrosscheckError(f"{path}: a netlist named directly needs --port A B and --freq F ...")
+            limits = read_limits_given(args)
             case = replace(
                 case_from_netlist(
                     str(path),
-                    read_netlist_text(path),
+                    read_netlist_text(path, limits=limits),
                     tuple(args.port),
                     excitation_frequencies(args.freq, excitation),
                     tolerance_from_options(args),
@@ -159,6 +163,7 @@ def _verify_items(args: argparse.Namespace) -> list[Case | tuple[str, Crosscheck
                     excitation,
                 ),
                 spread=spread_spec(args, None),
+                read_limits=limits or ReadLimits(),
             )
             items.append(case)
         except CrosscheckError as exc:

@@ -16,6 +16,7 @@ from crosscheck.model.values import parse_number
 
 if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up time: --version loads none of it)
     from crosscheck.judge.result import CaseResult
+    from crosscheck.model.read_limits import ReadLimits
 
 # Exit codes (documented in the README).
 EXIT_OK = 0  # every compared quantity within tolerance (or nothing to compare)
@@ -132,3 +133,10 @@ def warnings_on_stderr(result: CaseResult) -> None:
 
     for warning in result.open_warnings:
         print(f"crosscheck: warning: {terminal(str(warning))}", file=sys.stderr)
+
+
+def read_limits_given(args: argparse.Namespace) -> ReadLimits | None:
+    """--max-elements and --max-netlist-mib as the reader's limits (None when neither was given)."""
+    from crosscheck.model.read_limits import ReadLimits  # start-up time: per command
+
+    return ReadLimits.given(args.max_elements, args.max_netlist_mib)

@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING, Any
 
 from crosscheck.errors import CrosscheckError
 from crosscheck.model.frequencies import check_frequency_text, checked_frequency
+from crosscheck.model.read_limits import DEFAULT_MAX_ELEMENTS, DEFAULT_MAX_NETLIST_MIB, MOST_ELEMENTS, MOST_NETLIST_MIB
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.values import parse_number
 
@@ -293,6 +294,34 @@ def _common_options(p: argparse.ArgumentParser) -> None:
         help=f"relative tolerance, solver vs SPICE (default 1e-6; from {SMALLEST_REL:.3g}, machine epsilon, to 1)",
     )
     _warning_options(p)
+    _size_options(p)
+
+
+def _size_options(p: argparse.ArgumentParser) -> None:
+    """--max-elements, --max-netlist-mib: the reader's limits for untrusted input, raised for trusted work."""
+    p.add_argument(
+        "--max-elements",
+        type=lambda text: _limit_option(text, MOST_ELEMENTS),
+        default=None,
+        metavar="N",
+        help=f"read netlists of up to N elements after flattening (default {DEFAULT_MAX_ELEMENTS:,}, a limit for "
+        "untrusted input; raise it for a large network you trust); overrides case files' max_elements",
+    )
+    p.add_argument(
+        "--max-netlist-mib",
+        type=lambda text: _limit_option(text, MOST_NETLIST_MIB),
+        default=None,
+        metavar="N",
+        help=f"read netlist files of up to N MiB (default {DEFAULT_MAX_NETLIST_MIB}, a limit for untrusted input); "
+        "overrides case files' max_netlist_mib",
+    )
+
+
+def _limit_option(text: str, most: int) -> int:
+    value = _whole(text, f"a whole number from 1 to {most}, e.g. 2000000")
+    if not 1 <= value <= most:
+        raise argparse.ArgumentTypeError(f"{text!r} is out of range; write a whole number from 1 to {most}")
+    return value
 
 
 def _excitation_option(p: argparse.ArgumentParser, what: str) -> None:

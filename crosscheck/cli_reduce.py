@@ -19,6 +19,7 @@ from crosscheck.cli_common import (
     excitation_frequencies,
     exit_code,
     expect_tolerance,
+    read_limits_given,
     strict,
     terminal,
     tolerance_from_options,
@@ -35,6 +36,7 @@ if TYPE_CHECKING:  # the rest loads inside the commands that use it (start-up ti
 def reduce(args: argparse.Namespace) -> int:
     """One netlist at one port: the equivalents, and both routes compared unless --engine own."""
     from crosscheck.model.netlist import read_netlist_text  # start-up time: per command
+    from crosscheck.model.read_limits import ReadLimits  # start-up time: per command
     from crosscheck.report.reduction import print_reduction, reduction_document  # start-up time: per command
     from crosscheck.report.results_text import report_console  # start-up time: per command
     from crosscheck.run.check import case_from_netlist, run_cases  # start-up time: per command
@@ -56,9 +58,10 @@ def reduce(args: argparse.Namespace) -> int:
         )
         return EXIT_USAGE
     extra = [e.at_hz for e in expectations if not any(same_frequency(e.at_hz, f) for f in freqs)]
+    limits = read_limits_given(args)
     case = case_from_netlist(
         str(args.netlist),
-        read_netlist_text(args.netlist),
+        read_netlist_text(args.netlist, limits=limits),
         tuple(args.port[0]),
         freqs,
         tolerance_from_options(args),
@@ -67,7 +70,13 @@ def reduce(args: argparse.Namespace) -> int:
         args.accept_warning,
         excitation,
     )
-    case = replace(case, freqs_hz=tuple(freqs + extra), expectations=expectations, spread=spread_spec(args, None))
+    case = replace(
+        case,
+        freqs_hz=tuple(freqs + extra),
+        expectations=expectations,
+        spread=spread_spec(args, None),
+        read_limits=limits or ReadLimits(),
+    )
     if len(args.port) > 1:  # several ports: voc, Z, isc and Y (``run.multiport``)
         from crosscheck.model.port_spec import MultiportSpec, ports_from_pairs  # start-up time: per command
 

@@ -50,6 +50,10 @@ LABELS = (
     "small reduce (8 nodes, own)",
     "own route per small case",
     "ngspice's own engine time",
+    "whole process, as a user times it",
+    "own whole",
+    "lines/s",
+    "SPICE whole",
 )
 
 
@@ -67,6 +71,9 @@ def test_quick_benchmark_prints_every_figure():
         rows = re.findall(rf"^{family}\s+(100|1000)\s+\d+\s+30\s+\S+ m?s\s+\S+ m?s\s+\S+x", out, re.MULTILINE)
         assert len(rows) == 2, f"{family}: expected rows at 100 and 1000 nodes with both routes timed\n{out}"
         assert re.search(rf"^{family}\s+own k = -?\d+\.\d\d", out, re.MULTILINE), f"{family}: no fitted exponent"
+    for family in ("ladder", "grid", "random"):  # the whole-process rows: own route, peak, reading, SPICE route
+        row = rf"^{family}\s+1,000\s+[\d,]+\s+\S+ m?s\s+\d+ MiB\s+\S+ m?s\s+[\d,]+\s+\S+ m?s\s+\S+ m?s\s+\S+x"
+        assert re.search(row, out, re.MULTILINE), f"{family}: no whole-process row at 1,000 nodes\n{out}"
     assert re.search(r"overhead per case: [+-]\d+\.\d\d ms", out)
     assert re.search(r"\d+ cases/s", out)
 
@@ -85,3 +92,18 @@ def test_fitted_exponent_recovers_a_power_law():
     nodes = np.array([100, 1_000, 10_000, 100_000], dtype=float)
     assert abs(fitted_exponent(nodes, 3e-6 * nodes ** 1.5) - 1.5) <= 1e-9
     assert np.isnan(fitted_exponent([100.0], [1.0]))
+
+
+def test_a_whole_command_is_timed_with_its_peak_memory_and_failures_named():
+    """run_command: a clean exit gives seconds and the child's own peak memory; a failing exit and a command
+    stopped at its limit say so (the figures the whole-process rows print)."""
+    sys.path.insert(0, str(BENCH.parent))
+    from timing import run_command
+
+    grown = run_command([sys.executable, "-c", "b = bytearray(200 * 2**20); b[::4096] = b'x' * len(b[::4096])"], 60)
+    assert grown.ok and 0 < grown.seconds < 60
+    assert grown.peak_mib >= 200, grown  # the child's 200 MiB, not this process's
+    failed = run_command([sys.executable, "-c", "import sys; sys.exit('no such network')"], 60)
+    assert not failed.ok and failed.why.startswith("exit 1") and "no such network" in failed.why
+    stopped = run_command([sys.executable, "-c", "import time; time.sleep(30)"], 0.5)
+    assert not stopped.ok and stopped.why == "> 0.5 s" and stopped.seconds == float("inf")

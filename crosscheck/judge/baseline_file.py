@@ -343,7 +343,12 @@ def element_cards(case: Any) -> dict[str, str] | None:
     if case is None:
         return None
     try:
-        network = read_netlist(case.netlist_text, allow_negative=case.allow_negative, port=Port(*case.port))
+        network = read_netlist(
+            case.netlist_text,
+            allow_negative=case.allow_negative,
+            port=Port(*case.port),
+            limits=getattr(case, "read_limits", None),
+        )
     except (CrosscheckError, TypeError, ValueError):
         return None
     return {e.name: _card(e) for e in network.elements}

@@ -184,7 +184,11 @@ def _diagnose(
     if network is None:
         try:
             network = read_netlist(
-                case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative, port=port
+                case.netlist_text,
+                file=case.netlist_file,
+                allow_negative=case.allow_negative,
+                port=port,
+                limits=case.read_limits,
             )
         except CrosscheckError:
             return None

@@ -142,7 +142,11 @@ def assess_case(case: Case | None, own: Sequence[Equivalent] | None, sources: st
     if case is not None:
         try:
             network = read_netlist(
-                case.netlist_text, file=case.netlist_file, allow_negative=case.allow_negative, port=Port(*case.port)
+                case.netlist_text,
+                file=case.netlist_file,
+                allow_negative=case.allow_negative,
+                port=Port(*case.port),
+                limits=case.read_limits,
             )
             volts = source_volts(network)
         except CrosscheckError:

@@ -28,9 +28,10 @@ from crosscheck.model.case_values import number as _number
 from crosscheck.model.case_values import tolerance as _tolerance
 from crosscheck.model.files import InputFileError, check_path_text, read_regular
 from crosscheck.model.frequencies import FrequencyError, frequency_list
-from crosscheck.model.netlist import MAX_TEXT_CHARS, decode_netlist_bytes
+from crosscheck.model.netlist import decode_netlist_bytes
 from crosscheck.model.netlist_cards import MAX_NAME_CHARS
 from crosscheck.model.port_spec import MultiportSpec, multiport_from_case
+from crosscheck.model.read_limits import ReadLimits, limits_from_case
 from crosscheck.model.reading import WARNING_CODES
 from crosscheck.model.requirements import Expectation, Limit
 from crosscheck.model.tolerance import HAND_CALCULATION, SOLVER_VS_SPICE, Tolerance
@@ -73,6 +74,8 @@ class Case:
     multiport: MultiportSpec | None = None
     #: Component spread (``[[vary]]`` tables with ``samples``, ``seed``, ``spice_samples``); None: nominal only.
     spread: SpreadSpec | None = None
+    #: How large a netlist the reader accepts (defaults for untrusted input; ``--max-elements``, ``max_elements``).
+    read_limits: ReadLimits = ReadLimits()
 
     @property
     def name(self) -> str:
@@ -123,7 +126,7 @@ def _check_count(path: Path, key: str, count: int) -> None:
         raise _err(path, key, f"asks for {count} frequency points; at most {MAX_POINTS} per case")
 
 
-def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str, str]:
+def _netlist(path: Path, data: dict[str, Any], allow_outside: bool, limits: ReadLimits) -> tuple[str, str]:
     """The netlist text and the name messages use for it: inline text, or a file beside the case file.
 
     Why the path is safe: the name is checked as text (no NUL or control character, not overlong),
@@ -153,9 +156,10 @@ def _netlist(path: Path, data: dict[str, Any], allow_outside: bool) -> tuple[str
     if not os.path.lexists(resolved):
         raise _err(path, "netlist", f"file {raw!r} not found next to the case file")
     try:
-        content = read_regular(resolved, MAX_TEXT_CHARS)
+        content = read_regular(resolved, limits.max_netlist_bytes)
     except InputFileError as exc:
-        raise _err(path, "netlist", f"file {raw!r}: {exc}") from None
+        why = str(exc) if exc.too_large is None else limits.size_refusal(exc.too_large, "bytes")
+        raise _err(path, "netlist", f"file {raw!r}: {why}") from None
     return decode_netlist_bytes(content, name), name
 
 
@@ -287,20 +291,25 @@ _TOP_KEYS = {
     "samples",
     "seed",
     "spice_samples",
+    "max_elements",
+    "max_netlist_mib",
 }
 
 
-def load_case(path: str | Path, allow_outside: bool = False) -> Case:
+def load_case(path: str | Path, allow_outside: bool = False, read_limits: ReadLimits | None = None) -> Case:
     """Read and check one case file; every problem raises CaseFileError naming the file and key.
 
     ``allow_outside``: read a netlist, or a symlinked case file's target, outside the case file's folder.
+    ``read_limits``: the command line's netlist size limits, in place of the file's ``max_elements`` and
+    ``max_netlist_mib`` (None: the file's, else the defaults for untrusted input).
     """
     path = Path(path)
     data = read_table(path, allow_outside)
     unknown = set(data) - _TOP_KEYS
     if unknown:
         raise _err(path, sorted(unknown)[0], f"unknown key; a case file knows {', '.join(sorted(_TOP_KEYS))}")
-    text, netlist_file = _netlist(path, data, allow_outside)
+    limits = limits_from_case(path, data, read_limits)
+    text, netlist_file = _netlist(path, data, allow_outside, limits)
     excitation = _excitation(path, data)
     freqs = [0.0] if excitation == "dc" and not ({"frequencies", "sweep"} & set(data)) else _frequencies(path, data)
     _dc_frequencies(path, data, excitation, freqs)
@@ -328,6 +337,7 @@ def load_case(path: str | Path, allow_outside: bool = False) -> Case:
         accept_warnings=accepted_warnings(data.get("accept_warnings", []), where=f"{path}: key 'accept_warnings'"),
         multiport=multiport,
         spread=_spread(path, data),
+        read_limits=limits,
     )
 
 

@@ -25,7 +25,15 @@ MAX_PATH_CHARS = 4096
 
 
 class InputFileError(CrosscheckError, ValueError):
-    """Why an input file could not be read, in words; callers wrap it in their own error with file and key."""
+    """Why an input file could not be read, in words; callers wrap it in their own error with file and key.
+
+    ``too_large``: the file's size in bytes when it was refused for being over the limit (else None), so
+    a caller can say which setting to raise.
+    """
+
+    def __init__(self, message: str, too_large: int | None = None) -> None:
+        super().__init__(message)
+        self.too_large = too_large
 
 
 def _kind(mode: int) -> str:
@@ -67,7 +75,8 @@ def read_regular(path: str | os.PathLike, limit: int) -> bytes:
     except OSError as exc:
         raise InputFileError(f"cannot open it ({exc.strerror or exc})") from None
     try:
-        mode = os.fstat(fd).st_mode
+        status = os.fstat(fd)
+        mode = status.st_mode
         if not stat.S_ISREG(mode):
             raise InputFileError(f"it is {_kind(mode)}, not a regular file; give a text file")
         chunks, size = [], 0
@@ -82,5 +91,7 @@ def read_regular(path: str | os.PathLike, limit: int) -> bytes:
     finally:
         os.close(fd)
     if size > limit:
-        raise InputFileError(f"it is larger than the limit of {limit} bytes; such a file is refused")
+        raise InputFileError(
+            f"it is larger than the limit of {limit} bytes; such a file is refused", max(size, status.st_size)
+        )
     return b"".join(chunks)

@@ -29,10 +29,9 @@ from crosscheck.model.netlist_encoding import (
     read_netlist_text,
     read_netlist_text_with_notes,
 )
-from crosscheck.model.netlist_fields import split_fields, strip_comment
+from crosscheck.model.netlist_fields import line_problem, split_fields, strip_comment
 from crosscheck.model.netlist_params import ParamReader
 from crosscheck.model.netlist_subset import (
-    CONTROL_CHAR,
     GLOBAL_REFUSED,
     IGNORED_CARDS,
     OPTIONS_THAT_MATTER,
@@ -41,6 +40,7 @@ from crosscheck.model.netlist_subset import (
 )
 from crosscheck.model.network import GROUND, Element, Network, Port, canonical_node, check_excitation
 from crosscheck.model.params import Scope
+from crosscheck.model.read_limits import DEFAULT_MAX_ELEMENTS, ReadLimits
 from crosscheck.model.reading import Reading
 from crosscheck.model.subcircuits import Instance, Subckt, flatten
 from crosscheck.model.traps import ValueText, find_traps, for_excitation, value_text
@@ -63,8 +63,9 @@ __all__ = [
     "MAX_SUBCKT_DEPTH",
 ]
 
-#: Limits for untrusted input: beyond these the reader refuses instead of using unbounded time or memory.
-MAX_ELEMENTS = 200_000  # elements (and subcircuit instances) after flattening
+#: Limits for untrusted input: beyond these the reader refuses instead of using unbounded time or memory
+#: (the element count and the text's length are ``ReadLimits``'s defaults, which a caller may raise).
+MAX_ELEMENTS = DEFAULT_MAX_ELEMENTS  # elements (and subcircuit instances) after flattening
 MAX_LINE_CHARS = 100_000
 MAX_SUBCKT_DEPTH = 50
 MAX_TEXT_CHARS = MAX_NETLIST_CHARS
@@ -78,10 +79,15 @@ _OPTIONS = (".options", ".option", ".opt", ".opts")
 
 
 def read_netlist(
-    text: str, file: str = "<string>", *, allow_negative: bool = False, port: Port | None = None
+    text: str,
+    file: str = "<string>",
+    *,
+    allow_negative: bool = False,
+    port: Port | None = None,
+    limits: ReadLimits | None = None,
 ) -> Network:
     """Read a netlist into a validated Network (see ``read_netlist_reading`` for what is ignored)."""
-    return read_netlist_reading(text, file, allow_negative=allow_negative, port=port)[0]
+    return read_netlist_reading(text, file, allow_negative=allow_negative, port=port, limits=limits)[0]
 
 
 def read_netlist_with_notes(
@@ -103,17 +109,18 @@ def read_netlist_reading(
     allow_negative: bool = False,
     port: Port | None = None,
     excitation: str = "ac",
+    limits: ReadLimits | None = None,
 ) -> tuple[Network, Reading]:
     """Read a netlist; also return its ``Reading``: the notes and the warnings (traps), each naming file and line.
 
     A netlist with problems raises one ``NetlistError`` listing every problem found (``problems``), in
     line order; ill-posed networks raise ``NetworkError`` from ``validate`` once every card reads.
     ``excitation`` ("ac" or "dc") is set on the network and picks the warnings that concern it
-    (``no-ac-source`` or ``no-dc-source``, ``traps.for_excitation``).
+    (``no-ac-source`` or ``no-dc-source``, ``traps.for_excitation``). ``limits``: None for the defaults.
     """
     check_excitation(excitation, (), "excitation")
     with no_cyclic_gc():
-        network, reading = _Reader(file).read(text, allow_negative, port)
+        network, reading = _Reader(file, limits=limits).read(text, allow_negative, port)
     if excitation != network.excitation:
         network = replace(network, excitation=excitation)
     return network, replace(reading, warnings=for_excitation(reading.warnings, excitation))
@@ -133,12 +140,17 @@ def read_netlist_file_with_notes(
 
 
 def read_netlist_file_reading(
-    path: str | PathLike, *, allow_negative: bool = False, port: Port | None = None, excitation: str = "ac"
+    path: str | PathLike,
+    *,
+    allow_negative: bool = False,
+    port: Port | None = None,
+    excitation: str = "ac",
+    limits: ReadLimits | None = None,
 ) -> tuple[Network, Reading]:
     """``read_netlist_reading`` for a file; the decoding note (UTF-16, Windows-1252) comes first."""
-    text, decoding = read_netlist_text_with_notes(path)
+    text, decoding = read_netlist_text_with_notes(path, limits=limits)
     network, reading = read_netlist_reading(
-        text, str(path), allow_negative=allow_negative, port=port, excitation=excitation
+        text, str(path), allow_negative=allow_negative, port=port, excitation=excitation, limits=limits
     )
     return network, replace(reading, notes=decoding + reading.notes)
 
@@ -152,8 +164,11 @@ class _Reader(ParamReader):
     Each card's problem is kept (``problem``) and reading goes on, so one pass finds them all.
     """
 
-    def __init__(self, file: str, fast: bool = True):
+    def __init__(self, file: str, fast: bool = True, limits: ReadLimits | None = None):
         super().__init__(file)
+        self.limits = limits or ReadLimits(MAX_ELEMENTS, -(-MAX_TEXT_CHARS // 2**20))  # None: looked up now
+        self.most = self.limits.max_elements
+        self.max_chars = MAX_TEXT_CHARS if limits is None else limits.max_netlist_bytes
         self.fast = fast  # plain R L C lines read in bulk (``model.fast_cards``); False: every line as a card
         self.plain = PlainCards([], [], [])
         self.count = 0
@@ -187,27 +202,11 @@ class _Reader(ParamReader):
     # ---- text to cards
 
     def lines(self, text: str) -> list[str]:
-        if len(text) > MAX_TEXT_CHARS:
-            raise self.err(f"the netlist is longer than {MAX_TEXT_CHARS} characters; it is refused", 1)
+        if len(text) > self.max_chars:
+            raise self.err(self.limits.size_refusal(len(text)), 1)
         if not text.strip():
             raise self.err("the netlist is empty; a netlist is a title line followed by element cards", 1)
         return text.lstrip("\ufeff").replace("\r\n", "\n").replace("\r", "\n").split("\n")
-
-    def line_problem(self, raw: str, number: int) -> NetlistError | None:
-        if len(raw) > MAX_LINE_CHARS:
-            return self.err(
-                f"line of {len(raw)} characters is longer than the limit ({MAX_LINE_CHARS}); "
-                "split it with + continuation lines",
-                number,
-            )
-        bad = CONTROL_CHAR.search(raw)
-        if bad:
-            return self.err(
-                f"control character {bad.group()!r} in the text: binary data is not a netlist; "
-                "give the SPICE text file",
-                number,
-            )
-        return None
 
     def cards(self, text: str) -> tuple[str, list[Card], int]:
         """The title and the cards (continuations joined, comments and .control blocks dropped); plain
@@ -215,7 +214,7 @@ class _Reader(ParamReader):
         lines = self.lines(text)
         self.all_lines, self.blocks, self.last, self.depth = lines, ControlBlocks(), 1, 0
         self.card_list: list[Card] = []
-        plain = PlainLines(lines) if self.fast and len(lines) <= MAX_ELEMENTS else None  # else the limit's line
+        plain = PlainLines(lines) if self.fast and len(lines) <= self.most else None  # else the limit's line
         walk(lines, plain, self.card_line, lambda: self.blocks.open is None and not self.depth)
         if plain is not None:
             self.plain = plain.cards(self.file)
@@ -229,7 +228,7 @@ class _Reader(ParamReader):
     def card_line(self, number: int) -> bool:
         """One physical line into the cards (``self.depth`` counts open .subckt cards); True at ``.end``."""
         raw, cards = self.all_lines[number - 1], self.card_list
-        bad = self.line_problem(raw, number)
+        bad = line_problem(raw, number, MAX_LINE_CHARS, self.err)
         if bad is not None:
             self.problem(bad)
             return False
@@ -286,10 +285,8 @@ class _Reader(ParamReader):
             first = card.text.split(None, 1)[0]
             if not first.startswith("."):
                 self.count += 1
-                if self.count > MAX_ELEMENTS:  # the limit stops the reading: the one problem to fix first
-                    raise self.err(
-                        f"more than {MAX_ELEMENTS} element cards; a netlist that large is refused", card.line
-                    )
+                if self.count > self.most:  # the limit stops the reading: the one problem to fix first
+                    raise self.err(self.limits.elements_refusal(), card.line)
             try:
                 if first.startswith("."):
                     current = self.dot_card(card, first, current)
@@ -459,7 +456,7 @@ class _Reader(ParamReader):
         elements: list[Element] = []
         if not self.broken_header and parameters_read:
             try:
-                elements = flatten(protos, self.subckts, MAX_ELEMENTS, MAX_SUBCKT_DEPTH, self.read_scoped, self.scope)
+                elements = flatten(protos, self.subckts, self.most, MAX_SUBCKT_DEPTH, self.read_scoped, self.scope)
             except NetlistError as exc:
                 self.problem(exc)
         self.check_globals(elements)

@@ -15,9 +15,11 @@ from os import PathLike
 
 from crosscheck.errors import Location, NetlistError
 from crosscheck.model.files import InputFileError, read_regular
+from crosscheck.model.read_limits import DEFAULT_MAX_NETLIST_MIB, ReadLimits
 
-#: The longest netlist file read (``model.netlist.MAX_TEXT_CHARS`` is the same limit on text).
-MAX_NETLIST_CHARS = 64 * 2**20
+#: The longest netlist file read by default (``model.netlist.MAX_TEXT_CHARS`` is the same limit on text);
+#: a ``ReadLimits`` raises it for a trusted large netlist (``--max-netlist-mib``).
+MAX_NETLIST_CHARS = DEFAULT_MAX_NETLIST_MIB * 2**20
 
 __all__ = ["decode_netlist_bytes", "decode_netlist_bytes_with_notes"]
 
@@ -98,16 +100,25 @@ def _windows_1252(data: bytes, start: int, file: str) -> tuple[str, tuple[str, .
     )
 
 
-def read_netlist_text(path: str | PathLike) -> str:
+def read_netlist_text(path: str | PathLike, *, limits: ReadLimits | None = None) -> str:
     """The text of a netlist file; unreadable, oversized or binary files are refused (see the notes variant)."""
-    return read_netlist_text_with_notes(path)[0]
+    return read_netlist_text_with_notes(path, limits=limits)[0]
 
 
-def read_netlist_text_with_notes(path: str | PathLike) -> tuple[str, tuple[str, ...]]:
-    """The text of a netlist file and a note when it was decoded from UTF-16 or Windows-1252."""
+def read_netlist_text_with_notes(
+    path: str | PathLike, *, limits: ReadLimits | None = None
+) -> tuple[str, tuple[str, ...]]:
+    """The text of a netlist file and a note when it was decoded from UTF-16 or Windows-1252.
+
+    ``limits``: its ``max_netlist_bytes`` bounds the file (None: ``MAX_NETLIST_CHARS``, for untrusted input).
+    """
     file = str(path)
+    most = MAX_NETLIST_CHARS if limits is None else limits.max_netlist_bytes
     try:
-        data = read_regular(path, MAX_NETLIST_CHARS)
+        data = read_regular(path, most)
     except InputFileError as exc:
+        if exc.too_large is not None:
+            shown = limits or ReadLimits(max_netlist_mib=-(-most // 2**20))
+            raise NetlistError(shown.size_refusal(exc.too_large, "bytes"), Location(file)) from None
         raise NetlistError(f"cannot read the netlist: {exc}; check the path", Location(file)) from None
     return decode_netlist_bytes_with_notes(data, file)

@@ -12,8 +12,9 @@ from collections.abc import Callable
 
 from crosscheck.errors import NetlistError
 from crosscheck.model.netlist_cards import Card, Tok, show
+from crosscheck.model.netlist_subset import CONTROL_CHAR
 
-__all__ = ["split_fields", "strip_comment"]
+__all__ = ["line_problem", "split_fields", "strip_comment"]
 
 #: Makes the error for a message and a line (the reader's ``err``, which adds the file).
 Error = Callable[[str, "int | None"], NetlistError]
@@ -22,6 +23,22 @@ _DOLLAR_COMMENT = re.compile(r"(?:^|\s)\$(?:\s|$)")
 _FIELD = re.compile(r"[\s,]*(?:(?P<word>[^\s,(){}=']+|=)|(?P<open>[({'])|(?P<close>[)}]))")
 _PLAIN = re.compile(r"^[^,(){}=']*$")
 _CLOSING = {"(": ")", "{": "}", "'": "'"}
+
+
+def line_problem(raw: str, number: int, most_chars: int, err: Error) -> NetlistError | None:
+    """Why one physical line cannot be read at all (too long, or binary data), else None."""
+    if len(raw) > most_chars:
+        return err(
+            f"line of {len(raw)} characters is longer than the limit ({most_chars}); split it with + continuation lines",
+            number,
+        )
+    bad = CONTROL_CHAR.search(raw)
+    if bad:
+        return err(
+            f"control character {bad.group()!r} in the text: binary data is not a netlist; give the SPICE text file",
+            number,
+        )
+    return None
 
 
 def strip_comment(line: str) -> str:

@@ -154,7 +154,8 @@ class _Flattener:
             if self.count > self.max_elements:
                 raise NetlistError(
                     f"more than {self.max_elements} elements and subcircuit instances after "
-                    "flattening the subcircuits; a network that large is refused",
+                    "flattening the subcircuits; a network that large is refused (a limit for untrusted input): "
+                    "if you trust this netlist, raise it with --max-elements N (case file: max_elements = N)",
                     p.where,
                 )
             if isinstance(p, Element):

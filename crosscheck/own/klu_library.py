@@ -188,6 +188,14 @@ class Symbolic:
         return self._library
 
     @property
+    def estimated_flops(self) -> float:
+        """The ordering's estimate of one factorization's floating-point operations (``est_flops``).
+
+        Read from the head of KLU's ``klu_symbolic``, whose first fields are ``double symmetry, est_flops,
+        lnz, unz`` in every KLU release (1.x to 2.x); the fill-based choice of back end reads it."""
+        return float(ctypes.cast(self._handle, ctypes.POINTER(_D * 4)).contents[1])
+
+    @property
     def handle(self) -> int:
         """The address of KLU's symbolic object (for the compiled sweep loop, ``sweep_kernel``)."""
         return self._handle

@@ -84,13 +84,14 @@ class MnaSystem:
     correct ones unless a caller measuring the comparison passes broken ones.
     """
 
-    #: The sparse LU back end (``sparse_backends``); None takes the default (KLU when a KLU library loads).
+    #: The sparse LU back end (``sparse_backends``); None takes the default (the choice by fill where KLU loads).
     sparse_backend: str | None = None
     #: Threads for a sparse sweep's runs of SWEEP_CHUNK frequencies; None: one per core (1: no threads).
     sweep_threads: int | None = None
     #: Whether KLU sweeps use the compiled loop (``sweep_kernel``) when it was built; False: Python only.
     compiled_sweep: bool = True
     _analysis: sparse_backends.Analysis | None = None  # the symbolic analysis, made on the first factorization
+    _analysis_for = ""  # the back end asked for when it was made (``auto``, ``klu`` or ``superlu``)
     _entry_columns: np.ndarray | None = None  # the column of each stored entry, for ‖A‖₁ per frequency
 
     def __init__(self, network: Network, ties: Sequence[str] = (), stamps: Stamps = STAMPS):
@@ -333,8 +334,9 @@ class MnaSystem:
     def _ensure_analysis(self) -> None:
         """Make the symbolic analysis for the chosen back end if there is none yet (once per network)."""
         wanted = self.sparse_backend or sparse_backends.default_backend()
-        if self._analysis is None or self._analysis.name != wanted:
+        if self._analysis is None or self._analysis_for != wanted:  # "auto" may have chosen either
             self._analysis = sparse_backends.analyse(self._pattern, wanted)
+            self._analysis_for = wanted
             # C ints, as the compiled loop reads them (so no chain copies them); bincount takes them too.
             self._entry_columns = np.repeat(np.arange(self.size, dtype=np.intc), np.diff(self._pattern.indptr))
 

@@ -16,22 +16,51 @@ for the numeric factorization. Two back ends:
   (scipy exposes no symbolic reuse, and reusing a column permutation by hand
   with NATURAL is far slower on grids).
 
-Why KLU first: on the network families of ``crosscheck.fuzz.large`` (ladders, trees, random graphs)
-it factors and solves several times faster than SuperLU, whose supernodal kernels pay off only where
-fill is heavy (large two-dimensional grids). So ``klu`` is the default when a KLU library loads, else
-``superlu``; for very large meshes ``superlu`` is worth choosing (``benchmarks/bench.py`` measures
-both). UMFPACK was slower than KLU on ladders and trees; pypardiso refuses complex matrices. MMD on
-Aᵀ+A is SuperLU's best ordering on these families or close to it.
+The choice, by fill (``auto``, the default when a KLU library loads): KLU's analysis (BTF, then AMD)
+is made first, and its estimate of one factorization's floating-point operations (``est_flops``)
+decides. KLU's left-looking kernel works column by column at about 1 Gflop/s here, so it wins wherever
+fill is light (ladders, trees, random graphs with locality: a few to a few hundred operations per
+unknown); SuperLU's supernodal kernels win where fill is heavy (meshes from about 100,000 nodes).
+So ``superlu`` is chosen when the estimate lies within ``SUPERLU_FLOPS`` and ``klu`` otherwise.
+Measured (one numeric factorization at 1 kHz, ``fuzz.large`` networks, seconds, on a shared 2-core
+machine; ``benchmarks/bench.py`` prints the like as "sparse LU back ends"):
 
-``CROSSCHECK_SPARSE`` (``klu`` or ``superlu``) overrides the choice, for
-comparisons and for tests of the fallback.
+===========  ========  ==============  =========  ============  ==========  ===============
+family       nodes     KLU est. flops  KLU LU nz  KLU factor    SuperLU nz  SuperLU
+===========  ========  ==============  =========  ============  ==========  ===============
+ladder       10,000    4.5e4           6.0e4      0.0011        6.2e4       0.010
+ladder       100,000   4.5e5           6.0e5      0.012         6.2e5       0.074
+ladder       1,000,000 4.5e6           6.0e6      0.22          6.2e6       0.78
+grid         10,000    2.3e7           4.1e5      0.032         3.7e5       0.20
+grid         100,000   1.0e9           6.5e6      1.05          5.6e6       0.47
+grid         1,000,000 3.6e10          8.9e7      53.8          7.9e7       11.3 (1 thread)
+random       10,000    3.4e5           1.1e5      0.0042        1.3e5       0.029
+random       100,000   5.1e6           1.2e6      0.060         1.5e6       15.1
+===========  ========  ==============  =========  ============  ==========  ===============
+
+(KLU LU nz is the analysis's estimate; SuperLU's is L + U as factored. SuperLU's times are with
+OpenBLAS's default threads, on a busy machine, except the 1M grid's (one BLAS thread; 75.8 s with the
+default threads), so some may be inflated as described below; the random graph at 1M was not finished
+by SuperLU within minutes, while KLU factors it in well under a second.) UMFPACK was slower than KLU
+on ladders and trees; pypardiso refuses complex matrices. MMD on Aᵀ+A is SuperLU's best ordering
+on these families or close to it.
+
+SuperLU factors with its BLAS held to one thread (threadpoolctl): with OpenBLAS's default of one
+thread per core, a 100,000-node grid's factorization took 1.2 to 16 s on a machine busy with other
+work (its threads wait on each other) against 0.9 to 1.0 s on one thread, measured alternately.
+
+``CROSSCHECK_SPARSE`` (``klu``, ``superlu`` or ``auto``) overrides the choice, for comparisons and for
+tests of the fallback.
 """
 
 from __future__ import annotations
 
+import contextlib
+import functools
+import math
 import os
 import warnings
-from typing import Protocol
+from typing import Any, Protocol
 
 import numpy as np
 import scipy.sparse as sp
@@ -41,10 +70,17 @@ from crosscheck.own import klu_library  # ctypes and numpy only: the library its
 from crosscheck.own.klu_library import KluError
 
 BACKENDS = ("klu", "superlu")
+#: The automatic choice between them, by KLU's estimate of the factorization's cost (``choose_by_fill``).
+AUTO = "auto"
 ENV_VAR = "CROSSCHECK_SPARSE"
 #: The ordering SuperLU uses: the best or near-best of scipy's four on ladders, trees, grids and random
 #: graphs (fill 1.33x on ladders and trees, 4.6x on a 1,000-node grid against COLAMD's 7.5x).
 SUPERLU_ORDERING = "MMD_AT_PLUS_A"
+#: Estimated KLU flops per factorization within which SuperLU is chosen: from where its supernodes paid
+#: off (a 100,000-node grid, 1e9: SuperLU 0.47 s against KLU's 1.05 s; a 1,000,000-node grid, 3.6e10:
+#: 11.3 s on one BLAS thread against 54 s) upwards. Below it KLU won every family (a 10,000-node grid,
+#: 2.3e7: 0.03 s against 0.2 s). The lower end lies between the measured sizes.
+SUPERLU_FLOPS = (3e8, math.inf)
 
 
 class SingularFactorError(CrosscheckError, ArithmeticError):
@@ -82,18 +118,26 @@ def available() -> tuple[str, ...]:
 
 
 def default_backend() -> str:
-    """``$CROSSCHECK_SPARSE`` if set, else the fastest back end available."""
+    """``$CROSSCHECK_SPARSE`` if set, else ``auto`` (the choice by fill) where KLU loads, else ``superlu``."""
     chosen = os.environ.get(ENV_VAR, "").strip().lower()
     if chosen:
         _check_name(chosen)
         return chosen
-    return available()[0]
+    return AUTO if "klu" in available() else "superlu"
+
+
+def choose_by_fill(estimated_flops: float) -> str:
+    """The back end for a factorization of ``estimated_flops`` (KLU's estimate): see ``SUPERLU_FLOPS``."""
+    low, high = SUPERLU_FLOPS
+    return "superlu" if low <= estimated_flops <= high else "klu"
 
 
 def _check_name(name: str) -> None:
+    if name == AUTO:
+        return
     if name not in BACKENDS:
         raise ValueError(
-            f"sparse back end {name!r} is unknown; choose one of {', '.join(BACKENDS)} (or unset {ENV_VAR})"
+            f"sparse back end {name!r} is unknown; choose one of {', '.join(BACKENDS)} or {AUTO} (or unset {ENV_VAR})"
         )
     if name not in available():
         raise ValueError(
@@ -106,7 +150,14 @@ def analyse(pattern: sp.csc_matrix, backend: str | None = None) -> Analysis:
     """The symbolic analysis of ``pattern`` (CSC, sorted indices, no duplicates) for ``backend``."""
     name = default_backend() if backend is None else backend
     _check_name(name)
-    return _KluAnalysis(pattern) if name == "klu" else _SuperLuAnalysis(pattern)
+    if name == AUTO and "klu" not in available():
+        name = "superlu"
+    if name == "superlu":
+        return _SuperLuAnalysis(pattern)
+    klu = _KluAnalysis(pattern)
+    if name == AUTO and choose_by_fill(klu.symbolic.estimated_flops) == "superlu":
+        return _SuperLuAnalysis(pattern)
+    return klu
 
 
 # --------------------------------------------------------------------------- SuperLU (scipy)
@@ -119,7 +170,8 @@ class _SuperLuFactor:
         self._lu = lu
 
     def solve(self, b: np.ndarray, adjoint: bool = False) -> np.ndarray:
-        return self._lu.solve(np.asarray(b, dtype=complex), trans="H" if adjoint else "N")
+        with _one_blas_thread():
+            return self._lu.solve(np.asarray(b, dtype=complex), trans="H" if adjoint else "N")
 
 
 class _SuperLuAnalysis:
@@ -135,12 +187,30 @@ class _SuperLuAnalysis:
 
         a = sp.csc_matrix((np.asarray(values, dtype=complex), self._indices, self._indptr), shape=self._shape)
         try:
-            with warnings.catch_warnings():
+            with warnings.catch_warnings(), _one_blas_thread():
                 warnings.simplefilter("error", sp.SparseEfficiencyWarning)
                 lu = spla.splu(a, permc_spec=SUPERLU_ORDERING)
         except RuntimeError as exc:  # "Factor is exactly singular"
             raise SingularFactorError(f"SuperLU: {exc}") from None
         return _SuperLuFactor(lu)
+
+
+def _one_blas_thread() -> contextlib.AbstractContextManager[Any]:
+    """BLAS held to one thread for the enclosed calls (none when threadpoolctl is missing)."""
+    controller = _blas_controller()
+    return contextlib.nullcontext() if controller is None else controller.limit(limits=1, user_api="blas")
+
+
+@functools.lru_cache(maxsize=1)
+def _blas_controller() -> Any:
+    """threadpoolctl's view of the loaded BLAS libraries, made once, after SuperLU's module loaded its own."""
+    import scipy.sparse.linalg  # noqa: F401  (its BLAS must be loaded before the libraries are listed)
+
+    try:
+        from threadpoolctl import ThreadpoolController
+    except ImportError:
+        return None
+    return ThreadpoolController()
 
 
 # --------------------------------------------------------------------------- KLU (klu_library)

@@ -63,6 +63,7 @@ def load_network_reading(case: Case) -> tuple[Network, Port, Reading]:
                 allow_negative=case.allow_negative,
                 port=port,
                 excitation=case.excitation,
+                limits=case.read_limits,
             )
             return network, port, reading
         except NetworkError as exc:
