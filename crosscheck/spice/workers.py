@@ -64,7 +64,7 @@ DEFAULT_TIMEOUT_S = DEFAULT_TIME_S
 #: socket, so that it never waits for this process between cases. The thread that feeds a worker shares the
 #: interpreter lock with the main thread (the own route, the judging), and may wait milliseconds for it: as
 #: long as a whole small case in ngspice (``benchmarks/throughput.py`` prints what holding more gains).
-AHEAD_CASES = 2
+AHEAD_CASES = 8
 #: Only cases of at most this many elements are sent ahead, and only behind cases of at most as many: a
 #: small case queued behind a long one would wait while another worker is free, and a large case's bytes
 #: could fill the socket and block the thread that watches the running case's wall-clock limit.
