@@ -116,3 +116,17 @@ def test_the_worker_tells_the_analysis_of_long_cases_only():
     assert messages == [(sandbox.PROGRESS, "open at 1 frequency"), (sandbox.PROGRESS, "short at 1 frequency")]
     assert socket.sent[0][0] - began >= sandbox.TELL_AFTER_S * 0.9  # tolerance: monotonic clock and sleep jitter
     assert all(t <= ended for t, _ in socket.sent)
+
+
+@pytest.mark.spice
+def test_cases_sent_ahead_never_fill_the_socket_of_a_hung_worker():
+    """Seven cases of 40 kB each behind a hung one (more than a socket holds): the hung case is still stopped at
+    its limit, because only ``AHEAD_BYTES`` of them are sent ahead; then every one of them is answered."""
+    with SpicePool(workers=1, timeout_s=30.0, solve=MISBEHAVING) as pool:
+        hung = pool.submit(*fault("hang"), [1e3], timeout_s=1.5)
+        bulky = [divider(100.0 * (i + 1), title="x" * 40_000) for i in range(7)]
+        after = [pool.submit(network, port, [1e3]) for network, port in bulky]
+        with pytest.raises(ReferenceEngineError, match="did not finish this case within 1.5 s"):
+            hung.result(timeout=30)
+        for i, future in enumerate(after):
+            assert_divider(future.result(timeout=60), 100.0 * (i + 1))

@@ -69,6 +69,10 @@ AHEAD_CASES = 8
 #: small case queued behind a long one would wait while another worker is free, and a large case's bytes
 #: could fill the socket and block the thread that watches the running case's wall-clock limit.
 AHEAD_ELEMENTS = 200
+#: The bytes of the cases sent ahead of the running one, at most: they wait in the socket (212,992 bytes by
+#: default on Linux) until the worker reads them, and a send that finds it full would block the thread that
+#: watches the running case's wall-clock limit. A 200-element case is ~18 kB.
+AHEAD_BYTES = 64 * 1024
 
 
 class SpicePool:
@@ -421,12 +425,17 @@ class _Lane:
         """Start a worker if there is none, then send the first case and the small ones behind it."""
         if self.worker is None:
             self.worker = _Worker(self.pool._settings_for, self.pool._start_timeout_s, self.pool._worker_process)
+        waiting = 0  # bytes sent ahead of the running case, which the worker has not read yet
         for i, entry in enumerate(self.held):
             if entry.sent:
+                waiting += len(entry.payload) if i > 0 else 0
                 continue
             if i > 0 and not entry.small:
                 return
             entry.payload = entry.payload or packed(entry.task)
+            if i > 0 and waiting + len(entry.payload) > AHEAD_BYTES:
+                return
+            waiting += len(entry.payload) if i > 0 else 0
             self.worker.send(entry.payload)
             entry.sent = True
             if i == 0:
