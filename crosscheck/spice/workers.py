@@ -426,20 +426,25 @@ class _Lane:
         if self.worker is None:
             self.worker = _Worker(self.pool._settings_for, self.pool._start_timeout_s, self.pool._worker_process)
         waiting = 0  # bytes sent ahead of the running case, which the worker has not read yet
+        batch: list[_Held] = []
         for i, entry in enumerate(self.held):
             if entry.sent:
                 waiting += len(entry.payload) if i > 0 else 0
                 continue
             if i > 0 and not entry.small:
-                return
+                break
             entry.payload = entry.payload or packed(entry.task)
             if i > 0 and waiting + len(entry.payload) > AHEAD_BYTES:
-                return
+                break
             waiting += len(entry.payload) if i > 0 else 0
-            self.worker.send(entry.payload)
+            batch.append(entry)
+        if not batch:
+            return
+        self.worker.send([entry.payload for entry in batch])
+        for entry in batch:
             entry.sent = True
-            if i == 0:
-                entry.started = time.monotonic()
+        if self.held[0].started is None:
+            self.held[0].started = time.monotonic()
 
     def _answer(self, outcome: tuple[tuple[str, object], bool]) -> None:
         (status, value), retire = outcome
