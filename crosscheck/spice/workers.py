@@ -2,8 +2,8 @@
 
 Why processes: ngspice's shared library is one engine per process and
 crashes when shared across threads; it can also hang or abort the process on
-input it dislikes. Each worker is a fresh interpreter (``_CHILD_COMMAND``)
-talking to the parent over a socket pair:
+input it dislikes. Each worker is a fresh interpreter (``_CHILD_COMMAND``,
+``worker_process``) talking to the parent over a socket pair:
 
 * it starts in an empty temporary directory, with a private empty ``HOME``
   (ngspice executes a ``.spiceinit`` found in either, and ``.spiceinit`` may
@@ -24,6 +24,13 @@ that dies or overruns is killed and replaced; its case becomes a
 ``ReferenceEngineError`` and the following cases go on. A worker keeps its
 ngspice instance between cases and retires after an engine error (its state
 is then uncertain) or after ``cases_per_worker`` cases.
+
+Small cases are sent ahead: while a worker runs one, up to ``AHEAD_CASES`` - 1
+more wait in its socket (``_Lane``), so that it never waits for this process,
+whose threads share the interpreter lock with the own route and the judging.
+Each is timed from when its worker begins it (when the answer before it
+arrives); when a worker is lost, the cases sent ahead of it go to a fresh one;
+no case is taken ahead while another worker waits for one.
 
 What runs inside a worker is in ``crosscheck.spice.sandbox``. Which function
 solves each case is the pool's ``solve`` argument (a ``sandbox.CaseSolver``,
