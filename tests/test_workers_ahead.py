@@ -130,3 +130,14 @@ def test_cases_sent_ahead_never_fill_the_socket_of_a_hung_worker():
             hung.result(timeout=30)
         for i, future in enumerate(after):
             assert_divider(future.result(timeout=60), 100.0 * (i + 1))
+
+
+@pytest.mark.spice
+def test_cases_sent_ahead_of_a_retiring_worker_run_on_its_successor():
+    """A worker retires after ``cases_per_worker`` cases with more already sent to it; its successor answers them."""
+    resistances = [100.0 * (i + 1) for i in range(7)]
+    with SpicePool(workers=1, cases_per_worker=2) as pool:
+        futures = [pool.submit(*divider(r), [1e3]) for r in resistances]
+        for r, future in zip(resistances, futures):
+            assert_divider(future.result(timeout=60), r)
+    assert (pool.finished, pool.cancelled) == (7, 0)
