@@ -76,10 +76,13 @@ def _print_cpu(runs: dict[int, list[dict]], count: int) -> None:
         best = min(mine, key=lambda r: r["seconds"])
         main_ms = sorted(r["main_ms"] for r in mine)[len(mine) // 2]
         workers_ms = sorted(r["workers_ms"] for r in mine)[len(mine) // 2]
-        label = "verify, local default" if ahead != 1 else "verify, each worker holding 1 case (none sent ahead)"
+        label = (
+            "verify, each worker holding 1 case (nothing sent ahead; otherwise the local default)"
+            if ahead == 1
+            else f"verify, local default (own solver here, ngspice pool of 2, up to {ahead} small cases per worker)"
+        )
         print(
-            f"{label} (own solver here, ngspice pool of 2, {ahead} case(s) held per worker): best "
-            f"{count / best['seconds']:.0f} cases/s; CPU per case "
+            f"{label}: best {count / best['seconds']:.0f} cases/s; CPU per case "
             f"(median of {len(mine)}): this process {main_ms:.2f} ms, the workers together {workers_ms:.2f} ms, so a free "
             f"2-core machine would allow about {2e3 / (main_ms + workers_ms):.0f} cases/s "
             f"(this process alone {1e3 / main_ms:.0f}, the workers alone {2e3 / workers_ms:.0f})"
