@@ -23,9 +23,76 @@ def _small_cases(count: int, seed: int = 11):
     return out
 
 
+def _workers_cpu_s(pool) -> float:
+    """CPU seconds (user + system) used so far by the pool's live worker processes, from /proc (Linux)."""
+    import os
+
+    total = 0.0
+    for worker in list(pool._live):
+        try:
+            with open(f"/proc/{worker.process.pid}/stat") as fh:
+                fields = fh.read().rsplit(")", 1)[1].split()
+        except (OSError, AttributeError):
+            return math.nan
+        total += (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+    return total
+
+
+def _verify_run(cases: list, pool) -> dict:
+    """One timed ``run_cases`` through ``pool``: seconds, results, and CPU per case in this process and in workers."""
+    from crosscheck.run.check import run_cases
+
+    cpu, workers, started = time.process_time(), _workers_cpu_s(pool), time.perf_counter()
+    results = run_cases(cases, pool=pool)
+    seconds = time.perf_counter() - started
+    count = len(cases)
+    return {
+        "seconds": seconds,
+        "results": results,
+        "main_ms": (time.process_time() - cpu) / count * 1e3,
+        "workers_ms": (_workers_cpu_s(pool) - workers) / count * 1e3,
+    }
+
+
+def _held_ahead_runs(cases: list, pool, rounds: int = 3) -> dict[int, list[dict]]:
+    """``run_cases`` with each worker holding 1 case (nothing sent ahead) and the default ``AHEAD_CASES``,
+    alternating on one pool, ``rounds`` times each: the machine may be shared, so compare the best."""
+    from crosscheck.spice import workers
+
+    default = workers.AHEAD_CASES
+    runs: dict[int, list[dict]] = {1: [], default: []}
+    try:
+        for _ in range(rounds):
+            for ahead in runs:
+                workers.AHEAD_CASES = ahead
+                runs[ahead].append(_verify_run(cases, pool))
+    finally:
+        workers.AHEAD_CASES = default
+    return runs
+
+
+def _print_cpu(runs: dict[int, list[dict]], count: int) -> None:
+    for ahead, mine in runs.items():
+        best = min(mine, key=lambda r: r["seconds"])
+        main_ms = sorted(r["main_ms"] for r in mine)[len(mine) // 2]
+        workers_ms = sorted(r["workers_ms"] for r in mine)[len(mine) // 2]
+        label = (
+            "verify, each worker holding 1 case (nothing sent ahead; otherwise the local default)"
+            if ahead == 1
+            else f"verify, local default (own solver here, ngspice pool of 2, up to {ahead} small cases per worker)"
+        )
+        print(
+            f"{label}: best {count / best['seconds']:.0f} cases/s; CPU per case "
+            f"(median of {len(mine)}): this process {main_ms:.2f} ms, the workers together {workers_ms:.2f} ms, so a free "
+            f"2-core machine would allow about {2e3 / (main_ms + workers_ms):.0f} cases/s "
+            f"(this process alone {1e3 / main_ms:.0f}, the workers alone {2e3 / workers_ms:.0f})"
+        )
+
+
 def report_throughput(count: int, spice_ok: str | None) -> dict:
     """Cases per second through both engines and the comparison, warm pools; returns the local run's results."""
     import multiprocessing
+    import os
     from concurrent.futures import ProcessPoolExecutor
 
     from crosscheck.fuzz.loop import FuzzOptions, run_fuzz
@@ -39,23 +106,22 @@ def report_throughput(count: int, spice_ok: str | None) -> dict:
         return {}
     cases = _small_cases(count)
     warm = cases[:8]
+    print(f"load average before: {', '.join(f'{x:.1f}' for x in os.getloadavg())} (2 cores: above 2, shared)")
     with SpicePool(workers=2) as pool, ProcessPoolExecutor(2, mp_context=multiprocessing.get_context("spawn")) as ex:
         run_cases(warm, pool=pool)
         run_batch(warm, ex)
-        local_s, tasks_s = math.inf, math.inf
-        for _ in range(2):  # alternate the two, keep each one's best: the machine may be shared
-            seconds, local = timed(lambda: run_cases(cases, pool=pool), 1)
-            local_s = min(local_s, seconds)
-            seconds, tasks = timed(lambda: run_batch(cases, ex), 1)
-            tasks_s = min(tasks_s, seconds)
+        runs = _held_ahead_runs(cases, pool)
+        tasks_s, tasks = timed(lambda: run_batch(cases, ex), 2)
         run_fuzz(FuzzOptions(count=8, seed=2, shrink=False), pool=pool)
         fuzz = run_fuzz(FuzzOptions(count=count, seed=3, shrink=False), pool=pool)
-    print(f"verify, local default (own solver here, ngspice pool of 2): {count / local_s:.0f} cases/s")
+    _print_cpu(runs, count)
+    local_best = min(runs[max(runs)], key=lambda r: r["seconds"])  # the default: cases sent ahead
+    local, local_s = local_best["results"], local_best["seconds"]
     engine_s = sum(r.spice.elapsed_s for r in local if r.spice is not None)
     if engine_s > 0:
         print(
-            f"  beside it, ngspice's own engine time (SpiceResult.elapsed_s, same run): {engine_s / count * 1e3:.2f} ms "
-            f"per case, so ngspice alone on 2 workers would allow {2 * count / engine_s:.0f} cases/s "
+            f"  beside it, ngspice's own engine time (SpiceResult.elapsed_s, best run): {engine_s / count * 1e3:.2f} "
+            f"ms per case, so ngspice alone on 2 workers would allow {2 * count / engine_s:.0f} cases/s "
             f"(crosscheck's share of the run: {max(0.0, 1 - engine_s / 2 / local_s):.0%})"
         )
     same = [r.verdict for r in tasks] == [r.verdict for r in local]
@@ -67,6 +133,7 @@ def report_throughput(count: int, spice_ok: str | None) -> dict:
         f"fuzz, local (generate, both engines, judge): {fuzz.rate:.0f} cases/s "
         f"({sum(fuzz.counts.values())} cases: {', '.join(f'{k} {v}' for k, v in fuzz.counts.items())})"
     )
+    print(f"load average after: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
     print("pools were started before timing; starting one costs ~0.5 s per ngspice worker")
     return {"cases": cases, "local": local, "local_s": local_s}
 

@@ -38,6 +38,7 @@ LABELS = (
     "COLAMD", "MMD_AT_PLUS_A", "MMD_ATA", "NATURAL", "KLU",
     "batch throughput",
     "verify, local default",
+    "verify, each worker holding 1 case",
     "verify, process pool of 2 whole-case tasks",
     "fuzz, local",
     "Dask local cluster",

@@ -30,7 +30,9 @@ import shutil
 import signal
 import sys
 import threading
-from collections.abc import Callable, Sequence
+import time
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from multiprocessing.connection import Connection
 from typing import Any
@@ -175,7 +177,8 @@ def worker_main(conn: Any, settings: Settings) -> None:
         startup_error = exc
     conn.send(("ready", engine.version if engine else None))
     # Which analysis starts, for the parent's progress line (``workers``); our own words, never a case's.
-    report_progress_to(lambda stage: conn.send((PROGRESS, stage)))
+    teller = ProgressTeller(conn)
+    report_progress_to(teller.stage_started)
     done = 0
     while True:
         try:
@@ -187,15 +190,82 @@ def worker_main(conn: Any, settings: Settings) -> None:
             return
         limit_cpu(task.cpu_s or settings.cpu_s)
         limit_memory(task.memory_bytes or settings.memory_bytes)
+        teller.case_started()
         outcome, retire = _one_case(solve_case, engine, startup_error, task, settings)
         done += 1
         retire = retire or done >= settings.cases_per_worker
-        try:
-            conn.send((outcome, retire))
-        except Exception as exc:  # the outcome could not be pickled: send its words instead
-            conn.send((("error", ReferenceEngineError(f"{outcome[1]} (unpicklable result: {exc})")), True))
+        with teller.case_ended():
+            try:
+                conn.send((outcome, retire))
+            except Exception as exc:  # the outcome could not be pickled: send its words instead
+                conn.send((("error", ReferenceEngineError(f"{outcome[1]} (unpicklable result: {exc})")), True))
         if retire:
             return
+
+
+#: A case's analysis is told to the parent only once the case has run this long, then as it changes, at most
+#: this often: the parent shows it from ``PROGRESS_EVERY_S`` (2 s) on, and a message per analysis of every
+#: small case would wake the parent's thread for nothing (``benchmarks/throughput.py``).
+TELL_AFTER_S = 0.25
+
+
+class ProgressTeller:
+    """Tells the parent which analysis the running case is in, from a thread of its own, once the case is long.
+
+    ngspice runs in the main thread (ctypes and cffi release the interpreter lock there), so this thread can
+    send while a long analysis runs. It and the main thread's outcome share one lock on the socket, and it
+    never sends after the case's outcome: a late analysis name would be read as the next case's.
+    """
+
+    def __init__(self, conn: Any):
+        self._conn = conn
+        self._send_lock = threading.Lock()
+        self._state = threading.Condition()
+        self._case = 0  # counts the cases begun; the running one's number while ``_running``
+        self._running = False
+        self._began = 0.0
+        self._stage: str | None = None
+        self._told: tuple[int, str] | None = None
+        threading.Thread(target=self._tell, name="crosscheck-progress", daemon=True).start()
+
+    def case_started(self) -> None:
+        with self._state:
+            self._case += 1
+            self._running, self._began, self._stage = True, time.monotonic(), None
+            self._state.notify()
+
+    def stage_started(self, stage: str) -> None:
+        with self._state:
+            self._stage = stage
+
+    @contextmanager
+    def case_ended(self) -> Iterator[None]:
+        """Hold the socket for the outcome; no analysis name of this case is sent after it."""
+        with self._send_lock:
+            with self._state:
+                self._running = False
+            yield
+
+    def _tell(self) -> None:
+        while True:
+            with self._state:
+                while not self._running:
+                    self._state.wait()
+                due = self._began + TELL_AFTER_S - time.monotonic()
+                news = None if self._stage is None or self._told == (self._case, self._stage) else self._stage
+                case = self._case
+            if due > 0 or news is None:
+                time.sleep(max(due, TELL_AFTER_S) if news is None else due)
+                continue
+            with self._send_lock:
+                with self._state:
+                    if not (self._running and self._case == case):
+                        continue
+                try:
+                    self._conn.send((PROGRESS, news))
+                except OSError:  # the parent is gone; the main thread finds out on its own
+                    return
+                self._told = (case, news)
 
 
 def _one_case(

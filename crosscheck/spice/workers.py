@@ -2,8 +2,8 @@
 
 Why processes: ngspice's shared library is one engine per process and
 crashes when shared across threads; it can also hang or abort the process on
-input it dislikes. Each worker is a fresh interpreter (``_CHILD_COMMAND``)
-talking to the parent over a socket pair:
+input it dislikes. Each worker is a fresh interpreter (``_CHILD_COMMAND``,
+``worker_process``) talking to the parent over a socket pair:
 
 * it starts in an empty temporary directory, with a private empty ``HOME``
   (ngspice executes a ``.spiceinit`` found in either, and ``.spiceinit`` may
@@ -25,6 +25,13 @@ that dies or overruns is killed and replaced; its case becomes a
 ngspice instance between cases and retires after an engine error (its state
 is then uncertain) or after ``cases_per_worker`` cases.
 
+Small cases are sent ahead: while a worker runs one, up to ``AHEAD_CASES`` - 1
+more wait in its socket (``_Lane``), so that it never waits for this process,
+whose threads share the interpreter lock with the own route and the judging.
+Each is timed from when its worker begins it (when the answer before it
+arrives); when a worker is lost, the cases sent ahead of it go to a fresh one;
+no case is taken ahead while another worker waits for one.
+
 What runs inside a worker is in ``crosscheck.spice.sandbox``. Which function
 solves each case is the pool's ``solve`` argument (a ``sandbox.CaseSolver``,
 ngspice's ``engine.solve`` by default): only the code that builds the pool
@@ -38,19 +45,13 @@ from __future__ import annotations
 import atexit
 import os
 import queue
-import shutil
-import signal
-import socket
-import subprocess
-import sys
-import tempfile
 import threading
 import time
 import weakref
+from collections import deque
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future
-from multiprocessing.connection import Connection
-from typing import Any
+from dataclasses import dataclass
 
 from crosscheck.errors import CrosscheckError, ReferenceEngineError
 from crosscheck.model.budget import DEFAULT_MEMORY_BYTES, DEFAULT_TIME_S, Budget
@@ -59,167 +60,26 @@ from crosscheck.model.validation import validate
 from crosscheck.spice.deck import check_freqs
 from crosscheck.spice.engine import DEFAULT_STRATEGY, SpiceResult, Strategy
 from crosscheck.spice.pool_text import stopped_case_text, terminal_progress
-from crosscheck.spice.sandbox import ENGINE_SOLVE, PROGRESS, WORKER_PREFIX, CaseSolver, Settings, Task
-from crosscheck.spice.sandbox import worker_environment as _worker_environment
+from crosscheck.spice.sandbox import ENGINE_SOLVE, CaseSolver, Settings, Task
+from crosscheck.spice.sandbox import worker_environment as _worker_environment  # noqa: F401  (the tests read it here)
+from crosscheck.spice.worker_process import _START_TIMEOUT_S, _Worker, _WorkerLost, packed
+from crosscheck.spice.worker_process import PROGRESS_EVERY_S as PROGRESS_EVERY_S  # the pool's documented constant
 
 #: The defaults of every case's budget (``model.budget``, defined there once): 60 s wall clock, 2 GiB.
 DEFAULT_TIMEOUT_S = DEFAULT_TIME_S
-_START_TIMEOUT_S = 60.0  # a worker's interpreter, numpy, PySpice and ngspice: ~0.5 s when well
-#: How often a running case's progress is reported (``SpicePool(on_progress=...)``), in seconds.
-PROGRESS_EVERY_S = 2.0
-
-
-# --------------------------------------------------------------------------- in the parent
-
-
-class _WorkerLost(CrosscheckError, RuntimeError):
-    """The worker process is gone or stuck; the pool turns this into the case's ReferenceEngineError."""
-
-
-#: What a worker runs. ``-c`` rather than ``-m crosscheck.spice.sandbox``, so that module is imported once, by name.
-#: Before any import (numpy starts threads, which inherit the mask) it blocks SIGTERM, so that only the
-#: sandbox's orphan watch receives it (``sandbox.watch_parent``), and ignores SIGINT: a Ctrl-C in a terminal
-#: reaches the whole process group, and the parent, not each worker, decides what an interrupt stops.
-_CHILD_COMMAND = (
-    "import signal, sys; signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGTERM}); "
-    "signal.signal(signal.SIGINT, signal.SIG_IGN); "
-    "from crosscheck.spice.sandbox import child_entry; child_entry(sys.argv[1:])"
-)
-
-
-class _Worker:
-    """The parent's handle on one worker process, started in its own empty directory."""
-
-    def __init__(
-        self,
-        settings_for: Any,
-        start_timeout_s: float,
-        on_process: Callable[[_Worker, bool], None] = lambda w, up: None,
-    ):
-        self.directory = tempfile.mkdtemp(prefix=WORKER_PREFIX)
-        self.process: subprocess.Popen | None = None
-        self.conn: Connection | None = None
-        self._on_process = on_process
-        try:
-            self._start(settings_for(self.directory), start_timeout_s)
-        except _WorkerLost:
-            self.kill()
-            raise
-        except BaseException as exc:
-            self.kill()
-            raise _WorkerLost(f"the ngspice worker could not be started ({type(exc).__name__}: {exc})") from None
-
-    def _start(self, settings: Settings, start_timeout_s: float) -> None:
-        work = os.path.join(self.directory, "work")
-        os.makedirs(work)
-        self._log_path = os.path.join(self.directory, "worker.log")
-        ours, theirs = socket.socketpair()
-        self.conn = Connection(ours.detach())
-        try:
-            with open(self._log_path, "wb") as log:
-                # The parent's pid and the directory let the worker watch for this process's death and then
-                # remove its own directory (``sandbox.watch_parent``); the path is mkdtemp's, never a case's.
-                self.process = subprocess.Popen(
-                    [sys.executable, "-c", _CHILD_COMMAND, str(theirs.fileno()), str(os.getpid()), self.directory],
-                    cwd=work,
-                    env=_worker_environment(self.directory, settings.library),
-                    stdin=subprocess.DEVNULL,
-                    stdout=subprocess.DEVNULL,
-                    stderr=log,
-                    pass_fds=(theirs.fileno(),),
-                    close_fds=True,
-                )
-        finally:
-            theirs.close()
-        self._on_process(self, True)
-        try:
-            self.conn.send(settings)
-            if not self.conn.poll(start_timeout_s):
-                raise _WorkerLost(f"the ngspice worker did not start within {start_timeout_s:g} s")
-            self.conn.recv()
-        except (EOFError, OSError):
-            raise _WorkerLost(f"the ngspice worker died while starting ({self._exit_text()})") from None
-
-    def call(
-        self, task: Task, timeout_s: float, on_progress: Callable[[str, float], None] | None = None
-    ) -> tuple[tuple[str, Any], bool]:
-        """The case's outcome; ``on_progress(analysis, elapsed_s)`` hears of it every ``PROGRESS_EVERY_S`` or so."""
-        assert self.conn is not None, "a _Worker that exists has started (or __init__ raised)"
-        try:
-            self.conn.send(task)
-        except (BrokenPipeError, EOFError, OSError):
-            raise _WorkerLost(f"the ngspice worker was gone before the case started ({self._exit_text()})") from None
-        started = time.monotonic()
-        stage = "loading the deck"
-        while True:
-            left = started + timeout_s - time.monotonic()
-            if left <= 0:
-                raise _WorkerLost(f"ngspice did not finish this case within {timeout_s:g} s of wall-clock time")
-            if not self.conn.poll(min(left, PROGRESS_EVERY_S)):
-                if on_progress is not None:
-                    on_progress(stage, time.monotonic() - started)
-                continue
-            try:
-                message = self.conn.recv()
-            except (EOFError, OSError):
-                raise _WorkerLost(f"the ngspice worker died while running this case ({self._exit_text()})") from None
-            if isinstance(message, tuple) and len(message) == 2 and message[0] == PROGRESS:
-                stage = str(message[1])
-                continue
-            return message
-
-    def _exit_text(self) -> str:
-        if self.process is None:
-            return "never started"
-        try:
-            code = self.process.wait(timeout=2.0)
-        except subprocess.TimeoutExpired:
-            return "still running"
-        if code < 0:
-            sig = signal.Signals(-code).name if -code in signal.valid_signals() else str(-code)
-            why = {
-                "SIGXCPU": "it reached its CPU-time limit",
-                "SIGKILL": "killed: a crash, an out-of-memory kill or an outside signal",
-                "SIGSEGV": "ngspice crashed",
-                "SIGABRT": "ngspice aborted",
-            }.get(sig, "ended by a signal")
-            text = f"{sig}: {why}"
-        else:
-            text = f"exit status {code}"
-        tail = self._log_tail()
-        return f"{text}; its last words: {tail}" if tail else text
-
-    def _log_tail(self) -> str:
-        try:
-            with open(self._log_path, "rb") as fh:
-                lines = fh.read()[-2000:].decode("utf-8", "replace").strip().splitlines()
-        except OSError:
-            return ""
-        return " | ".join(lines[-3:])
-
-    def stop(self) -> None:
-        """Ask the worker to finish, then make sure it has."""
-        assert self.conn is not None and self.process is not None, "a _Worker that exists has started"
-        try:
-            self.conn.send(None)
-            self.process.wait(timeout=5.0)
-        except (BrokenPipeError, EOFError, OSError, subprocess.TimeoutExpired):
-            pass
-        self.kill()
-
-    def terminate_now(self) -> None:
-        """Kill the process only (any thread may call it); the thread serving this worker then cleans up."""
-        if self.process is not None and self.process.poll() is None:
-            self.process.kill()
-
-    def kill(self) -> None:
-        if self.process is not None and self.process.poll() is None:
-            self.process.kill()
-            self.process.wait()
-        if self.conn is not None:
-            self.conn.close()
-        shutil.rmtree(self.directory, ignore_errors=True)
-        self._on_process(self, False)
+#: How many cases a worker holds at once when they are small: the one it runs and the next, already in its
+#: socket, so that it never waits for this process between cases. The thread that feeds a worker shares the
+#: interpreter lock with the main thread (the own route, the judging), and may wait milliseconds for it: as
+#: long as a whole small case in ngspice (``benchmarks/throughput.py`` prints what holding more gains).
+AHEAD_CASES = 8
+#: Only cases of at most this many elements are sent ahead, and only behind cases of at most as many: a
+#: small case queued behind a long one would wait while another worker is free, and a large case's bytes
+#: could fill the socket and block the thread that watches the running case's wall-clock limit.
+AHEAD_ELEMENTS = 200
+#: The bytes of the cases sent ahead of the running one, at most: they wait in the socket (212,992 bytes by
+#: default on Linux) until the worker reads them, and a send that finds it full would block the thread that
+#: watches the running case's wall-clock limit. A 200-element case is ~18 kB.
+AHEAD_BYTES = 64 * 1024
 
 
 class SpicePool:
@@ -280,6 +140,7 @@ class SpicePool:
         self._closed = False
         self._cancelled = False
         self._live: set[_Worker] = set()  # workers whose process runs: what a cancel kills
+        self._waiting = 0  # lanes (pool threads) waiting for a case: while any does, no lane takes one ahead
         self.finished = 0  # cases whose future holds a result or an error
         self.cancelled = 0  # cases cancelled before a worker started them, or stopped by a cancel
         self._lock = threading.Lock()
@@ -390,44 +251,11 @@ class SpicePool:
 
     # One thread per worker: it only waits on pipes; ngspice itself runs in the worker process.
     def _serve(self) -> None:
-        worker: _Worker | None = None
+        lane = _Lane(self)
         try:
-            while True:
-                item = self._queue.get()
-                if item is None:
-                    return
-                future, task, timeout_s = item
-                if not future.set_running_or_notify_cancel():
-                    continue
-                if self._cancelled:  # taken off the queue just before a cancel emptied it
-                    self._count("cancelled")
-                    future.set_exception(_interrupted())
-                    continue
-                try:
-                    if worker is None:
-                        worker = _Worker(self._settings_for, self._start_timeout_s, self._worker_process)
-                    (status, value), retire = worker.call(task, timeout_s, self._progress_of(task))
-                except _WorkerLost as lost:
-                    if worker is not None:
-                        worker.kill()
-                        worker = None
-                    self._count("cancelled" if self._cancelled else "finished")
-                    future.set_exception(_interrupted() if self._cancelled else self._lost(lost, task, timeout_s))
-                    continue
-                except BaseException as exc:  # never leave a future unresolved
-                    future.set_exception(ReferenceEngineError(f"the ngspice pool failed: {type(exc).__name__}: {exc}"))
-                    continue
-                if retire:
-                    worker.stop()
-                    worker = None
-                self._count("finished")
-                if status == "ok":
-                    future.set_result(value)
-                else:
-                    future.set_exception(value)
+            lane.run()
         finally:
-            if worker is not None:
-                worker.stop()
+            lane.close()
 
     def _settings_for(self, directory: str) -> Settings:
         return self._settings(directory)
@@ -495,3 +323,188 @@ def spice_equivalent(
     Raises ``ReferenceEngineError`` (ngspice's own words) or ``EngineUnavailableError``.
     """
     return shared_pool().submit(network, port, freqs, timeout_s=timeout_s, strategy=strategy).result()
+
+
+@dataclass(eq=False)
+class _Held:
+    """A case one pool thread has taken off the queue, for its worker: sent or not yet, begun or not yet."""
+
+    future: Future
+    task: Task
+    timeout_s: float
+    payload: bytes = b""
+    sent: bool = False  # in the worker's socket (or begun): a fresh worker needs it again
+    started: float | None = None  # when the worker began it (``time.monotonic``), as far as this process can tell
+    running: bool = False  # its future was marked running: it is the case the worker runs now
+    dropped: bool = False  # its caller cancelled it after it was sent: the worker's answer is not used
+
+    @property
+    def small(self) -> bool:
+        return len(self.task.network.elements) <= AHEAD_ELEMENTS
+
+
+class _Lane:
+    """One pool thread's worker and the cases it holds, oldest first: the first is the one the worker runs.
+
+    Small cases are sent ahead (``AHEAD_CASES``, ``AHEAD_ELEMENTS``). Each case's wall-clock limit counts
+    from when the worker began it: when the answer before it arrived. A worker that is lost (dead, over a
+    limit, interrupted) costs the case it was running; the cases sent ahead of it go to a fresh worker.
+    """
+
+    def __init__(self, pool: SpicePool):
+        self.pool = pool
+        self.worker: _Worker | None = None
+        self.held: deque[_Held] = deque()
+        self.stopping = False
+
+    def run(self) -> None:
+        while True:
+            self._take()
+            if not self._promote():
+                if self.stopping:
+                    return
+                continue
+            try:
+                self._send()
+                head = self.held[0]
+                assert self.worker is not None, "_send started one"
+                outcome = self.worker.receive(head.started or time.monotonic(), head.timeout_s, self._progress())
+            except _WorkerLost as lost:
+                self._lose_worker(lost)
+                continue
+            except BaseException as exc:  # never leave a future unresolved
+                head = self.held.popleft()
+                self._drop_worker(stop=False)
+                if not head.future.done():
+                    head.future.set_exception(
+                        ReferenceEngineError(f"the ngspice pool failed: {type(exc).__name__}: {exc}")
+                    )
+                continue
+            self._answer(outcome)
+
+    def _take(self) -> None:
+        """Fill up from the pool's queue: wait for a case when none is held, take more only behind small ones."""
+        while not self.stopping and len(self.held) < AHEAD_CASES and (not self.held or self.held[-1].small):
+            try:
+                item = self._next_case()
+            except queue.Empty:
+                return
+            if item is None:
+                self.stopping = True
+                return
+            future, task, timeout_s = item
+            self.held.append(_Held(future, task, timeout_s))
+
+    def _next_case(self) -> tuple[Future, Task, float] | None:
+        """Wait for a case when this lane holds none; otherwise take one at once, and only while no other lane
+        waits for one (raises ``queue.Empty``): a free worker comes first, so a case that hangs never holds
+        up the case queued after it while another worker could run it."""
+        pool = self.pool
+        if self.held:
+            if pool._waiting:
+                raise queue.Empty
+            return pool._queue.get_nowait()
+        with pool._lock:
+            pool._waiting += 1
+        try:
+            return pool._queue.get()
+        finally:
+            with pool._lock:
+                pool._waiting -= 1
+
+    def _promote(self) -> bool:
+        """Mark the first case held as running (dropping those cancelled before they were sent); False: none."""
+        while self.held:
+            if self.pool._cancelled:  # taken off the queue just before a cancel emptied it
+                self._interrupt_held()
+                return False
+            head = self.held[0]
+            if head.running or head.future.set_running_or_notify_cancel():
+                head.running = True
+                return True
+            if head.sent:  # the worker has it and will answer it first: wait for that answer and drop it
+                head.running = head.dropped = True
+                return True
+            self.held.popleft()
+        return False
+
+    def _send(self) -> None:
+        """Start a worker if there is none, then send the first case and the small ones behind it."""
+        if self.worker is None:
+            self.worker = _Worker(self.pool._settings_for, self.pool._start_timeout_s, self.pool._worker_process)
+        waiting = 0  # bytes sent ahead of the running case, which the worker has not read yet
+        batch: list[_Held] = []
+        for i, entry in enumerate(self.held):
+            if entry.sent:
+                waiting += len(entry.payload) if i > 0 else 0
+                continue
+            if i > 0 and not entry.small:
+                break
+            entry.payload = entry.payload or packed(entry.task)
+            if i > 0 and waiting + len(entry.payload) > AHEAD_BYTES:
+                break
+            waiting += len(entry.payload) if i > 0 else 0
+            batch.append(entry)
+        if not batch:
+            return
+        self.worker.send([entry.payload for entry in batch])
+        for entry in batch:
+            entry.sent = True
+        if self.held[0].started is None:
+            self.held[0].started = time.monotonic()
+
+    def _answer(self, outcome: tuple[tuple[str, object], bool]) -> None:
+        (status, value), retire = outcome
+        head = self.held.popleft()
+        if self.held and self.held[0].sent:
+            self.held[0].started = time.monotonic()  # the worker went straight on to it
+        if retire:
+            self._drop_worker(stop=True)
+        if head.dropped:
+            return
+        self.pool._count("finished")
+        if status == "ok":
+            head.future.set_result(value)
+        else:
+            assert isinstance(value, BaseException), "a worker's error outcome carries the exception"
+            head.future.set_exception(value)
+
+    def _lose_worker(self, lost: _WorkerLost) -> None:
+        """The running case's error (or an interrupt's); the cases sent ahead wait for a fresh worker."""
+        head = self.held.popleft()
+        self._drop_worker(stop=False)
+        cancelled = self.pool._cancelled
+        if not head.dropped:
+            self.pool._count("cancelled" if cancelled else "finished")
+            error = _interrupted() if cancelled else self.pool._lost(lost, head.task, head.timeout_s)
+            head.future.set_exception(error)
+        if cancelled:
+            self._interrupt_held()
+
+    def _drop_worker(self, stop: bool) -> None:
+        if self.worker is not None:
+            self.worker.stop() if stop else self.worker.kill()
+            self.worker = None
+        for entry in self.held:
+            entry.sent, entry.started = False, None
+
+    def _interrupt_held(self) -> None:
+        """After a cancel: every case held is cancelled, or an interrupt error if it had begun."""
+        while self.held:
+            entry = self.held.popleft()
+            if entry.future.cancel():
+                self.pool._count("cancelled")
+            elif not entry.future.done():
+                self.pool._count("cancelled")
+                entry.future.set_exception(_interrupted())
+
+    def _progress(self) -> Callable[[str, float], None] | None:
+        return self.pool._progress_of(self.held[0].task)
+
+    def close(self) -> None:
+        if self.worker is not None:
+            self.worker.stop()
+            self.worker = None
+        for entry in self.held:  # only after a failure of this thread itself
+            if not entry.future.done():
+                entry.future.set_exception(ReferenceEngineError("the ngspice pool stopped before this case ran"))
