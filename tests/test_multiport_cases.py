@@ -253,3 +253,31 @@ def test_a_misread_frequency_is_refused_in_a_multiport_case_too(tmp_path: Path) 
     with pytest.raises(CaseFileError) as caught:
         load_case(_case(tmp_path, body))
     assert "expect[1].at" in str(caught.value) and "1meg" in str(caught.value)
+
+
+@pytest.mark.spice
+@pytest.mark.parametrize("fault", ["f-for-omega", "capacitor-inverted", "injection-node"])
+def test_ngspice_multiport_route_stays_independent_of_the_own_stamps(fault: str) -> None:
+    """The own route with a deliberately broken stamp (``fuzz.faults``) against ngspice's own runs: elements fail.
+    Were the reference route to hand back the own route's numbers, the broken route would agree with it and
+    this would pass silently; with the correct stamps every element passes."""
+    from crosscheck.fuzz.faults import faulty_stamps
+    from crosscheck.judge.multiport import MultiportResult, judge_multiport
+    from crosscheck.model.netlist import read_netlist
+    from crosscheck.model.network import Port
+    from crosscheck.model.tolerance import SOLVER_VS_SPICE
+
+    network = read_netlist("rc pair\nV1 a 0 AC 1\nR1 a b 1k\nC1 b 0 100n\nL1 b c 10m\nR2 c 0 470\nC2 c d 47n\nR3 d 0 2.2k\n")
+    ports = [Port("b", "0"), Port("d", "0")]
+    with SpicePool(workers=1) as pool:
+        spice = pool.submit(network, ports[0], [1e3, 1e4], ports=ports).result().points
+    pairs = tuple((p.a, p.b) for p in ports)
+    verdicts = {}
+    for label, own in (
+        ("right", reduce_ports(network, ports, [1e3, 1e4])),
+        ("broken", reduce_ports(network, ports, [1e3, 1e4], stamps=faulty_stamps(fault))),
+    ):
+        part = judge_multiport(MultiportResult(("1", "2"), pairs, own, tuple(spice)), None, SOLVER_VS_SPICE, compare=True)
+        verdicts[label] = {q.verdict for check in part.checks for q in check.quantities}
+    assert verdicts["right"] == {"pass"}
+    assert "fail" in verdicts["broken"]
