@@ -317,3 +317,27 @@ def injection_vector(
     if ib is not None:
         z[ib] -= amps
     return z
+
+
+class RightHandSides:
+    """The right-hand sides and the node read-out every MNA system offers, dense or sparse; the system sets
+    ``network``, ``node_index``, ``branch_index``, ``size`` and ``_stamps``."""
+
+    network: Network
+    node_index: dict[str, int]
+    branch_index: dict[str, int]
+    size: int
+    _stamps: Stamps
+
+    def source_vector(self) -> np.ndarray:
+        """The independent sources' phasors, placed in their KCL or branch rows (``source_vector``)."""
+        return source_vector(self.network, self.node_index, self.branch_index, self.size)
+
+    def injection_vector(self, a: str, b: str, amps: complex = 1.0) -> np.ndarray:
+        """A test current driven into node a and out of node b (sources left out)."""
+        return injection_vector(self._stamps, self.node_index, self.size, a, b, amps)
+
+    def voltage(self, x: np.ndarray, node: str) -> np.ndarray | complex:
+        """Node voltage from a solution vector (or columns); ground is 0."""
+        i = self.node_index.get(node)
+        return 0.0 * x[0] if i is None else x[i]

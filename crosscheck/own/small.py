@@ -22,7 +22,13 @@ import numpy as np
 
 from crosscheck.model.budget import DENSE_BATCH_ENTRIES, NO_DEADLINE, Deadline
 from crosscheck.model.network import Network
-from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps, entries, injection_vector, source_vector
+from crosscheck.own.assembly import (
+    BRANCH_KINDS,
+    STAMPS,
+    RightHandSides,
+    Stamps,
+    entries,
+)
 
 #: Up to this many unknowns (nodes, branch currents and ties) a network takes this path. The same bound
 #: as ``solver.DENSE_LIMIT``, below which a batched dense solve beats sparse LU: this path replaces that
@@ -33,7 +39,7 @@ SMALL_LIMIT = 80
 SINGULAR_CONDITION = 1e17
 
 
-class SmallSystem:
+class SmallSystem(RightHandSides):
     """The MNA equations of one small network as dense A0 and A1 (unknowns numbered as ``MnaSystem`` does:
     nodes, then branch currents in element order, then ties)."""
 
@@ -66,19 +72,6 @@ class SmallSystem:
         flat = (rows % (n + 1)) * (n + 1) + cols % (n + 1)
         self.a0 = np.bincount(flat, weights=a0, minlength=(n + 1) ** 2).reshape(n + 1, n + 1)[:n, :n]
         self.a1 = np.bincount(flat, weights=a1, minlength=(n + 1) ** 2).reshape(n + 1, n + 1)[:n, :n]
-
-    def source_vector(self) -> np.ndarray:
-        """The independent sources' phasors, placed in their KCL or branch rows (``assembly.source_vector``)."""
-        return source_vector(self.network, self.node_index, self.branch_index, self.size)
-
-    def injection_vector(self, a: str, b: str, amps: complex = 1.0) -> np.ndarray:
-        """A test current driven into node a and out of node b (sources left out)."""
-        return injection_vector(self._stamps, self.node_index, self.size, a, b, amps)
-
-    def voltage(self, x: np.ndarray, node: str) -> np.ndarray | complex:
-        """Node voltage from a solution vector (or columns); ground is 0."""
-        i = self.node_index.get(node)
-        return 0.0 * x[0] if i is None else x[i]
 
     def solve_many(
         self, freqs: np.ndarray, rhs: np.ndarray, deadline: Deadline = NO_DEADLINE

@@ -25,7 +25,13 @@ from crosscheck.errors import SingularNetworkError
 from crosscheck.model.budget import DENSE_BATCH_ENTRIES, NO_DEADLINE, Deadline
 from crosscheck.model.network import Network
 from crosscheck.own import klu_library, sparse_backends, sweep_kernel
-from crosscheck.own.assembly import BRANCH_KINDS, STAMPS, Stamps, assemble, injection_vector, source_vector
+from crosscheck.own.assembly import (
+    BRANCH_KINDS,
+    STAMPS,
+    RightHandSides,
+    Stamps,
+    assemble,
+)
 from crosscheck.own.condition import condition_estimate, inverse_norm, ramp
 from crosscheck.own.diagnose import singular_error
 from crosscheck.own.refinement import REFINE_ABOVE, backward_error, column_sizes, refined
@@ -74,7 +80,7 @@ class Factorization:
     condition: float
 
 
-class MnaSystem:
+class MnaSystem(RightHandSides):
     """The MNA equations of one network, assembled once and refilled per frequency.
 
     ``ties`` are extra nodes held at 0 V through a zero-volt branch: the
@@ -133,21 +139,6 @@ class MnaSystem:
         a1 = sp.csc_matrix((self._a1, self._pattern.indices, self._pattern.indptr), shape=self._pattern.shape)
         omega = 2.0 * np.pi * np.asarray(freqs_hz, dtype=float)
         return a0.toarray()[None, :, :] + 1j * omega[:, None, None] * a1.toarray()[None, :, :]
-
-    # ------------------------------------------------------------------ right-hand sides
-
-    def source_vector(self) -> np.ndarray:
-        """The independent sources' phasors, placed in their KCL or branch rows (``assembly.source_vector``)."""
-        return source_vector(self.network, self.node_index, self.branch_index, self.size)
-
-    def injection_vector(self, a: str, b: str, amps: complex = 1.0) -> np.ndarray:
-        """A test current driven into node a and out of node b (sources left out)."""
-        return injection_vector(self._stamps, self.node_index, self.size, a, b, amps)
-
-    def voltage(self, x: np.ndarray, node: str) -> np.ndarray | complex:
-        """Node voltage from a solution vector (or columns); ground is 0."""
-        i = self.node_index.get(node)
-        return 0.0 * x[0] if i is None else x[i]
 
     # ------------------------------------------------------------------ factorization
 

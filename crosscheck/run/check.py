@@ -8,15 +8,11 @@ analyses as correctness allows.
 from __future__ import annotations
 
 import time
-import warnings
-from collections.abc import Callable, Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from concurrent.futures import Future
-from contextlib import contextmanager
 from dataclasses import replace
 from pathlib import Path
 from typing import TYPE_CHECKING
-
-import numpy as np
 
 from crosscheck.errors import CrosscheckError, EngineUnavailableError, NetworkError
 from crosscheck.judge.case import judged
@@ -29,6 +25,7 @@ from crosscheck.model.network import Network, Port, check_excitation
 from crosscheck.model.reading import Reading
 from crosscheck.model.tolerance import SOLVER_VS_SPICE, Tolerance
 from crosscheck.own.equivalent import thevenin
+from crosscheck.run.routes import ARITHMETIC_FAILURES, arithmetic_error, quiet_numpy, spice_answer
 from crosscheck.spice.results import SpiceResult
 from crosscheck.vocabulary import Verdict
 
@@ -149,22 +146,6 @@ def unexpected(name: str, stage: str, exc: Exception) -> str:
     )
 
 
-@contextmanager
-def quiet_numpy() -> Iterator[list[str]]:
-    """numpy's floating-point warnings kept off standard error; the list gathers their words for the caller.
-
-    Overflow or invalid values in a solve surface as non-finite answers, which the judgement reports per
-    case; the warnings themselves would only print lines with no case name on the terminal.
-    """
-    caught: list[str] = []
-    with np.errstate(all="ignore"), warnings.catch_warnings(record=True) as records:
-        warnings.simplefilter("always", RuntimeWarning)
-        try:
-            yield caught
-        finally:
-            caught.extend(str(r.message) for r in records if issubclass(r.category, RuntimeWarning))
-
-
 def _finish(
     head: CaseResult,
     network: Network,
@@ -187,25 +168,12 @@ def _finish(
             own = tuple(thevenin(network, Port(*head.port), head.freqs_hz, budget=limits))
     except CrosscheckError as exc:
         error = f"own solver: {exc}"
-    except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
-        error = (
-            f"own solver: the arithmetic failed ({type(exc).__name__}: {str(exc)[:200]}); "
-            + (f"numpy reported: {'; '.join(sorted(set(caught)))[:300]}. " if caught else "")
-            + "check the element values and frequencies for extreme sizes"
-        )
+    except ARITHMETIC_FAILURES as exc:
+        error = arithmetic_error(exc, caught)
     elapsed_own = time.perf_counter() - started
-    spice: SpiceResult | None = None
-    spice_note = ""
-    if future is not None:
-        try:
-            spice = future.result()
-        except EngineUnavailableError as exc:
-            spice_note = str(exc)
-        except CrosscheckError as exc:
-            spice_note = str(exc)
-            error = error or f"ngspice: {exc}"
-    elif engine in ("spice", "both"):
-        spice_note = "ngspice was not run"
+    spice: SpiceResult | None
+    spice, spice_note, spice_error = spice_answer(future, engine)
+    error = error or spice_error
     result = replace(
         head,
         own=own,

@@ -12,13 +12,14 @@ from dataclasses import replace
 
 import numpy as np
 
-from crosscheck.errors import CrosscheckError, EngineUnavailableError
+from crosscheck.errors import CrosscheckError
 from crosscheck.judge.multiport import MultiportResult, judge_multiport
 from crosscheck.judge.result import CaseResult, case_verdict
 from crosscheck.model.budget import Budget
 from crosscheck.model.network import Network
 from crosscheck.model.port_spec import MultiportSpec
 from crosscheck.own.multiport import reduce_ports
+from crosscheck.run.routes import ARITHMETIC_FAILURES, arithmetic_error, quiet_numpy, spice_answer
 from crosscheck.spice.multiport import MultiportSpiceResult
 from crosscheck.spice.results import SpiceResult
 from crosscheck.vocabulary import Verdict
@@ -35,27 +36,16 @@ def finish_multiport(
     """Both routes' matrices for one multi-port case, judged; an own-route failure is the case's error."""
     started = time.perf_counter()
     try:
-        with np.errstate(all="ignore"):
+        with quiet_numpy() as caught:
             limits = None if budget is None else budget.for_elements(len(network.elements))
             own = reduce_ports(network, spec.ports, head.freqs_hz, budget=limits)
     except CrosscheckError as exc:
         return replace(head, error=f"own solver: {exc}", verdict=Verdict.ERROR)
-    except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
-        message = f"own solver: the arithmetic failed ({type(exc).__name__}: {str(exc)[:200]})"
-        return replace(head, error=message, verdict=Verdict.ERROR)
+    except ARITHMETIC_FAILURES as exc:
+        return replace(head, error=arithmetic_error(exc, caught), verdict=Verdict.ERROR)
     elapsed_own = time.perf_counter() - started
-    spice: MultiportSpiceResult | None = None
-    note, error = "", None
-    if future is not None:
-        try:
-            spice = future.result()
-        except EngineUnavailableError as exc:
-            note = str(exc)
-        except CrosscheckError as exc:
-            note = str(exc)
-            error = f"ngspice: {exc}"
-    elif engine in ("spice", "both"):
-        note = "ngspice was not run"
+    spice: MultiportSpiceResult | None
+    spice, note, error = spice_answer(future, engine)
     part = MultiportResult(
         port_names=tuple(p.name for p in spec.ports),
         port_nodes=tuple((p.port.a, p.port.b) for p in spec.ports),
